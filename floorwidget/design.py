@@ -1,0 +1,517 @@
+"""The netlist and its geometry, as numpy struct-of-arrays, and the mutable :class:`Floorplan`.
+
+Conventions (see DEVELOPERS.md):
+
+* Units are micrometres as ``float64``.  Database units appear only at the LEF/DEF boundary
+  (``Design.dbu`` remembers the input's resolution so that DEF export can write integers).
+* A block's position is the **lower-left corner of its footprint after orientation**, which is
+  how DEF places components.
+* Pin offsets ``pin_dx``/``pin_dy`` are measured from the **block centre in the N orientation**
+  (Bookshelf's convention).  :func:`orient_offsets` is the one function that maps them, and the
+  footprint, through the eight LEF/DEF orientations.
+
+The orientation matrices follow the LEF/DEF language reference: N = R0, S = R180, W = R90
+(counter-clockwise), E = R270, FN = MY, FS = MX, FW = MX90, FE = MY90, where the flipped forms are
+the unflipped rotation followed by a mirror through the y axis.
+"""
+
+from __future__ import annotations
+
+import warnings
+from collections import Counter
+from typing import Iterable, Sequence
+
+import numpy as np
+
+__all__ = [
+    "CELL",
+    "CLUSTER",
+    "FIXED",
+    "KIND_NAMES",
+    "MACRO",
+    "MOVABLE",
+    "ORIENTATIONS",
+    "ORIENT_CODE",
+    "PINNED",
+    "STATUS_NAMES",
+    "TERMINAL",
+    "ALL_ORIENTS",
+    "Design",
+    "DesignError",
+    "Floorplan",
+    "orient_mask",
+    "orient_offsets",
+    "orient_size",
+    "off_grid",
+    "snap",
+]
+
+# ---------------------------------------------------------------------------------------------
+# codes
+
+MACRO, CLUSTER, CELL, TERMINAL = 0, 1, 2, 3
+KIND_NAMES = ("macro", "cluster", "cell", "terminal")
+
+MOVABLE, PINNED, FIXED = 0, 1, 2
+STATUS_NAMES = ("movable", "pinned", "fixed")
+
+ORIENTATIONS = ("N", "S", "E", "W", "FN", "FS", "FE", "FW")
+ORIENT_CODE = {o: i for i, o in enumerate(ORIENTATIONS)}
+ALL_ORIENTS = 0xFF  # bitmask with every orientation allowed
+
+# 2x2 matrices acting on centre offsets, indexed by orientation code (see module docstring).
+_ORIENT_MAT = np.array(
+    [
+        [[1, 0], [0, 1]],  # N   R0
+        [[-1, 0], [0, -1]],  # S   R180
+        [[0, 1], [-1, 0]],  # E   R270: (x, y) -> (y, -x)
+        [[0, -1], [1, 0]],  # W   R90:  (x, y) -> (-y, x)
+        [[-1, 0], [0, 1]],  # FN  MY:   (x, y) -> (-x, y)
+        [[1, 0], [0, -1]],  # FS  MX:   (x, y) -> (x, -y)
+        [[0, -1], [-1, 0]],  # FE  MY90: (x, y) -> (-y, -x)
+        [[0, 1], [1, 0]],  # FW  MX90: (x, y) -> (y, x)
+    ],
+    dtype=np.float64,
+)
+_SWAPS = np.array([False, False, True, True, False, False, True, True])
+
+
+class DesignError(ValueError):
+    """Bad input or an inconsistent design.
+
+    Parameters
+    ----------
+    message : str
+        What is wrong, in one line.
+    file, line : optional
+        Where; ``str(err)`` then reads ``file:line: message``.
+    problems : list of str, optional
+        Every problem found, when validation collected several.
+    """
+
+    def __init__(self, message: str, file: str | None = None, line: int | None = None,
+                 problems: Sequence[str] | None = None):
+        self.message = message
+        self.file = None if file is None else str(file)
+        self.line = line
+        self.problems = list(problems) if problems else [message]
+        where = ""
+        if self.file is not None:
+            where = f"{self.file}:{line}: " if line is not None else f"{self.file}: "
+        super().__init__(where + message)
+
+
+# ---------------------------------------------------------------------------------------------
+# orientation: the one place that owns the eight transforms
+
+
+def orient_mask(orients: Iterable[str]) -> int:
+    """Bitmask of allowed orientations from their names (``{"N", "FS"}`` -> ``0b100001``)."""
+    m = 0
+    for o in orients:
+        if o not in ORIENT_CODE:
+            raise DesignError(f"unknown orientation {o!r} (expected one of {', '.join(ORIENTATIONS)})")
+        m |= 1 << ORIENT_CODE[o]
+    return m
+
+
+def orient_size(width, height, orient):
+    """Footprint ``(w, h)`` after orientation: E, W, FE and FW swap width and height."""
+    swap = _SWAPS[np.asarray(orient, dtype=np.intp)]
+    return np.where(swap, height, width), np.where(swap, width, height)
+
+
+def orient_offsets(dx, dy, orient):
+    """Map centre offsets ``(dx, dy)`` given in the N orientation through ``orient`` (codes).
+
+    Examples
+    --------
+    >>> orient_offsets(1.0, 2.0, ORIENT_CODE["W"])   # R90 counter-clockwise
+    (array(-2.), array(1.))
+    """
+    m = _ORIENT_MAT[np.asarray(orient, dtype=np.intp)]
+    dx = np.asarray(dx, dtype=np.float64)
+    dy = np.asarray(dy, dtype=np.float64)
+    return m[..., 0, 0] * dx + m[..., 0, 1] * dy, m[..., 1, 0] * dx + m[..., 1, 1] * dy
+
+
+# ---------------------------------------------------------------------------------------------
+
+
+def _f64(a, shape=None) -> np.ndarray:
+    a = np.ascontiguousarray(a, dtype=np.float64)
+    if shape is not None:
+        a = a.reshape(shape)
+    return a
+
+
+class Design:
+    """An immutable-by-convention netlist with geometry.
+
+    Parameters
+    ----------
+    name : str
+        Design name.
+    die : (xlo, ylo, xhi, yhi)
+        Die outline, µm.
+    names, kind, width, height : sequences of length n
+        Block names, kind codes (:data:`MACRO`, :data:`CLUSTER`, :data:`CELL`, :data:`TERMINAL`),
+        footprint in the N orientation.
+    net_start, pin_block, pin_dx, pin_dy : arrays
+        Nets in CSR form: the pins of net ``k`` are ``net_start[k]:net_start[k+1]``; each pin
+        names its block and its offset from the block centre in the N orientation.
+    halo : (n, 4) array, optional
+        Keep-out margin left, bottom, right, top of the placed footprint (not rotated).
+    orient_allowed : (n,) uint8 bitmask, optional
+        Allowed orientations (default: all eight for macros, N only for others).
+    net_names, net_weight, pin_names : optional
+    rows : dict of arrays ``x, y, height, site_width, num_sites`` (and ``orient``), optional
+        Placement rows; the core area is their bounding box (the die when there are none).
+    grid_pitch, grid_origin : (2,), optional
+        Snap grid for macros (default: site width by row height from the origin of the rows).
+    blockages : (k, 4) array, optional
+        Placement blockages ``xlo, ylo, xhi, yhi``.
+    block_type : list of str, optional
+        Master (library cell) name per block, for DEF export.
+    x, y, orient, status : arrays, optional
+        Initial placement from the input; :attr:`initial` holds it as a :class:`Floorplan`.
+    dbu : int
+        Database units per µm remembered for DEF export.
+    validate : bool
+        Run :meth:`validate` (raising :class:`DesignError` listing every problem).
+    """
+
+    def __init__(self, name: str, die, names: Sequence[str], kind, width, height,
+                 net_start, pin_block, pin_dx, pin_dy, *, halo=None, orient_allowed=None,
+                 net_names: Sequence[str] | None = None, net_weight=None,
+                 pin_names: Sequence[str] | None = None, rows: dict | None = None,
+                 grid_pitch=None, grid_origin=None, blockages=None,
+                 block_type: Sequence[str] | None = None,
+                 x=None, y=None, orient=None, status=None, dbu: int = 1000,
+                 validate: bool = True, source: str | None = None):
+        self.name = str(name)
+        self.source = source
+        self.dbu = int(dbu)
+        self.die = _f64(die, (4,))
+        self.names = list(names)
+        n = len(self.names)
+        self.kind = np.ascontiguousarray(kind, dtype=np.int8).reshape(n)
+        self.width = _f64(width, (n,))
+        self.height = _f64(height, (n,))
+        self.halo = np.zeros((n, 4)) if halo is None else _f64(halo, (n, 4))
+        if orient_allowed is None:
+            orient_allowed = np.where(self.kind == MACRO, ALL_ORIENTS, 1)
+        self.orient_allowed = np.ascontiguousarray(orient_allowed, dtype=np.uint8).reshape(n)
+        self.block_type = list(block_type) if block_type is not None else None
+
+        self.net_start = np.ascontiguousarray(net_start, dtype=np.int64)
+        self.pin_block = np.ascontiguousarray(pin_block, dtype=np.int64)
+        self.pin_dx = _f64(pin_dx)
+        self.pin_dy = _f64(pin_dy)
+        m = len(self.net_start) - 1
+        self.net_names = list(net_names) if net_names is not None else [f"n{i}" for i in range(m)]
+        self.net_weight = np.ones(m) if net_weight is None else _f64(net_weight, (m,))
+        self.pin_names = list(pin_names) if pin_names is not None else None
+
+        rows = rows or {}
+        self.row_x = _f64(rows.get("x", ()))
+        self.row_y = _f64(rows.get("y", ()))
+        self.row_height = _f64(rows.get("height", ()))
+        self.row_site_width = _f64(rows.get("site_width", ()))
+        self.row_num_sites = np.ascontiguousarray(rows.get("num_sites", ()), dtype=np.int64)
+        self.row_orient = np.ascontiguousarray(
+            rows.get("orient", np.zeros(len(self.row_x))), dtype=np.int8)
+        self.site_name = str(rows.get("site_name", "core"))
+        if len(self.row_x):
+            xhi = self.row_x + self.row_site_width * self.row_num_sites
+            self.core = np.array([self.row_x.min(), self.row_y.min(), xhi.max(),
+                                  (self.row_y + self.row_height).max()])
+        else:
+            self.core = self.die.copy()
+        if grid_pitch is None:
+            grid_pitch = ((float(self.row_site_width[0]), float(self.row_height[0]))
+                          if len(self.row_x) else (0.001, 0.001))
+        self.grid_pitch = _f64(grid_pitch, (2,))
+        self.grid_origin = _f64(self.core[:2] if grid_origin is None else grid_origin, (2,))
+        self.blockages = np.zeros((0, 4)) if blockages is None else _f64(blockages, (-1, 4))
+
+        self._index: dict[str, int] | None = None
+        if validate:
+            self._drop_single_pin_nets()
+            self.validate()
+        # initial placement: zeros where none given
+        st = np.zeros(n, np.int8) if status is None else status
+        init_x = np.zeros(n) if x is None else x
+        init_y = np.zeros(n) if y is None else y
+        self.initial = Floorplan(self, init_x, init_y, orient, st)
+        if validate:
+            bad = ~(np.isfinite(self.initial.x) & np.isfinite(self.initial.y))
+            if bad.any():
+                i = int(np.flatnonzero(bad)[0])
+                raise DesignError(f"block {self.names[i]!r}: position is not finite")
+
+    # --- sizes and lookups -------------------------------------------------------------------
+    @property
+    def num_blocks(self) -> int:
+        return len(self.names)
+
+    @property
+    def num_nets(self) -> int:
+        return len(self.net_start) - 1
+
+    @property
+    def num_pins(self) -> int:
+        return len(self.pin_block)
+
+    @property
+    def index(self) -> dict[str, int]:
+        """Name -> block index (built once, shared by every floorplan of this design)."""
+        if self._index is None:
+            self._index = {nm: i for i, nm in enumerate(self.names)}
+        return self._index
+
+    def block(self, name: str) -> int:
+        """Index of block ``name``; ``KeyError`` naming it when unknown."""
+        try:
+            return self.index[name]
+        except KeyError:
+            raise KeyError(f"no block named {name!r} in design {self.name!r}") from None
+
+    @property
+    def macros(self) -> list[str]:
+        """Macro names in input order."""
+        return [self.names[i] for i in np.flatnonzero(self.kind == MACRO)]
+
+    @property
+    def pin_net(self) -> np.ndarray:
+        """Net index of every pin."""
+        return np.repeat(np.arange(self.num_nets), np.diff(self.net_start))
+
+    @property
+    def net_degree(self) -> np.ndarray:
+        return np.diff(self.net_start)
+
+    def nets_of(self, blocks) -> np.ndarray:
+        """Indices of the nets touching any of ``blocks`` (indices), sorted."""
+        mask = np.zeros(self.num_blocks, bool)
+        mask[np.asarray(blocks, dtype=np.intp)] = True
+        return np.unique(self.pin_net[mask[self.pin_block]])
+
+    def allowed_orientations(self, name: str) -> list[str]:
+        bits = int(self.orient_allowed[self.block(name)])
+        return [o for i, o in enumerate(ORIENTATIONS) if bits >> i & 1]
+
+    def __repr__(self) -> str:
+        counts = np.bincount(self.kind, minlength=4)
+        return (f"<Design {self.name!r}: {counts[MACRO]} macros, {counts[CLUSTER]} clusters, "
+                f"{counts[CELL]} cells, {counts[TERMINAL]} terminals, {self.num_nets} nets, "
+                f"die {self.die[2] - self.die[0]:g} x {self.die[3] - self.die[1]:g} µm>")
+
+    # --- validation --------------------------------------------------------------------------
+    def _drop_single_pin_nets(self) -> None:
+        deg = self.net_degree
+        single = deg == 1
+        if not single.any():
+            return
+        warnings.warn(f"design {self.name!r}: dropped {int(single.sum())} single-pin net(s), "
+                      f"e.g. {self.net_names[int(np.flatnonzero(single)[0])]!r}", stacklevel=3)
+        keep_net = ~single
+        keep_pin = np.repeat(keep_net, deg)
+        self.pin_block = self.pin_block[keep_pin]
+        self.pin_dx = self.pin_dx[keep_pin]
+        self.pin_dy = self.pin_dy[keep_pin]
+        if self.pin_names is not None:
+            self.pin_names = [p for p, k in zip(self.pin_names, keep_pin) if k]
+        self.net_start = np.concatenate([[0], np.cumsum(deg[keep_net])]).astype(np.int64)
+        self.net_names = [nm for nm, k in zip(self.net_names, keep_net) if k]
+        self.net_weight = self.net_weight[keep_net]
+
+    def problems(self) -> list[str]:
+        """Every problem with this design, as one-line strings (empty when valid)."""
+        out: list[str] = []
+        n, m = self.num_blocks, self.num_nets
+
+        def some(mask, what, names=self.names, limit=3):
+            idx = np.flatnonzero(mask)
+            if len(idx):
+                shown = ", ".join(repr(names[i]) for i in idx[:limit])
+                more = f" and {len(idx) - limit} more" if len(idx) > limit else ""
+                out.append(f"{what}: {shown}{more}")
+
+        d = self.die
+        if not (np.isfinite(d).all() and d[2] > d[0] and d[3] > d[1]):
+            out.append(f"die {d.tolist()} is not a finite rectangle of positive size")
+        if len(set(self.names)) != n:
+            dup = [k for k, c in Counter(self.names).items() if c > 1]
+            out.append(f"duplicate block names: {', '.join(map(repr, dup[:3]))}"
+                       + (f" and {len(dup) - 3} more" if len(dup) > 3 else ""))
+        if len(set(self.net_names)) != m:
+            dup = [k for k, c in Counter(self.net_names).items() if c > 1]
+            out.append(f"duplicate net names: {', '.join(map(repr, dup[:3]))}")
+        if ((self.kind < 0) | (self.kind > TERMINAL)).any():
+            some((self.kind < 0) | (self.kind > TERMINAL), "unknown block kind")
+        sized = self.kind != TERMINAL
+        bad_size = ~(np.isfinite(self.width) & np.isfinite(self.height))
+        bad_size |= sized & ((self.width <= 0) | (self.height <= 0))
+        bad_size |= (self.width < 0) | (self.height < 0)
+        some(bad_size, "non-positive or non-finite size")
+        some(~np.isfinite(self.halo).all(axis=1) | (self.halo < 0).any(axis=1),
+             "negative or non-finite halo")
+        some(self.orient_allowed == 0, "no allowed orientation")
+        # a macro larger than the die in every allowed orientation
+        dw, dh = d[2] - d[0], d[3] - d[1]
+        fits_n = (self.width <= dw) & (self.height <= dh)
+        fits_r = (self.height <= dw) & (self.width <= dh)
+        rot_ok = (self.orient_allowed & 0b11001100) != 0
+        some((self.kind == MACRO) & ~(fits_n | (rot_ok & fits_r)), "macro larger than the die")
+        # nets
+        if len(self.net_start) == 0 or self.net_start[0] != 0 or self.net_start[-1] != self.num_pins \
+                or (np.diff(self.net_start) < 0).any():
+            out.append("net_start is not a valid CSR index over the pins")
+            return out
+        if len(self.pin_dx) != self.num_pins or len(self.pin_dy) != self.num_pins:
+            out.append("pin offset arrays do not match the number of pins")
+            return out
+        some(self.net_degree == 0, "empty net", names=self.net_names)
+        some(~np.isfinite(self.net_weight) | (self.net_weight < 0), "negative or non-finite net weight",
+             names=self.net_names)
+        unknown = (self.pin_block < 0) | (self.pin_block >= n)
+        if unknown.any():
+            some(np.isin(np.arange(m), self.pin_net[unknown]), "pins on unknown blocks",
+                 names=self.net_names)
+        else:
+            b = self.pin_block
+            tol = 1e-6 + 1e-9 * np.maximum(self.width[b], self.height[b])
+            outside = ~(np.isfinite(self.pin_dx) & np.isfinite(self.pin_dy))
+            outside |= (np.abs(self.pin_dx) > self.width[b] / 2 + tol) | \
+                       (np.abs(self.pin_dy) > self.height[b] / 2 + tol)
+            outside &= self.kind[b] != TERMINAL
+            if outside.any():
+                blocks = np.zeros(n, bool)
+                blocks[b[outside]] = True
+                some(blocks, "pin outside its block")
+        # rows and grid
+        if len(self.row_x):
+            if not (np.isfinite(self.row_x).all() and np.isfinite(self.row_y).all()):
+                out.append("row origin is not finite")
+            if (self.row_height <= 0).any() or (self.row_site_width <= 0).any() \
+                    or (self.row_num_sites <= 0).any():
+                out.append("row with non-positive height, site width or site count")
+            c = self.core
+            if c[0] < d[0] - 1e-6 or c[1] < d[1] - 1e-6 or c[2] > d[2] + 1e-6 or c[3] > d[3] + 1e-6:
+                out.append(f"rows reach outside the die (core {c.tolist()}, die {d.tolist()})")
+        if not (np.isfinite(self.grid_pitch).all() and (self.grid_pitch > 0).all()):
+            out.append(f"grid pitch {self.grid_pitch.tolist()} must be positive")
+        bl = self.blockages
+        if len(bl) and not (np.isfinite(bl).all() and (bl[:, 2] > bl[:, 0]).all()
+                            and (bl[:, 3] > bl[:, 1]).all()):
+            out.append("placement blockage that is not a finite rectangle of positive size")
+        return out
+
+    def validate(self) -> None:
+        """Raise :class:`DesignError` listing every problem at once (message on one line)."""
+        probs = self.problems()
+        if probs:
+            head = f"design {self.name!r}" + (f" from {self.source}" if self.source else "")
+            raise DesignError(f"{head}: {len(probs)} problem(s): " + "; ".join(probs),
+                              problems=probs)
+
+
+class Floorplan:
+    """The mutable state of one placement of a :class:`Design`.
+
+    Attributes
+    ----------
+    x, y : float64 arrays
+        Lower-left corner of each block's oriented footprint, µm.
+    orient : int8 array
+        Orientation codes (index into :data:`ORIENTATIONS`).
+    status : int8 array
+        :data:`MOVABLE`, :data:`PINNED` (by the user) or :data:`FIXED` (by the input).
+    info : dict
+        Free-form facts from whoever produced it (iterations, solve time, ...).
+
+    Copying (:meth:`copy`) duplicates the four arrays and shares the design, so an alternative
+    costs ``18`` bytes per block.
+    """
+
+    __slots__ = ("design", "x", "y", "orient", "status", "info")
+
+    def __init__(self, design: Design, x, y, orient=None, status=None, info: dict | None = None):
+        n = design.num_blocks
+        self.design = design
+        self.x = np.array(x, dtype=np.float64).reshape(n)
+        self.y = np.array(y, dtype=np.float64).reshape(n)
+        self.orient = (np.zeros(n, np.int8) if orient is None
+                       else np.array(orient, dtype=np.int8).reshape(n))
+        self.status = (np.zeros(n, np.int8) if status is None
+                       else np.array(status, dtype=np.int8).reshape(n))
+        self.info = dict(info or {})
+
+    def copy(self) -> "Floorplan":
+        return Floorplan(self.design, self.x, self.y, self.orient, self.status, self.info)
+
+    # --- per-name access ---------------------------------------------------------------------
+    def position(self, name: str) -> tuple[float, float]:
+        i = self.design.block(name)
+        return float(self.x[i]), float(self.y[i])
+
+    def orientation(self, name: str) -> str:
+        return ORIENTATIONS[int(self.orient[self.design.block(name)])]
+
+    def status_of(self, name: str) -> str:
+        return STATUS_NAMES[int(self.status[self.design.block(name)])]
+
+    # --- geometry ----------------------------------------------------------------------------
+    def sizes(self) -> tuple[np.ndarray, np.ndarray]:
+        """Oriented footprint ``(w, h)`` of every block."""
+        return orient_size(self.design.width, self.design.height, self.orient)
+
+    def centres(self) -> tuple[np.ndarray, np.ndarray]:
+        w, h = self.sizes()
+        return self.x + w / 2, self.y + h / 2
+
+    def rects(self, halo: bool = False) -> np.ndarray:
+        """``(n, 4)`` rectangles ``xlo, ylo, xhi, yhi`` (with halos when ``halo``)."""
+        w, h = self.sizes()
+        r = np.stack([self.x, self.y, self.x + w, self.y + h], axis=1)
+        if halo:
+            hl = self.design.halo
+            r += np.stack([-hl[:, 0], -hl[:, 1], hl[:, 2], hl[:, 3]], axis=1)
+        return r
+
+    def pin_positions(self) -> tuple[np.ndarray, np.ndarray]:
+        """Absolute position of every pin, orientation and offsets applied."""
+        d = self.design
+        b = d.pin_block
+        cx, cy = self.centres()
+        ox, oy = orient_offsets(d.pin_dx, d.pin_dy, self.orient[b])
+        return cx[b] + ox, cy[b] + oy
+
+    @property
+    def movable(self) -> np.ndarray:
+        """Mask of blocks a placer may move."""
+        return self.status == MOVABLE
+
+    def identical(self, other: "Floorplan") -> bool:
+        """Bit-exact equality of positions, orientations and statuses."""
+        return (np.array_equal(self.x, other.x) and np.array_equal(self.y, other.y)
+                and np.array_equal(self.orient, other.orient)
+                and np.array_equal(self.status, other.status))
+
+    def __repr__(self) -> str:
+        counts = np.bincount(self.status, minlength=3)
+        return (f"<Floorplan of {self.design.name!r}: {counts[MOVABLE]} movable, "
+                f"{counts[PINNED]} pinned, {counts[FIXED]} fixed>")
+
+
+def snap(values, origin: float, pitch: float):
+    """Round ``values`` to the nearest grid line ``origin + k * pitch``."""
+    return origin + np.round((np.asarray(values, dtype=np.float64) - origin) / pitch) * pitch
+
+
+def off_grid(values, origin: float, pitch: float, tol: float = 1e-6) -> np.ndarray:
+    """Mask of values not on the grid ``origin + k * pitch`` (within ``tol`` µm)."""
+    v = np.asarray(values, dtype=np.float64)
+    return np.abs(snap(v, origin, pitch) - v) > tol + 1e-12 * np.abs(v)
+

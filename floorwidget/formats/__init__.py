@@ -1,0 +1,74 @@
+"""Readers and writers.  :func:`load` and :func:`save` pick the format by file extension.
+
+=========  ====================================  ==========================================
+suffix     format                                module
+=========  ====================================  ==========================================
+``.json``  native, versioned JSON (µm)           :mod:`floorwidget.formats.native_json`
+``.aux``   Bookshelf (.nodes .nets .pl .scl)     :mod:`floorwidget.formats.bookshelf`
+``.pl``    Bookshelf placement (write only)      :mod:`floorwidget.formats.bookshelf`
+``.def``   DEF (+ LEF libraries)                 :mod:`floorwidget.formats.lefdef`
+=========  ====================================  ==========================================
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Sequence
+
+from ..design import Design, DesignError, Floorplan
+
+__all__ = ["load", "save", "READ_SUFFIXES", "WRITE_SUFFIXES"]
+
+READ_SUFFIXES = (".json", ".aux", ".def")
+WRITE_SUFFIXES = (".json", ".pl", ".def")
+
+
+def _lefs(lef) -> list[str]:
+    if lef is None:
+        return []
+    if isinstance(lef, (str, Path)):
+        return [str(lef)]
+    return [str(p) for p in lef]
+
+
+def load(path, lef: str | Sequence[str] | None = None) -> Design:
+    """Read a design: ``.json`` native, ``.aux`` Bookshelf, ``.def`` (with ``lef=`` libraries).
+
+    Raises
+    ------
+    DesignError
+        Naming the file and line of the first bad statement (or every validation problem).
+    """
+    p = Path(path)
+    suffix = p.suffix.lower()
+    if suffix == ".json":
+        from .native_json import read_json
+        return read_json(p)
+    if suffix == ".aux":
+        from .bookshelf import read_aux
+        return read_aux(p)
+    if suffix == ".def":
+        from .lefdef import read_def
+        return read_def(p, lef=_lefs(lef))
+    raise DesignError(f"unknown design format {suffix or '(no suffix)'!r}; "
+                      f"expected one of {', '.join(READ_SUFFIXES)}", file=str(p))
+
+
+def save(design: Design, floorplan: Floorplan | None, path) -> None:
+    """Write ``floorplan`` (default: the design's initial one) by extension, atomically."""
+    p = Path(path)
+    fp = design.initial if floorplan is None else floorplan
+    if fp.design is not design:
+        raise DesignError("the floorplan belongs to another design", file=str(p))
+    suffix = p.suffix.lower()
+    if suffix == ".json":
+        from .native_json import write_json
+        return write_json(design, fp, p)
+    if suffix == ".pl":
+        from .bookshelf import write_pl
+        return write_pl(design, fp, p)
+    if suffix == ".def":
+        from .lefdef import write_def
+        return write_def(design, fp, p)
+    raise DesignError(f"unknown output format {suffix or '(no suffix)'!r}; "
+                      f"expected one of {', '.join(WRITE_SUFFIXES)}", file=str(p))

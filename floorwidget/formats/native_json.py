@@ -1,0 +1,322 @@
+"""The native format: versioned, human-editable JSON in micrometres.
+
+Layout (version 1)::
+
+    {
+      "format": "floorwidget-design", "version": 1,
+      "name": "...", "units": "um", "dbu": 1000,
+      "die": [xlo, ylo, xhi, yhi],
+      "rows": [{"x": .., "y": .., "height": .., "site_width": .., "num_sites": .., "orient": "N"}],
+      "site": "core",
+      "grid": {"pitch": [px, py], "origin": [x0, y0]},
+      "blockages": [[xlo, ylo, xhi, yhi], ...],
+      "blocks": [{"name": .., "kind": "macro|cluster|cell|terminal", "width": .., "height": ..,
+                  "halo": [l, b, r, t] or h, "orientations": ["N", "FN", ..], "type": "..",
+                  "x": .., "y": .., "orient": "N", "status": "movable|pinned|fixed"}],
+      "nets": [{"name": .., "weight": 1.0, "pins": [[block, dx, dy] or [block, dx, dy, pin]]}]
+    }
+
+Pin offsets are from the block centre in the N orientation.  Optional fields take defaults
+(``halo`` 0, ``orientations`` all for macros and N otherwise, ``weight`` 1, ``status`` movable,
+``x``/``y`` 0, ``orient`` N).  Floats are written with ``repr`` so a round trip is exact.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from pathlib import Path
+
+import numpy as np
+
+from ..design import (
+    ALL_ORIENTS,
+    KIND_NAMES,
+    MACRO,
+    ORIENT_CODE,
+    ORIENTATIONS,
+    STATUS_NAMES,
+    Design,
+    DesignError,
+    Floorplan,
+)
+from ._io import atomic_write, read_text
+
+FORMAT = "floorwidget-design"
+VERSION = 1
+_KIND = {k: i for i, k in enumerate(KIND_NAMES)}
+_STATUS = {k: i for i, k in enumerate(STATUS_NAMES)}
+
+
+class _Reader:
+    def __init__(self, path: Path):
+        self.path = str(path)
+
+    def fail(self, where: str, msg: str):
+        raise DesignError(f"{where}: {msg}", file=self.path)
+
+    def get(self, obj: dict, key: str, where: str, default=KeyError):
+        if not isinstance(obj, dict):
+            self.fail(where, f"expected an object, got {type(obj).__name__}")
+        if key in obj:
+            return obj[key]
+        if default is KeyError:
+            self.fail(f"{where}.{key}" if where else key, "missing")
+        return default
+
+    def num(self, v, where: str, positive: bool = False, nonneg: bool = False) -> float:
+        if isinstance(v, bool) or not isinstance(v, (int, float)):
+            self.fail(where, f"expected a number, got {json.dumps(v)[:40]}")
+        v = float(v)
+        if not math.isfinite(v):
+            self.fail(where, "not a finite number")
+        if positive and v <= 0:
+            self.fail(where, f"must be positive, got {v:g}")
+        if nonneg and v < 0:
+            self.fail(where, f"must not be negative, got {v:g}")
+        return v
+
+    def nums(self, v, n: int, where: str) -> list[float]:
+        if not isinstance(v, list) or len(v) != n:
+            self.fail(where, f"expected a list of {n} numbers")
+        return [self.num(x, f"{where}[{i}]") for i, x in enumerate(v)]
+
+    def text(self, v, where: str) -> str:
+        if not isinstance(v, str) or not v:
+            self.fail(where, f"expected a non-empty string, got {json.dumps(v)[:40]}")
+        return v
+
+    def choice(self, v, table: dict, where: str) -> int:
+        if v not in table:
+            self.fail(where, f"expected one of {', '.join(table)}, got {json.dumps(v)[:40]}")
+        return table[v]
+
+    def items(self, obj, key, where, default=KeyError) -> list:
+        v = self.get(obj, key, where, default)
+        if not isinstance(v, list):
+            self.fail(f"{where}.{key}" if where else key, "expected a list")
+        return v
+
+
+def parse_json(doc: dict, path) -> Design:
+    """Build a :class:`Design` from an already decoded native document."""
+    r = _Reader(path)
+    if not isinstance(doc, dict):
+        r.fail("(top level)", "expected an object")
+    fmt = r.get(doc, "format", "")
+    if fmt != FORMAT:
+        r.fail("format", f"expected {FORMAT!r}, got {json.dumps(fmt)[:40]}")
+    version = r.get(doc, "version", "")
+    if version != VERSION:
+        r.fail("version", f"this floorwidget reads version {VERSION}, the file is {version!r}")
+    units = doc.get("units", "um")
+    if units != "um":
+        r.fail("units", f"expected 'um', got {json.dumps(units)[:40]}")
+    name = r.text(r.get(doc, "name", ""), "name")
+    die = r.nums(r.get(doc, "die", ""), 4, "die")
+
+    rows = {"x": [], "y": [], "height": [], "site_width": [], "num_sites": [], "orient": []}
+    for i, row in enumerate(r.items(doc, "rows", "", [])):
+        w = f"rows[{i}]"
+        rows["x"].append(r.num(r.get(row, "x", w), f"{w}.x"))
+        rows["y"].append(r.num(r.get(row, "y", w), f"{w}.y"))
+        rows["height"].append(r.num(r.get(row, "height", w), f"{w}.height", positive=True))
+        rows["site_width"].append(r.num(r.get(row, "site_width", w), f"{w}.site_width",
+                                        positive=True))
+        ns = r.get(row, "num_sites", w)
+        if isinstance(ns, bool) or not isinstance(ns, int) or ns <= 0:
+            r.fail(f"{w}.num_sites", "expected a positive whole number")
+        rows["num_sites"].append(ns)
+        rows["orient"].append(r.choice(row.get("orient", "N"), ORIENT_CODE, f"{w}.orient"))
+    rows["site_name"] = doc.get("site", "core")
+
+    grid = r.get(doc, "grid", "", None)
+    pitch = origin = None
+    if grid is not None:
+        pitch = r.nums(r.get(grid, "pitch", "grid"), 2, "grid.pitch")
+        if min(pitch) <= 0:
+            r.fail("grid.pitch", "must be positive")
+        if "origin" in grid:
+            origin = r.nums(grid["origin"], 2, "grid.origin")
+
+    blockages = []
+    for i, b in enumerate(r.items(doc, "blockages", "", [])):
+        blockages.append(r.nums(b, 4, f"blockages[{i}]"))
+
+    blocks = r.items(doc, "blocks", "")
+    n = len(blocks)
+    names, kind, width, height = [], np.zeros(n, np.int8), np.zeros(n), np.zeros(n)
+    halo, allowed = np.zeros((n, 4)), np.zeros(n, np.uint8)
+    x, y, orient, status = np.zeros(n), np.zeros(n), np.zeros(n, np.int8), np.zeros(n, np.int8)
+    types: list[str] = []
+    any_type = False
+    for i, b in enumerate(blocks):
+        w = f"blocks[{i}]"
+        names.append(r.text(r.get(b, "name", w), f"{w}.name"))
+        kind[i] = r.choice(r.get(b, "kind", w), _KIND, f"{w}.kind")
+        width[i] = r.num(r.get(b, "width", w), f"{w}.width", nonneg=True)
+        height[i] = r.num(r.get(b, "height", w), f"{w}.height", nonneg=True)
+        h = b.get("halo", 0)
+        if isinstance(h, list):
+            halo[i] = r.nums(h, 4, f"{w}.halo")
+        else:
+            halo[i] = r.num(h, f"{w}.halo")
+        if (halo[i] < 0).any():
+            r.fail(f"{w}.halo", "must not be negative")
+        ors = b.get("orientations")
+        if ors is None:
+            allowed[i] = ALL_ORIENTS if kind[i] == MACRO else 1
+        else:
+            if not isinstance(ors, list) or not ors:
+                r.fail(f"{w}.orientations", "expected a non-empty list of orientations")
+            bits = 0
+            for j, o in enumerate(ors):
+                bits |= 1 << r.choice(o, ORIENT_CODE, f"{w}.orientations[{j}]")
+            allowed[i] = bits
+        x[i] = r.num(b.get("x", 0.0), f"{w}.x")
+        y[i] = r.num(b.get("y", 0.0), f"{w}.y")
+        orient[i] = r.choice(b.get("orient", "N"), ORIENT_CODE, f"{w}.orient")
+        status[i] = r.choice(b.get("status", "movable"), _STATUS, f"{w}.status")
+        t = b.get("type")
+        if t is not None:
+            any_type = True
+            types.append(r.text(t, f"{w}.type"))
+        else:
+            types.append("")
+
+    index = {nm: i for i, nm in enumerate(names)}
+    if len(index) != n:
+        seen: set[str] = set()
+        for i, nm in enumerate(names):
+            if nm in seen:
+                r.fail(f"blocks[{i}].name", f"duplicate block name {nm!r}")
+            seen.add(nm)
+
+    nets = r.items(doc, "nets", "")
+    net_names, weights, starts = [], np.ones(len(nets)), [0]
+    pin_block, pin_dx, pin_dy, pin_names = [], [], [], []
+    any_pin_name = False
+    for k, net in enumerate(nets):
+        w = f"nets[{k}]"
+        net_names.append(r.text(r.get(net, "name", w), f"{w}.name"))
+        weights[k] = r.num(net.get("weight", 1.0), f"{w}.weight", nonneg=True)
+        for j, p in enumerate(r.items(net, "pins", w)):
+            pw = f"{w}.pins[{j}]"
+            if not isinstance(p, list) or len(p) not in (3, 4):
+                r.fail(pw, "expected [block, dx, dy] or [block, dx, dy, pin]")
+            b = index.get(p[0]) if isinstance(p[0], str) else None
+            if b is None:
+                r.fail(f"{pw}[0]", f"unknown block {json.dumps(p[0])[:40]}")
+            pin_block.append(b)
+            pin_dx.append(r.num(p[1], f"{pw}[1]"))
+            pin_dy.append(r.num(p[2], f"{pw}[2]"))
+            if len(p) == 4:
+                any_pin_name = True
+                pin_names.append(r.text(p[3], f"{pw}[3]"))
+            else:
+                pin_names.append("")
+        starts.append(len(pin_block))
+
+    dbu = doc.get("dbu", 1000)
+    if isinstance(dbu, bool) or not isinstance(dbu, int) or dbu <= 0:
+        r.fail("dbu", "expected a positive whole number")
+    return Design(
+        name, die, names, kind, width, height, starts, pin_block, pin_dx, pin_dy,
+        halo=halo, orient_allowed=allowed, net_names=net_names, net_weight=weights,
+        pin_names=pin_names if any_pin_name else None, rows=rows, grid_pitch=pitch,
+        grid_origin=origin, blockages=np.array(blockages).reshape(-1, 4),
+        block_type=types if any_type else None, x=x, y=y, orient=orient, status=status,
+        dbu=dbu, source=str(path))
+
+
+def read_json(path) -> Design:
+    """Read a native ``.json`` design.  Errors name the file and the JSON path of the field."""
+    path = Path(path)
+    text = read_text(path)
+    try:
+        doc = json.loads(text)
+    except json.JSONDecodeError as e:
+        raise DesignError(f"invalid JSON: {e.msg} (column {e.colno})", file=str(path),
+                          line=e.lineno) from None
+    return parse_json(doc, path)
+
+
+def _clean(v: float):
+    """Integers stay integers in the file (easier to read); other floats keep full precision."""
+    f = float(v)
+    return int(f) if f.is_integer() and abs(f) < 2**53 else f
+
+
+def to_document(design: Design, fp: Floorplan) -> dict:
+    """The native document for ``design`` placed as ``fp``."""
+    d = design
+    rows = [{"x": _clean(d.row_x[i]), "y": _clean(d.row_y[i]), "height": _clean(d.row_height[i]),
+             "site_width": _clean(d.row_site_width[i]), "num_sites": int(d.row_num_sites[i]),
+             "orient": ORIENTATIONS[int(d.row_orient[i])]} for i in range(len(d.row_x))]
+    blocks = []
+    for i, nm in enumerate(d.names):
+        b = {"name": nm, "kind": KIND_NAMES[d.kind[i]], "width": _clean(d.width[i]),
+             "height": _clean(d.height[i])}
+        h = d.halo[i]
+        if h.any():
+            b["halo"] = _clean(h[0]) if (h == h[0]).all() else [_clean(v) for v in h]
+        default_allowed = ALL_ORIENTS if d.kind[i] == MACRO else 1
+        if d.orient_allowed[i] != default_allowed:
+            bits = int(d.orient_allowed[i])
+            b["orientations"] = [o for j, o in enumerate(ORIENTATIONS) if bits >> j & 1]
+        if d.block_type is not None and d.block_type[i]:
+            b["type"] = d.block_type[i]
+        b["x"] = _clean(fp.x[i])
+        b["y"] = _clean(fp.y[i])
+        if fp.orient[i]:
+            b["orient"] = ORIENTATIONS[int(fp.orient[i])]
+        if fp.status[i]:
+            b["status"] = STATUS_NAMES[int(fp.status[i])]
+        blocks.append(b)
+    nets = []
+    names = d.names
+    pb, px, py = d.pin_block.tolist(), d.pin_dx.tolist(), d.pin_dy.tolist()
+    pn = d.pin_names
+    starts = d.net_start.tolist()
+    for k, nm in enumerate(d.net_names):
+        s, e = starts[k], starts[k + 1]
+        if pn is None:
+            pins = [[names[pb[j]], _clean(px[j]), _clean(py[j])] for j in range(s, e)]
+        else:
+            pins = [[names[pb[j]], _clean(px[j]), _clean(py[j])] + ([pn[j]] if pn[j] else [])
+                    for j in range(s, e)]
+        net = {"name": nm, "pins": pins}
+        if d.net_weight[k] != 1.0:
+            net["weight"] = _clean(d.net_weight[k])
+        nets.append(net)
+    doc = {"format": FORMAT, "version": VERSION, "name": d.name, "units": "um", "dbu": d.dbu,
+           "die": [_clean(v) for v in d.die], "site": d.site_name, "rows": rows,
+           "grid": {"pitch": [_clean(v) for v in d.grid_pitch],
+                    "origin": [_clean(v) for v in d.grid_origin]},
+           "blockages": [[_clean(v) for v in b] for b in d.blockages],
+           "blocks": blocks, "nets": nets}
+    return doc
+
+
+def write_json(design: Design, fp: Floorplan, path) -> None:
+    """Write the native document atomically (temporary file, then rename)."""
+    doc = to_document(design, fp)
+    with atomic_write(path) as f:
+        _dump(doc, f)
+
+
+def _dump(doc: dict, f) -> None:
+    """One block or net per line: diffable and still easy to edit by hand."""
+    f.write("{\n")
+    keys = list(doc)
+    for i, k in enumerate(keys):
+        v = doc[k]
+        f.write(f"  {json.dumps(k)}: ")
+        if isinstance(v, list) and v and isinstance(v[0], (dict, list)):
+            f.write("[\n")
+            f.write(",\n".join("    " + json.dumps(item, ensure_ascii=False) for item in v))
+            f.write("\n  ]")
+        else:
+            f.write(json.dumps(v, ensure_ascii=False))
+        f.write(",\n" if i < len(keys) - 1 else "\n")
+    f.write("}\n")
