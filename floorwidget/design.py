@@ -19,7 +19,7 @@ from __future__ import annotations
 
 import warnings
 from collections import Counter
-from typing import Iterable, Sequence
+from collections.abc import Iterable, Sequence
 
 import numpy as np
 
@@ -110,7 +110,8 @@ def orient_mask(orients: Iterable[str]) -> int:
     m = 0
     for o in orients:
         if o not in ORIENT_CODE:
-            raise DesignError(f"unknown orientation {o!r} (expected one of {', '.join(ORIENTATIONS)})")
+            raise DesignError(f"unknown orientation {o!r} "
+                              f"(expected one of {', '.join(ORIENTATIONS)})")
         m |= 1 << ORIENT_CODE[o]
     return m
 
@@ -365,16 +366,16 @@ class Design:
         rot_ok = (self.orient_allowed & 0b11001100) != 0
         some((self.kind == MACRO) & ~(fits_n | (rot_ok & fits_r)), "macro larger than the die")
         # nets
-        if len(self.net_start) == 0 or self.net_start[0] != 0 or self.net_start[-1] != self.num_pins \
-                or (np.diff(self.net_start) < 0).any():
+        ns = self.net_start
+        if len(ns) == 0 or ns[0] != 0 or ns[-1] != self.num_pins or (np.diff(ns) < 0).any():
             out.append("net_start is not a valid CSR index over the pins")
             return out
         if len(self.pin_dx) != self.num_pins or len(self.pin_dy) != self.num_pins:
             out.append("pin offset arrays do not match the number of pins")
             return out
         some(self.net_degree == 0, "empty net", names=self.net_names)
-        some(~np.isfinite(self.net_weight) | (self.net_weight < 0), "negative or non-finite net weight",
-             names=self.net_names)
+        some(~np.isfinite(self.net_weight) | (self.net_weight < 0),
+             "negative or non-finite net weight", names=self.net_names)
         unknown = (self.pin_block < 0) | (self.pin_block >= n)
         if unknown.any():
             some(np.isin(np.arange(m), self.pin_net[unknown]), "pins on unknown blocks",
@@ -448,7 +449,7 @@ class Floorplan:
                        else np.array(status, dtype=np.int8).reshape(n))
         self.info = dict(info or {})
 
-    def copy(self) -> "Floorplan":
+    def copy(self) -> Floorplan:
         return Floorplan(self.design, self.x, self.y, self.orient, self.status, self.info)
 
     # --- per-name access ---------------------------------------------------------------------
@@ -493,7 +494,7 @@ class Floorplan:
         """Mask of blocks a placer may move."""
         return self.status == MOVABLE
 
-    def identical(self, other: "Floorplan") -> bool:
+    def identical(self, other: Floorplan) -> bool:
         """Bit-exact equality of positions, orientations and statuses."""
         return (np.array_equal(self.x, other.x) and np.array_equal(self.y, other.y)
                 and np.array_equal(self.orient, other.orient)

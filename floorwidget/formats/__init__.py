@@ -12,8 +12,8 @@ suffix     format                                module
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from pathlib import Path
-from typing import Sequence
 
 from ..design import Design, DesignError, Floorplan
 

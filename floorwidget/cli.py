@@ -1,0 +1,201 @@
+"""The ``floorwidget`` command line: report, place, convert and render a design.
+
+::
+
+    floorwidget report  FILE [--lef L ...] [--json]
+    floorwidget place   FILE [--lef L ...] -o OUT [--target-density D] [--seed S] [--json]
+    floorwidget convert IN OUT [--lef L ...]
+    floorwidget render  FILE -o OUT.png|OUT.svg [--lef L ...] [--heat density|congestion]
+
+Exit status 0 on success, 2 on bad input (one line on stderr naming the file and line, never a
+traceback); an output file is written atomically or not at all.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+import time
+from pathlib import Path
+
+from .design import DesignError
+
+CAUTION = ("early-floorplanning estimates; timing, power and physical sign-off belong to the "
+           "full implementation flow")
+
+_LABELS = [
+    ("hpwl", "HPWL (µm)"),
+    ("hpwl_weighted", "weighted HPWL (µm)"),
+    ("density_overflow", "density overflow"),
+    ("peak_density", "peak bin density"),
+    ("congestion_peak", "RUDY congestion, peak"),
+    ("congestion_p99", "RUDY congestion, p99"),
+    ("macro_overlaps", "overlapping macro pairs"),
+    ("macro_overlap_area", "macro overlap area (µm²)"),
+    ("out_of_die", "blocks outside the die"),
+    ("off_grid", "macros off the grid"),
+    ("legal", "legal"),
+    ("num_blocks", "blocks"),
+    ("num_nets", "nets"),
+]
+
+
+class _Bad(Exception):
+    """Bad command-line input (not a design problem)."""
+
+
+class _Parser(argparse.ArgumentParser):
+    def error(self, message):  # one line, exit 2, like every other bad input
+        raise _Bad(f"{self.prog}: {message}")
+
+
+def _parser() -> argparse.ArgumentParser:
+    p = _Parser(prog="floorwidget", description="Macro floorplanning from the command line. "
+                "Figures are " + CAUTION + ".")
+    sub = p.add_subparsers(dest="command", required=True, parser_class=_Parser)
+
+    def common(sp):
+        sp.add_argument("--lef", action="append", default=[], metavar="L",
+                        help="LEF library for a .def input (repeatable)")
+
+    r = sub.add_parser("report", help="print the figures of a design as placed in the file")
+    r.add_argument("file")
+    common(r)
+    r.add_argument("--json", action="store_true", help="print the report as JSON")
+
+    pl = sub.add_parser("place", help="place the design and write the result")
+    pl.add_argument("file")
+    common(pl)
+    pl.add_argument("-o", "--output", required=True, metavar="OUT",
+                    help="output file: .json, .pl or .def")
+    pl.add_argument("--target-density", type=float, default=0.8, metavar="D")
+    pl.add_argument("--seed", type=int, default=0, metavar="S")
+    pl.add_argument("--json", action="store_true", help="print the report as JSON")
+
+    c = sub.add_parser("convert", help="convert between .json, .aux/.pl and .def")
+    c.add_argument("input")
+    c.add_argument("output")
+    common(c)
+
+    rd = sub.add_parser("render", help="draw the floorplan to a PNG or SVG file")
+    rd.add_argument("file")
+    common(rd)
+    rd.add_argument("-o", "--output", required=True, metavar="OUT")
+    rd.add_argument("--heat", choices=("density", "congestion"), default=None)
+    return p
+
+
+def _print_report(rep: dict, as_json: bool, out=sys.stdout) -> None:
+    if as_json:
+        json.dump(rep, out, indent=2)
+        out.write("\n")
+        return
+    width = max(len(label) for _, label in _LABELS)
+    for key, label in _LABELS:
+        v = rep[key]
+        if isinstance(v, bool):
+            text = "yes" if v else "no"
+        elif isinstance(v, float):
+            text = f"{v:,.4g}" if abs(v) < 1e4 else f"{v:,.0f}"
+        else:
+            text = f"{v:,}"
+        out.write(f"{label:<{width}}  {text}\n")
+    out.write(f"({CAUTION})\n")
+
+
+class _Progress:
+    """A one-line progress bar on stderr, shown only once a run has taken over a second."""
+
+    def __init__(self, stream=sys.stderr, delay: float = 1.0):
+        self.stream, self.delay, self.t0, self.shown = stream, delay, time.perf_counter(), False
+
+    def __call__(self, stage: str, fraction: float, info: dict | None = None) -> None:
+        elapsed = time.perf_counter() - self.t0
+        if elapsed < self.delay:
+            return
+        fraction = min(max(float(fraction), 0.0), 1.0)
+        bar = "#" * int(round(fraction * 30))
+        self.stream.write(f"\r{stage:<12} [{bar:<30}] {fraction:4.0%}  {elapsed:6.1f} s")
+        self.stream.flush()
+        self.shown = True
+
+    def close(self) -> None:
+        if self.shown:
+            self.stream.write("\n")
+            self.stream.flush()
+
+
+def _load(path: str, lef: list[str]):
+    from . import load
+
+    return load(path, lef=lef or None)
+
+
+def _save(design, fp, out: str) -> None:
+    suffix = Path(out).suffix.lower()
+    if suffix == ".aux":
+        from .formats.bookshelf import write_aux
+
+        write_aux(design, fp, out)
+    elif suffix == ".def" and design.block_type is None:
+        # a design with no LEF library behind it: write the abstracts beside the DEF
+        from .formats.lefdef import write_def, write_lef
+
+        write_lef(design, Path(out).with_suffix(".lef"))
+        write_def(design, fp, out)
+    else:
+        from . import save
+
+        save(design, fp, out)
+
+
+def _run(args) -> int:
+    if args.command == "report":
+        from .metrics import evaluate
+
+        design = _load(args.file, args.lef)
+        _print_report(evaluate(design, design.initial), args.json)
+    elif args.command == "place":
+        from .metrics import evaluate
+        from .placer import place
+
+        design = _load(args.file, args.lef)
+        bar = _Progress()
+        try:
+            fp = place(design, target_density=args.target_density, seed=args.seed, progress=bar)
+        finally:
+            bar.close()
+        _save(design, fp, args.output)
+        _print_report(evaluate(design, fp, target_density=args.target_density), args.json)
+    elif args.command == "convert":
+        design = _load(args.input, args.lef)
+        _save(design, design.initial, args.output)
+    elif args.command == "render":
+        from .render import render
+
+        design = _load(args.file, args.lef)
+        render(design, design.initial, args.output, heat=args.heat)
+    return 0
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Entry point of the ``floorwidget`` console script; returns the exit status."""
+    try:
+        args = _parser().parse_args(argv)
+        return _run(args)
+    except (_Bad, DesignError) as e:
+        msg = " ".join(str(e).split())  # exactly one line
+        sys.stderr.write(f"floorwidget: error: {msg}\n")
+        return 2
+    except OSError as e:
+        where = f"{e.filename}: " if e.filename else ""
+        sys.stderr.write(f"floorwidget: error: {where}{e.strerror or e}\n")
+        return 2
+    except KeyboardInterrupt:
+        sys.stderr.write("floorwidget: interrupted\n")
+        return 130
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())
