@@ -1,0 +1,168 @@
+"""The one palette: colours, outlines and heat scales read by the canvas and by :mod:`render`.
+
+Block colours come from the Okabe-Ito colour-blind-safe palette (M. Okabe and K. Ito, "Color
+Universal Design (CUD): how to make figures and presentations that are friendly to colorblind
+people", 2008; hex values from memory of that publication).  Status is carried twice: by fill
+colour *and* by outline dash pattern and width, so a greyscale print still tells a movable macro
+(thin solid outline) from a pinned one (thick dashed), a fixed one (heavy dash-dot) and an
+illegal one (heaviest dotted, cross-hatched in static renders).
+
+Heat maps use sequential, perceptually ordered scales written out here: ColorBrewer YlOrRd
+(C. A. Brewer, colorbrewer.org; M. Harrower and C. A. Brewer, The Cartographic Journal 40(1),
+2003) for congestion and viridis key colours (S. van der Walt and N. Smith, matplotlib's default
+map, 2015) for density; both values from memory.  The standard-cell area raster uses a ramp from
+white to Okabe-Ito bluish green.
+
+Dash patterns are given as on/off lengths in points (``dash``), as a matplotlib linestyle
+(:meth:`BlockStyle.mpl_linestyle`), as an SVG ``stroke-dasharray`` (:meth:`BlockStyle.svg_dash`)
+and as the nearest bqplot ``line_style`` name (``bq_line_style``).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+from .design import CELL, CLUSTER, FIXED, MACRO, MOVABLE, PINNED, TERMINAL
+
+__all__ = [
+    "BLACK",
+    "BLOCKAGE",
+    "BLUE",
+    "BLUISH_GREEN",
+    "CELL_RAMP",
+    "CONGESTION_SCALE",
+    "CORE",
+    "DENSITY_SCALE",
+    "DIE",
+    "HALO",
+    "KIND_COLOURS",
+    "OKABE_ITO",
+    "ORANGE",
+    "REDDISH_PURPLE",
+    "SKY_BLUE",
+    "STATUS_STYLES",
+    "TERMINAL_MARK",
+    "VERMILLION",
+    "WHITE",
+    "YELLOW",
+    "BlockStyle",
+    "block_style",
+    "heat_scale",
+    "mpl_colormap",
+]
+
+# --- Okabe-Ito (2008) -------------------------------------------------------------------------
+BLACK = "#000000"
+ORANGE = "#E69F00"
+SKY_BLUE = "#56B4E9"
+BLUISH_GREEN = "#009E73"
+YELLOW = "#F0E442"
+BLUE = "#0072B2"
+VERMILLION = "#D55E00"
+REDDISH_PURPLE = "#CC79A7"
+WHITE = "#FFFFFF"
+
+OKABE_ITO = {
+    "black": BLACK, "orange": ORANGE, "sky_blue": SKY_BLUE, "bluish_green": BLUISH_GREEN,
+    "yellow": YELLOW, "blue": BLUE, "vermillion": VERMILLION, "reddish_purple": REDDISH_PURPLE,
+}
+
+
+@dataclass(frozen=True)
+class BlockStyle:
+    """How one kind of rectangle is drawn.
+
+    Attributes
+    ----------
+    fill, fill_opacity : str, float
+        Fill colour (hex) and opacity in [0, 1].
+    stroke, stroke_width : str, float
+        Outline colour and width (points / CSS pixels).
+    dash : tuple of float
+        Outline on/off lengths in points; ``()`` is a solid line.
+    bq_line_style : str
+        The nearest bqplot ``Lines.line_style``: ``solid``, ``dashed``, ``dotted`` or
+        ``dash_dotted``.
+    hatch : str
+        matplotlib hatch for static renders (``""`` none).
+    label : str
+        Legend text.
+    """
+
+    fill: str
+    fill_opacity: float
+    stroke: str
+    stroke_width: float
+    dash: tuple[float, ...]
+    bq_line_style: str
+    hatch: str
+    label: str
+
+    def mpl_linestyle(self):
+        """matplotlib linestyle: ``"solid"`` or ``(0, dash)``."""
+        return "solid" if not self.dash else (0, self.dash)
+
+    def svg_dash(self) -> str:
+        """SVG/CSS ``stroke-dasharray`` value (``"none"`` when solid)."""
+        return "none" if not self.dash else ",".join(f"{d:g}" for d in self.dash)
+
+
+#: Macro styles by status; the key ``"illegal"`` overrides status where a macro breaks a rule.
+STATUS_STYLES: dict[str, BlockStyle] = {
+    "movable": BlockStyle(SKY_BLUE, 0.55, BLUE, 1.0, (), "solid", "", "movable"),
+    "pinned": BlockStyle(ORANGE, 0.75, BLACK, 2.0, (5.0, 2.5), "dashed", "", "pinned by you"),
+    "fixed": BlockStyle(REDDISH_PURPLE, 0.45, BLACK, 2.5, (6.0, 2.0, 1.5, 2.0), "dash_dotted",
+                        "..", "fixed by the input"),
+    "illegal": BlockStyle(VERMILLION, 0.85, BLACK, 3.0, (1.5, 1.5), "dotted", "xx",
+                          "breaks a rule"),
+}
+
+_STATUS_KEY = {MOVABLE: "movable", PINNED: "pinned", FIXED: "fixed"}
+
+#: Halo outline (drawn around every macro, no fill).
+HALO = BlockStyle(WHITE, 0.0, BLUE, 0.8, (3.0, 2.0), "dashed", "", "halo")
+#: Placement blockage: black hatch on a light fill.
+BLOCKAGE = BlockStyle(BLACK, 0.08, BLACK, 1.0, (), "solid", "///", "placement blockage")
+#: Die and core outlines.
+DIE = BlockStyle(WHITE, 0.0, BLACK, 1.6, (), "solid", "", "die")
+CORE = BlockStyle(WHITE, 0.0, BLACK, 0.8, (1.0, 2.0), "dotted", "", "core (rows)")
+#: I/O terminal marks.
+TERMINAL_MARK = BlockStyle(BLACK, 1.0, BLACK, 0.5, (), "solid", "", "I/O terminal")
+
+#: Base colour per block kind (soft clusters and cells are shown as an area raster).
+KIND_COLOURS = {MACRO: SKY_BLUE, CLUSTER: BLUISH_GREEN, CELL: BLUISH_GREEN, TERMINAL: BLACK}
+
+
+def block_style(status: int | str, illegal: bool = False) -> BlockStyle:
+    """Style of a macro from its status code or name, or the illegal style."""
+    if illegal:
+        return STATUS_STYLES["illegal"]
+    key = status if isinstance(status, str) else _STATUS_KEY[int(status)]
+    return STATUS_STYLES[key]
+
+
+# --- sequential heat scales (low -> high) --------------------------------------------------
+#: ColorBrewer YlOrRd, 9 classes (from memory).
+CONGESTION_SCALE = ("#FFFFCC", "#FFEDA0", "#FED976", "#FEB24C", "#FD8D3C", "#FC4E2A", "#E31A1C",
+                    "#BD0026", "#800026")
+#: viridis key colours, 10 steps (from memory).
+DENSITY_SCALE = ("#440154", "#482878", "#3E4989", "#31688E", "#26828E", "#1F9E89", "#35B779",
+                 "#6ECE58", "#B5DE2B", "#FDE725")
+#: White to Okabe-Ito bluish green, for the standard-cell / cluster area raster.
+CELL_RAMP = ("#FFFFFF", "#CCECE3", "#80CFB9", "#33B18F", BLUISH_GREEN)
+
+
+def heat_scale(kind: str) -> tuple[str, ...]:
+    """Colours low to high for ``"density"``, ``"congestion"`` or ``"cells"``."""
+    try:
+        return {"density": DENSITY_SCALE, "congestion": CONGESTION_SCALE, "cells": CELL_RAMP}[kind]
+    except KeyError:
+        raise ValueError(f"unknown heat scale {kind!r}: expected 'density', 'congestion' "
+                         "or 'cells'") from None
+
+
+def mpl_colormap(kind: str):
+    """A matplotlib colormap from :func:`heat_scale` (imports matplotlib)."""
+    from matplotlib.colors import LinearSegmentedColormap
+
+    return LinearSegmentedColormap.from_list(f"floorwidget_{kind}", list(heat_scale(kind)))
