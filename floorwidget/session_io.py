@@ -1,0 +1,429 @@
+"""Session files and replay scripts for :class:`floorwidget.session.Session`.
+
+Session file layout (JSON, version 1)::
+
+    {
+      "format": "floorwidget-session", "version": 1, "saved": "2026-...Z",
+      "design": {"name": .., "source": "/abs/path.json", "source_relative": "../x.json",
+                 "num_blocks": n, "fingerprint": "sha256 hex"},
+      "target_density": 0.8,
+      "codes": {"orient": ["N", "S", ...], "status": ["movable", "pinned", "fixed"]},
+      "initial": FLOORPLAN, "current": FLOORPLAN,
+      "alternatives": [{"label": .., "note": .., "time": .., "params": {..} | null,
+                        "report": {..}, "floorplan": FLOORPLAN}],
+      "log": [{"op": "move", "args": ["ram0", 10.0, 20.0], "kwargs": {}},
+              {"op": "batch", "label": "drag", "actions": [...]},
+              {"op": "add_alternative", "args": ["a", {"floorplan": FLOORPLAN}], ...}],
+      "history": {"undo": [STEP, ...], "redo": [STEP, ...]}
+    }
+
+    FLOORPLAN = {"x": [..], "y": [..], "orient": [codes], "status": [codes], "info": {..}}
+    STEP = {"action": .., "idx": [..], "old": FLOORPLAN-of-idx, "new": FLOORPLAN-of-idx}
+
+Floats are written by :mod:`json` with ``repr``, which round-trips float64 exactly.  Orientation
+and status are the integer codes listed under ``"codes"``.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import math
+import os
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+
+from .design import ORIENTATIONS, STATUS_NAMES, Design, DesignError, Floorplan
+from .formats._io import atomic_write, read_text
+
+if TYPE_CHECKING:  # pragma: no cover
+    from .session import Session
+
+__all__ = ["design_fingerprint", "load_session", "save_session", "script_text"]
+
+
+def design_fingerprint(design: Design) -> str:
+    """SHA-256 over the block names, kinds, sizes and net structure (detects a changed design)."""
+    h = hashlib.sha256()
+    h.update("\0".join(design.names).encode())
+    for a in (design.kind, design.width, design.height, design.net_start, design.pin_block,
+              design.die):
+        h.update(np.ascontiguousarray(a).tobytes())
+    return h.hexdigest()
+
+
+# ---------------------------------------------------------------------------------------------
+# writing
+
+
+def _jsonable(v):
+    """Plain JSON values; non-finite floats become the strings "nan", "inf", "-inf"."""
+    if isinstance(v, Floorplan):
+        return {"floorplan": _fp_doc(v)}
+    if v is None or isinstance(v, (bool, str)):
+        return v
+    if isinstance(v, np.generic):
+        v = v.item()
+    if isinstance(v, int):
+        return int(v)
+    if isinstance(v, float):
+        return v if math.isfinite(v) else repr(v)
+    if isinstance(v, np.ndarray):
+        return _jsonable(v.tolist())
+    if isinstance(v, (list, tuple)):
+        return [_jsonable(x) for x in v]
+    if isinstance(v, dict):
+        return {str(k): _jsonable(x) for k, x in v.items()}
+    return repr(v)
+
+
+def _info_doc(info: dict) -> dict:
+    out = {}
+    for k, v in info.items():
+        try:
+            out[str(k)] = json.loads(json.dumps(_jsonable(v), allow_nan=False))
+        except (TypeError, ValueError):
+            continue
+    return out
+
+
+def _fp_doc(fp: Floorplan, idx=None) -> dict:
+    if idx is None:
+        x, y, o, s = fp.x, fp.y, fp.orient, fp.status
+    else:
+        x, y, o, s = fp
+    return {"x": np.asarray(x).tolist(), "y": np.asarray(y).tolist(),
+            "orient": np.asarray(o).tolist(), "status": np.asarray(s).tolist()}
+
+
+def _step_doc(step) -> dict:
+    return {"action": step.action, "idx": step.idx.tolist(),
+            "old": _fp_doc(step.old, idx=True), "new": _fp_doc(step.new, idx=True),
+            "old_info": _info_doc(step.old_info), "new_info": _info_doc(step.new_info)}
+
+
+def session_document(session: Session, path: Path | None = None) -> dict:
+    d = session.design
+    src = session._source
+    rel = None
+    if src is not None and path is not None:
+        try:
+            rel = os.path.relpath(src, os.path.abspath(path.parent if str(path.parent) else "."))
+        except ValueError:  # pragma: no cover - different drives
+            rel = None
+
+    def fp_full(fp: Floorplan) -> dict:
+        doc = _fp_doc(fp)
+        doc["info"] = _info_doc(fp.info)
+        return doc
+
+    return {
+        "format": "floorwidget-session",
+        "version": 1,
+        "saved": _now(),
+        "note": "figures are early-floorplanning estimates, not sign-off results",
+        "design": {"name": d.name, "source": src, "source_relative": rel,
+                   "num_blocks": d.num_blocks, "fingerprint": design_fingerprint(d)},
+        "target_density": session.target_density,
+        "codes": {"orient": list(ORIENTATIONS), "status": list(STATUS_NAMES)},
+        "initial": fp_full(session._initial),
+        "current": fp_full(session._fp),
+        "alternatives": [{"label": a.label, "note": a.note, "time": a.time,
+                          "params": _jsonable(a.params), "report": _jsonable(dict(a.report)),
+                          "floorplan": fp_full(a.floorplan)} for a in session._alts.values()],
+        "log": _jsonable(session._log),
+        "history": {"undo": [_step_doc(s) for s in session._undo],
+                    "redo": [_step_doc(s) for s in session._redo]},
+    }
+
+
+def _now() -> str:
+    import datetime as _dt  # noqa: PLC0415
+    return _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds")
+
+
+def save_session(session: Session, path) -> None:
+    """Write ``session`` to ``path`` atomically (see the module docstring for the layout)."""
+    if session._batches:
+        raise DesignError("cannot save a session in the middle of a batch", file=str(path))
+    p = Path(path)
+    try:
+        text = json.dumps(session_document(session, p), allow_nan=False, indent=1)
+    except (TypeError, ValueError) as e:
+        raise DesignError(f"cannot write the session: {e}", file=str(p)) from None
+    with atomic_write(p) as f:
+        f.write(text)
+        f.write("\n")
+
+
+# ---------------------------------------------------------------------------------------------
+# reading
+
+
+class _Doc:
+    """Checked access to a parsed JSON document; errors name the file and the JSON path."""
+
+    def __init__(self, path: Path):
+        self.path = str(path)
+
+    def fail(self, where: str, msg: str):
+        raise DesignError(f"{where}: {msg}", file=self.path)
+
+    def obj(self, v, where: str) -> dict:
+        if not isinstance(v, dict):
+            self.fail(where, f"expected an object, got {type(v).__name__}")
+        return v
+
+    def get(self, obj: dict, key: str, where: str, default: Any = KeyError):
+        self.obj(obj, where)
+        if key not in obj:
+            if default is KeyError:
+                self.fail(where, f"missing {key!r}")
+            return default
+        return obj[key]
+
+    def lst(self, v, where: str) -> list:
+        if not isinstance(v, list):
+            self.fail(where, f"expected a list, got {type(v).__name__}")
+        return v
+
+    def text(self, v, where: str) -> str:
+        if not isinstance(v, str):
+            self.fail(where, f"expected text, got {type(v).__name__}")
+        return v
+
+    def floats(self, v, n: int | None, where: str) -> np.ndarray:
+        v = self.lst(v, where)
+        if n is not None and len(v) != n:
+            self.fail(where, f"expected {n} numbers, got {len(v)}")
+        if not all(isinstance(e, (int, float)) and not isinstance(e, bool) for e in v):
+            k = next(i for i, e in enumerate(v)
+                     if isinstance(e, bool) or not isinstance(e, (int, float)))
+            self.fail(f"{where}[{k}]", f"expected a number, got {v[k]!r}")
+        a = np.array(v, dtype=np.float64)
+        if not np.isfinite(a).all():
+            k = int(np.flatnonzero(~np.isfinite(a))[0])
+            self.fail(f"{where}[{k}]", "not finite")
+        return a
+
+    def codes(self, v, n: int | None, hi: int, where: str) -> np.ndarray:
+        v = self.lst(v, where)
+        if n is not None and len(v) != n:
+            self.fail(where, f"expected {n} codes, got {len(v)}")
+        for k, e in enumerate(v):
+            if isinstance(e, bool) or not isinstance(e, int) or not 0 <= e < hi:
+                self.fail(f"{where}[{k}]", f"expected a code 0..{hi - 1}, got {e!r}")
+        return np.array(v, dtype=np.int8)
+
+    def fp_arrays(self, v, n: int | None, where: str):
+        self.obj(v, where)
+        x = self.floats(self.get(v, "x", where), n, where + ".x")
+        m = len(x)
+        y = self.floats(self.get(v, "y", where), m, where + ".y")
+        o = self.codes(self.get(v, "orient", where), m, len(ORIENTATIONS), where + ".orient")
+        s = self.codes(self.get(v, "status", where), m, len(STATUS_NAMES), where + ".status")
+        return x, y, o, s
+
+    def floorplan(self, design: Design, v, where: str) -> Floorplan:
+        x, y, o, s = self.fp_arrays(v, design.num_blocks, where)
+        info = self.get(v, "info", where, {})
+        return Floorplan(design, x, y, o, s, self.obj(info, where + ".info"))
+
+
+def _check_log(doc: _Doc, design: Design, entries, where: str) -> list:
+    from .session import Session  # noqa: PLC0415
+    known = {"move", "pin", "unpin", "rotate", "flip", "place", "refine", "legalize", "undo",
+             "redo", "snapshot", "add_alternative", "restore"}
+    out = []
+    for k, e in enumerate(doc.lst(entries, where)):
+        w = f"{where}[{k}]"
+        op = doc.text(doc.get(e, "op", w), w + ".op")
+        if op == "batch":
+            label = doc.text(doc.get(e, "label", w), w + ".label")
+            out.append({"op": "batch", "label": label,
+                        "actions": _check_log(doc, design, doc.get(e, "actions", w),
+                                              w + ".actions")})
+            continue
+        if op not in known or not hasattr(Session, op):
+            doc.fail(w + ".op", f"unknown action {op!r}")
+        args = list(doc.lst(doc.get(e, "args", w, []), w + ".args"))
+        kwargs = doc.obj(doc.get(e, "kwargs", w, {}), w + ".kwargs")
+        if op == "add_alternative":
+            if len(args) != 2:
+                doc.fail(w + ".args", "expected [label, {\"floorplan\": ...}]")
+            fpd = doc.get(args[1], "floorplan", w + ".args[1]")
+            x, y, o, s = doc.fp_arrays(fpd, design.num_blocks, w + ".args[1].floorplan")
+            fp = Floorplan(design, x, y, o, s)
+            for a in (fp.x, fp.y, fp.orient, fp.status):
+                a.flags.writeable = False
+            args[1] = fp
+        out.append({"op": op, "args": args, "kwargs": dict(kwargs)})
+    return out
+
+
+def _find_design(doc: _Doc, p: Path, ref: dict) -> Design:
+    from .formats import load  # noqa: PLC0415
+    src = ref.get("source")
+    rel = ref.get("source_relative")
+    cands = []
+    if isinstance(src, str):
+        cands.append(Path(src))
+    if isinstance(rel, str):
+        cands.append(p.parent / rel)
+    for c in cands:
+        if c.is_file():
+            return load(c)
+    if not cands:
+        doc.fail("design.source", "the session names no design file; pass design= to load()")
+    doc.fail("design.source", f"design file {src or rel} not found; pass design= to load()")
+    raise AssertionError  # pragma: no cover
+
+
+def load_session(cls, path, design: Design | None = None) -> Session:
+    """Read a session file (see the module docstring); :class:`DesignError` naming the file
+    and the JSON path (or line, for a syntax error) when anything is wrong."""
+    from .session import Alternative, _freeze, _Step  # noqa: PLC0415
+    p = Path(path)
+    text = read_text(p)
+    try:
+        root = json.loads(text)
+    except json.JSONDecodeError as e:
+        raise DesignError(f"not valid JSON: {e.msg} (column {e.colno})", file=str(p),
+                          line=e.lineno) from None
+    doc = _Doc(p)
+    doc.obj(root, "(top)")
+    fmt = doc.get(root, "format", "(top)")
+    if fmt != "floorwidget-session":
+        doc.fail("format", f"expected 'floorwidget-session', got {fmt!r}")
+    ver = doc.get(root, "version", "(top)")
+    if ver != 1:
+        doc.fail("version", f"unsupported version {ver!r} (this release reads version 1)")
+    ref = doc.obj(doc.get(root, "design", "(top)"), "design")
+    if design is None:
+        design = _find_design(doc, p, ref)
+    n = doc.get(ref, "num_blocks", "design")
+    if n != design.num_blocks:
+        doc.fail("design.num_blocks", f"the session has {n!r} blocks, design {design.name!r} "
+                                      f"has {design.num_blocks}")
+    fpr = doc.get(ref, "fingerprint", "design", None)
+    if fpr is not None and fpr != design_fingerprint(design):
+        doc.fail("design.fingerprint", f"design {design.name!r} differs from the one this "
+                                       "session was saved with")
+    codes = doc.obj(doc.get(root, "codes", "(top)", {}), "codes")
+    if codes.get("orient", list(ORIENTATIONS)) != list(ORIENTATIONS) or \
+            codes.get("status", list(STATUS_NAMES)) != list(STATUS_NAMES):
+        doc.fail("codes", "orientation or status codes differ from this release's")
+    td = doc.get(root, "target_density", "(top)", 0.8)
+    if isinstance(td, bool) or not isinstance(td, (int, float)) or not math.isfinite(td):
+        doc.fail("target_density", f"expected a number, got {td!r}")
+    initial = doc.floorplan(design, doc.get(root, "initial", "(top)"), "initial")
+    current = doc.floorplan(design, doc.get(root, "current", "(top)"), "current")
+    alts = []
+    labels = set()
+    for k, a in enumerate(doc.lst(doc.get(root, "alternatives", "(top)", []), "alternatives")):
+        w = f"alternatives[{k}]"
+        label = doc.text(doc.get(a, "label", w), w + ".label")
+        if label in labels:
+            doc.fail(w + ".label", f"duplicate label {label!r}")
+        labels.add(label)
+        fp = _freeze(doc.floorplan(design, doc.get(a, "floorplan", w), w + ".floorplan"))
+        rep = doc.obj(doc.get(a, "report", w, {}), w + ".report")
+        params = doc.get(a, "params", w, None)
+        if params is not None:
+            doc.obj(params, w + ".params")
+        alts.append(Alternative(label, fp, dict(rep),
+                                doc.text(doc.get(a, "note", w, ""), w + ".note"),
+                                doc.text(doc.get(a, "time", w, ""), w + ".time"), params))
+    log = _check_log(doc, design, doc.get(root, "log", "(top)", []), "log")
+    hist = doc.obj(doc.get(root, "history", "(top)", {}), "history")
+    stacks = {}
+    for which in ("undo", "redo"):
+        steps = []
+        for k, sd in enumerate(doc.lst(hist.get(which, []), f"history.{which}")):
+            w = f"history.{which}[{k}]"
+            action = doc.text(doc.get(sd, "action", w), w + ".action")
+            idx = doc.lst(doc.get(sd, "idx", w), w + ".idx")
+            if not all(isinstance(i, int) and not isinstance(i, bool)
+                       and 0 <= i < design.num_blocks for i in idx):
+                doc.fail(w + ".idx", "expected block indices")
+            idx = np.array(idx, dtype=np.int64)
+            old = doc.fp_arrays(doc.get(sd, "old", w), len(idx), w + ".old")
+            new = doc.fp_arrays(doc.get(sd, "new", w), len(idx), w + ".new")
+            steps.append((action, idx, old, new,
+                          doc.obj(sd.get("old_info", {}), w + ".old_info"),
+                          doc.obj(sd.get("new_info", {}), w + ".new_info")))
+        stacks[which] = steps
+    # check the undo chain ends at the current floorplan, and the redo chain starts there
+    for which, pick in (("undo", 3), ("redo", 2)):
+        if stacks[which]:
+            action, idx, old, new, _, _ = stacks[which][-1]
+            vals = (new if pick == 3 else old)
+            ok = all(np.array_equal(np.asarray(getattr(current, f))[idx], v)
+                     for f, v in zip(("x", "y", "orient", "status"), vals))
+            if not ok:
+                doc.fail(f"history.{which}", "does not match the current floorplan")
+
+    s = cls(design, initial, target_density=float(td))
+    s._fp = _freeze(current)
+    s._alts = {a.label: a for a in alts}
+    s._log = log
+    # fresh state ids: undo steps chain s_0 .. s_K (current), redo continues s_K .. s_K+R
+    nid = s._next_id
+    ids = list(range(nid, nid + len(stacks["undo"]) + len(stacks["redo"]) + 1))
+    s._next_id = ids[-1] + 1
+    K = len(stacks["undo"])
+    s._undo = [_Step(a, i, o, nw, oi, ni, ids[k], ids[k + 1])
+               for k, (a, i, o, nw, oi, ni) in enumerate(stacks["undo"])]
+    redo_steps = stacks["redo"][::-1]  # next to redo first
+    s._redo = [_Step(a, i, o, nw, oi, ni, ids[K + k], ids[K + k + 1])
+               for k, (a, i, o, nw, oi, ni) in enumerate(redo_steps)][::-1]
+    s._state_id = ids[K]
+    return s
+
+
+# ---------------------------------------------------------------------------------------------
+# the replay script
+
+
+def _lit(v) -> str:
+    if isinstance(v, Floorplan):
+        return (f"fw.Floorplan(design, {v.x.tolist()!r}, {v.y.tolist()!r}, "
+                f"{v.orient.tolist()!r}, {v.status.tolist()!r})")
+    if isinstance(v, float) and not math.isfinite(v):
+        return f"float({repr(v)!r})"
+    return repr(v)
+
+
+def _call(entry: dict, indent: str) -> list[str]:
+    if entry["op"] == "batch":
+        body = [ln for e in entry["actions"] for ln in _call(e, indent + "    ")]
+        return [f"{indent}with session.batch({entry['label']!r}):"] + (body or
+                                                                        [indent + "    pass"])
+    parts = [_lit(a) for a in entry.get("args", [])]
+    parts += [f"{k}={_lit(v)}" for k, v in entry.get("kwargs", {}).items()]
+    return [f"{indent}session.{entry['op']}({', '.join(parts)})"]
+
+
+def script_text(session: Session) -> str:
+    d = session.design
+    lines = [
+        "# Replays a floorwidget session: same design, same actions, same floorplan.",
+        f"# Generated {_now()}; figures are early-floorplanning estimates, not sign-off.",
+        "import floorwidget as fw",
+        "",
+        f"design = fw.load({session._source!r})",
+        f"assert design.num_blocks == {d.num_blocks}, 'the design file has changed'",
+    ]
+    args = ["design"]
+    if not session._initial.identical(d.initial):
+        lines.append(f"initial = {_lit(session._initial)}")
+        args.append("initial")
+    if session.target_density != 0.8:
+        args.append(f"target_density={session.target_density!r}")
+    lines.append(f"session = fw.Session({', '.join(args)})")
+    for e in session._log:
+        lines.extend(_call(e, ""))
+    lines.append("")
+    return "\n".join(lines)
