@@ -308,37 +308,45 @@ def expand_grid(grid: Mapping[str, Sequence] | Sequence[Mapping[str, Any]]) -> l
 def net_weight_factors(design: Design, weight_scale: Mapping[str, float]) -> np.ndarray:
     """Per-net multiplier for ``weight_scale`` = {group name or block-name prefix: factor}.
 
-    A key selects every block whose name equals it or starts with it (so ``"dsp0"`` selects the
-    soft clusters ``dsp0/u*`` of that group, ``"sram_sp4k"`` the macros ``sram_sp4k_*``).  Each
-    net touching a selected block has its weight multiplied by the key's factor; a net touched
-    by several keys takes the product of their factors.
+    A key selects every block whose name starts with it (so ``"dsp0"`` selects the soft
+    clusters ``dsp0/u*`` of that group, ``"sram_sp4k"`` the macros ``sram_sp4k_*``); a block
+    selected by several keys takes the longest (most specific) one.  A net's multiplier is the
+    factor furthest from 1 among its blocks (the largest when any boosts), the rule the placer
+    applies to its own ``net_weight_scale`` mapping, so that the two agree.
+
+    Returns
+    -------
+    (num_nets,) float array
+        To be passed as the placer option ``net_weight_scale``.
 
     Raises
     ------
     ValueError
-        When a key selects no block, or a factor is negative or not finite.
+        When a key selects no block, or a factor is not a finite positive number.
+
+    Examples
+    --------
+    >>> import floorwidget as fw                                          # doctest: +SKIP
+    >>> f = net_weight_factors(design, {"sram_dp": 2.0, "lnk": 0.5})      # doctest: +SKIP
     """
-    factor = np.ones(design.num_nets)
+    block_f = np.ones(design.num_blocks)
+    if design.num_nets == 0:
+        return np.ones(0)
     names = np.asarray(design.names, dtype=str)
-    for key, f in weight_scale.items():
-        f = float(f)
-        if not np.isfinite(f) or f < 0:
-            raise ValueError(f"weight_scale {key!r}: factor {f!r} must be finite and >= 0")
-        sel = np.flatnonzero(np.char.startswith(names, str(key)))
-        if not len(sel):
+    for key in sorted(weight_scale, key=lambda k: len(str(k))):  # longer prefixes win
+        f = weight_scale[key]
+        if isinstance(f, bool) or not isinstance(f, (int, float, np.number)) \
+                or not np.isfinite(f) or f <= 0:
+            raise ValueError(f"weight_scale {key!r}: factor {f!r} must be a finite number > 0")
+        sel = np.char.startswith(names, str(key))
+        if not sel.any():
             raise ValueError(f"weight_scale: no block name starts with {key!r}")
-        factor[design.nets_of(sel)] *= f
-    return factor
-
-
-def _scaled_design(design: Design, factors: np.ndarray) -> Design:
-    """A shallow copy of ``design`` sharing every array but ``net_weight``."""
-    d = Design.__new__(Design)
-    d.__dict__.update(design.__dict__)
-    d.net_weight = design.net_weight * factors
-    ini = design.initial
-    d.initial = Floorplan(d, ini.x, ini.y, ini.orient, ini.status, ini.info)
-    return d
+        block_f[sel] = float(f)
+    pin_f = block_f[design.pin_block]
+    starts = design.net_start[:-1]
+    hi = np.maximum.reduceat(pin_f, starts)
+    lo = np.minimum.reduceat(pin_f, starts)
+    return np.where(hi > 1.0, hi, lo)
 
 
 def _pin_names(design: Design, fp: Floorplan, names) -> None:
@@ -380,18 +388,22 @@ def _run_one(design_ref, base: tuple, params: dict, fixed: dict) -> dict:
 
         opts = dict(fixed)
         opts.update({k: v for k, v in params.items() if k not in SPECIAL_KEYS})
-        run_design = design
         ws = params.get("weight_scale", fixed.get("weight_scale"))
         opts.pop("weight_scale", None)
         pins = params.get("pinned", fixed.get("pinned"))
         opts.pop("pinned", None)
         if ws:
-            run_design = _scaled_design(design, net_weight_factors(design, ws))
+            f = net_weight_factors(design, ws)
+            if opts.get("net_weight_scale") is not None:
+                from .placer.options import net_multipliers
+
+                f = f * net_multipliers(design, opts["net_weight_scale"])
+            opts["net_weight_scale"] = f
         x, y, orient, status = base
-        fp0 = Floorplan(run_design, x, y, orient, status)
+        fp0 = Floorplan(design, x, y, orient, status)
         if pins:
             _pin_names(design, fp0, pins)
-        fp = place(run_design, fp0, **opts)
+        fp = place(design, fp0, **opts)
         out = Floorplan(design, fp.x, fp.y, fp.orient, fp.status, fp.info)
         td = opts.get("target_density", 0.8)
         report = dict(evaluate(design, out, target_density=td))
