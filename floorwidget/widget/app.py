@@ -1,0 +1,632 @@
+"""The floorplanning widget: the canvas, its controls, the readouts and the alternatives view.
+
+The widget holds no placement logic.  Mouse events become :class:`~floorwidget.session.Session`
+calls (a drop is :meth:`FloorplanWidget.drop`, the one method the drag-end callback calls), and
+Session changes, reported through :meth:`Session.on_change`, become marks.  The figures shown are
+early-floorplanning estimates; sign-off belongs to the full implementation flow.
+"""
+
+from __future__ import annotations
+
+import html
+import threading
+import time
+from collections.abc import Callable
+from typing import Any
+
+import ipywidgets as W
+import numpy as np
+
+from ..design import FIXED, ORIENTATIONS, STATUS_NAMES, Design, DesignError, Floorplan
+from ..session import ChangeEvent, Session
+from ._style import status_style, ui_colors
+from .canvas import Canvas, thumbnail
+
+__all__ = ["FloorplanWidget", "CAUTION"]
+
+CAUTION = ("Early-floorplanning estimates for comparing choices; sign-off belongs to the full "
+           "implementation flow's timing, power and physical checks.")
+
+_BUSY = "A placement run is still going; this request was refused (wait for it to finish)."
+
+
+def _fmt(v: Any, unit: str = "") -> str:
+    if v is None:
+        return "–"
+    if isinstance(v, (bool, np.bool_)):
+        return "yes" if v else "no"
+    if isinstance(v, (int, np.integer)):
+        return f"{int(v):,d}{unit}"
+    f = float(v)
+    if abs(f) >= 1000:
+        return f"{f:,.0f}{unit}"
+    return f"{f:.3g}{unit}"
+
+
+class FloorplanWidget(W.VBox):
+    """An editable, to-scale floorplan in the notebook.
+
+    Parameters
+    ----------
+    design : Design
+    floorplan : Floorplan, optional
+        Starting floorplan (default ``design.initial``); ignored when ``session`` is given.
+    session : Session, optional
+        Drive an existing session instead of a new one.
+    size : int
+        Canvas width and height, pixels.
+    live : bool
+        Rerun :meth:`Session.refine` after every drop ("Live refine").
+    pin_on_drop : bool
+        Pin a macro when it is dropped ("Pin on drop").
+
+    Attributes
+    ----------
+    session : Session
+    canvas : Canvas
+    message : ipywidgets.HTML
+        The last notice (a refused request, an error from the session).
+
+    Examples
+    --------
+    >>> import floorwidget as fw
+    >>> d = fw.load("demo_data/heron_dsp.json")         # doctest: +SKIP
+    >>> w = fw.FloorplanWidget(d); w                       # doctest: +SKIP
+    >>> w.move(d.macros[0], 100.0, 100.0); w.refine()     # doctest: +SKIP
+    """
+
+    def __init__(self, design: Design, floorplan: Floorplan | None = None, *,
+                 session: Session | None = None, size: int = 640, live: bool = True,
+                 pin_on_drop: bool = True, target_density: float = 0.8):
+        self.session = session if session is not None else Session(
+            design, floorplan, target_density=target_density)
+        self.design = design = self.session.design
+        self.canvas = Canvas(design, self.session.floorplan, size=size, interactive=True)
+        self.macro_idx = self.canvas.macro_idx
+        self._busy = threading.Lock()
+        self._thread: threading.Thread | None = None
+        self._drag: dict | None = None
+        self._prev_hpwl: float | None = None
+        self._last_report: dict = self.session.report
+        self.last_solve_s: float | None = None
+        self.last_drag_delta: float | None = None
+        self.refine_options: dict = {}
+        self.place_options: dict = {}
+
+        h = self.canvas.marks["handles"]
+        h.on_drag_start(lambda _m, ev: self.drag_start(ev["index"]))
+        h.on_drag(lambda _m, ev: self.drag_preview(ev["index"], ev["point"]["x"],
+                                                   ev["point"]["y"]))
+        h.on_drag_end(lambda _m, ev: self.drop(ev["index"], ev["point"]["x"], ev["point"]["y"]))
+        h.on_element_click(lambda _m, ev: self.select([int(self.macro_idx[ev["index"]])]))
+        h.observe(self._on_brush, names=["selected"])
+
+        self._build_controls(live, pin_on_drop)
+        self.session.on_change(self._on_change)
+        self._refresh_readouts()
+        self._refresh_alternatives()
+        side = W.VBox([self.controls, self.progress, self.message, self.readout, self.legend,
+                       self.details], layout=W.Layout(width="360px", margin="0 0 0 10px"))
+        super().__init__([W.HBox([self.canvas.figure, side]), self.alt_box])
+
+    # --- controls -------------------------------------------------------------------------------
+    def _button(self, label: str, fn: Callable, tip: str = "", width: str = "112px"):
+        b = W.Button(description=label, tooltip=tip or label, layout=W.Layout(width=width))
+        b.on_click(lambda _b: self._ui(fn))
+        self.buttons[label] = b
+        return b
+
+    def _build_controls(self, live: bool, pin_on_drop: bool) -> None:
+        self.buttons: dict[str, W.Button] = {}
+        rows = [
+            [self._button("Place all", lambda: self.place(wait=False),
+                          "Global placement of every movable block (runs in the background)"),
+             self._button("Refine", self.refine, "Improve around the pinned macros"),
+             self._button("Legalise", self.legalize, "Remove macro overlaps, snap to grid")],
+            [self._button("Pin", lambda: self._on_selection("pin"), "Pin the selected macros"),
+             self._button("Unpin", lambda: self._on_selection("unpin"), "Make them movable"),
+             self._button("Rotate 90°", lambda: self._on_selection("rotate"),
+                          "Quarter turn counter-clockwise")],
+            [self._button("Flip", lambda: self._on_selection("flip"), "Mirror about the y axis"),
+             self._button("Undo", self.undo), self._button("Redo", self.redo)],
+        ]
+        self.toggles: dict[str, W.ToggleButton] = {}
+
+        def toggle(label, value, tip):
+            t = W.ToggleButton(value=value, description=label, tooltip=tip,
+                               layout=W.Layout(width="112px"))
+            self.toggles[label] = t
+            return t
+
+        heat = [toggle("Density", False, "Bin utilisation heat layer"),
+                toggle("Congestion", False, "RUDY routing-demand heat layer"),
+                toggle("Box select", False, "Drag a box to select several macros")]
+        opts = [toggle("Live refine", live, "Refine after every drop"),
+                toggle("Pin on drop", pin_on_drop, "Pin a macro where it is dropped"),
+                self._button("Whole die", self.canvas.reset_view, "Zoom out to the die")]
+        self.toggles["Density"].observe(lambda ch: self._heat_toggled("density", ch), "value")
+        self.toggles["Congestion"].observe(lambda ch: self._heat_toggled("congestion", ch),
+                                           "value")
+        self.toggles["Box select"].observe(self._box_toggled, "value")
+        self.controls = W.VBox([W.HBox(r) for r in rows] + [W.HBox(heat), W.HBox(opts)])
+        self.progress = W.FloatProgress(value=0.0, min=0.0, max=1.0, description="",
+                                        layout=W.Layout(width="340px", visibility="hidden"))
+        self.message = W.HTML("")
+        self.readout = W.HTML("")
+        self.details = W.HTML("<i>Click a macro to see its nets and details.</i>")
+        self.legend = W.HTML(self._legend_html())
+        import bqplot as bq
+
+        self.brush = bq.interacts.BrushSelector(
+            x_scale=self.canvas.x_scale, y_scale=self.canvas.y_scale,
+            marks=[self.canvas.marks["handles"]], color=ui_colors()["selection"])
+        # alternatives
+        self.alt_label = W.Text(placeholder="label", layout=W.Layout(width="160px"))
+        keep = W.Button(description="Keep as", tooltip="Keep the current floorplan")
+        keep.on_click(lambda _b: self._ui(lambda: self.keep(self.alt_label.value)))
+        self.buttons["Keep as"] = keep
+        self.alt_a = W.Dropdown(description="A", layout=W.Layout(width="220px"))
+        self.alt_b = W.Dropdown(description="B", layout=W.Layout(width="220px"))
+        restore = W.Button(description="Restore A", tooltip="Make A the current floorplan")
+        restore.on_click(lambda _b: self._ui(lambda: self.session.restore(self.alt_a.value)))
+        self.buttons["Restore A"] = restore
+        for dd in (self.alt_a, self.alt_b):
+            dd.observe(lambda _c: self._refresh_thumbs(), "value")
+        self.alt_table = W.HTML("")
+        self.alt_thumbs = W.HBox([])
+        self.alt_diff = W.HTML("")
+        self.alt_box = W.VBox([
+            W.HTML("<b>Alternatives</b>"), W.HBox([self.alt_label, keep, self.alt_a,
+                                                   self.alt_b, restore]),
+            self.alt_table, self.alt_thumbs, self.alt_diff])
+
+    def _legend_html(self) -> str:
+        st = status_style()
+        ui = ui_colors()
+        dash = {"solid": "", "dashed": "6,3", "dotted": "1.5,2.5", "dash_dotted": "6,2,1.5,2"}
+        parts = []
+        for key in ("movable", "pinned", "fixed", "illegal"):
+            s = st[key]
+            parts.append(
+                f'<span style="margin-right:8px;white-space:nowrap">'
+                f'<svg width="26" height="16"><rect x="2" y="2" width="22" height="12" '
+                f'fill="{s["fill"]}" fill-opacity="{s["opacity"]}" stroke="{s["stroke"]}" '
+                f'stroke-width="{s["width"]}" stroke-dasharray="{dash[s["dash"]]}"/></svg>'
+                f" {key}</span>")
+        extra = [
+            f'<svg width="26" height="16"><rect x="2" y="2" width="22" height="12" fill="none" '
+            f'stroke="{ui["halo"]}" stroke-dasharray="6,3"/></svg> halo',
+            f'<svg width="26" height="16"><rect x="2" y="2" width="22" height="12" '
+            f'fill="{ui["blockage"]}" fill-opacity="0.35" stroke="{ui["blockage"]}" '
+            f'stroke-dasharray="1.5,2.5"/></svg> blockage',
+            f'<svg width="16" height="16"><rect x="4" y="4" width="8" height="8" '
+            f'fill="{ui["terminal"]}"/></svg> I/O pin',
+            f'<svg width="26" height="16"><polygon points="2,14 10,14 2,6" '
+            f'fill="{ui["outline"]}"/></svg> pin-1 corner',
+            f'<svg width="26" height="16"><line x1="2" y1="8" x2="24" y2="8" '
+            f'stroke="{ui["flyline"]}" stroke-width="4"/></svg> nets (width ~ count)',
+        ]
+        parts += [f'<span style="margin-right:8px;white-space:nowrap">{e}</span>' for e in extra]
+        return ('<div style="font-size:12px;line-height:20px">' + "".join(parts)
+                + "<br/>Grey: soft clusters and cells per bin.</div>")
+
+    def _ui(self, fn: Callable) -> None:
+        """Run a button action and show its failure in the panel instead of raising."""
+        try:
+            fn()
+        except (DesignError, KeyError, RuntimeError, ValueError) as e:
+            self.notify(str(e).strip("'\""), error=True)
+
+    def notify(self, text: str, error: bool = False) -> None:
+        """Show one line in the message area of the panel."""
+        colour = "#D55E00" if error else "#333333"
+        self.message.value = (f'<div style="color:{colour};font-size:12px">'
+                              f"{html.escape(text)}</div>" if text else "")
+
+    def _heat_toggled(self, name: str, change) -> None:
+        if change["new"]:
+            other = "Congestion" if name == "density" else "Density"
+            self.toggles[other].value = False
+            self.canvas.show_heat(name)
+        elif self.canvas.heat == name:
+            self.canvas.show_heat(None)
+
+    def _box_toggled(self, change) -> None:
+        fig = self.canvas.figure
+        fig.interaction = self.brush if change["new"] else self.canvas.panzoom
+
+    # --- selection --------------------------------------------------------------------------------
+    @property
+    def selection(self) -> list[str]:
+        """Names of the selected macros."""
+        return [self.design.names[i] for i in self.canvas.selected]
+
+    def select(self, blocks) -> None:
+        """Select blocks (indices or names): highlight them, draw their flylines, show details."""
+        d = self.design
+        idx = [d.block(b) if isinstance(b, str) else int(b) for b in np.atleast_1d(blocks)]
+        self.canvas.select(idx)
+        self._refresh_details()
+
+    def _on_brush(self, change) -> None:
+        sel = change["new"]
+        if sel is None:
+            return
+        self.select(self.macro_idx[np.asarray(sel, dtype=np.intp)])
+
+    def _on_selection(self, action: str) -> None:
+        names = [n for n in self.selection]
+        if not names:
+            raise ValueError("Select one or more macros first (click, or Box select).")
+        self._refuse_if_busy()
+        s = self.session
+        if action in ("pin", "unpin"):
+            getattr(s, action)(names)
+            return
+        with s.batch(f"{action} {len(names)} macro(s)" if len(names) > 1 else
+                     f"{action} {names[0]}"):
+            for nm in names:
+                getattr(s, action)(nm)
+
+    def _refresh_details(self) -> None:
+        d, fp = self.design, self.session.floorplan
+        sel = self.canvas.selected
+        if sel.size == 0:
+            self.details.value = "<i>Click a macro to see its nets and details.</i>"
+            return
+        if sel.size > 1:
+            names = ", ".join(html.escape(d.names[i]) for i in sel[:8])
+            more = f" and {sel.size - 8} more" if sel.size > 8 else ""
+            self.details.value = (f"<b>{sel.size} macros selected</b>: {names}{more}<br/>"
+                                  "Drag one of them to move all together.")
+            return
+        i = int(sel[0])
+        w, h = fp.sizes()
+        nb, cnt = self.canvas.flyline_data()
+        top = ", ".join(f"{html.escape(d.names[j])} ({c})" for j, c in zip(nb[:5], cnt[:5]))
+        nets = d.nets_of([i])
+        self.details.value = (
+            f"<b>{html.escape(d.names[i])}</b> &nbsp; {w[i]:g} × {h[i]:g} µm, "
+            f"{ORIENTATIONS[fp.orient[i]]}, {STATUS_NAMES[fp.status[i]]}<br/>"
+            f"lower-left ({fp.x[i]:.2f}, {fp.y[i]:.2f}) µm; {len(nets)} nets<br/>"
+            f"most shared nets with: {top or '–'}")
+
+    # --- the one drop path ------------------------------------------------------------------------
+    def _refuse_if_busy(self) -> None:
+        if self._busy.locked():
+            self.notify(_BUSY, error=True)
+            raise RuntimeError(_BUSY)
+
+    def _group(self, i: int) -> np.ndarray:
+        sel = self.canvas.selected
+        if sel.size > 1 and i in sel:
+            return sel
+        return np.array([i], dtype=np.intp)
+
+    def drag_start(self, index: int) -> None:
+        """Remember the state a drag starts from (the live HPWL Δ is measured against it)."""
+        i = int(self.macro_idx[index])
+        grp = self._group(i)
+        fp = self.session.floorplan
+        nets = self.design.nets_of(grp)
+        from ..metrics import nets_hpwl
+
+        self._drag = {"index": int(index), "group": grp, "nets": nets,
+                      "base": float(nets_hpwl(self.design, fp, nets).sum()), "fp": fp}
+
+    def drag_preview(self, index: int, x: float, y: float) -> float:
+        """During a drag: the HPWL change of the dragged macros' nets if dropped at centre (x, y).
+
+        Only those nets are measured (:func:`floorwidget.metrics.nets_hpwl`), so this stays fast
+        on large designs.  The dragged rectangles follow the handle.
+
+        Returns
+        -------
+        float
+            HPWL change, µm, against the state when the drag started.
+        """
+        from ..metrics import nets_hpwl
+
+        if self._drag is None or self._drag["index"] != int(index) \
+                or self._drag["fp"] is not self.session.floorplan:
+            self.drag_start(index)
+        dr = self._drag
+        fp0 = dr["fp"]
+        i = int(self.macro_idx[index])
+        cx, cy = fp0.centres()
+        dx, dy = float(x) - cx[i], float(y) - cy[i]
+        grp = dr["group"]
+        tmp = fp0.copy()
+        tmp.x[grp] += dx
+        tmp.y[grp] += dy
+        delta = float(nets_hpwl(self.design, tmp, dr["nets"]).sum()) - dr["base"]
+        self.last_drag_delta = delta
+        self.canvas.preview(tmp, grp)
+        self._refresh_readouts(drag_delta=delta)
+        return delta
+
+    def drop(self, index: int, x: float, y: float) -> dict:
+        """Handle a dropped macro handle: move (snapped), pin, refine — one undoable step.
+
+        This is the method the canvas's drag-end callback calls, and the one tests call.
+
+        Parameters
+        ----------
+        index : int
+            Index of the handle (the macro's position among ``design.macros``).
+        x, y : float
+            New centre of the handle, µm (data coordinates).
+
+        Returns
+        -------
+        dict
+            ``moved`` (names), ``refined`` (bool), ``seconds`` (kernel time), ``message``.
+        """
+        t0 = time.perf_counter()
+        self._drag = None
+        out = {"moved": [], "refined": False, "seconds": 0.0, "message": ""}
+        d, s = self.design, self.session
+        i = int(self.macro_idx[index])
+        fp = s.floorplan
+        cx, cy = fp.centres()
+        dx, dy = float(x) - cx[i], float(y) - cy[i]
+        if self._busy.locked():
+            self.notify(_BUSY, error=True)
+            self.canvas.update(fp)
+            out["message"] = _BUSY
+            return out
+        # less than half a pixel is a click, not a move
+        if abs(dx) * self.canvas.px_per_um < 0.5 and abs(dy) * self.canvas.px_per_um < 0.5:
+            self.select([i])
+            return out
+        grp = self._group(i)
+        grp = grp[fp.status[grp] != FIXED]
+        if grp.size == 0:
+            self.notify(f"{d.names[i]} is fixed by the input and cannot be moved.", error=True)
+            self.canvas.update(fp)
+            out["message"] = "fixed"
+            return out
+        names = [d.names[j] for j in grp]
+        label = f"drag {names[0]}" if len(names) == 1 else f"drag {len(names)} macros"
+        msg = ""
+        try:
+            with s.batch(label):
+                for j, nm in zip(grp, names):
+                    s.move(nm, float(fp.x[j]) + dx, float(fp.y[j]) + dy)
+                if self.toggles["Pin on drop"].value:
+                    s.pin(names)
+                if self.toggles["Live refine"].value:
+                    t1 = time.perf_counter()
+                    try:
+                        s.refine(**self.refine_options)
+                        out["refined"] = True
+                        self.last_solve_s = time.perf_counter() - t1
+                    except DesignError as e:  # PlacementError: keep the move, say why
+                        msg = f"Refine skipped: {e}"
+        except (DesignError, KeyError) as e:
+            msg = str(e)
+            self.canvas.update(s.floorplan)
+        if out["refined"] is False and not msg:
+            self._refresh_readouts()
+        self.notify(msg, error=bool(msg))
+        self.select(grp)
+        out.update(moved=names, message=msg, seconds=time.perf_counter() - t0)
+        return out
+
+    # --- session → marks ------------------------------------------------------------------------
+    def _on_change(self, ev: ChangeEvent) -> None:
+        if ev.action in ("snapshot", "add_alternative"):
+            self._refresh_alternatives()
+            return
+        prev = self._last_report
+        self.canvas.update(ev.floorplan)
+        self._last_report = self.session.report
+        self._prev_hpwl = prev.get("hpwl") if prev else None
+        self._refresh_readouts()
+        self._refresh_details()
+        if ev.action == "restore":
+            self._refresh_alternatives()
+
+    def _refresh_readouts(self, drag_delta: float | None = None) -> None:
+        r = self._last_report
+        hp = r.get("hpwl")
+        delta = None if self._prev_hpwl is None or hp is None else hp - self._prev_hpwl
+        info = self.session.floorplan.info
+        solve = self.last_solve_s if self.last_solve_s is not None else info.get("seconds")
+        rows = [
+            ("HPWL", f"{_fmt(hp, ' µm')}"),
+            ("Δ HPWL (last change)", "–" if delta is None else f"{delta:+,.1f} µm"),
+        ]
+        if drag_delta is not None:
+            rows.append(("Δ HPWL while dragging", f"{drag_delta:+,.1f} µm (its nets)"))
+        rows += [
+            ("Density overflow", _fmt(r.get("density_overflow"))),
+            ("Congestion peak / p99", f"{_fmt(r.get('congestion_peak'))} / "
+                                      f"{_fmt(r.get('congestion_p99'))}"),
+            ("Macro overlaps", f"{_fmt(r.get('macro_overlaps'))} pairs, "
+                               f"{_fmt(r.get('macro_overlap_area'), ' µm²')}"),
+            ("Out of die / off grid", f"{_fmt(r.get('out_of_die'))} / {_fmt(r.get('off_grid'))}"),
+            ("Legal", _fmt(r.get("legal"))),
+            ("Last solve", "–" if solve is None else f"{float(solve):.2f} s"),
+        ]
+        body = "".join(f"<tr><td style='padding-right:10px'>{k}</td>"
+                       f"<td style='text-align:right' class='fw-{k.split()[0].lower()}'>{v}</td>"
+                       f"</tr>" for k, v in rows)
+        self.readout.value = (f"<table style='font-size:12px'>{body}</table>"
+                              f"<div style='font-size:11px;color:#555'>{CAUTION}</div>")
+
+    # --- alternatives ---------------------------------------------------------------------------
+    def keep(self, label: str) -> None:
+        """Keep the current floorplan as alternative ``label`` (:meth:`Session.snapshot`)."""
+        self.session.snapshot(label)
+
+    def alternatives_html(self) -> str:
+        """The table of alternatives and their figures (HTML)."""
+        alts = self.session.alternatives
+        cols = [("hpwl", "HPWL µm"), ("density_overflow", "overflow"),
+                ("congestion_peak", "cong. peak"), ("congestion_p99", "cong. p99"),
+                ("macro_overlaps", "overlaps"), ("legal", "legal")]
+        head = "".join(f"<th style='padding:0 8px'>{h}</th>" for _, h in cols)
+        rows = []
+        cur = self.session.report
+        for lab, rep in [("current", cur)] + [(a.label, a.report) for a in alts]:
+            cells = "".join(f"<td style='text-align:right;padding:0 8px'>{_fmt(rep.get(k))}</td>"
+                            for k, _ in cols)
+            rows.append(f"<tr><td>{html.escape(lab)}</td>{cells}</tr>")
+        return (f"<table style='font-size:12px'><tr><th>label</th>{head}</tr>"
+                + "".join(rows) + "</table>")
+
+    def _refresh_alternatives(self) -> None:
+        labels = ["current", "initial"] + [a.label for a in self.session.alternatives]
+        for dd, default in ((self.alt_a, "initial"), (self.alt_b, "current")):
+            keep = dd.value if dd.value in labels else default
+            dd.options = labels
+            dd.value = keep
+        self.alt_table.value = self.alternatives_html()
+        self._refresh_thumbs()
+
+    def _fp_of(self, label: str) -> Floorplan:
+        if label == "current":
+            return self.session.floorplan
+        if label == "initial":
+            return self.session.initial
+        return self.session.alternative(label).floorplan
+
+    def thumbnails(self, a: str, b: str, size: int = 260):
+        """Side-by-side thumbnails of alternatives ``a`` and ``b`` (same canvas code, static)."""
+        figs = []
+        for lab in (a, b):
+            f = thumbnail(self.design, self._fp_of(lab), size)
+            f.title = lab
+            f.fig_margin = dict(top=24, bottom=2, left=2, right=2)
+            figs.append(f)
+        return figs
+
+    def _refresh_thumbs(self) -> None:
+        a, b = self.alt_a.value, self.alt_b.value
+        if a is None or b is None or not self.session.alternatives:
+            self.alt_thumbs.children = []
+            self.alt_diff.value = ""
+            return
+        self.alt_thumbs.children = self.thumbnails(a, b)
+        cmp = self.session.compare(a, b)
+        keys = ("hpwl", "density_overflow", "congestion_peak", "macro_overlaps")
+        parts = [f"{k}: {cmp.metrics[k][2]:+.4g}" for k in keys
+                 if k in cmp.metrics and cmp.metrics[k][2] is not None]
+        self.alt_diff.value = (f"<div style='font-size:12px'>B − A: {'; '.join(parts)}; "
+                               f"{len(cmp.moved)} macro(s) moved</div>")
+
+    # --- placer runs ------------------------------------------------------------------------------
+    def _progress(self, stage: str, fraction: float, info: dict | None = None) -> None:
+        self.progress.value = float(min(max(fraction, 0.0), 1.0))
+        self.progress.description = str(stage)[:12]
+
+    def _run(self, action: str, fn: Callable[[], None], wait: bool) -> bool:
+        if not self._busy.acquire(blocking=False):
+            self.notify(_BUSY, error=True)
+            return False
+        self.progress.value = 0.0
+        self.progress.layout.visibility = "visible"
+        self.notify(f"{action} running…")
+
+        def work():
+            t0 = time.perf_counter()
+            try:
+                fn()
+                self.last_solve_s = time.perf_counter() - t0
+                self.notify(f"{action} done in {self.last_solve_s:.2f} s.")
+                self._refresh_readouts()
+            except Exception as e:  # noqa: BLE001 - shown in the panel, session unchanged
+                self.notify(f"{action} failed: {e}", error=True)
+                if wait:
+                    raise
+            finally:
+                self.progress.layout.visibility = "hidden"
+                self._busy.release()
+
+        if wait:
+            work()
+            return True
+        self._thread = threading.Thread(target=work, name=f"floorwidget-{action}", daemon=True)
+        self._thread.start()
+        return True
+
+    def wait(self, timeout: float | None = None) -> bool:
+        """Wait for a background run to finish; ``True`` when none is left running."""
+        t = self._thread
+        if t is not None:
+            t.join(timeout)
+            return not t.is_alive()
+        return True
+
+    @property
+    def busy(self) -> bool:
+        """Whether a placement run is going."""
+        return self._busy.locked()
+
+    # --- proxies to the session (same names as Session) -------------------------------------------
+    def place(self, *, wait: bool = True, **options) -> bool:
+        """Global placement (:meth:`Session.place`); ``wait=False`` runs it in the background.
+
+        Returns ``False`` (and says so in the panel) when a run is already going: a second
+        request is refused, not queued.
+        """
+        opts = {**self.place_options, **options}
+        return self._run("Place", lambda: self.session.place(progress=self._progress, **opts),
+                         wait)
+
+    def refine(self, *, wait: bool = True, **options) -> bool:
+        """Incremental improvement (:meth:`Session.refine`)."""
+        opts = {**self.refine_options, **options}
+        return self._run("Refine", lambda: self.session.refine(progress=self._progress, **opts),
+                         wait)
+
+    def legalize(self, *, wait: bool = True, **options) -> bool:
+        """Macro legalisation (:meth:`Session.legalize`)."""
+        return self._run("Legalise", lambda: self.session.legalize(**options), wait)
+
+    def move(self, name: str, x: float, y: float):
+        """:meth:`Session.move`."""
+        self._refuse_if_busy()
+        return self.session.move(name, x, y)
+
+    def pin(self, names) -> None:
+        """:meth:`Session.pin`."""
+        self._refuse_if_busy()
+        self.session.pin(names)
+
+    def unpin(self, names) -> None:
+        """:meth:`Session.unpin`."""
+        self._refuse_if_busy()
+        self.session.unpin(names)
+
+    def rotate(self, name: str) -> None:
+        """:meth:`Session.rotate`."""
+        self._refuse_if_busy()
+        self.session.rotate(name)
+
+    def flip(self, name: str) -> None:
+        """:meth:`Session.flip`."""
+        self._refuse_if_busy()
+        self.session.flip(name)
+
+    def undo(self) -> None:
+        """:meth:`Session.undo`."""
+        self._refuse_if_busy()
+        self.session.undo()
+
+    def redo(self) -> None:
+        """:meth:`Session.redo`."""
+        self._refuse_if_busy()
+        self.session.redo()
+
+    @property
+    def floorplan(self) -> Floorplan:
+        """The session's current floorplan."""
+        return self.session.floorplan
+
+    @property
+    def report(self) -> dict:
+        """The session's current report (early-floorplanning estimates)."""
+        return self.session.report
+

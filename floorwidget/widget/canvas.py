@@ -1,0 +1,428 @@
+"""The to-scale bqplot canvas: layers over two shared linear scales with equal spans.
+
+One :class:`Canvas` draws one floorplan.  The interactive widget and the small thumbnails of the
+alternatives view use this same class (the thumbnail simply turns interaction off), so what the
+engineer compares is drawn exactly like what they edit.
+
+Layer order, bottom to top: heat images (soft clusters / cells, density, RUDY congestion), die
+and core outlines, placement rows (only when zoomed in), blockages, halos, macro fills, status
+outlines, orientation notches, flylines, selection, I/O pins, labels, drag handles.  Every layer
+is a single mark, so the number of marks does not grow with the design; each mark holds at most
+a few thousand elements.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ..design import MACRO, STATUS_NAMES, TERMINAL, Design, Floorplan
+from . import geometry as geo
+from ._style import heat_colors, status_style, ui_colors
+
+__all__ = ["Canvas", "illegal_blocks", "thumbnail"]
+
+_HEAT_BINS = 64          # bins along the longer core side for the heat images
+_LABEL_PX_PER_CHAR = 6.5  # approximate width of one label character at 11 px
+
+
+def illegal_blocks(design: Design, fp: Floorplan) -> np.ndarray:
+    """Mask of macros that :func:`floorwidget.metrics.legality` finds at fault.
+
+    Overlapping (halos included), outside the die or core, on a placement blockage, or (movable
+    and pinned macros only) off the snap grid.
+    """
+    from .. import metrics
+
+    leg = metrics.legality(design, fp)
+    bad = np.zeros(design.num_blocks, bool)
+    pairs = np.asarray(leg["overlap_pairs"], dtype=np.intp).reshape(-1, 2)
+    bad[pairs.ravel()] = True
+    for key in ("out_of_die", "out_of_core", "on_blockage", "off_grid"):
+        bad[np.asarray(leg[key], dtype=np.intp)] = True
+    bad &= design.kind == MACRO
+    return bad
+
+
+def _placeholder():
+    # bqplot's Lines needs at least one row; an invisible zero-size row stands in for "none"
+    return np.zeros((1, 2)), np.zeros((1, 2))
+
+
+class Canvas:
+    """Marks for one floorplan of ``design`` on a square, equal-scale bqplot figure.
+
+    Parameters
+    ----------
+    design : Design
+    floorplan : Floorplan
+    size : int
+        Figure width and height in pixels.
+    interactive : bool
+        Add drag handles, pan/zoom and labels that follow the zoom.  ``False`` gives a static
+        thumbnail drawn by the same code.
+    heat_bins : int
+        Bins along the longer die side for the heat images.
+
+    Attributes
+    ----------
+    figure : bqplot.Figure
+    marks : dict
+        Every layer by name (``"macros"``, ``"handles"``, ``"flylines"``, ...).
+    x_scale, y_scale : bqplot.LinearScale
+    """
+
+    def __init__(self, design: Design, floorplan: Floorplan, *, size: int = 640,
+                 interactive: bool = True, heat_bins: int = _HEAT_BINS):
+        import bqplot as bq
+
+        self.design = design
+        self.fp = floorplan
+        self.size = int(size)
+        self.interactive = interactive
+        self.margin = 8 if interactive else 2
+        self.macro_idx = np.flatnonzero(design.kind == MACRO)
+        self.selected: np.ndarray = np.zeros(0, np.intp)
+        self._illegal = np.zeros(design.num_blocks, bool)
+        self.heat: str | None = None
+        self._has_soft = bool(((design.kind != MACRO) & (design.kind != TERMINAL)).any())
+        self.status_style = status_style()
+        self.ui = ui_colors()
+
+        xmin, xmax, ymin, ymax = geo.square_view(design)
+        self.home = (xmin, xmax, ymin, ymax)
+        self.x_scale = bq.LinearScale(min=xmin, max=xmax, allow_padding=False)
+        self.y_scale = bq.LinearScale(min=ymin, max=ymax, allow_padding=False)
+        sc = {"x": self.x_scale, "y": self.y_scale}
+        m: dict = {}
+
+        # heat images: one image each, never a mark per bin (a coarse display grid)
+        from .. import metrics
+
+        c = design.core
+        self.grid = metrics.bin_grid(design, bin_size=max(c[2] - c[0], c[3] - c[1]) / heat_bins)
+        gx, gy = self.grid.x_centres(), self.grid.y_centres()
+        for name in ("cells", "density", "congestion"):
+            cs = bq.ColorScale(colors=heat_colors(name), min=0.0, max=1.0)
+            m[name] = bq.HeatMap(x=gx, y=gy, color=np.zeros((len(gy), len(gx))),
+                                 scales={**sc, "color": cs}, visible=(name == "cells"))
+        die_x, die_y = geo.rect_rows(design.die[None, :])
+        m["die"] = bq.Lines(x=die_x[0], y=die_y[0], scales=sc, colors=[self.ui["die"]],
+                            stroke_width=2.0)
+        core_x, core_y = geo.rect_rows(design.core[None, :])
+        m["core"] = bq.Lines(x=core_x[0], y=core_y[0], scales=sc, colors=[self.ui["core"]],
+                             stroke_width=1.0, line_style="dashed")
+        px, py = _placeholder()
+        m["rows"] = bq.Lines(x=px, y=py, scales=sc, colors=[self.ui["rows"]], stroke_width=0.5,
+                             opacities=[0.5], visible=False)
+        if len(design.blockages):
+            bx, by = geo.rect_rows(design.blockages)
+            m["blockages"] = bq.Lines(x=bx, y=by, scales=sc, fill="inside",
+                                      colors=[self.ui["blockage"]],
+                                      fill_colors=[self.ui["blockage"]] * len(bx),
+                                      fill_opacities=[0.35] * len(bx), stroke_width=1.0,
+                                      line_style="dotted")
+        m["halos"] = bq.Lines(x=px, y=py, scales=sc, colors=[self.ui["halo"]], stroke_width=1.0,
+                              line_style="dashed", opacities=[0.8], visible=False)
+        m["macros"] = bq.Lines(x=px, y=py, scales=sc, fill="inside", stroke_width=1.0,
+                               close_path=True)
+        # status outlines: bqplot draws one dash style per mark, so one mark per outline style
+        self.outline_keys = sorted({(s["dash"], float(s["width"]))
+                                    for s in self.status_style.values()})
+        for k, (dash, width) in enumerate(self.outline_keys):
+            m[f"outline{k}"] = bq.Lines(x=px, y=py, scales=sc, colors=[self.ui["outline"]],
+                                        stroke_width=width, line_style=dash, visible=False)
+        m["notches"] = bq.Lines(x=px, y=py, scales=sc, fill="inside", stroke_width=0.5,
+                                colors=[self.ui["outline"]], visible=False)
+        m["flylines"] = bq.Lines(x=px, y=py, scales=sc, fill="inside", stroke_width=0.0,
+                                 colors=[self.ui["flyline"]], visible=False)
+        m["selection"] = bq.Lines(x=px, y=py, scales=sc, colors=[self.ui["selection"]],
+                                  stroke_width=3.0, visible=False)
+        tx, ty = geo.terminal_xy(design, floorplan)
+        m["terminals"] = bq.Scatter(x=tx, y=ty, scales=sc, marker="square",
+                                    default_size=10 if interactive else 4,
+                                    colors=[self.ui["terminal"]], stroke=None)
+        if interactive:
+            m["labels"] = bq.Label(x=[0.0], y=[0.0], text=[""], scales=sc, default_size=11,
+                                   font_unit="px", align="middle", colors=[self.ui["label"]],
+                                   visible=False)
+            cx, cy = floorplan.centres()
+            m["handles"] = bq.Scatter(
+                x=cx[self.macro_idx], y=cy[self.macro_idx], scales=sc, enable_move=True,
+                update_on_move=False, marker="circle", default_size=36,
+                colors=[self.ui["handle"]], stroke=self.ui["outline"], stroke_width=1.0,
+                default_opacities=[0.85], selected_style={"stroke": self.ui["selection"],
+                                                          "stroke-width": 3},
+                unselected_style={})
+        self.marks = m
+        fig_kw = dict(
+            marks=list(m.values()), axes=[], padding_x=0.0, padding_y=0.0,
+            min_aspect_ratio=1, max_aspect_ratio=1,
+            fig_margin=dict(top=self.margin, bottom=self.margin, left=self.margin,
+                            right=self.margin),
+            background_style={"fill": "white"},
+        )
+        self.figure = bq.Figure(**fig_kw)
+        self.figure.layout.width = f"{self.size}px"
+        self.figure.layout.height = f"{self.size}px"
+        if interactive:
+            self.panzoom = bq.interacts.PanZoom(scales={"x": [self.x_scale], "y": [self.y_scale]})
+            self.figure.interaction = self.panzoom
+            self.x_scale.observe(self._on_view, names=["min", "max"])
+        self.update(floorplan)
+
+    # --- view ---------------------------------------------------------------------------------
+    @property
+    def px_per_um(self) -> float:
+        """Screen pixels per µm at the current zoom (plot area over the visible span)."""
+        span = float(self.x_scale.max) - float(self.x_scale.min)
+        return (self.size - 2 * self.margin) / max(span, 1e-12)
+
+    def reset_view(self) -> None:
+        """Back to the whole die."""
+        xmin, xmax, ymin, ymax = self.home
+        with self.figure.hold_sync():
+            self.x_scale.min, self.x_scale.max = xmin, xmax
+            self.y_scale.min, self.y_scale.max = ymin, ymax
+        self._on_view()
+
+    def _on_view(self, *_):
+        self._draw_rows()
+        self._draw_labels()
+        self._draw_flylines()
+
+    def _draw_rows(self):
+        xs, ys = self.x_scale, self.y_scale
+        if xs.min is None or ys.min is None:
+            return
+        d = self.design
+        idx = geo.visible_rows(d, ys.min, ys.max, xs.min, xs.max)
+        mk = self.marks["rows"]
+        # faint rows only when a row is at least a few pixels tall
+        if len(idx) == 0 or d.row_height[idx].min() * self.px_per_um < 4:
+            mk.visible = False
+            return
+        x0 = d.row_x[idx]
+        x1 = x0 + d.row_site_width[idx] * d.row_num_sites[idx]
+        y0 = d.row_y[idx]
+        with mk.hold_sync():
+            mk.x = np.stack([x0, x1], axis=1)
+            mk.y = np.stack([y0, y0], axis=1)
+            mk.visible = True
+
+    def _draw_labels(self):
+        mk = self.marks.get("labels")
+        if mk is None:
+            return
+        d, fp = self.design, self.fp
+        idx = self.macro_idx
+        if idx.size == 0:
+            mk.visible = False
+            return
+        w, h = fp.sizes()
+        cx, cy = fp.centres()
+        names = np.array([d.names[i] for i in idx], dtype=object)
+        nchar = np.array([len(s) for s in names])
+        ppu = self.px_per_um
+        xs, ys = self.x_scale, self.y_scale
+        inview = ((cx[idx] > xs.min) & (cx[idx] < xs.max) & (cy[idx] > ys.min)
+                  & (cy[idx] < ys.max))
+        legible = (w[idx] * ppu > nchar * _LABEL_PX_PER_CHAR + 4) & (h[idx] * ppu > 28) & inview
+        sel = np.flatnonzero(legible)[:600]
+        if sel.size == 0:
+            mk.visible = False
+            return
+        with mk.hold_sync():
+            mk.x = cx[idx][sel]
+            # just above the centre handle, so the handle does not cover the text
+            mk.y = cy[idx][sel] + 14.0 / ppu
+            mk.text = names[sel].tolist()
+            mk.visible = True
+
+    # --- state --------------------------------------------------------------------------------
+    def update(self, fp: Floorplan, illegal: np.ndarray | None = None) -> None:
+        """Redraw every floorplan-dependent layer for ``fp`` (the marks are reused)."""
+        self.fp = fp
+        d = self.design
+        if illegal is None:
+            illegal = illegal_blocks(d, fp)
+        self._illegal = illegal
+        idx = self.macro_idx
+        rects = fp.rects()
+        st = self.status_style
+        keys = np.array([STATUS_NAMES[s] for s in fp.status[idx]], dtype=object)
+        keys[illegal[idx]] = "illegal"
+        m = self.marks
+        with self.figure.hold_sync():
+            if idx.size:
+                x, y = geo.rect_rows(rects[idx])
+                mk = m["macros"]
+                with mk.hold_sync():
+                    mk.x, mk.y = x, y
+                    mk.fill_colors = [st[k]["fill"] for k in keys]
+                    mk.fill_opacities = [float(st[k]["opacity"]) for k in keys]
+                    mk.colors = [st[k]["stroke"] for k in keys]
+                for k, key in enumerate(self.outline_keys):
+                    rowsel = np.array([(st[s]["dash"], float(st[s]["width"])) == key
+                                       and st[s].get("outline", True) for s in keys], bool)
+                    om = m[f"outline{k}"]
+                    if rowsel.any():
+                        with om.hold_sync():
+                            om.x, om.y = x[rowsel], y[rowsel]
+                            om.colors = [st[s]["stroke"] for s in keys[rowsel]]
+                            om.visible = True
+                    else:
+                        om.visible = False
+                hl = d.halo[idx]
+                has = (hl > 0).any(axis=1)
+                if has.any():
+                    hx, hy = geo.rect_rows(fp.rects(halo=True)[idx][has])
+                    with m["halos"].hold_sync():
+                        m["halos"].x, m["halos"].y = hx, hy
+                        m["halos"].visible = True
+                nx_, ny_ = geo.notch_rows(d, fp, idx)
+                with m["notches"].hold_sync():
+                    m["notches"].x, m["notches"].y = nx_, ny_
+                    m["notches"].fill_colors = [self.ui["outline"]] * len(idx)
+                    m["notches"].visible = True
+                if "handles" in m:
+                    cx, cy = fp.centres()
+                    with m["handles"].hold_sync():
+                        m["handles"].x, m["handles"].y = cx[idx], cy[idx]
+            self._draw_cells()
+            if self.interactive:
+                self._draw_labels()
+                self._draw_flylines()
+                self._draw_selection()
+
+    def heat_values(self, name: str, fp: Floorplan | None = None) -> np.ndarray:
+        """The ``(nx, ny)`` map of heat layer ``name`` on the display grid.
+
+        ``density`` is :func:`floorwidget.metrics.density_map` utilisation, ``congestion`` is
+        :func:`floorwidget.metrics.rudy_map` (RUDY; Spindler, Johannes, DATE 2007), ``cells``
+        the soft-cluster and standard-cell area per bin over the bin area.
+        """
+        from .. import metrics
+
+        d = self.design
+        fp = self.fp if fp is None else fp
+        if name == "density":
+            return metrics.density_map(d, fp, self.grid).utilisation
+        if name == "congestion":
+            return metrics.rudy_map(d, fp, self.grid)
+        soft = (d.kind != MACRO) & (d.kind != TERMINAL)
+        return metrics.rect_area_map(self.grid, fp.rects()[soft]) / self.grid.bin_area
+
+    def show_heat(self, name: str | None) -> None:
+        """Show heat layer ``name`` (``"density"`` or ``"congestion"``), or the cells layer."""
+        self.heat = name
+        for k in ("density", "congestion"):
+            self.marks[k].visible = k == name
+        if name is not None:
+            self._draw_heat(name)
+        self.marks["cells"].visible = name is None and self._has_soft
+
+    def _draw_heat(self, name: str) -> None:
+        v = self.heat_values(name)
+        mk = self.marks[name]
+        hi = float(v.max()) if v.size else 1.0
+        with mk.hold_sync():
+            mk.color = v.T
+            mk.scales["color"].max = hi if hi > 0 else 1.0
+
+    def _draw_cells(self):
+        """Refresh whichever heat image is showing."""
+        if self.heat is not None:
+            self._draw_heat(self.heat)
+        elif self._has_soft:
+            self._draw_heat("cells")
+
+    def preview(self, fp: Floorplan, blocks) -> None:
+        """Move the rectangles of ``blocks`` (macro indices) to where ``fp`` has them.
+
+        Used while a drag is under way; only those rows change, the rest of the marks stay.
+        """
+        blocks = np.asarray(blocks, dtype=np.intp)
+        pos = np.searchsorted(self.macro_idx, blocks)
+        x, y = geo.rect_rows(fp.rects()[blocks])
+        mk = self.marks["macros"]
+        mx = np.array(mk.x, dtype=np.float64).reshape(-1, 5)
+        my = np.array(mk.y, dtype=np.float64).reshape(-1, 5)
+        mx[pos], my[pos] = x, y
+        with mk.hold_sync():
+            mk.x, mk.y = mx, my
+        if self.selected.size:
+            sx, sy = geo.rect_rows(fp.rects()[self.selected])
+            sel = self.marks["selection"]
+            with sel.hold_sync():
+                sel.x, sel.y = sx, sy
+
+    # --- selection and flylines ---------------------------------------------------------------
+    def select(self, blocks) -> None:
+        """Highlight ``blocks`` (indices) and show the flylines of their nets."""
+        self.selected = np.unique(np.asarray(blocks, dtype=np.intp))
+        self._draw_selection()
+        self._draw_flylines()
+
+    def _draw_selection(self):
+        mk = self.marks["selection"]
+        if self.selected.size == 0:
+            mk.visible = False
+            return
+        x, y = geo.rect_rows(self.fp.rects()[self.selected])
+        with mk.hold_sync():
+            mk.x, mk.y = x, y
+            mk.visible = True
+
+    def flyline_data(self):
+        """``(neighbours, counts)`` of the current selection (see :func:`flyline_bundles`)."""
+        return geo.flyline_bundles(self.design, self.fp, self.selected)
+
+    def _draw_flylines(self):
+        mk = self.marks["flylines"]
+        if self.selected.size == 0:
+            mk.visible = False
+            return
+        nb, cnt = self.flyline_data()
+        if nb.size == 0:
+            mk.visible = False
+            return
+        cx, cy = self.fp.centres()
+        x0 = float(cx[self.selected].mean())
+        y0 = float(cy[self.selected].mean())
+        # width in pixels grows with the number of nets in the bundle, converted to µm
+        width_px = 1.0 + 1.5 * np.log2(cnt.astype(np.float64))
+        xs, ys = geo.bundle_rows(x0, y0, cx[nb], cy[nb], width_px / self.px_per_um)
+        with mk.hold_sync():
+            mk.x, mk.y = xs, ys
+            mk.fill_colors = [self.ui["flyline"]] * len(nb)
+            mk.fill_opacities = [0.55] * len(nb)
+            mk.visible = True
+
+    def element_counts(self) -> dict[str, int]:
+        """Elements drawn by each mark (rows of a 2-D Lines, points of a Scatter, bins)."""
+        out = {}
+        for k, mk in self.marks.items():
+            if not mk.visible:
+                out[k] = 0
+                continue
+            if hasattr(mk, "color") and k in ("cells", "density", "congestion"):
+                out[k] = int(np.asarray(mk.color).size)
+            elif getattr(mk, "text", None) is not None and k == "labels":
+                out[k] = len(mk.text)
+            else:
+                x = np.asarray(mk.x)
+                if x.ndim == 2:
+                    out[k] = int(x.shape[0])
+                else:  # a Scatter's points, or a Lines mark squeezed to one line
+                    out[k] = 1 if type(mk).__name__ == "Lines" else int(x.size)
+        return out
+
+
+def thumbnail(design: Design, floorplan: Floorplan, size: int = 240):
+    """A small static picture of ``floorplan`` drawn by the same :class:`Canvas` code.
+
+    Returns
+    -------
+    bqplot.Figure
+    """
+    return Canvas(design, floorplan, size=size, interactive=False).figure
