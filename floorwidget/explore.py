@@ -83,6 +83,8 @@ class SweepResult:
         One line ``ExceptionType: message`` when the run failed, else ``None``.
     index : int
         Position in grid order.
+    fixed : dict
+        The options given to every run of the sweep (``sweep(**fixed_options)``).
     """
 
     params: dict
@@ -91,7 +93,13 @@ class SweepResult:
     seconds: float = 0.0
     error: str | None = None
     index: int = 0
+    fixed: dict = field(default_factory=dict, repr=False)
     _label: str | None = field(default=None, repr=False)
+
+    @property
+    def target_density(self) -> float:
+        """The target density of this run (the report's overflow is measured against it)."""
+        return float(self.params.get("target_density", self.fixed.get("target_density", 0.8)))
 
     @property
     def ok(self) -> bool:
@@ -518,6 +526,7 @@ def sweep(design: Design, grid: Mapping[str, Sequence] | Sequence[Mapping[str, A
             except Exception as exc:  # noqa: BLE001 - e.g. a worker process that died
                 raw = {"error": _one_line(exc), "seconds": 0.0}
             results[i] = r = _build(design, sets[i], i, raw)
+            r.fixed = dict(fixed_options)
             done += 1
             if progress is not None:
                 progress(done, total, r)
@@ -593,7 +602,11 @@ def to_session(session, results: Sequence[SweepResult], prefix: str = "sweep") -
         if r.report:
             note = ", ".join(f"{k} {r.report[k]:.4g}" for k in
                              ("hpwl", "density_overflow", "congestion_peak") if k in r.report)
-        session.add_alternative(label, r.floorplan, note=note, params=dict(r.params))
+        # hand the report over when it was computed at the session's own target density
+        td = getattr(session, "target_density", None)
+        same = td is not None and r.target_density == float(td)
+        session.add_alternative(label, r.floorplan, note=note, params=dict(r.params),
+                                report=r.report if same else None)
         labels.append(label)
     return labels
 

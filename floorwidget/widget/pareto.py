@@ -28,7 +28,7 @@ __all__ = ["ParetoView", "SweepProgress", "overflow_colors", "run_sweep_with_bar
 
 # ColorBrewer "YlOrRd", 5 classes, sequential (Brewer, Harrower, "ColorBrewer.org: an online
 # tool for selecting colour schemes for maps", The Cartographic Journal 40(1), 2003; values
-# from colorbrewer2.org, from memory).  Used unless floorwidget.style provides a ramp.
+# from colorbrewer2.org, from memory).  Used only if floorwidget.style is missing.
 YLORRD5 = ["#ffffb2", "#fecc5c", "#fd8d3c", "#f03b20", "#bd0026"]
 
 # Okabe-Ito (Okabe, Ito, "Color Universal Design", 2008): outlines and the front line.
@@ -49,14 +49,15 @@ _LABELS = {
 def overflow_colors() -> list[str]:
     """The sequential colour ramp for density overflow.
 
-    Taken from :mod:`floorwidget.style` when it offers one (``sequential_colors("density")``,
-    ``heat_colors("density")`` or ``SEQUENTIAL``), else ColorBrewer YlOrRd (:data:`YLORRD5`).
+    The project's density heat scale, ``floorwidget.style.heat_scale("density")`` (viridis key
+    colours), so that overflow reads the same here as on the canvas; ColorBrewer YlOrRd
+    (:data:`YLORRD5`) should that module be missing.
     """
     try:
         from .. import style as st
     except ImportError:
         return list(YLORRD5)
-    for name in ("sequential_colors", "heat_colors"):
+    for name in ("heat_scale", "heat_colors"):
         fn = getattr(st, name, None)
         if callable(fn):
             try:
@@ -289,8 +290,7 @@ class ParetoView(widgets.VBox):
         if label not in known:
             report = None
             td = getattr(self.session, "target_density", None)
-            if r.report is not None and td is not None and \
-                    float(r.params.get("target_density", 0.8)) == float(td):
+            if r.report is not None and td is not None and r.target_density == float(td):
                 report = r.report
             self.session.add_alternative(label, r.floorplan, note="from a parameter sweep",
                                          params=dict(r.params), report=report)
