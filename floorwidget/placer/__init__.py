@@ -1,0 +1,16 @@
+"""Quadratic placement for floorwidget: Bound2Bound net model, sparse conjugate-gradient solve,
+look-ahead spreading, macro orientation and legalisation, and the flow that ties them together.
+
+The results are early-floorplanning estimates; sign-off belongs to the full implementation
+flow's timing, power and physical checks.
+
+>>> from floorwidget.placer import place, refine, legalize   # doctest: +SKIP
+"""
+
+from __future__ import annotations
+
+from .errors import PlacementError
+from .flow import legalize, place, refine
+from .options import PlacerOptions, make_options
+
+__all__ = ["PlacementError", "PlacerOptions", "legalize", "make_options", "place", "refine"]

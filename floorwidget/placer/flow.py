@@ -1,0 +1,433 @@
+"""The placement flow: global quadratic placement, macro orientation and legalisation, and the
+re-spread of standard cells and soft clusters around the placed macros.
+
+* :func:`place` — from scratch: every movable block (macros included) is placed by Bound2Bound
+  quadratic placement with look-ahead spreading; movable macros then get their orientation and
+  a legal spot, and the cells and clusters are spread again around them.
+* :func:`refine` — warm-started after a hand edit: movable macros are legalised from where they
+  are (minimal displacement) and cells/clusters are re-spread briefly from their positions.
+* :func:`legalize` — macro legalisation only.
+
+All three are pure: they return a new :class:`~floorwidget.design.Floorplan`, never touch the
+input, never move a PINNED or FIXED block (bit-exact) nor an I/O terminal, and give bit-identical
+results for the same inputs and seed.  The placement is an early-floorplanning estimate; detailed
+placement, timing and sign-off checks belong to the full implementation flow.
+
+References
+----------
+P. Spindler, U. Schlichtmann, F. M. Johannes, IEEE Trans. Computer-Aided Design of Integrated
+Circuits and Systems 27(8), 2008 (Bound2Bound net model).
+M.-C. Kim, D.-J. Lee, I. L. Markov, Proc. IEEE/ACM ICCAD 2010 (look-ahead legalisation with
+anchor pseudo-nets).
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Callable
+from typing import Any
+
+import numpy as np
+
+from ..design import CELL, CLUSTER, MACRO, MOVABLE, TERMINAL, Design, Floorplan
+from .errors import PlacementError
+from .options import PlacerOptions, check_range, make_options, net_multipliers
+from .solve import QuadraticSystem
+from .spread import Grid, capacity_map, lookahead, make_grid, overflow
+
+__all__ = ["place", "refine", "legalize"]
+
+Progress = Callable[[str, float, dict], Any] | None
+
+
+# ---------------------------------------------------------------------------------------------
+# helpers
+
+
+def _check_inputs(design: Design, floorplan: Floorplan | None) -> Floorplan:
+    if not isinstance(design, Design):
+        raise TypeError(f"expected a Design, got {type(design).__name__}")
+    fp = design.initial if floorplan is None else floorplan
+    if not isinstance(fp, Floorplan):
+        raise TypeError(f"expected a Floorplan, got {type(fp).__name__}")
+    if len(fp.x) != design.num_blocks:
+        raise ValueError(f"floorplan has {len(fp.x)} blocks, design {design.name!r} has "
+                         f"{design.num_blocks}")
+    return fp
+
+
+def _legaliser():
+    """The macro legaliser and orientation chooser, or ``None`` while they are not available."""
+    try:
+        from .legalize import legalize_macros
+    except ImportError:
+        legalize_macros = None
+    try:
+        from .orient import choose_orientations
+    except ImportError:
+        choose_orientations = None
+    return legalize_macros, choose_orientations
+
+
+def _obstacles(design: Design, fp: Floorplan, fixed_mask: np.ndarray) -> np.ndarray:
+    """Rectangles that take capacity away from the movable objects: fixed blocks (with their
+    halos, terminals excluded) and placement blockages."""
+    sel = fixed_mask & (design.kind != TERMINAL)
+    r = fp.rects(halo=True)[sel]
+    if len(design.blockages):
+        r = np.concatenate([r, design.blockages])
+    return r
+
+
+def _report(progress: Progress, stage: str, frac: float, info: dict) -> None:
+    if progress is not None:
+        progress(stage, float(min(max(frac, 0.0), 1.0)), info)
+
+
+class _Stage:
+    """One spreading problem: a quadratic system, its bin grid and capacity."""
+
+    def __init__(self, design: Design, fp: Floorplan, var_mask: np.ndarray, target: float,
+                 opts: PlacerOptions, multiplier):
+        self.design = design
+        self.sys = QuadraticSystem(design, var_mask, multiplier)
+        self.vars = self.sys.blocks
+        w, h = fp.sizes()
+        self.w = w[self.vars]
+        self.h = h[self.vars]
+        fixed = np.ones(design.num_blocks, bool)
+        fixed[self.vars] = False
+        self.grid: Grid = make_grid(design.core, self.w, self.h, opts.bin_size)
+        self.cap = capacity_map(self.grid, target, _obstacles(design, fp, fixed))
+        self.area = float(np.sum(self.w * self.h))
+        c = design.core
+        self.lo_x = c[0] + self.w / 2
+        self.hi_x = np.maximum(c[2] - self.w / 2, self.lo_x)
+        self.lo_y = c[1] + self.h / 2
+        self.hi_y = np.maximum(c[3] - self.h / 2, self.lo_y)
+        s = self.sys.pins_of_var
+        self.anchor_scale = np.maximum(s, 1.0)
+        self.eps_a = 0.25 * min(self.grid.bw, self.grid.bh)
+
+    def check_capacity(self, target: float) -> None:
+        cap = float(self.cap.sum())
+        if self.area > cap * (1 + 1e-9):
+            raise PlacementError(
+                f"design {self.design.name!r}: movable area {self.area:.6g} µm² exceeds "
+                f"target density {target:g} × free core area ({cap:.6g} µm²); raise "
+                f"target_density or free some area")
+
+    def clamp(self, cx, cy):
+        v = self.vars
+        cx[v] = np.clip(cx[v], self.lo_x, self.hi_x)
+        cy[v] = np.clip(cy[v], self.lo_y, self.hi_y)
+
+    def overflow(self, cx, cy) -> float:
+        v = self.vars
+        return overflow(self.grid, self.cap, cx[v], cy[v], self.w, self.h)
+
+    def wirelength(self, cx, cy, orient, opts, iterations, progress, stage):
+        for k in range(iterations):
+            nx, ny, _ = self.sys.solve(cx, cy, orient, rtol=opts.cg_tol, maxiter=opts.cg_maxiter)
+            cx[self.vars] = nx
+            cy[self.vars] = ny
+            self.clamp(cx, cy)
+            _report(progress, stage, 0.1 * (k + 1) / iterations, {"iteration": k + 1})
+
+    def spread(self, cx, cy, orient, opts, *, k0: float, max_it: int, min_it: int,
+               target_overflow: float, progress, stage: str) -> dict:
+        """Look-ahead spreading loop; updates ``cx, cy`` in place and returns facts."""
+        v = self.vars
+        best = np.inf
+        since = 0
+        it = 0
+        ov = self.overflow(cx, cy)
+        history = [ov]
+        tx = ty = None
+        while it < max_it and (ov > target_overflow or it < min_it):
+            tx, ty = lookahead(self.grid, self.cap, cx[v], cy[v], self.w, self.h)
+            alpha = opts.anchor_weight * (1.0 + opts.anchor_growth * (k0 + it))
+            wx = alpha * self.anchor_scale / np.maximum(np.abs(cx[v] - tx), self.eps_a)
+            wy = alpha * self.anchor_scale / np.maximum(np.abs(cy[v] - ty), self.eps_a)
+            nx, ny, _ = self.sys.solve(cx, cy, orient, anchor=(tx, ty, wx, wy),
+                                       rtol=opts.cg_tol, maxiter=opts.cg_maxiter)
+            cx[v] = nx
+            cy[v] = ny
+            self.clamp(cx, cy)
+            it += 1
+            ov = self.overflow(cx, cy)
+            history.append(ov)
+            _report(progress, stage, 0.1 + 0.9 * it / max(max_it, 1),
+                    {"iteration": it, "overflow": ov})
+            if ov < best * 0.98:
+                best = ov
+                since = 0
+            else:
+                since += 1
+                if since >= opts.stall_iterations and it >= min_it:
+                    break
+        used_lookahead = False
+        if ov > target_overflow and tx is not None:
+            # not converged: the look-ahead placement is density-feasible, take it if better
+            tx, ty = lookahead(self.grid, self.cap, cx[v], cy[v], self.w, self.h)
+            ov_la = overflow(self.grid, self.cap, tx, ty, self.w, self.h)
+            if ov_la < ov:
+                cx[v] = tx
+                cy[v] = ty
+                ov = ov_la
+                used_lookahead = True
+        return {"iterations": it, "overflow": ov, "history": history,
+                "used_lookahead": used_lookahead,
+                "bins": (self.grid.nx, self.grid.ny)}
+
+
+def _write_back(out: Floorplan, cx, cy, idx: np.ndarray) -> None:
+    w, h = out.sizes()
+    out.x[idx] = cx[idx] - w[idx] / 2
+    out.y[idx] = cy[idx] - h[idx] / 2
+
+
+def _movable_macros(design: Design, fp: Floorplan) -> np.ndarray:
+    return np.flatnonzero((fp.status == MOVABLE) & (design.kind == MACRO))
+
+
+def _soft_mask(design: Design, fp: Floorplan) -> np.ndarray:
+    return (fp.status == MOVABLE) & ((design.kind == CELL) | (design.kind == CLUSTER))
+
+
+def _restore_fixed(out: Floorplan, src: Floorplan) -> None:
+    """Guarantee that nothing but MOVABLE non-terminal blocks changed (bit-exact)."""
+    keep = (src.status != MOVABLE) | (src.design.kind == TERMINAL)
+    out.x[keep] = src.x[keep]
+    out.y[keep] = src.y[keep]
+    out.orient[keep] = src.orient[keep]
+    out.status[:] = src.status
+
+
+# ---------------------------------------------------------------------------------------------
+# public flow
+
+
+def place(design: Design, floorplan: Floorplan | None = None, *, target_density: float = 0.8,
+          seed: int = 0, progress: Progress = None, **options: Any) -> Floorplan:
+    """Place every movable block from scratch around the pinned and fixed ones.
+
+    Parameters
+    ----------
+    design : Design
+    floorplan : Floorplan, optional
+        Supplies statuses (PINNED/FIXED blocks stay where they are) and the orientations to
+        start from; positions of movable blocks are ignored.  Default ``design.initial``.
+    target_density : float
+        Fraction of each bin's free area the movable objects may fill, in (0, 1].
+    seed : int
+        Seeds the small initial jitter; same inputs and seed give bit-identical output.
+    progress : callable, optional
+        ``progress(stage, fraction, info)``; stages ``"global"``, ``"orient"``, ``"legalize"``,
+        ``"cells"``.
+    **options
+        See :class:`~floorwidget.placer.options.PlacerOptions`.
+
+    Returns
+    -------
+    Floorplan
+        New floorplan; ``info`` holds ``iterations`` (total), ``stage_iterations``,
+        ``overflow`` (final, placer's bins), ``seconds`` (total), ``stage_seconds``,
+        ``bins``, ``legalized`` (whether macros were legalised).
+
+    Raises
+    ------
+    PlacementError
+        When the movable area exceeds the capacity at ``target_density`` or the macros cannot
+        be legalised; the input is untouched.
+    ValueError
+        For an unknown or out-of-range option.
+
+    Examples
+    --------
+    >>> import floorwidget as fw                                  # doctest: +SKIP
+    >>> design = fw.load("demo_data/heron_dsp.json")              # doctest: +SKIP
+    >>> fp = place(design, target_density=0.8, seed=0)            # doctest: +SKIP
+    >>> fp.info["overflow"] <= 0.10                               # doctest: +SKIP
+    True
+    """
+    t_all = time.perf_counter()
+    src = _check_inputs(design, floorplan)
+    target = check_range("target_density", target_density, 0.0, 1.0, lo_open=True)
+    opts = make_options(options)
+    mult = net_multipliers(design, opts.net_weight_scale)
+    out = src.copy()
+    info: dict[str, Any] = {"stage_seconds": {}, "stage_iterations": {}}
+    movable = (src.status == MOVABLE) & (design.kind != TERMINAL)
+    mov_idx = np.flatnonzero(movable)
+
+    # --- global: every movable block, macros included --------------------------------------
+    t0 = time.perf_counter()
+    st = _Stage(design, out, movable, target, opts, mult)
+    st.check_capacity(target)
+    cx, cy = out.centres()
+    c = design.core
+    rng = np.random.default_rng(seed)
+    span = np.array([c[2] - c[0], c[3] - c[1]])
+    jit = rng.standard_normal((len(mov_idx), 2)) * 1e-3 * span
+    cx[mov_idx] = (c[0] + c[2]) / 2 + jit[:, 0]
+    cy[mov_idx] = (c[1] + c[3]) / 2 + jit[:, 1]
+    st.clamp(cx, cy)
+    st.wirelength(cx, cy, out.orient, opts, opts.initial_iterations, progress, "global")
+    res = st.spread(cx, cy, out.orient, opts, k0=0, max_it=opts.max_iterations, min_it=0,
+                    target_overflow=opts.overflow_target, progress=progress, stage="global")
+    _write_back(out, cx, cy, mov_idx)
+    info["stage_iterations"]["global"] = res["iterations"]
+    info["global_overflow"] = res["overflow"]
+    info["bins"] = res["bins"]
+    info["stage_seconds"]["global"] = time.perf_counter() - t0
+    _report(progress, "global", 1.0, {"overflow": res["overflow"]})
+
+    macros = _movable_macros(design, src)
+    legal_fn, orient_fn = _legaliser()
+    legalized = False
+    final_ov = res["overflow"]
+    if len(macros) and opts.legalize_macros and legal_fn is not None:
+        # --- orientation of movable macros ----------------------------------------------------
+        t0 = time.perf_counter()
+        if opts.orient and orient_fn is not None:
+            out = orient_fn(design, out, macros=macros)
+        info["stage_seconds"]["orient"] = time.perf_counter() - t0
+        _report(progress, "orient", 1.0, {})
+        # --- macro legalisation ---------------------------------------------------------------
+        t0 = time.perf_counter()
+        out = legal_fn(design, out, macros=macros)
+        legalized = True
+        info["stage_seconds"]["legalize"] = time.perf_counter() - t0
+        _report(progress, "legalize", 1.0, {})
+        # --- cells and clusters around the placed macros --------------------------------------
+        t0 = time.perf_counter()
+        soft = _soft_mask(design, src)
+        if soft.any():
+            st2 = _Stage(design, out, soft, target, opts, mult)
+            st2.check_capacity(target)
+            cx, cy = out.centres()
+            k0 = 0.5 * res["iterations"]
+            res2 = st2.spread(cx, cy, out.orient, opts, k0=k0, max_it=opts.max_iterations,
+                              min_it=2, target_overflow=opts.overflow_target,
+                              progress=progress, stage="cells")
+            _write_back(out, cx, cy, st2.vars)
+            info["stage_iterations"]["cells"] = res2["iterations"]
+            final_ov = res2["overflow"]
+            info["bins"] = res2["bins"]
+        info["stage_seconds"]["cells"] = time.perf_counter() - t0
+        _report(progress, "cells", 1.0, {"overflow": final_ov})
+    out = Floorplan(design, out.x, out.y, out.orient, src.status)
+    _restore_fixed(out, src)
+    info["legalized"] = legalized
+    info["overflow"] = final_ov
+    info["iterations"] = int(sum(info["stage_iterations"].values()))
+    info["seconds"] = time.perf_counter() - t_all
+    info["target_density"] = target
+    info["seed"] = int(seed)
+    out.info = info
+    return out
+
+
+def refine(design: Design, floorplan: Floorplan, *, target_density: float = 0.8, seed: int = 0,
+           progress: Progress = None, **options: Any) -> Floorplan:
+    """Warm-started clean-up after a hand edit (meant to run on every drag and drop).
+
+    Movable macros are legalised from their current positions (minimal displacement: only those
+    that now overlap something move noticeably); cells and clusters are re-spread for a few
+    iterations (``refine_iterations``) from where they are, around the macros.  PINNED and
+    FIXED blocks, and terminals, are kept bit-exact.
+
+    Parameters
+    ----------
+    design, floorplan : the design and its current floorplan (not modified).
+    target_density, seed, progress, **options : as for :func:`place`.
+
+    Returns
+    -------
+    Floorplan
+        New floorplan with ``info`` (``iterations``, ``overflow``, ``seconds``,
+        ``stage_seconds``).
+
+    Raises
+    ------
+    PlacementError
+        When the macros cannot be legalised or the cells do not fit; the input is untouched.
+    """
+    t_all = time.perf_counter()
+    src = _check_inputs(design, floorplan)
+    target = check_range("target_density", target_density, 0.0, 1.0, lo_open=True)
+    opts = make_options(options)
+    mult = net_multipliers(design, opts.net_weight_scale)
+    out = src.copy()
+    info: dict[str, Any] = {"stage_seconds": {}, "stage_iterations": {}}
+    macros = _movable_macros(design, src)
+    legal_fn, _ = _legaliser()
+    legalized = False
+    if len(macros) and opts.legalize_macros and legal_fn is not None:
+        t0 = time.perf_counter()
+        out = legal_fn(design, out, macros=macros)
+        legalized = True
+        info["stage_seconds"]["legalize"] = time.perf_counter() - t0
+        _report(progress, "legalize", 1.0, {})
+    t0 = time.perf_counter()
+    soft = _soft_mask(design, src)
+    ov = 0.0
+    if soft.any():
+        st = _Stage(design, out, soft, target, opts, mult)
+        st.check_capacity(target)
+        cx, cy = out.centres()
+        res = st.spread(cx, cy, out.orient, opts, k0=max(opts.max_iterations // 4, 8),
+                        max_it=opts.refine_iterations,
+                        min_it=min(1, opts.refine_iterations),
+                        target_overflow=opts.overflow_target, progress=progress, stage="cells")
+        _write_back(out, cx, cy, st.vars)
+        ov = res["overflow"]
+        info["stage_iterations"]["cells"] = res["iterations"]
+        info["bins"] = res["bins"]
+    info["stage_seconds"]["cells"] = time.perf_counter() - t0
+    _report(progress, "cells", 1.0, {"overflow": ov})
+    out = Floorplan(design, out.x, out.y, out.orient, src.status)
+    _restore_fixed(out, src)
+    info["legalized"] = legalized
+    info["overflow"] = ov
+    info["iterations"] = int(sum(info["stage_iterations"].values()))
+    info["seconds"] = time.perf_counter() - t_all
+    info["target_density"] = target
+    info["seed"] = int(seed)
+    out.info = info
+    return out
+
+
+def legalize(design: Design, floorplan: Floorplan, **options: Any) -> Floorplan:
+    """Legalise the movable macros only (no orientation change, cells untouched).
+
+    Parameters
+    ----------
+    design, floorplan : the design and its current floorplan (not modified).
+    **options : placer options (validated; only ``legalize_macros`` matters here).
+
+    Returns
+    -------
+    Floorplan
+        New floorplan with the movable macros at legal spots near where they were.
+
+    Raises
+    ------
+    PlacementError
+        When the macros cannot be legalised; the input is untouched.
+    NotImplementedError
+        When the macro legaliser is not installed in this build.
+    """
+    t0 = time.perf_counter()
+    src = _check_inputs(design, floorplan)
+    make_options(options)
+    legal_fn, _ = _legaliser()
+    if legal_fn is None:
+        raise NotImplementedError("macro legalisation is not available in this build")
+    macros = _movable_macros(design, src)
+    out = legal_fn(design, src.copy(), macros=macros) if len(macros) else src.copy()
+    out = Floorplan(design, out.x, out.y, out.orient, src.status)
+    _restore_fixed(out, src)
+    out.info = {"legalized": True, "seconds": time.perf_counter() - t0, "iterations": 0}
+    return out

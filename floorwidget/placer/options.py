@@ -1,0 +1,202 @@
+"""Placer options: one dataclass, validated in one place.
+
+Every entry point of the placer (:func:`~floorwidget.placer.place`,
+:func:`~floorwidget.placer.refine`, :func:`~floorwidget.placer.legalize`) turns its ``**options``
+into a :class:`PlacerOptions` through :func:`make_options`, so an unknown or out-of-range option
+fails the same way everywhere: a ``ValueError`` naming the option.
+"""
+
+from __future__ import annotations
+
+import fnmatch
+import numbers
+from collections.abc import Mapping
+from dataclasses import dataclass, fields
+from typing import Any
+
+import numpy as np
+
+__all__ = ["PlacerOptions", "make_options", "net_multipliers", "check_range", "check_int"]
+
+
+def check_range(name: str, value: Any, lo: float, hi: float, *, lo_open: bool = False,
+                hi_open: bool = False) -> float:
+    """Return ``value`` as a float if it lies in the interval, else raise ``ValueError``.
+
+    Examples
+    --------
+    >>> check_range("target_density", 0.8, 0.0, 1.0, lo_open=True)
+    0.8
+    """
+    if isinstance(value, bool) or not isinstance(value, numbers.Real):
+        raise ValueError(f"option {name!r} must be a number, got {value!r}")
+    v = float(value)
+    bad = not np.isfinite(v) or (v <= lo if lo_open else v < lo) or (v >= hi if hi_open else v > hi)
+    if bad:
+        lb = "(" if lo_open else "["
+        rb = ")" if hi_open else "]"
+        raise ValueError(f"option {name!r} must lie in {lb}{lo:g}, {hi:g}{rb}, got {value!r}")
+    return v
+
+
+def check_int(name: str, value: Any, lo: int, hi: int | None = None) -> int:
+    """Return ``value`` as an int if it is an integer in ``[lo, hi]``, else raise ``ValueError``."""
+    if isinstance(value, bool) or not isinstance(value, numbers.Integral):
+        raise ValueError(f"option {name!r} must be an integer, got {value!r}")
+    v = int(value)
+    if v < lo or (hi is not None and v > hi):
+        rng = f"[{lo}, {hi}]" if hi is not None else f">= {lo}"
+        raise ValueError(f"option {name!r} must be {rng}, got {value!r}")
+    return v
+
+
+@dataclass(frozen=True)
+class PlacerOptions:
+    """Tuning knobs of the quadratic placer.
+
+    Parameters
+    ----------
+    overflow_target : float
+        Stop spreading once the density overflow (Σ excess area ÷ movable area, on the placer's
+        own bin grid) is at most this.  Default 0.10.
+    max_iterations : int
+        Cap on spreading iterations per stage.  Default 80.
+    initial_iterations : int
+        Wirelength-only Bound2Bound iterations before spreading starts.  Default 6.
+    refine_iterations : int
+        Spreading iterations of :func:`~floorwidget.placer.refine`.  Default 4.
+    stall_iterations : int
+        Stop when the overflow has not improved by 2 % (relative) over this many iterations.
+    cg_tol : float
+        Relative residual of the conjugate-gradient solves.  Default 1e-5.
+    cg_maxiter : int
+        Iteration cap of each conjugate-gradient solve.  Default 300.
+    anchor_weight : float
+        Initial weight of the anchor pseudo-nets to the look-ahead placement, relative to the
+        average net weight of an object; it grows linearly with the iteration count.
+    anchor_growth : float
+        Added to the anchor multiplier every iteration (``anchor_weight * (1 + growth * k)``).
+    bin_size : float or None
+        Side of the placer's density bins (µm); ``None`` picks one from the design.
+    net_weight_scale : float, mapping or array, optional
+        Multiplier on net weights.  A float scales every net (wirelength against spreading), a
+        mapping ``{block name or fnmatch pattern: factor}`` scales the nets touching those blocks
+        (the largest factor among a net's blocks wins), an array gives one factor per net.
+    orient : bool
+        Choose orientations of movable macros before legalising them.  Default True.
+    legalize_macros : bool
+        Legalise movable macros (and fix them for the cell re-spread).  Default True.
+    """
+
+    overflow_target: float = 0.10
+    max_iterations: int = 80
+    initial_iterations: int = 6
+    refine_iterations: int = 4
+    stall_iterations: int = 10
+    cg_tol: float = 1e-5
+    cg_maxiter: int = 300
+    anchor_weight: float = 0.02
+    anchor_growth: float = 1.0
+    bin_size: float | None = None
+    net_weight_scale: Any = None
+    orient: bool = True
+    legalize_macros: bool = True
+
+    def __post_init__(self):
+        check_range("overflow_target", self.overflow_target, 0.0, 1.0)
+        check_int("max_iterations", self.max_iterations, 0, 100000)
+        check_int("initial_iterations", self.initial_iterations, 1, 1000)
+        check_int("refine_iterations", self.refine_iterations, 0, 100000)
+        check_int("stall_iterations", self.stall_iterations, 1, 100000)
+        check_range("cg_tol", self.cg_tol, 0.0, 1.0, lo_open=True, hi_open=True)
+        check_int("cg_maxiter", self.cg_maxiter, 1)
+        check_range("anchor_weight", self.anchor_weight, 0.0, 1e6, lo_open=True)
+        check_range("anchor_growth", self.anchor_growth, 0.0, 1e6)
+        if self.bin_size is not None:
+            check_range("bin_size", self.bin_size, 0.0, np.inf, lo_open=True, hi_open=True)
+        for name in ("orient", "legalize_macros"):
+            if not isinstance(getattr(self, name), (bool, np.bool_)):
+                raise ValueError(f"option {name!r} must be True or False, "
+                                 f"got {getattr(self, name)!r}")
+        s = self.net_weight_scale
+        if s is None:
+            return
+        if isinstance(s, Mapping):
+            for k, v in s.items():
+                if not isinstance(k, str):
+                    raise ValueError(f"option 'net_weight_scale': keys must be block names or "
+                                     f"patterns, got {k!r}")
+                check_range(f"net_weight_scale[{k!r}]", v, 0.0, 1e9, lo_open=True)
+        elif isinstance(s, numbers.Real) and not isinstance(s, bool):
+            check_range("net_weight_scale", s, 0.0, 1e9, lo_open=True)
+        else:
+            a = np.asarray(s, dtype=np.float64)
+            if a.ndim != 1 or not (np.isfinite(a).all() and (a > 0).all()):
+                raise ValueError("option 'net_weight_scale' must be a positive number, a mapping "
+                                 "{block pattern: factor} or a 1-D array of positive factors")
+
+
+_NAMES = frozenset(f.name for f in fields(PlacerOptions))
+
+
+def make_options(options: Mapping[str, Any] | PlacerOptions | None = None,
+                 **kwargs: Any) -> PlacerOptions:
+    """Build validated :class:`PlacerOptions` from keyword options.
+
+    Raises
+    ------
+    ValueError
+        Naming the first unknown option, or the option whose value is out of range.
+
+    Examples
+    --------
+    >>> make_options(max_iterations=10).max_iterations
+    10
+    >>> make_options(max_iteration=10)
+    Traceback (most recent call last):
+    ...
+    ValueError: unknown placer option 'max_iteration' (known: ...)
+    """
+    if isinstance(options, PlacerOptions):
+        base = {f.name: getattr(options, f.name) for f in fields(PlacerOptions)}
+    else:
+        base = dict(options or {})
+    base.update(kwargs)
+    for k in base:
+        if k not in _NAMES:
+            raise ValueError(f"unknown placer option {k!r} (known: {', '.join(sorted(_NAMES))})")
+    return PlacerOptions(**base)
+
+
+def net_multipliers(design, scale) -> np.ndarray | float:
+    """Per-net weight multipliers for ``net_weight_scale`` (see :class:`PlacerOptions`).
+
+    Returns a float when the scale is uniform, else a ``(num_nets,)`` array.
+    """
+    if scale is None:
+        return 1.0
+    if isinstance(scale, numbers.Real) and not isinstance(scale, bool):
+        return float(scale)
+    if isinstance(scale, Mapping):
+        block_f = np.ones(design.num_blocks)
+        names = design.names
+        index = design.index
+        for pat, f in scale.items():
+            if pat in index:
+                block_f[index[pat]] = float(f)
+                continue
+            hits = [index[nm] for nm in fnmatch.filter(names, pat)]
+            if not hits:
+                raise ValueError(f"option 'net_weight_scale': no block matches {pat!r}")
+            block_f[hits] = float(f)
+        pin_f = block_f[design.pin_block]
+        # the factor furthest from 1 among a net's blocks wins (largest when boosting)
+        starts = design.net_start[:-1]
+        hi = np.maximum.reduceat(pin_f, starts)
+        lo = np.minimum.reduceat(pin_f, starts)
+        return np.where(hi > 1.0, hi, lo)
+    a = np.asarray(scale, dtype=np.float64)
+    if a.shape != (design.num_nets,):
+        raise ValueError(f"option 'net_weight_scale': array has {a.shape[0]} factors, the design "
+                         f"has {design.num_nets} nets")
+    return a
