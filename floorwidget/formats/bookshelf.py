@@ -1,0 +1,837 @@
+"""Bookshelf placement format: ``.aux`` naming ``.nodes .nets .wts .pl .scl``.
+
+Reading
+-------
+:func:`read_aux` reads a full set; :func:`read_pl` reads a placement for an already loaded design.
+The readers never keep a Python object per pin or per token: a file is read whole, split into
+tokens by numpy over its bytes (colons are tokens of their own, ``#`` starts a comment), the
+line structure is found over the token arrays, numeric columns are converted in bulk and node
+names are matched by a vectorised 64-bit hash that is then verified byte by byte.  Line numbers
+are kept per token, so every error names the file and the line.
+
+How Bookshelf nodes become floorwidget blocks (our choices, documented here and in DEVELOPERS):
+
+* A movable node taller than the row height is a ``MACRO``; any other movable node a ``CELL``.
+  The row height is the smallest row height of the ``.scl``; without rows it is the most common
+  movable node height.
+* A ``terminal`` node whose area exceeds ``row height ** 2`` is a fixed ``MACRO`` (a pre-placed
+  block); a smaller or zero-area ``terminal`` and every ``terminal_NI`` is a ``TERMINAL`` (an I/O
+  pin).  Both are ``FIXED``.  ``/FIXED`` or ``/FIXED_NI`` in the ``.pl`` also make a node ``FIXED``.
+* Macros may take all eight orientations; other blocks their ``.pl`` orientation only.
+* The placement grid pitch is (site spacing, row height) of the first row, from its origin.
+* The die is the bounding box of the rows and of every fixed object (the format has no die).
+* Pins of ``.nets`` are offsets from the node centre in the N orientation, as in floorwidget; a
+  pin line without ``: dx dy`` sits at the centre.  Pin directions are not kept.
+* ``.wts`` lines naming a net set its weight; lines naming a node are ignored (node weights have
+  no use here); other names are an error.
+* ``.scl`` ``Siteorient`` is kept when it names an orientation (``N``, ``FS``, ...); numeric codes
+  read as N.  Vertical rows are refused.
+
+Writing
+-------
+:func:`write_pl` writes a placement; :func:`write_aux` a complete set for a design.  Each file is
+written atomically.  What Bookshelf cannot say is lost on a round trip: halos, allowed
+orientations, blockages, a die larger than the rows and fixed objects, pin names, block kinds
+other than those the rules above give back (soft clusters come back as cells or macros), and the
+difference between pinned and fixed (both are written ``/FIXED``).
+
+References
+----------
+The format as used by the ISPD placement contests: Nam, Alpert, Villarrubia, Winter, Yildiz,
+"The ISPD2005 placement contest and benchmark suite", ISPD 2005 (from memory).
+"""
+
+from __future__ import annotations
+
+import re
+from pathlib import Path
+
+import numpy as np
+
+from ..design import (
+    ALL_ORIENTS,
+    CELL,
+    FIXED,
+    MACRO,
+    MOVABLE,
+    ORIENT_CODE,
+    ORIENTATIONS,
+    TERMINAL,
+    Design,
+    DesignError,
+    Floorplan,
+)
+from ._io import atomic_write, read_text
+
+__all__ = ["read_aux", "read_pl", "write_aux", "write_pl"]
+
+_COMMENT = re.compile(rb"#[^\n]*")
+_FNV_OFFSET = np.uint64(0xCBF29CE484222325)
+_FNV_PRIME = np.uint64(0x100000001B3)
+_MAX_NUMBER_LEN = 64
+
+
+# ---------------------------------------------------------------------------------------------
+# tokens
+
+
+class _Tokens:
+    """Whitespace-separated tokens of one text file as byte offsets (no per-token objects).
+
+    Attributes: ``start``/``length`` per token; ``line`` (1-based) per token; ``ls``/``lc`` the
+    first token and token count of every non-empty line; ``lline`` its line number.
+    """
+
+    def __init__(self, path, text: str | None = None):
+        self.path = str(path)
+        if text is None:
+            text = read_text(path)
+        data = text.encode("utf-8")
+        if b"#" in data:  # blank out comments, keeping every byte offset
+            data = _COMMENT.sub(lambda m: b" " * len(m.group()), data)
+        self.data = data
+        buf = np.frombuffer(data, np.uint8)
+        self.buf = buf
+        itype = np.int32 if len(buf) < 2**31 - 2 else np.int64
+        colon = buf == 58
+        tc = (buf > 32) & ~colon
+        st = tc.copy()
+        st[1:] &= ~tc[:-1]
+        st |= colon
+        self.start = np.flatnonzero(st).astype(itype)
+        del st
+        en = tc.copy()
+        en[:-1] &= ~tc[1:]
+        en |= colon
+        del tc, colon
+        self.length = (np.flatnonzero(en).astype(itype) + 1 - self.start).astype(itype)
+        del en
+        nl = np.flatnonzero(buf == 10)
+        self.num_lines = len(nl) + (0 if data.endswith(b"\n") else 1)
+        self.line = (np.searchsorted(nl, self.start) + 1).astype(itype)
+        del nl
+        ntok = len(self.start)
+        first = np.ones(ntok, bool)
+        if ntok:
+            first[1:] = self.line[1:] != self.line[:-1]
+        self.ls = np.flatnonzero(first).astype(itype)
+        self.lc = np.diff(np.append(self.ls, ntok)).astype(itype)
+        self.lline = self.line[self.ls]
+        self.header_skipped = False
+        # skip the ``UCLA <kind> 1.0`` header when it is the first statement
+        if len(self.ls) and self.eq(self.ls[:1], b"UCLA")[0]:
+            self.ls, self.lc, self.lline = self.ls[1:], self.lc[1:], self.lline[1:]
+            self.header_skipped = True
+
+    # --- errors ------------------------------------------------------------------------------
+    def fail(self, line, msg: str):
+        raise DesignError(msg, file=self.path, line=None if line is None else int(line))
+
+    def text(self, i) -> str:
+        i = int(i)
+        s = int(self.start[i])
+        return self.data[s:s + int(self.length[i])].decode("utf-8", "replace")
+
+    def line_text(self, k) -> str:
+        """Tokens of body line ``k`` joined by spaces (for messages)."""
+        s, c = int(self.ls[k]), int(self.lc[k])
+        return " ".join(self.text(i) for i in range(s, s + min(c, 8)))
+
+    # --- vectorised token tests --------------------------------------------------------------
+    def eq(self, idx, word: bytes) -> np.ndarray:
+        """Mask of tokens ``idx`` equal to ``word``."""
+        idx = np.asarray(idx)
+        res = self.length[idx] == len(word)
+        sel = np.flatnonzero(res)
+        s = self.start[idx[sel]]
+        ok = np.ones(len(sel), bool)
+        for j, c in enumerate(word):
+            ok &= self.buf[s + j] == c
+        res[sel] = ok
+        return res
+
+    def floats(self, idx, what: str = "number") -> np.ndarray:
+        """Tokens ``idx`` as finite float64 (an error names the line of the first bad one)."""
+        idx = np.asarray(idx)
+        k = len(idx)
+        if k == 0:
+            return np.zeros(0)
+        L = self.length[idx]
+        long = np.flatnonzero(L > _MAX_NUMBER_LEN)
+        if len(long):
+            i = idx[long[0]]
+            self.fail(self.line[i], f"{what}: {self.text(i)[:40]!r} is not a number")
+        W = int(L.max())
+        mat = np.zeros((k, W), np.uint8)
+        s = self.start[idx]
+        act = np.arange(k)
+        for j in range(W):
+            mat[act, j] = self.buf[s[act] + j]
+            act = act[L[act] > j + 1]
+        arr = mat.view(f"S{W}").reshape(k)
+        try:
+            v = arr.astype(np.float64)
+        except ValueError:
+            v = None
+        if v is None:
+            self._bad_number(idx, arr, what)
+        bad = ~np.isfinite(v)
+        if bad.any():
+            i = idx[np.flatnonzero(bad)[0]]
+            self.fail(self.line[i], f"{what}: {self.text(i)!r} is not a finite number")
+        return v
+
+    def _bad_number(self, idx, arr, what):
+        chunk = 4096
+        for c0 in range(0, len(arr), chunk):
+            try:
+                arr[c0:c0 + chunk].astype(np.float64)
+                continue
+            except ValueError:
+                pass
+            for j in range(c0, min(c0 + chunk, len(arr))):
+                try:
+                    np.array(arr[j:j + 1]).astype(np.float64)
+                except ValueError:
+                    i = idx[j]
+                    self.fail(self.line[i], f"{what}: {self.text(i)[:40]!r} is not a number")
+        i = idx[0]  # pragma: no cover - astype failed on the whole but on no chunk
+        self.fail(self.line[i], f"{what}: not a number")
+
+    def ints(self, idx, what: str, minimum: int = 0) -> np.ndarray:
+        v = self.floats(idx, what)
+        bad = (v != np.round(v)) | (v < minimum) | (v > 2**62)
+        if bad.any():
+            i = idx[np.flatnonzero(bad)[0]]
+            self.fail(self.line[i], f"{what}: expected a whole number >= {minimum}, "
+                                    f"got {self.text(i)!r}")
+        return v.astype(np.int64)
+
+    def names(self, idx) -> list[str]:
+        """Tokens ``idx`` as a list of str (gathered in one go)."""
+        idx = np.asarray(idx)
+        k = len(idx)
+        if k == 0:
+            return []
+        L = self.length[idx].astype(np.int64)
+        tot = int(L.sum())
+        excl = np.cumsum(L) - L
+        rep = np.repeat(np.arange(k), L)
+        ar = np.arange(tot)
+        out = np.full(tot + k, 10, np.uint8)
+        out[ar + rep] = self.buf[ar + np.repeat(self.start[idx].astype(np.int64) - excl, L)]
+        return out[:-1].tobytes().decode("utf-8", "replace").split("\n")
+
+    def hash(self, idx) -> np.ndarray:
+        """64-bit FNV-1a hash of tokens ``idx`` (vectorised, byte column by byte column)."""
+        idx = np.asarray(idx)
+        h = np.full(len(idx), _FNV_OFFSET, np.uint64)
+        L = self.length[idx]
+        s = self.start[idx]
+        act = np.arange(len(idx))
+        j = 0
+        while len(act):
+            h[act] = (h[act] ^ self.buf[s[act] + j].astype(np.uint64)) * _FNV_PRIME
+            j += 1
+            act = act[L[act] > j]
+        return (h ^ L.astype(np.uint64)) * _FNV_PRIME
+
+
+def _same(ta: _Tokens, ia, tb: _Tokens, ib) -> np.ndarray:
+    """Mask: token ``ia[k]`` of ``ta`` equals token ``ib[k]`` of ``tb`` byte for byte."""
+    la, lb = ta.length[ia], tb.length[ib]
+    ok = la == lb
+    act = np.flatnonzero(ok)
+    sa, sb = ta.start[ia], tb.start[ib]
+    j = 0
+    while len(act):
+        diff = ta.buf[sa[act] + j] != tb.buf[sb[act] + j]
+        ok[act[diff]] = False
+        j += 1
+        act = act[~diff]
+        act = act[la[act] > j]
+    return ok
+
+
+class _NameTable:
+    """Exact name -> index lookup over tokens of one file, built from hashes."""
+
+    def __init__(self, tok: _Tokens, idx: np.ndarray, what: str):
+        self.tok, self.idx = tok, np.asarray(idx)
+        h = tok.hash(self.idx)
+        order = np.argsort(h, kind="stable")
+        hs = h[order]
+        self.order, self.hs = order, hs
+        self.fallback: dict[str, int] | None = None
+        dup = np.flatnonzero(hs[1:] == hs[:-1])
+        if len(dup):
+            a, b = order[dup], order[dup + 1]
+            same = _same(tok, self.idx[a], tok, self.idx[b])
+            if same.any():
+                later = np.maximum(a, b)[same]
+                k = int(later.min())
+                i = self.idx[k]
+                tok.fail(tok.line[i], f"duplicate {what} name {tok.text(i)!r}")
+            # a true 64-bit hash collision: exact dictionary instead (practically never)
+            self.fallback = {nm: i for i, nm in enumerate(tok.names(self.idx))}
+
+    def lookup(self, tok: _Tokens, idx) -> np.ndarray:
+        """Index of every token ``idx`` of ``tok`` in the table, -1 where unknown."""
+        idx = np.asarray(idx)
+        if self.fallback is not None:
+            fb = self.fallback
+            return np.array([fb.get(nm, -1) for nm in tok.names(idx)], dtype=np.int64)
+        h = tok.hash(idx)
+        if len(self.hs) == 0:
+            return np.full(len(idx), -1, np.int64)
+        pos = np.minimum(np.searchsorted(self.hs, h), len(self.hs) - 1)
+        hit = self.hs[pos] == h
+        res = np.where(hit, self.order[pos], -1).astype(np.int64)
+        sel = np.flatnonzero(hit)
+        ok = _same(tok, idx[sel], self.tok, self.idx[res[sel]])
+        res[sel[~ok]] = -1
+        return res
+
+
+def _header_counts(t: _Tokens, lines: np.ndarray, keys: dict[bytes, str]) -> tuple[
+        np.ndarray, dict[str, tuple[int, int]]]:
+    """Find ``Key : value`` header lines; return (mask of header lines, {key: (value, line)})."""
+    first = t.ls[lines]
+    mask = np.zeros(len(lines), bool)
+    found: dict[str, tuple[int, int]] = {}
+    for word, key in keys.items():
+        m = t.eq(first, word)
+        for k in np.flatnonzero(m):
+            ln, f, c = t.lline[lines[k]], int(first[k]), int(t.lc[lines[k]])
+            if c != 3 or not t.eq([f + 1], b":")[0]:
+                t.fail(ln, f"expected '{key} : <count>'")
+            if key in found:
+                t.fail(ln, f"{key} given twice (first on line {found[key][1]})")
+            found[key] = (int(t.ints([f + 2], key)[0]), int(ln))
+        mask |= m
+    return mask, found
+
+
+def _first_bad(t: _Tokens, lines: np.ndarray, bad: np.ndarray, msg: str):
+    if bad.any():
+        k = lines[np.flatnonzero(bad)[0]]
+        t.fail(t.lline[k], f"{msg}, got '{t.line_text(k)}'")
+
+
+# ---------------------------------------------------------------------------------------------
+# the files
+
+
+def _read_nodes(path):
+    t = _Tokens(path)
+    lines = np.arange(len(t.ls))
+    hdr, counts = _header_counts(t, lines, {b"NumNodes": "NumNodes",
+                                            b"NumTerminals": "NumTerminals"})
+    body = lines[~hdr]
+    first = t.ls[body]
+    lc = t.lc[body]
+    _first_bad(t, body, (lc != 3) & (lc != 4), "expected 'name width height [terminal]'")
+    _first_bad(t, body, t.eq(first, b":"), "expected 'name width height [terminal]'")
+    w = t.floats(first + 1, "node width")
+    h = t.floats(first + 2, "node height")
+    neg = (w < 0) | (h < 0)
+    _first_bad(t, body, neg, "negative node size")
+    term = np.zeros(len(body), np.int8)
+    four = np.flatnonzero(lc == 4)
+    if len(four):
+        ft = first[four] + 3
+        is_t = t.eq(ft, b"terminal")
+        is_ni = t.eq(ft, b"terminal_NI")
+        bad = np.zeros(len(body), bool)
+        bad[four] = ~(is_t | is_ni)
+        _first_bad(t, body, bad, "node type must be 'terminal' or 'terminal_NI'")
+        term[four] = np.where(is_t, 1, 2)
+    zero = (term == 0) & ((w == 0) | (h == 0))
+    _first_bad(t, body, zero, "movable node of zero size")
+    n, nterm = len(body), int((term > 0).sum())
+    if "NumNodes" in counts and counts["NumNodes"][0] != n:
+        t.fail(counts["NumNodes"][1], f"NumNodes says {counts['NumNodes'][0]} but the file has "
+                                      f"{n} node lines")
+    if "NumTerminals" in counts and counts["NumTerminals"][0] != nterm:
+        t.fail(counts["NumTerminals"][1], f"NumTerminals says {counts['NumTerminals'][0]} but "
+                                          f"the file has {nterm} terminals")
+    table = _NameTable(t, first, "node")
+    return t, first, w, h, term, table
+
+
+def _read_nets(path, node_table: _NameTable):
+    t = _Tokens(path)
+    lines = np.arange(len(t.ls))
+    hdr, counts = _header_counts(t, lines, {b"NumNets": "NumNets", b"NumPins": "NumPins"})
+    first_all = t.ls[lines]
+    isdeg = t.eq(first_all, b"NetDegree") & ~hdr
+    deg_lines = lines[isdeg]
+    pin_lines = lines[~isdeg & ~hdr]
+    # NetDegree : k [name]
+    fd = t.ls[deg_lines]
+    lcd = t.lc[deg_lines]
+    _first_bad(t, deg_lines, (lcd != 3) & (lcd != 4), "expected 'NetDegree : <pins> [name]'")
+    _first_bad(t, deg_lines, ~t.eq(fd + 1, b":"), "expected 'NetDegree : <pins> [name]'")
+    degree = t.ints(fd + 2, "NetDegree", minimum=1)
+    # pins: node I|O|B [: dx dy]
+    fp = t.ls[pin_lines]
+    lcp = t.lc[pin_lines]
+    _first_bad(t, pin_lines, (lcp != 2) & (lcp != 5), "expected 'node I|O|B [: dx dy]'")
+    dtok = fp + 1
+    dir_ok = (t.length[dtok] == 1) & np.isin(t.buf[t.start[dtok]], np.frombuffer(b"IOB", np.uint8))
+    _first_bad(t, pin_lines, ~dir_ok, "pin direction must be I, O or B")
+    five = np.flatnonzero(lcp == 5)
+    _first_bad(t, pin_lines[five], ~t.eq(fp[five] + 2, b":"), "expected 'node I|O|B : dx dy'")
+    dx = np.zeros(len(pin_lines))
+    dy = np.zeros(len(pin_lines))
+    dx[five] = t.floats(fp[five] + 3, "pin x offset")
+    dy[five] = t.floats(fp[five] + 4, "pin y offset")
+    # structure: pins belong to the NetDegree line above them
+    if len(pin_lines) and (not len(deg_lines) or pin_lines[0] < deg_lines[0]):
+        t.fail(t.lline[pin_lines[0]], "pin line before the first NetDegree")
+    m = len(deg_lines)
+    owner = np.searchsorted(deg_lines, pin_lines, side="right") - 1
+    have = np.bincount(owner, minlength=m) if m else np.zeros(0, np.int64)
+    bad = np.flatnonzero(have != degree)
+    if len(bad):
+        j = int(bad[0])
+        ln = t.lline[deg_lines[j]]
+        if j == m - 1 and have[j] < degree[j]:
+            t.fail(t.num_lines, f"file ends after {have[j]} of the {degree[j]} pins of the net "
+                                f"declared on line {ln}")
+        t.fail(ln, f"NetDegree says {degree[j]} but the net has {have[j]} pin lines")
+    if "NumNets" in counts and counts["NumNets"][0] != m:
+        t.fail(counts["NumNets"][1], f"NumNets says {counts['NumNets'][0]} but the file has "
+                                     f"{m} nets")
+    p = len(pin_lines)
+    if "NumPins" in counts and counts["NumPins"][0] != p:
+        t.fail(counts["NumPins"][1], f"NumPins says {counts['NumPins'][0]} but the file has "
+                                     f"{p} pins")
+    block = node_table.lookup(t, fp)
+    unknown = np.flatnonzero(block < 0)
+    if len(unknown):
+        k = pin_lines[unknown[0]]
+        t.fail(t.lline[k], f"unknown node {t.text(t.ls[k])!r}")
+    net_start = np.concatenate([[0], np.cumsum(have)]).astype(np.int64)
+    # net names: given ones must be unique; missing ones are numbered
+    named = np.flatnonzero(lcd == 4)
+    net_names = [f"net{j}" for j in range(m)] if len(named) < m else []
+    if len(named):
+        table = _NameTable(t, fd[named] + 3, "net")
+        given = t.names(fd[named] + 3)
+        if net_names:
+            for j, nm in zip(named.tolist(), given):
+                net_names[j] = nm
+        else:
+            net_names = given
+    else:
+        table = None
+    return t, net_start, block, dx, dy, net_names, table, named
+
+
+def _read_pl(path, node_table: _NameTable, n: int):
+    t = _Tokens(path)
+    lines = np.arange(len(t.ls))
+    first = t.ls[lines]
+    lc = t.lc[lines]
+    _first_bad(t, lines, (lc != 3) & (lc != 5) & (lc != 6),
+               "expected 'name x y : orientation [/FIXED]'")
+    x = t.floats(first + 1, "x")
+    y = t.floats(first + 2, "y")
+    orient = np.zeros(len(lines), np.int8)
+    fixed = np.zeros(len(lines), bool)
+    withor = np.flatnonzero(lc >= 5)
+    if len(withor):
+        _first_bad(t, lines[withor], ~t.eq(first[withor] + 3, b":"),
+                   "expected 'name x y : orientation [/FIXED]'")
+        otok = first[withor] + 4
+        code = np.full(len(withor), -1, np.int8)
+        for c, o in enumerate(ORIENTATIONS):
+            code[t.eq(otok, o.encode())] = c
+        _first_bad(t, lines[withor], code < 0,
+                   f"orientation must be one of {', '.join(ORIENTATIONS)}")
+        orient[withor] = code
+    six = np.flatnonzero(lc == 6)
+    if len(six):
+        ftok = first[six] + 5
+        ok = t.eq(ftok, b"/FIXED") | t.eq(ftok, b"/FIXED_NI")
+        _first_bad(t, lines[six], ~ok, "the last field must be /FIXED or /FIXED_NI")
+        fixed[six] = True
+    block = node_table.lookup(t, first)
+    unknown = np.flatnonzero(block < 0)
+    if len(unknown):
+        k = lines[unknown[0]]
+        t.fail(t.lline[k], f"unknown node {t.text(first[unknown[0]])!r}")
+    order = np.argsort(block, kind="stable")
+    bs = block[order]
+    dup = np.flatnonzero(bs[1:] == bs[:-1])
+    if len(dup):
+        k = int(np.maximum(order[dup], order[dup + 1]).min())
+        t.fail(t.lline[lines[k]], f"node {t.text(first[k])!r} placed twice")
+    X, Y = np.zeros(n), np.zeros(n)
+    OR, F = np.zeros(n, np.int8), np.zeros(n, bool)
+    X[block], Y[block], OR[block], F[block] = x, y, orient, fixed
+    listed = np.zeros(n, bool)
+    listed[block] = True
+    return X, Y, OR, F, listed
+
+
+def _read_wts(path, net_table: _NameTable | None, node_table: _NameTable, m: int,
+              named: np.ndarray) -> np.ndarray:
+    t = _Tokens(path)
+    weight = np.ones(m)
+    lines = np.arange(len(t.ls))
+    if not len(lines):
+        return weight
+    first = t.ls[lines]
+    _first_bad(t, lines, t.lc[lines] != 2, "expected 'name weight'")
+    w = t.floats(first + 1, "weight")
+    _first_bad(t, lines, w < 0, "negative weight")
+    net = (net_table.lookup(t, first) if net_table is not None
+           else np.full(len(lines), -1, np.int64))
+    is_net = net >= 0
+    if not is_net.all():
+        other = np.flatnonzero(~is_net)
+        node = node_table.lookup(t, first[other])
+        if (node < 0).any():
+            k = other[np.flatnonzero(node < 0)[0]]
+            t.fail(t.lline[lines[k]], f"unknown net or node {t.text(first[k])!r}")
+    weight[named[net[is_net]]] = w[is_net]
+    return weight
+
+
+_SCL_KEYS = {"coordinate", "height", "sitewidth", "sitespacing", "siteorient", "sitesymmetry",
+             "subroworigin", "numsites"}
+
+
+def _read_scl(path) -> dict:
+    """Rows of a ``.scl`` (a loop over its lines: a file has rows, not cells)."""
+    t = _Tokens(path)
+    rows = {"x": [], "y": [], "height": [], "site_width": [], "num_sites": [], "orient": []}
+    declared = None
+    nrows = 0
+    cur: dict | None = None
+    start_line = 0
+
+    def num(tok, ln, key, positive=False):
+        try:
+            v = float(tok)
+        except ValueError:
+            t.fail(ln, f"{key}: {tok[:40]!r} is not a number")
+        if not np.isfinite(v):
+            t.fail(ln, f"{key}: {tok!r} is not a finite number")
+        if positive and v <= 0:
+            t.fail(ln, f"{key} must be positive, got {tok}")
+        return v
+
+    for k in range(len(t.ls)):
+        ln = int(t.lline[k])
+        toks = [t.text(i) for i in range(int(t.ls[k]), int(t.ls[k] + t.lc[k]))]
+        head = toks[0].lower()
+        if cur is None:
+            if head == "numrows":
+                if len(toks) != 3 or toks[1] != ":":
+                    t.fail(ln, "expected 'NumRows : <count>'")
+                v = num(toks[2], ln, "NumRows")
+                if v < 0 or v != int(v):
+                    t.fail(ln, "NumRows must be a whole number")
+                declared = (int(v), ln)
+            elif head == "corerow":
+                if len(toks) != 2 or toks[1].lower() != "horizontal":
+                    t.fail(ln, "only 'CoreRow Horizontal' rows are supported")
+                cur = {"sub": 0}
+                start_line = ln
+                nrows += 1
+            else:
+                t.fail(ln, f"expected 'CoreRow Horizontal' or 'NumRows', got {toks[0][:40]!r}")
+            continue
+        if head == "end":
+            if len(toks) != 1:
+                t.fail(ln, "expected 'End'")
+            if cur["sub"] == 0:
+                t.fail(ln, f"row starting on line {start_line} has no SubrowOrigin")
+            cur = None
+            continue
+        # key : value [key : value]
+        if len(toks) % 3 != 0:
+            t.fail(ln, "expected 'Key : value' pairs")
+        pairs = {}
+        for j in range(0, len(toks), 3):
+            key = toks[j].lower()
+            if toks[j + 1] != ":" or key not in _SCL_KEYS:
+                t.fail(ln, f"unknown row field {toks[j][:40]!r}")
+            pairs[key] = toks[j + 2]
+        for key, val in pairs.items():
+            if key == "siteorient":
+                cur[key] = ORIENT_CODE.get(val, 0)
+            elif key == "sitesymmetry":
+                cur[key] = val
+            elif key in ("subroworigin", "numsites"):
+                pass
+            else:
+                cur[key] = num(val, ln, key, positive=key != "coordinate")
+        if "subroworigin" in pairs or "numsites" in pairs:
+            if "subroworigin" not in pairs or "numsites" not in pairs:
+                t.fail(ln, "expected 'SubrowOrigin : x NumSites : n'")
+            for need in ("coordinate", "height"):
+                if need not in cur:
+                    t.fail(ln, f"row starting on line {start_line} has no {need.title()}")
+            x0 = num(pairs["subroworigin"], ln, "SubrowOrigin")
+            ns = num(pairs["numsites"], ln, "NumSites", positive=True)
+            if ns != int(ns):
+                t.fail(ln, "NumSites must be a whole number")
+            sw = cur.get("sitespacing", cur.get("sitewidth", 1.0))
+            rows["x"].append(x0)
+            rows["y"].append(cur["coordinate"])
+            rows["height"].append(cur["height"])
+            rows["site_width"].append(sw)
+            rows["num_sites"].append(int(ns))
+            rows["orient"].append(cur.get("siteorient", 0))
+            cur["sub"] += 1
+    if cur is not None:
+        t.fail(t.num_lines, f"file ends inside the row starting on line {start_line}")
+    if declared is not None:
+        if declared[0] != nrows:
+            t.fail(declared[1], f"NumRows says {declared[0]} but the file has {nrows} rows")
+    return rows
+
+
+# ---------------------------------------------------------------------------------------------
+
+
+def _aux_files(aux: Path) -> dict[str, tuple[Path, int]]:
+    t = _Tokens(aux)
+    files: dict[str, tuple[Path, int]] = {}
+    for k in range(len(t.ls)):
+        ln = int(t.lline[k])
+        toks = [t.text(i) for i in range(int(t.ls[k]), int(t.ls[k] + t.lc[k]))]
+        if len(toks) < 3 or toks[1] != ":":
+            t.fail(ln, "expected '<placement kind> : file.nodes file.nets ...'")
+        for name in toks[2:]:
+            suffix = Path(name).suffix.lower()
+            if suffix in (".nodes", ".nets", ".wts", ".pl", ".scl"):
+                if suffix in files:
+                    t.fail(ln, f"two {suffix} files named")
+                files[suffix] = (aux.parent / name, ln)
+    for need in (".nodes", ".nets"):
+        if need not in files:
+            t.fail(int(t.lline[0]) if len(t.ls) else 1, f"no {need} file named")
+    for p, ln in files.values():
+        if not p.is_file():
+            t.fail(ln, f"{p.name} (named here) not found")
+    return files
+
+
+def read_aux(path) -> Design:
+    """Read a Bookshelf design from its ``.aux`` file.
+
+    Parameters
+    ----------
+    path : str or Path
+        The ``.aux`` file; the files it names are looked up beside it.
+
+    Returns
+    -------
+    Design
+        With the ``.pl`` placement (when given) as ``design.initial``.
+
+    Raises
+    ------
+    DesignError
+        Naming the file and line of the first problem.
+
+    Examples
+    --------
+    >>> design = read_aux("tests/data/bookshelf/tiny.aux")   # doctest: +SKIP
+    """
+    aux = Path(path)
+    files = _aux_files(aux)
+    rows = _read_scl(files[".scl"][0]) if ".scl" in files else None
+    tn, first, w, h, term, node_table = _read_nodes(files[".nodes"][0])
+    n = len(first)
+    names = tn.names(first)
+    _, net_start, pin_block, pin_dx, pin_dy, net_names, net_table, named = _read_nets(
+        files[".nets"][0], node_table)
+    if ".pl" in files:
+        x, y, orient, pl_fixed, _ = _read_pl(files[".pl"][0], node_table, n)
+    else:
+        x, y = np.zeros(n), np.zeros(n)
+        orient, pl_fixed = np.zeros(n, np.int8), np.zeros(n, bool)
+    weight = (_read_wts(files[".wts"][0], net_table, node_table, len(net_names), named)
+              if ".wts" in files else None)
+
+    # kinds (see the module docstring)
+    movable_node = term == 0
+    if rows and rows["height"]:
+        row_h = float(np.min(rows["height"]))
+    elif movable_node.any():
+        vals, cnt = np.unique(h[movable_node], return_counts=True)
+        row_h = float(vals[np.argmax(cnt)])
+    else:
+        row_h = 0.0
+    kind = np.where(h > row_h, MACRO, CELL).astype(np.int8)
+    big = w * h > row_h * row_h
+    kind[term == 1] = np.where(big[term == 1], MACRO, TERMINAL)
+    kind[term == 2] = TERMINAL
+    status = np.where((term > 0) | pl_fixed, FIXED, MOVABLE).astype(np.int8)
+    allowed = np.where(kind == MACRO, ALL_ORIENTS, 0).astype(np.uint8)
+    allowed |= (np.uint8(1) << orient.astype(np.uint8)).astype(np.uint8)
+
+    # die: rows and fixed objects
+    fw_, fh_ = np.where(np.isin(orient, (2, 3, 6, 7)), h, w), np.where(
+        np.isin(orient, (2, 3, 6, 7)), w, h)
+    boxes = []
+    if rows and rows["x"]:
+        rx, ry = np.array(rows["x"]), np.array(rows["y"])
+        rxh = rx + np.array(rows["site_width"]) * np.array(rows["num_sites"])
+        ryh = ry + np.array(rows["height"])
+        boxes.append([rx.min(), ry.min(), rxh.max(), ryh.max()])
+    fx = status == FIXED
+    if fx.any():
+        boxes.append([x[fx].min(), y[fx].min(), (x + fw_)[fx].max(), (y + fh_)[fx].max()])
+    if not boxes and n:
+        boxes.append([x.min(), y.min(), (x + fw_).max(), (y + fh_).max()])
+    if not boxes:
+        raise DesignError("no rows and no nodes: cannot tell the die", file=str(aux))
+    b = np.array(boxes)
+    die = [b[:, 0].min(), b[:, 1].min(), b[:, 2].max(), b[:, 3].max()]
+    if not (die[2] > die[0] and die[3] > die[1]):
+        raise DesignError(f"the rows and fixed nodes span no area ({die}); cannot tell the die",
+                          file=str(aux))
+    return Design(aux.stem, die, names, kind, w, h, net_start, pin_block, pin_dx, pin_dy,
+                  orient_allowed=allowed, net_names=net_names, net_weight=weight,
+                  rows=rows if rows and rows["x"] else None, x=x, y=y, orient=orient,
+                  status=status, source=str(aux))
+
+
+def read_pl(design: Design, path) -> Floorplan:
+    """Read a ``.pl`` placement for ``design``; blocks it does not list keep their initial spot.
+
+    ``/FIXED`` lines and the design's fixed blocks come back ``FIXED``; others ``MOVABLE``.
+    """
+    path = Path(path)
+    _check_names(design.names, "block", path)
+    nt = _Tokens("<design names>", "\n".join(design.names))
+    table = _NameTable(nt, np.arange(len(nt.start)), "block")
+    X, Y, OR, F, listed = _read_pl(path, table, design.num_blocks)
+    init = design.initial
+    x = np.where(listed, X, init.x)
+    y = np.where(listed, Y, init.y)
+    o = np.where(listed, OR, init.orient)
+    st = np.where(F | (init.status == FIXED), FIXED, MOVABLE).astype(np.int8)
+    return Floorplan(design, x, y, o, st)
+
+
+# ---------------------------------------------------------------------------------------------
+# writing
+
+
+_BAD_NAME = re.compile(r"[\s:#]")
+
+
+def _check_names(names, what: str, where) -> None:
+    for nm in names:
+        if not nm or _BAD_NAME.search(nm):
+            raise DesignError(f"{what} name {nm!r} cannot be written to Bookshelf (empty, or "
+                              f"contains white space, ':' or '#')", file=str(where))
+
+
+def _r(values) -> list[str]:
+    return list(map(repr, np.asarray(values, dtype=np.float64).tolist()))
+
+
+def _pl_text(design: Design, fp: Floorplan) -> str:
+    d = design
+    fixed = fp.status != MOVABLE
+    flag = np.where(fixed, np.where(d.kind == TERMINAL, " /FIXED_NI", " /FIXED"), "").tolist()
+    orn = np.array(ORIENTATIONS, dtype=object)[fp.orient].tolist()
+    body = "".join(f"{nm} {x} {y} : {o}{f}\n"
+                   for nm, x, y, o, f in zip(d.names, _r(fp.x), _r(fp.y), orn, flag))
+    return "UCLA pl 1.0\n# written by floorwidget\n\n" + body
+
+
+def write_pl(design: Design, fp: Floorplan, path) -> None:
+    """Write a Bookshelf ``.pl`` placement atomically.
+
+    Positions are lower-left corners of the oriented footprint; pinned and fixed blocks get
+    ``/FIXED`` (``/FIXED_NI`` for I/O terminals).
+    """
+    _check_names(design.names, "block", path)
+    text = _pl_text(design, fp)
+    with atomic_write(path) as f:
+        f.write(text)
+
+
+def write_aux(design: Design, fp: Floorplan | None, target) -> Path:
+    """Write a full Bookshelf set (.aux .nodes .nets .wts .pl .scl) for ``design`` placed as ``fp``.
+
+    Parameters
+    ----------
+    design : Design
+    fp : Floorplan or None
+        The placement for the ``.pl`` (default ``design.initial``).
+    target : str or Path
+        An existing directory (files are named after the design) or a path ending in ``.aux``
+        (files are named after its stem, beside it).
+
+    Returns
+    -------
+    Path
+        The ``.aux`` written.  Every file is written atomically, and nothing is written when a
+        name cannot be expressed in Bookshelf.
+    """
+    d = design
+    fp = d.initial if fp is None else fp
+    target = Path(target)
+    if target.suffix.lower() == ".aux":
+        directory, stem = target.parent, target.stem
+    else:
+        directory, stem = target, d.name
+    if not directory.is_dir():
+        raise DesignError(f"cannot write {target}: directory {directory} does not exist")
+    _check_names([stem], "design", target)
+    _check_names(d.names, "block", target)
+    _check_names(d.net_names, "net", target)
+
+    fixed_macro = (d.kind == MACRO) & (fp.status == FIXED)
+    tflag = np.where(d.kind == TERMINAL, " terminal_NI", np.where(fixed_macro, " terminal", ""))
+    nterm = int((tflag != "").sum())
+    nodes = [f"UCLA nodes 1.0\n# written by floorwidget\n\nNumNodes : {d.num_blocks}\n"
+             f"NumTerminals : {nterm}\n"]
+    nodes.append("".join(f"{nm} {w} {h}{t}\n" for nm, w, h, t in
+                         zip(d.names, _r(d.width), _r(d.height), tflag.tolist())))
+
+    m, p = d.num_nets, d.num_pins
+    deg = d.net_degree
+    pin_lines = [f"  {nm} B : {x} {y}" for nm, x, y in
+                 zip(np.array(d.names, dtype=object)[d.pin_block].tolist(),
+                     _r(d.pin_dx), _r(d.pin_dy))]
+    lines = np.empty(m + p, dtype=object)
+    head_pos = d.net_start[:-1] + np.arange(m)
+    is_head = np.zeros(m + p, bool)
+    is_head[head_pos] = True
+    lines[head_pos] = [f"NetDegree : {k} {nm}" for k, nm in zip(deg.tolist(), d.net_names)]
+    lines[~is_head] = pin_lines
+    nets = (f"UCLA nets 1.0\n# written by floorwidget\n\nNumNets : {m}\nNumPins : {p}\n"
+            + "\n".join(lines.tolist()) + ("\n" if m else ""))
+
+    wts = "UCLA wts 1.0\n# written by floorwidget\n\n" + "".join(
+        f"{nm} {w}\n" for nm, w in zip(d.net_names, _r(d.net_weight)))
+
+    scl = [f"UCLA scl 1.0\n# written by floorwidget\n\nNumRows : {len(d.row_x)}\n\n"]
+    for i in range(len(d.row_x)):  # rows, not cells
+        sw = repr(float(d.row_site_width[i]))
+        scl.append(f"CoreRow Horizontal\n  Coordinate : {float(d.row_y[i])!r}\n"
+                   f"  Height : {float(d.row_height[i])!r}\n  Sitewidth : {sw}\n"
+                   f"  Sitespacing : {sw}\n  Siteorient : {ORIENTATIONS[int(d.row_orient[i])]}\n"
+                   f"  Sitesymmetry : Y\n  SubrowOrigin : {float(d.row_x[i])!r} "
+                   f"NumSites : {int(d.row_num_sites[i])}\nEnd\n")
+    pl = _pl_text(d, fp)
+    aux = (f"RowBasedPlacement : {stem}.nodes {stem}.nets {stem}.wts {stem}.pl "
+           f"{stem}.scl\n")
+    texts = {".nodes": "".join(nodes), ".nets": nets, ".wts": wts, ".pl": pl,
+             ".scl": "".join(scl), ".aux": aux}
+    for suffix, text in texts.items():  # the .aux last: it appears only once the rest exist
+        with atomic_write(directory / f"{stem}{suffix}") as f:
+            f.write(text)
+    return directory / f"{stem}.aux"
