@@ -1,0 +1,801 @@
+"""Macro legalisation: from a global placement to an overlap-free, on-grid macro placement.
+
+What "legal" means here (the contract checked by ``tests/test_legalize.py``):
+
+* the **halo boxes** (footprint grown by the block's halo, left/bottom/right/top) of two macros
+  that this function is responsible for, and of such a macro and any other macro, have no
+  overlap of positive area (touching is allowed);
+* a macro's **footprint** lies inside the core (the bounding box of the rows); its halo may hang
+  over the core edge into the die margin but never beyond the die;
+* a macro's footprint has no overlap of positive area with a placement blockage (a halo may
+  cover a blockage: both only keep standard cells out);
+* its lower-left corner lies on the placement grid ``grid_origin + k * grid_pitch``.
+
+Every comparison is made in floating point on exactly the coordinates
+:meth:`Floorplan.rects` produces (``x - left``, ``(x + w) + right``), so an outside check with
+those rectangles (e.g. shapely's intersection area) sees exactly zero overlap.
+
+Method
+------
+1. *Checks.*  Pinned/fixed macros overlapping each other, a macro that does not fit in the core
+   in its orientation, and more macro area than free core area raise :class:`PlacementError`
+   before anything is computed; the input floorplan is never written to.
+2. *Early exit.*  An already-legal placement is returned unchanged (bit-exact).
+3. *Local repair* (the common case after a hand move).  The macros in conflict are reduced to a
+   small set that must move (every macro with a violation of its own, plus a greedy vertex cover
+   of the overlap graph preferring small macros and avoiding ``keep``); only those are moved, each
+   to its nearest free grid spot with all others held still.
+4. *Full legalisation.*  An ordered nearest-free-spot search: macros by decreasing halo area,
+   each moved to the grid point nearest (Euclidean) to its global-placement position that is free
+   of everything placed before it, of pinned/fixed macros and of blockages.  The candidate
+   spots are the Cartesian product of the snapped target and the grid-snapped edges of the
+   obstacles' configuration-space rectangles, which provably contains the nearest free point;
+   the search runs over a window that doubles until the nearest candidate found lies inside it.
+   This is the greedy, largest-first, obstacle-aware scheme long used for mixed-size
+   legalisation, e.g. Hill, US patent 6,370,673 (2002, "Tetris"), and Cong, Xie, ICCAD 2006
+   (from memory).
+5. *LP improvement.*  Keeping the relative order found (for every pair of macros that could
+   meet within a trust region, the horizontal or vertical separation they already satisfy,
+   choosing the one least binding at the targets), minimise the total L1 displacement from the
+   global placement with ``scipy.optimize.linprog(method="highs")``: two independent LPs over the
+   horizontal and vertical constraint graphs -- the constraint-graph formulation of minimum
+   perturbation / white-space redistribution, e.g. Tang, Tian, Wong, ASP-DAC 2005, and Chen,
+   Chang, Hsu, ICCAD 2006 (both from memory).  The variables are *grid indices*: every
+   separation and bound is rounded to an integer number of pitches in the safe direction and the
+   targets are rounded to the grid, so the LP is the dual of a min-cost flow with integral data
+   and its vertex optima are integral; the solution is rounded anyway, checked exactly and any
+   remaining conflict goes through the local repair.  A round is accepted only when it lowers
+   the displacement; pairs farther apart than twice the trust radius cannot meet, so the trust
+   region makes the per-round constraint set sparse and exact.
+
+Notes
+-----
+Macro packing is NP-hard, so a "fits nowhere" error after the greedy search (retried with the
+failing macro moved to the front of the order) is a strong hint, not a proof, of infeasibility.
+Orientation is kept: :func:`floorwidget.placer.orient.choose_orientations` chooses it.
+The result is an early-floorplanning estimate; sign-off belongs to the full implementation flow.
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Callable, Iterable
+
+import numpy as np
+from scipy import sparse
+from scipy.optimize import linprog
+
+from ..design import MACRO, MOVABLE, Design, Floorplan, off_grid
+from .errors import PlacementError
+
+__all__ = ["legalize_macros", "is_legal"]
+
+_EPS = 1e-9  # tolerance in grid units when turning a distance into a number of pitches
+_GRID_TOL = 1e-6  # µm, as in design.off_grid
+_EVAL_CELLS = 1 << 18  # candidate x obstacle comparisons per numpy chunk
+
+
+# ---------------------------------------------------------------------------------------------
+# geometry helpers (all strict: touching rectangles do not overlap)
+
+
+def _pairs(a: np.ndarray, b: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
+    """Index pairs of rectangles with positive-area overlap (``i < j`` when ``b`` is None)."""
+    same = b is None
+    if same:
+        b = a
+    n, m = len(a), len(b)
+    if n == 0 or m == 0:
+        return np.zeros(0, np.intp), np.zeros(0, np.intp)
+    out_i, out_j = [], []
+    step = max(1, _EVAL_CELLS // max(m, 1))
+    # sort-and-prune along x: only columns whose xlo is below the chunk's largest xhi matter
+    order = np.argsort(b[:, 0], kind="stable")
+    bs = b[order]
+    for s in range(0, n, step):
+        aa = a[s:s + step]
+        hi = np.searchsorted(bs[:, 0], aa[:, 2].max(), side="left")
+        cols = bs[:hi]
+        if not len(cols):
+            continue
+        m_ = ((aa[:, None, 0] < cols[None, :, 2]) & (cols[None, :, 0] < aa[:, None, 2])
+              & (aa[:, None, 1] < cols[None, :, 3]) & (cols[None, :, 1] < aa[:, None, 3]))
+        i, j = np.nonzero(m_)
+        i = i + s
+        j = order[j]
+        if same:
+            keep = i < j
+            i, j = i[keep], j[keep]
+        out_i.append(i)
+        out_j.append(j)
+    if not out_i:
+        return np.zeros(0, np.intp), np.zeros(0, np.intp)
+    return np.concatenate(out_i), np.concatenate(out_j)
+
+
+def _union_area(rects: np.ndarray, clip: np.ndarray) -> float:
+    """Area of the union of ``rects`` clipped to ``clip`` (coordinate compression).
+
+    Exact up to ~1500 rectangles; beyond that a lower bound (the largest single clipped area),
+    which keeps the capacity check a necessary condition.
+    """
+    r = rects.copy()
+    r[:, 0] = np.maximum(r[:, 0], clip[0])
+    r[:, 1] = np.maximum(r[:, 1], clip[1])
+    r[:, 2] = np.minimum(r[:, 2], clip[2])
+    r[:, 3] = np.minimum(r[:, 3], clip[3])
+    r = r[(r[:, 2] > r[:, 0]) & (r[:, 3] > r[:, 1])]
+    if not len(r):
+        return 0.0
+    if len(r) > 1500:
+        return float(((r[:, 2] - r[:, 0]) * (r[:, 3] - r[:, 1])).max())
+    xs = np.unique(r[:, [0, 2]])
+    ys = np.unique(r[:, [1, 3]])
+    diff = np.zeros((len(xs) + 1, len(ys) + 1), np.int32)
+    i0 = np.searchsorted(xs, r[:, 0])
+    i1 = np.searchsorted(xs, r[:, 2])
+    j0 = np.searchsorted(ys, r[:, 1])
+    j1 = np.searchsorted(ys, r[:, 3])
+    np.add.at(diff, (i0, j0), 1)
+    np.add.at(diff, (i1, j0), -1)
+    np.add.at(diff, (i0, j1), -1)
+    np.add.at(diff, (i1, j1), 1)
+    cover = diff.cumsum(0).cumsum(1)[:-2, :-2] > 0
+    return float((np.diff(xs)[:, None] * np.diff(ys)[None, :])[cover].sum())
+
+
+# ---------------------------------------------------------------------------------------------
+# the problem: movable macros (the set M) against obstacles
+
+
+class _Problem:
+    """Arrays for the macros to legalise (``M``) and everything they must avoid."""
+
+    def __init__(self, design: Design, fp: Floorplan, move: np.ndarray):
+        self.design = design
+        self.idx = np.flatnonzero(move)  # block indices of M
+        w, h = fp.sizes()
+        hl = design.halo
+        ii = self.idx
+        self.w, self.h = w[ii], h[ii]
+        self.l, self.b, self.r, self.t = (hl[ii, k].copy() for k in range(4))
+        self.x0, self.y0 = fp.x[ii].copy(), fp.y[ii].copy()
+        self.core = design.core
+        self.die = design.die
+        self.ox, self.oy = (float(v) for v in design.grid_origin)
+        self.px, self.py = (float(v) for v in design.grid_pitch)
+        rects = fp.rects(halo=True)
+        obst = (design.kind == MACRO) & ~move
+        self.obst_idx = np.flatnonzero(obst)
+        self.obst = rects[obst]  # halo boxes of macros that stay
+        self.blk = np.asarray(design.blockages, dtype=np.float64).reshape(-1, 4)
+        self.area = (self.w + self.l + self.r) * (self.h + self.b + self.t)
+        self._bounds()
+
+    # --- grid <-> µm ---------------------------------------------------------------------
+    def gx(self, k):
+        return self.ox + k * self.px
+
+    def gy(self, k):
+        return self.oy + k * self.py
+
+    def _bounds(self) -> None:
+        """Grid-index range of each macro's lower-left corner (footprint in core, halo in die)."""
+        c, d = self.core, self.die
+        w, h, lf, b, r, t = self.w, self.h, self.l, self.b, self.r, self.t
+        kx0 = np.ceil((np.maximum(c[0], d[0] + lf) - self.ox) / self.px - _EPS)
+        ky0 = np.ceil((np.maximum(c[1], d[1] + b) - self.oy) / self.py - _EPS)
+        kx1 = np.floor((np.minimum(c[2] - w, d[2] - w - r) - self.ox) / self.px + _EPS)
+        ky1 = np.floor((np.minimum(c[3] - h, d[3] - h - t) - self.oy) / self.py + _EPS)
+        for _ in range(2):  # exact float fix-ups (one step suffices; two for safety)
+            x = self.gx(kx0)
+            kx0 = kx0 + ((x < c[0]) | (x - lf < d[0]))
+            y = self.gy(ky0)
+            ky0 = ky0 + ((y < c[1]) | (y - b < d[1]))
+            x = self.gx(kx1)
+            kx1 = kx1 - ((x + w > c[2]) | ((x + w) + r > d[2]))
+            y = self.gy(ky1)
+            ky1 = ky1 - ((y + h > c[3]) | ((y + h) + t > d[3]))
+        self.kx0, self.kx1, self.ky0, self.ky1 = kx0, kx1, ky0, ky1
+
+    # --- boxes ---------------------------------------------------------------------------
+    def halo_boxes(self, x, y, sel=slice(None)):
+        w, h = self.w[sel], self.h[sel]
+        return np.stack([x - self.l[sel], y - self.b[sel], (x + w) + self.r[sel],
+                         (y + h) + self.t[sel]], axis=1)
+
+    def foot_boxes(self, x, y, sel=slice(None)):
+        return np.stack([x, y, x + self.w[sel], y + self.h[sel]], axis=1)
+
+    def violations(self, x, y) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """``(bad_self, I, J)``: per-macro violations (bounds, grid, blockage, obstacle) and
+        the overlapping pairs within M (positions indices into M)."""
+        c, d = self.core, self.die
+        w, h = self.w, self.h
+        bad = (x < c[0]) | (y < c[1]) | (x + w > c[2]) | (y + h > c[3])
+        hb = self.halo_boxes(x, y)
+        bad |= (hb[:, 0] < d[0]) | (hb[:, 1] < d[1]) | (hb[:, 2] > d[2]) | (hb[:, 3] > d[3])
+        bad |= off_grid(x, self.ox, self.px, _GRID_TOL) | off_grid(y, self.oy, self.py, _GRID_TOL)
+        if len(self.blk):
+            i, _ = _pairs(self.foot_boxes(x, y), self.blk)
+            bad[i] = True
+        if len(self.obst):
+            i, _ = _pairs(hb, self.obst)
+            bad[i] = True
+        i, j = _pairs(hb)
+        return bad, i, j
+
+    # --- nearest free spot ---------------------------------------------------------------
+    def nearest_spot(self, i: int, tx: float, ty: float, obs: np.ndarray, obs_blk: np.ndarray):
+        """Grid indices ``(kx, ky)`` of the free spot nearest to ``(tx, ty)`` for macro ``i``
+        among obstacles ``obs`` (halo boxes; ``obs_blk`` marks blockages, which only the
+        footprint must avoid), or None when there is none."""
+        kx0, kx1, ky0, ky1 = self.kx0[i], self.kx1[i], self.ky0[i], self.ky1[i]
+        if kx0 > kx1 or ky0 > ky1:
+            return None
+        w, h = self.w[i], self.h[i]
+        nb = ~obs_blk
+        lp, bp, rp, tp = (v * nb for v in (self.l[i], self.b[i], self.r[i], self.t[i]))
+        # configuration-space forbidden (open) rectangles of the lower-left corner
+        fx0 = obs[:, 0] - w - rp
+        fx1 = obs[:, 2] + lp
+        fy0 = obs[:, 1] - h - tp
+        fy1 = obs[:, 3] + bp
+        xlo, xhi, ylo, yhi = self.gx(kx0), self.gx(kx1), self.gy(ky0), self.gy(ky1)
+        # clamp distance from the target to the allowed box, and the radius that covers it all
+        cx = min(max(tx, xlo), xhi)
+        cy = min(max(ty, ylo), yhi)
+        d0 = np.hypot(cx - tx, cy - ty)
+        full = np.hypot(max(abs(tx - xlo), abs(tx - xhi)), max(abs(ty - ylo), abs(ty - yhi)))
+        full = full * 1.0001 + self.px + self.py
+        rad = max(d0 + 0.25 * max(w, h), self.px + self.py)
+        tol = 1e-6
+        while True:
+            last = rad >= full
+            if last:
+                rad = full
+            sel = np.flatnonzero((fx1 > tx - rad - tol) & (fx0 < tx + rad + tol)
+                                 & (fy1 > ty - rad - tol) & (fy0 < ty + rad + tol))
+            o, ob = obs[sel], obs_blk[sel]
+            xs = self._cands(tx, kx0, kx1, o[:, 0], o[:, 2], w, lp[sel], rp[sel],
+                             self.ox, self.px, rad)
+            ys = self._cands(ty, ky0, ky1, o[:, 1], o[:, 3], h, bp[sel], tp[sel],
+                             self.oy, self.py, rad)
+            best = None
+            if len(xs) and len(ys):
+                best, d2 = self._first_free(i, tx, ty, xs, ys, o, ob)
+            if last or (best is not None and d2 <= rad * rad):
+                return best
+            # a free spot found beyond the inscribed circle bounds the optimum's distance
+            rad = rad * 2.0 if best is None else float(np.sqrt(d2)) * (1 + 1e-9) + 1e-9
+
+    @staticmethod
+    def _cands(t, k0, k1, olo, ohi, size, padlo, padhi, org, pitch, rad):
+        """Candidate grid indices along one axis, sorted by distance from ``t``."""
+        kt = (t - org) / pitch
+        k_right = np.ceil((ohi + padlo - org) / pitch - _EPS)
+        k_right += (org + k_right * pitch) - padlo < ohi  # exact fix-up
+        k_left = np.floor((olo - size - padhi - org) / pitch + _EPS)
+        k_left -= ((org + k_left * pitch) + size) + padhi > olo
+        k = np.concatenate([[np.floor(kt), np.ceil(kt), k0, k1], k_right, k_left])
+        k = np.unique(k[(k >= k0) & (k <= k1)])
+        v = org + k * pitch
+        dist = np.abs(v - t)
+        keep = dist <= rad
+        k, dist = k[keep], dist[keep]
+        return k[np.argsort(dist, kind="stable")]
+
+    def _first_free(self, i, tx, ty, kxs, kys, obs, obs_blk):
+        """Nearest candidate of ``kxs x kys`` (sorted by axis distance) free of ``obs``:
+        ``(spot or None, squared distance)``."""
+        xs, ys = self.gx(kxs), self.gy(kys)
+        dy2 = (ys - ty) ** 2
+        best, best_d2 = None, np.inf
+        hobs = obs[~obs_blk]
+        bobs = obs[obs_blk]
+        w, h, lf, b, r, t = self.w[i], self.h[i], self.l[i], self.b[i], self.r[i], self.t[i]
+        nobs = max(len(obs), 1)
+        step_x = max(1, (1 << 16) // len(ys))
+        for s in range(0, len(xs), step_x):
+            xc = xs[s:s + step_x]
+            if (xc[0] - tx) ** 2 >= best_d2:
+                break
+            d2 = ((xc - tx) ** 2)[:, None] + dy2[None, :]
+            flat = np.flatnonzero(d2.ravel() < best_d2)
+            if not len(flat):
+                continue
+            flat = flat[np.argsort(d2.ravel()[flat], kind="stable")]
+            sub = max(16, _EVAL_CELLS // nobs)
+            for u in range(0, len(flat), sub):
+                f = flat[u:u + sub]
+                cx = xc[f // len(ys)]
+                cy = ys[f % len(ys)]
+                hit = np.zeros(len(f), bool)
+                if len(hobs):
+                    a0, a1, a2, a3 = cx - lf, cy - b, (cx + w) + r, (cy + h) + t
+                    hit |= ((a0[:, None] < hobs[None, :, 2]) & (hobs[None, :, 0] < a2[:, None])
+                            & (a1[:, None] < hobs[None, :, 3])
+                            & (hobs[None, :, 1] < a3[:, None])).any(1)
+                if len(bobs):
+                    a2, a3 = cx + w, cy + h
+                    hit |= ((cx[:, None] < bobs[None, :, 2]) & (bobs[None, :, 0] < a2[:, None])
+                            & (cy[:, None] < bobs[None, :, 3])
+                            & (bobs[None, :, 1] < a3[:, None])).any(1)
+                free = np.flatnonzero(~hit)
+                if len(free):
+                    q = f[free[0]]
+                    best_d2 = float(d2.ravel()[q])
+                    best = (float(kxs[s + q // len(ys)]), float(kys[q % len(ys)]))
+                    break
+        return best, best_d2
+
+    # --- greedy placement of a set of macros --------------------------------------------
+    def place_greedy(self, order, x, y, still, tx, ty):
+        """Place macros ``order`` (indices into M) one by one at their nearest free spot to
+        ``(tx, ty)``, avoiding blockages, obstacles, the macros marked ``still`` (kept at x, y)
+        and those placed before.  Returns ``(x, y, failed_index_or_None)`` (new arrays)."""
+        x, y = x.copy(), y.copy()
+        n_fixed = len(self.obst) + len(self.blk)
+        still_idx = np.flatnonzero(still)
+        cap = n_fixed + len(still_idx) + len(order)
+        obs = np.empty((cap, 4))
+        blk = np.zeros(cap, bool)
+        obs[:len(self.obst)] = self.obst
+        obs[len(self.obst):n_fixed] = self.blk
+        blk[len(self.obst):n_fixed] = True
+        k = n_fixed
+        if len(still_idx):
+            obs[k:k + len(still_idx)] = self.halo_boxes(x[still_idx], y[still_idx], still_idx)
+            k += len(still_idx)
+        for i in order:
+            spot = self.nearest_spot(i, tx[i], ty[i], obs[:k], blk[:k])
+            if spot is None:
+                return x, y, int(i)
+            x[i], y[i] = self.gx(spot[0]), self.gy(spot[1])
+            obs[k] = self.halo_boxes(x[i:i + 1], y[i:i + 1], slice(i, i + 1))[0]
+            k += 1
+        return x, y, None
+
+    # --- LP improvement --------------------------------------------------------------------
+    def lp_improve(self, x, y, rounds: int, trust: float | None):
+        """Minimum-L1-displacement LP rounds keeping the relative order of ``(x, y)``."""
+        n = len(x)
+        if n == 0:
+            return x, y, 0
+        if trust is None:
+            trust = float(np.median(np.maximum(self.w, self.h)))
+        done = 0
+        cost = self.displacement(x, y)
+        for _ in range(rounds):
+            res = self._lp_round(x, y, trust)
+            if res is None:
+                break
+            nx_, ny_ = res
+            bad, i, j = self.violations(nx_, ny_)
+            if bad.any() or len(i):
+                nx_, ny_ = self.repair(nx_, ny_, bad, i, j, None)
+                if nx_ is None:
+                    break
+            new_cost = self.displacement(nx_, ny_)
+            if new_cost >= cost - 1e-9:
+                break
+            done += 1
+            improved = cost - new_cost
+            x, y, cost = nx_, ny_, new_cost
+            if improved < 0.005 * max(cost, 1e-9):
+                break
+        return x, y, done
+
+    def displacement(self, x, y) -> float:
+        return float(np.abs(x - self.x0).sum() + np.abs(y - self.y0).sum())
+
+    def _lp_round(self, x, y, trust):
+        n = len(x)
+        ox, oy, px, py = self.ox, self.oy, self.px, self.py
+        kx = np.round((x - ox) / px)
+        ky = np.round((y - oy) / py)
+        tx = np.clip(np.round((self.x0 - ox) / px), self.kx0, self.kx1)
+        ty = np.clip(np.round((self.y0 - oy) / py), self.ky0, self.ky1)
+        dkx, dky = np.floor(trust / px), np.floor(trust / py)
+        lox, hix = np.maximum(self.kx0, kx - dkx), np.minimum(self.kx1, kx + dkx)
+        loy, hiy = np.maximum(self.ky0, ky - dky), np.minimum(self.ky1, ky + dky)
+        if (kx < lox).any() or (kx > hix).any() or (ky < loy).any() or (ky > hiy).any():
+            return None
+        hb = self.halo_boxes(x, y)
+        grow = np.array([-trust, -trust, trust, trust])
+        w, h, lf, b, r, t = self.w, self.h, self.l, self.b, self.r, self.t
+        # --- macro pairs that could meet: choose one satisfied separation per pair
+        i, j = _pairs(hb + grow)
+        if len(i):
+            sep = np.stack([
+                np.ceil((w[i] + r[i] + lf[j]) / px - _EPS),  # i left of j
+                np.ceil((w[j] + r[j] + lf[i]) / px - _EPS),  # j left of i
+                np.ceil((h[i] + t[i] + b[j]) / py - _EPS),  # i below j
+                np.ceil((h[j] + t[j] + b[i]) / py - _EPS),  # j below i
+            ], axis=1)
+            cur = np.stack([kx[j] - kx[i], kx[i] - kx[j], ky[j] - ky[i], ky[i] - ky[j]], axis=1)
+            tgt = np.stack([tx[j] - tx[i], tx[i] - tx[j], ty[j] - ty[i], ty[i] - ty[j]], axis=1)
+            ok = cur >= sep
+            if not ok.any(1).all():
+                return None
+            slack = np.where(ok, (tgt - sep) * np.array([px, px, py, py]), -np.inf)
+            rel = np.argmax(slack, axis=1)
+            lo_i = np.where(rel % 2 == 0, i, j)  # the one on the left / below
+            hi_i = np.where(rel % 2 == 0, j, i)
+            csep = sep[np.arange(len(i)), rel]
+            on_x = rel < 2
+        else:
+            lo_i = hi_i = np.zeros(0, np.intp)
+            csep = np.zeros(0)
+            on_x = np.zeros(0, bool)
+        # --- macro-obstacle and macro-blockage pairs become bounds
+        for obs, is_blk in ((self.obst, False), (self.blk, True)):
+            if not len(obs):
+                continue
+            box = self.foot_boxes(x, y) if is_blk else hb
+            a, o = _pairs(box + grow, obs)
+            if not len(a):
+                continue
+            pl, pb, pr, pt = ((0.0, 0.0, 0.0, 0.0) if is_blk else (lf[a], b[a], r[a], t[a]))
+            oo = obs[o]
+            # largest k left of / below the obstacle, smallest k right of / above it
+            kl = np.floor((oo[:, 0] - w[a] - pr - ox) / px + _EPS)
+            kl -= ((ox + kl * px) + w[a]) + pr > oo[:, 0]
+            kr = np.ceil((oo[:, 2] + pl - ox) / px - _EPS)
+            kr += (ox + kr * px) - pl < oo[:, 2]
+            kb = np.floor((oo[:, 1] - h[a] - pt - oy) / py + _EPS)
+            kb -= ((oy + kb * py) + h[a]) + pt > oo[:, 1]
+            ka = np.ceil((oo[:, 3] + pb - oy) / py - _EPS)
+            ka += (oy + ka * py) - pb < oo[:, 3]
+            ok = np.stack([kx[a] <= kl, kx[a] >= kr, ky[a] <= kb, ky[a] >= ka], axis=1)
+            if not ok.any(1).all():
+                return None
+            slack = np.stack([(kl - tx[a]) * px, (tx[a] - kr) * px,
+                              (kb - ty[a]) * py, (ty[a] - ka) * py], axis=1)
+            rel = np.argmax(np.where(ok, slack, -np.inf), axis=1)
+            for q, arr, fn, val in ((0, hix, np.minimum, kl), (1, lox, np.maximum, kr),
+                                    (2, hiy, np.minimum, kb), (3, loy, np.maximum, ka)):
+                m = rel == q
+                if m.any():
+                    fn.at(arr, a[m], val[m])
+        newx = _solve_axis(n, lo_i[on_x], hi_i[on_x], csep[on_x], tx, lox, hix)
+        newy = _solve_axis(n, lo_i[~on_x], hi_i[~on_x], csep[~on_x], ty, loy, hiy)
+        if newx is None or newy is None:
+            return None
+        # keep bit-exact coordinates where the grid index did not change
+        nx_ = np.where(newx == kx, x, self.gx(newx))
+        ny_ = np.where(newy == ky, y, self.gy(newy))
+        return nx_, ny_
+
+    # --- local repair --------------------------------------------------------------------
+    def repair(self, x, y, bad, i, j, keep):
+        """Move a small set covering every violation to its nearest free spot.
+
+        Returns new ``(x, y)`` or ``(None, None)`` when some macro found no spot."""
+        movers = self.cover(bad, i, j, keep)
+        still = np.ones(len(x), bool)
+        still[movers] = False
+        order = movers[np.lexsort((movers, -self.area[movers]))]
+        nx_, ny_, failed = self.place_greedy(order, x, y, still, x, y)
+        if failed is not None:
+            return None, None
+        return nx_, ny_
+
+    def cover(self, bad, i, j, keep) -> np.ndarray:
+        """Macros that must move: all with own violations plus a greedy vertex cover of the
+        remaining overlap edges (highest degree first, then not in ``keep``, then smaller)."""
+        chosen = bad.copy()
+        live = ~(chosen[i] | chosen[j])
+        i, j = i[live], j[live]
+        n = len(bad)
+        pen = np.zeros(n) if keep is None else keep.astype(float)
+        while len(i):
+            deg = np.bincount(i, minlength=n) + np.bincount(j, minlength=n)
+            cand = np.flatnonzero(deg == deg.max())
+            # prefer not to move 'keep' macros, then the smaller one, then the later index
+            k = cand[np.lexsort((-cand, self.area[cand], pen[cand]))[0]]
+            chosen[k] = True
+            live = (i != k) & (j != k)
+            i, j = i[live], j[live]
+        return np.flatnonzero(chosen)
+
+
+def _solve_axis(n, lo_i, hi_i, sep, tgt, lo, hi):
+    """min sum |k - tgt| s.t. k[hi_i] - k[lo_i] >= sep, lo <= k <= hi (HiGHS)."""
+    m = len(lo_i)
+    # variables: k (n) then t (n); rows: separations, then t >= k - tgt, t >= tgt - k
+    rows = np.concatenate([np.arange(m), np.arange(m), m + np.arange(n), m + np.arange(n),
+                           m + n + np.arange(n), m + n + np.arange(n)])
+    cols = np.concatenate([lo_i, hi_i, np.arange(n), n + np.arange(n), np.arange(n),
+                           n + np.arange(n)])
+    vals = np.concatenate([np.ones(m), -np.ones(m), np.ones(n), -np.ones(n), -np.ones(n),
+                           -np.ones(n)])
+    a = sparse.csr_matrix((vals, (rows, cols)), shape=(m + 2 * n, 2 * n))
+    rhs = np.concatenate([-sep, tgt, -tgt])
+    c = np.concatenate([np.zeros(n), np.ones(n)])
+    bounds = np.concatenate([np.stack([lo, hi], 1),
+                             np.stack([np.zeros(n), np.full(n, np.inf)], 1)])
+    res = linprog(c, A_ub=a, b_ub=rhs, bounds=bounds, method="highs")
+    if res.status != 0:
+        return None
+    k = np.round(res.x[:n])
+    if (k < lo).any() or (k > hi).any() or (k[hi_i] - k[lo_i] < sep).any():
+        return None
+    return k
+
+
+# ---------------------------------------------------------------------------------------------
+# public API
+
+
+def _subset_mask(design: Design, fp: Floorplan, macros) -> np.ndarray:
+    base = (design.kind == MACRO) & (fp.status == MOVABLE)
+    if macros is None:
+        return base
+    sel = np.zeros(design.num_blocks, bool)
+    arr = np.asarray(list(macros) if not isinstance(macros, np.ndarray) else macros)
+    if arr.dtype == bool:
+        sel[:] = arr.reshape(design.num_blocks)
+    elif arr.dtype.kind in "iu":
+        sel[arr.astype(np.intp)] = True
+    else:
+        sel[[design.block(str(nm)) for nm in arr]] = True
+    return base & sel
+
+
+def _check_obstacles(design: Design, fp: Floorplan) -> None:
+    stay = np.flatnonzero((design.kind == MACRO) & (fp.status != MOVABLE))
+    if len(stay) < 2:
+        return
+    i, j = _pairs(fp.rects(halo=True)[stay])
+    if len(i):
+        a, b = stay[i[0]], stay[j[0]]
+        st = ("movable", "pinned", "fixed")
+        more = f" (and {len(i) - 1} more pair(s))" if len(i) > 1 else ""
+        raise PlacementError(
+            f"{st[fp.status[a]]} macro {design.names[a]!r} and {st[fp.status[b]]} macro "
+            f"{design.names[b]!r} overlap (halos included){more}; move or unpin one of them")
+
+
+def _check_capacity(prob: _Problem) -> None:
+    names = prob.design.names
+    bad = (prob.kx0 > prob.kx1) | (prob.ky0 > prob.ky1)
+    if bad.any():
+        i = int(np.flatnonzero(bad)[0])
+        raise PlacementError(
+            f"macro {names[prob.idx[i]]!r} ({prob.w[i]:g} x {prob.h[i]:g} µm in its orientation) "
+            f"does not fit inside the core {prob.core.tolist()} on the placement grid")
+    c = prob.core
+    core_area = (c[2] - c[0]) * (c[3] - c[1])
+    blocked = np.concatenate([prob.blk, prob.obst]) if len(prob.obst) else prob.blk
+    free = core_area - _union_area(blocked, c)
+    need = float((prob.w * prob.h).sum())
+    if need > free * (1 + 1e-12):
+        raise PlacementError(
+            f"movable macros need {need:.6g} µm² but only {free:.6g} µm² of the core is free "
+            "of blockages and other macros")
+    # halo boxes live in the core grown by the largest halo, within the die
+    g = float(max(prob.l.max(initial=0), prob.b.max(initial=0), prob.r.max(initial=0),
+                  prob.t.max(initial=0)))
+    d = prob.die
+    region = np.array([max(c[0] - g, d[0]), max(c[1] - g, d[1]), min(c[2] + g, d[2]),
+                       min(c[3] + g, d[3])])
+    reg_area = (region[2] - region[0]) * (region[3] - region[1])
+    free_h = reg_area - _union_area(prob.obst, region) if len(prob.obst) else reg_area
+    need_h = float(prob.area.sum())
+    if need_h > free_h * (1 + 1e-12):
+        raise PlacementError(
+            f"movable macros need {need_h:.6g} µm² with halos but only {free_h:.6g} µm² of the "
+            "core (and its halo margin) is free of other macros")
+
+
+def is_legal(design: Design, fp: Floorplan, macros=None) -> bool:
+    """Whether the movable macros (or the subset ``macros``) of ``fp`` are legal in the sense
+    of this module (halo boxes disjoint, footprint in core, halo in die, off blockages, on grid).
+    """
+    move = _subset_mask(design, fp, macros)
+    prob = _Problem(design, fp, move)
+    bad, i, _ = prob.violations(prob.x0, prob.y0)
+    return not bad.any() and not len(i)
+
+
+def legalize_macros(design: Design, fp: Floorplan, *, macros: Iterable | None = None,
+                    keep: Iterable | None = None, local: bool | None = None, lp: bool = True,
+                    lp_rounds: int = 3, trust: float | None = None, retries: int = 3,
+                    progress: Callable[[str, float, dict], None] | None = None,
+                    **options) -> Floorplan:
+    """Legalise the movable macros of ``fp`` with minimum displacement; return a new floorplan.
+
+    Parameters
+    ----------
+    design : Design
+    fp : Floorplan
+        Input (e.g. global-placement) positions and orientations; never modified.
+    macros : names, indices or mask, optional
+        Legalise only these (movable macros among them); every other macro is an obstacle.
+    keep : names, indices or mask, optional
+        Macros to move only when nothing else resolves a conflict (e.g. the one just dragged).
+    local : bool, optional
+        Force (True) or forbid (False) the local repair; by default it is tried when the macros
+        that must move are at most a quarter of them (and at least 3 are allowed).
+    lp : bool
+        Improve the greedy result with the minimum-displacement LP.
+    lp_rounds : int
+        Maximum LP rounds (each re-derives the constraint graphs from the current order).
+    trust : float, optional
+        Trust radius in µm for one LP round (default: the median macro side).
+    retries : int
+        Greedy restarts with a macro that found no spot moved to the front of the order.
+    progress : callable, optional
+        ``progress(stage, fraction, info)``.
+    **options
+        ``seed`` and ``target_density`` are accepted and ignored (the method is deterministic
+        and does not use a density target); anything else is a ``TypeError``.
+
+    Returns
+    -------
+    Floorplan
+        A copy with new ``x``, ``y`` for the macros that moved; ``info`` gains
+        ``legalize_mode`` ("unchanged", "local" or "full"), ``legalize_moved``,
+        ``legalize_displacement`` (total L1, µm), ``legalize_max_displacement`` (µm),
+        ``legalize_lp_rounds`` and ``legalize_seconds``.
+
+    Raises
+    ------
+    PlacementError
+        Pinned/fixed macros overlapping each other (the pair is named), a macro that does not
+        fit in the core, more macro area than free core area, or a macro that finds no free
+        spot.  The input floorplan is untouched.
+
+    Examples
+    --------
+    >>> import floorwidget as fw                                    # doctest: +SKIP
+    >>> d = fw.load("demo_data/heron_dsp.json")                     # doctest: +SKIP
+    >>> legal = legalize_macros(d, d.initial)                       # doctest: +SKIP
+    >>> is_legal(d, legal)                                          # doctest: +SKIP
+    True
+
+    References
+    ----------
+    Hill, US patent 6,370,673, 2002 (greedy "Tetris" legalisation, from memory).
+    Cong, Xie, ICCAD 2006 (obstacle-aware macro legalisation, from memory).
+    Tang, Tian, Wong, ASP-DAC 2005; Chen, Chang, Hsu, ICCAD 2006 (constraint-graph LPs for
+    minimum-perturbation placement, from memory).
+    """
+    unknown = set(options) - {"seed", "target_density"}
+    if unknown:
+        raise TypeError(f"legalize_macros() got unexpected option(s): {', '.join(sorted(unknown))}")
+    t0 = time.perf_counter()
+    report = progress or (lambda *a: None)
+    move = _subset_mask(design, fp, macros)
+    _check_obstacles(design, fp)
+    prob = _Problem(design, fp, move)
+    n = len(prob.idx)
+    keep_m = None
+    if keep is not None:
+        keep_m = _subset_mask(design, fp, keep)[prob.idx]
+    out = fp.copy()
+    info = {"legalize_mode": "unchanged", "legalize_moved": 0, "legalize_displacement": 0.0,
+            "legalize_max_displacement": 0.0, "legalize_lp_rounds": 0}
+    if n:
+        _check_capacity(prob)
+        x, y = prob.x0, prob.y0
+        bad, i, j = prob.violations(x, y)
+        if bad.any() or len(i):
+            report("legalize", 0.0, {"conflicts": int(bad.sum() + len(i))})
+            nx_ = None
+            movers = prob.cover(bad, i, j, keep_m)
+            try_local = local if local is not None else len(movers) <= max(3, n // 4)
+            if try_local:
+                nx_, ny_ = prob.repair(x, y, bad, i, j, keep_m)
+                if nx_ is not None:
+                    info["legalize_mode"] = "local"
+            if nx_ is None:
+                nx_, ny_ = _full(prob, retries, report)
+                info["legalize_mode"] = "full"
+                if lp:
+                    report("legalize", 0.6, {"stage": "lp"})
+                    nx_, ny_, rounds = prob.lp_improve(nx_, ny_, lp_rounds, trust)
+                    info["legalize_lp_rounds"] = rounds
+            bad, i, _ = prob.violations(nx_, ny_)
+            if bad.any() or len(i):  # cannot happen by construction; never return illegal
+                k = int(np.flatnonzero(bad)[0]) if bad.any() else int(i[0])
+                raise PlacementError(f"macro {design.names[prob.idx[k]]!r} could not be "
+                                     "legalised (internal check failed)")
+            out.x[prob.idx] = nx_
+            out.y[prob.idx] = ny_
+            dx = np.abs(nx_ - prob.x0) + np.abs(ny_ - prob.y0)
+            info["legalize_moved"] = int(((nx_ != prob.x0) | (ny_ != prob.y0)).sum())
+            info["legalize_displacement"] = float(dx.sum())
+            info["legalize_max_displacement"] = float(dx.max())
+    info["legalize_seconds"] = time.perf_counter() - t0
+    out.info.update(info)
+    report("legalize", 1.0, dict(info))
+    return out
+
+
+def _full(prob: _Problem, retries: int, report) -> tuple[np.ndarray, np.ndarray]:
+    n = len(prob.idx)
+    order = np.lexsort((np.arange(n), -prob.area))
+    still = np.zeros(n, bool)
+    for attempt in range(retries + 1):
+        x, y, failed = prob.place_greedy(order, prob.x0, prob.y0, still, prob.x0, prob.y0)
+        if failed is None:
+            return x, y
+        report("legalize", 0.3, {"retry": attempt + 1, "failed": prob.design.names[
+            prob.idx[failed]]})
+        order = np.concatenate([[failed], order[order != failed]])
+    i = failed
+    raise PlacementError(
+        f"macro {prob.design.names[prob.idx[i]]!r} ({prob.w[i]:g} x {prob.h[i]:g} µm plus halo) "
+        f"finds no free spot in the core after {retries + 1} greedy attempts; free some room "
+        "(unpin macros, shrink halos or blockages) or enlarge the core")
+
+
+# ---------------------------------------------------------------------------------------------
+# benchmark: python -m floorwidget.placer.legalize [--quick]
+
+
+def _bench_design(n: int, util: float, seed: int = 0) -> tuple[Design, Floorplan]:
+    """``n`` random macros at ``util`` (halo area / core area) with overlapping starting spots
+    drawn around a legal shelf packing (a stand-in for a spread global placement)."""
+    rng = np.random.default_rng(seed)
+    w = rng.uniform(20, 120, n).round(1)
+    h = (w * rng.uniform(0.5, 2.0, n)).round(1)
+    halo = np.full((n, 4), 2.0)
+    area = ((w + 4) * (h + 4)).sum()
+    side = float(np.sqrt(area / util))
+    die = (0.0, 0.0, side * 1.02 + 20, side + 20)
+    ox, oy = 10.0, 10.0
+    # the spots scatter uniformly: the worst plausible start, everything overlaps somewhere
+    x = rng.uniform(10, side * 1.02 - 120 + 10, n)
+    y = rng.uniform(10, side - 240 + 10, n)
+    d = Design(f"bench{n}", die, [f"m{i}" for i in range(n)], np.zeros(n), w, h,
+               np.array([0]), np.zeros(0, int), np.zeros(0), np.zeros(0), halo=halo,
+               grid_pitch=(0.2, 1.0), grid_origin=(ox, oy),
+               x=x, y=y, validate=False)
+    d.core = np.array([ox, oy, die[2] - 10, die[3] - 10])
+    return d, d.initial
+
+
+def _main(argv: list[str]) -> int:  # pragma: no cover - benchmark
+    quick = "--quick" in argv
+    sizes = [30, 200] if quick else [30, 500, 2000]
+    reps = 3 if quick else 5
+    print(f"{'case':<34}{'median s':>10}{'moved':>8}{'disp/macro µm':>15}{'mode':>8}")
+    for n in sizes:
+        d, fp = _bench_design(n, 0.6, seed=1)
+        times, res = [], None
+        for _ in range(reps if n <= 500 else 3):
+            t = time.perf_counter()
+            res = legalize_macros(d, fp)
+            times.append(time.perf_counter() - t)
+        assert is_legal(d, res)
+        print(f"{f'{n} macros, 60 % util, full':<34}{np.median(times):>10.3f}"
+              f"{res.info['legalize_moved']:>8}"
+              f"{res.info['legalize_displacement'] / n:>15.1f}{res.info['legalize_mode']:>8}")
+        # a hand move: drag one macro onto another, then legalise again
+        moved = res.copy()
+        moved.x[0], moved.y[0] = res.x[n // 2] + 3.0, res.y[n // 2] + 2.0
+        times = []
+        for _ in range(reps * 3):
+            t = time.perf_counter()
+            r2 = legalize_macros(d, moved, keep=[0])
+            times.append(time.perf_counter() - t)
+        print(f"{f'{n} macros, one hand move':<34}{np.median(times):>10.4f}"
+              f"{r2.info['legalize_moved']:>8}"
+              f"{r2.info['legalize_displacement']:>15.1f}{r2.info['legalize_mode']:>8}")
+        times = []
+        for _ in range(reps * 3):
+            t = time.perf_counter()
+            legalize_macros(d, res)
+            times.append(time.perf_counter() - t)
+        print(f"{f'{n} macros, already legal':<34}{np.median(times):>10.4f}{0:>8}{0.0:>15.1f}"
+              f"{'same':>8}")
+    return 0
+
+
+if __name__ == "__main__":  # pragma: no cover
+    import sys
+
+    sys.exit(_main(sys.argv[1:]))
