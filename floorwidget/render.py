@@ -1,0 +1,312 @@
+"""Headless static drawings of a floorplan (PNG or SVG) with matplotlib.
+
+matplotlib is an optional extra (``pip install 'floorwidget[render]'``); it is imported only
+when :func:`render` runs, and drawn with the Agg canvas, so no display is needed.  Colours and
+outlines come from :mod:`floorwidget.style`, the palette the notebook canvas reads too.
+
+The figures drawn in the title are early-floorplanning estimates; sign-off belongs to the full
+implementation flow's timing, power and physical checks.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+
+from . import metrics, style
+from .design import (
+    CELL,
+    CLUSTER,
+    MACRO,
+    STATUS_NAMES,
+    TERMINAL,
+    Design,
+    DesignError,
+    Floorplan,
+    orient_offsets,
+)
+
+__all__ = ["render", "SUFFIXES"]
+
+#: Output formats by file suffix.
+SUFFIXES = {".png": "png", ".svg": "svg"}
+#: Above this many macros the names are not written (they would not be readable).
+MAX_LABELS = 300
+
+
+def _nice_length(span: float) -> float:
+    """A 1, 2 or 5 times a power of ten close to a fifth of ``span``."""
+    raw = span / 5.0
+    p = 10.0 ** np.floor(np.log10(raw))
+    for m in (5.0, 2.0, 1.0):
+        if m * p <= raw:
+            return m * p
+    return p
+
+
+def _illegal_mask(design: Design, fp: Floorplan) -> np.ndarray:
+    leg = metrics.legality(design, fp)
+    bad = np.zeros(design.num_blocks, bool)
+    bad[leg["overlap_pairs"].ravel()] = True
+    for key in ("out_of_core", "on_blockage", "off_grid"):
+        bad[leg[key]] = True
+    bad[leg["out_of_die"]] = True
+    return bad & (design.kind == MACRO)
+
+
+def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str | None = None,
+           show_labels: bool = True, ax=None, figsize: tuple[float, float] | None = None,
+           dpi: int = 150, title: str | None = None):
+    """Draw a floorplan to scale; write it to ``path`` (PNG or SVG, by suffix) if given.
+
+    Layers, bottom to top: a raster of soft-cluster and standard-cell area (or, with ``heat``,
+    the density or RUDY congestion map instead), the die and core outlines, placement blockages
+    (hatched), macros with their halos (dashed) and an orientation mark (a notch at the corner
+    that is lower-left in the N orientation, turned with the macro), I/O terminals as small
+    marks, then a legend, a scale bar and a title with the report figures.  Macro status shows
+    as fill colour *and* outline pattern (:data:`floorwidget.style.STATUS_STYLES`); macros that
+    break a rule (:func:`floorwidget.metrics.legality`) get, on top, the illegal style's
+    cross-hatch and heavy dotted outline.  In SVG output
+    each macro's rectangle carries ``id="macro:<name>"``.
+
+    Parameters
+    ----------
+    design : Design
+    fp : Floorplan, optional
+        Default ``design.initial``.
+    path : str or Path, optional
+        ``.png`` or ``.svg``; written atomically (a temporary file beside it, then renamed).
+    heat : {None, "density", "congestion"}
+        Heat layer: bin utilisation (:func:`floorwidget.metrics.density_map`) or RUDY demand
+        (:func:`floorwidget.metrics.rudy_map`).
+    show_labels : bool
+        Write macro names (skipped above :data:`MAX_LABELS` macros).
+    ax : matplotlib Axes, optional
+        Draw into these axes instead of a new figure.
+    figsize : (float, float), optional
+        Inches; default from the die's aspect ratio.
+    dpi : int
+        PNG resolution.
+    title : str, optional
+        Replaces the first title line (the design name).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+
+    Raises
+    ------
+    DesignError
+        Unknown suffix or heat layer, missing folder, or matplotlib not installed; nothing is
+        written then.
+
+    Examples
+    --------
+    >>> import floorwidget as fw
+    >>> d = fw.load("demo_data/heron_dsp.json")            # doctest: +SKIP
+    >>> fig = fw.render(d, fw.place(d), "heron.svg")        # doctest: +SKIP
+    """
+    fmt = None
+    if path is not None:
+        path = Path(path)
+        fmt = SUFFIXES.get(path.suffix.lower())
+        if fmt is None:
+            raise DesignError(f"cannot render to a {path.suffix or 'suffix-less'} file: use .png "
+                              "or .svg", file=str(path))
+        if not (path.parent if str(path.parent) else Path(".")).is_dir():
+            raise DesignError(f"folder {path.parent} does not exist", file=str(path))
+    if heat not in (None, "density", "congestion"):
+        raise DesignError(f"unknown heat layer {heat!r}: use 'density' or 'congestion'")
+    try:
+        from matplotlib.backends.backend_agg import FigureCanvasAgg
+        from matplotlib.collections import PolyCollection
+        from matplotlib.figure import Figure
+        from matplotlib.lines import Line2D
+        from matplotlib.patches import Patch, Rectangle
+    except ImportError:  # pragma: no cover - depends on the installation
+        raise DesignError("rendering needs matplotlib: pip install 'floorwidget[render]'") from None
+
+    fp = design.initial if fp is None else fp
+    die, core = design.die, design.core
+    dw, dh = die[2] - die[0], die[3] - die[1]
+    if ax is None:
+        if figsize is None:
+            figsize = (11.0, max(4.0, 8.0 * dh / dw + 1.6))
+        fig = Figure(figsize=figsize)
+        FigureCanvasAgg(fig)
+        ax = fig.add_axes((0.06, 0.08, 0.66, 0.80))
+    else:
+        fig = ax.figure
+
+    rects = fp.rects()
+    kind, status = design.kind, fp.status
+
+    # --- raster layer --------------------------------------------------------------------
+    grid = metrics.bin_grid(design)  # the report's grid, so the colour bar matches the title
+    extent = (grid.xlo, grid.xhi, grid.ylo, grid.yhi)
+    raster_label = None
+    if heat == "density":
+        data = metrics.density_map(design, fp, grid).utilisation
+        cmap, raster_label = style.mpl_colormap("density"), "bin utilisation (movable + fixed)"
+    elif heat == "congestion":
+        data = metrics.rudy_map(design, fp, grid)
+        cmap, raster_label = style.mpl_colormap("congestion"), "RUDY demand, µm of wire per µm²"
+    else:
+        soft = (kind == CLUSTER) | (kind == CELL)
+        data = metrics.rect_area_map(grid, rects[soft]) / grid.bin_area if soft.any() else None
+        cmap = style.mpl_colormap("cells")
+        if data is not None:
+            data = np.ma.masked_less_equal(data, 1e-9)
+    image = None
+    if data is not None:
+        image = ax.imshow(data.T, origin="lower", extent=extent, cmap=cmap, zorder=0,
+                          interpolation="nearest", alpha=0.9 if heat else 0.75,
+                          vmin=0.0, vmax=None if heat else 1.0)
+        image.set_gid("raster")
+
+    # --- outlines and blockages ----------------------------------------------------------
+    def outline(r, st, z, **kw):
+        p = Rectangle((r[0], r[1]), r[2] - r[0], r[3] - r[1], facecolor="none",
+                      edgecolor=st.stroke, linewidth=st.stroke_width,
+                      linestyle=st.mpl_linestyle(), zorder=z, **kw)
+        ax.add_patch(p)
+        return p
+
+    outline(die, style.DIE, 1).set_gid("die")
+    outline(core, style.CORE, 1).set_gid("core")
+    for k, b in enumerate(design.blockages):
+        p = Rectangle((b[0], b[1]), b[2] - b[0], b[3] - b[1],
+                      facecolor=(0, 0, 0, style.BLOCKAGE.fill_opacity),
+                      edgecolor=style.BLOCKAGE.stroke, linewidth=style.BLOCKAGE.stroke_width,
+                      hatch=style.BLOCKAGE.hatch, zorder=2)
+        p.set_gid(f"blockage:{k}")
+        ax.add_patch(p)
+
+    # --- macros --------------------------------------------------------------------------
+    mac = np.flatnonzero(kind == MACRO)
+    bad = _illegal_mask(design, fp)
+    hrects = fp.rects(halo=True)
+    has_halo = (design.halo[mac] > 0).any(axis=1)
+    ill = style.STATUS_STYLES["illegal"]
+    for i in mac:
+        st = style.block_style(int(status[i]))
+        r = rects[i]
+        xy, w, h = (r[0], r[1]), r[2] - r[0], r[3] - r[1]
+        p = Rectangle(xy, w, h, facecolor=(*_rgb(st.fill), st.fill_opacity),
+                      edgecolor=st.stroke, linewidth=st.stroke_width,
+                      linestyle=st.mpl_linestyle(), hatch=st.hatch or None, zorder=4)
+        p.set_gid(f"macro:{design.names[i]}")
+        ax.add_patch(p)
+        if bad[i]:
+            # the status stays readable; the rule break is a cross-hatch and a heavy outline
+            ax.add_patch(Rectangle(xy, w, h, facecolor="none", edgecolor=ill.fill,
+                                   hatch=ill.hatch, linewidth=0.0, zorder=4.2))
+            ax.add_patch(Rectangle(xy, w, h, facecolor="none", edgecolor=ill.fill,
+                                   linewidth=ill.stroke_width, linestyle=ill.mpl_linestyle(),
+                                   zorder=4.4))
+    for i in mac[has_halo]:
+        outline(hrects[i], style.HALO, 3, alpha=0.9)
+    if len(mac):
+        # orientation notch: the N-frame lower-left corner, mapped through the orientation
+        w0, h0 = design.width[mac], design.height[mac]
+        s = 0.22 * np.minimum(w0, h0)
+        vx = np.stack([-w0 / 2, -w0 / 2 + s, -w0 / 2], axis=1)
+        vy = np.stack([-h0 / 2, -h0 / 2, -h0 / 2 + s], axis=1)
+        ox, oy = orient_offsets(vx, vy, fp.orient[mac][:, None])
+        cx = (rects[mac, 0] + rects[mac, 2]) / 2
+        cy = (rects[mac, 1] + rects[mac, 3]) / 2
+        tris = np.stack([cx[:, None] + ox, cy[:, None] + oy], axis=2)
+        notch = PolyCollection(tris, facecolors=style.BLACK, edgecolors="none", alpha=0.8,
+                               zorder=5)
+        notch.set_gid("orientation-marks")
+        ax.add_collection(notch)
+        if show_labels and len(mac) <= MAX_LABELS:
+            fs = float(np.clip(700.0 / max(dw, dh) * np.sqrt(np.median(w0 * h0)) / 8.0, 4.0, 8.0))
+            for i, x, y in zip(mac, cx, cy):
+                ax.text(x, y, design.names[i], ha="center", va="center", fontsize=fs,
+                        zorder=6, clip_on=True, color=style.BLACK)
+
+    # --- terminals -----------------------------------------------------------------------
+    term = kind == TERMINAL
+    if term.any():
+        tx = (rects[term, 0] + rects[term, 2]) / 2
+        ty = (rects[term, 1] + rects[term, 3]) / 2
+        pts = ax.scatter(tx, ty, s=9, marker="s", c=style.TERMINAL_MARK.fill, linewidths=0,
+                         zorder=7)
+        pts.set_gid("terminals")
+
+    # --- frame, scale bar, legend, title -------------------------------------------------
+    pad = 0.03 * max(dw, dh)
+    ax.set_xlim(die[0] - pad, die[2] + pad)
+    ax.set_ylim(die[1] - 2.5 * pad, die[3] + pad)
+    ax.set_aspect("equal")
+    ax.set_xlabel("x (µm)")
+    ax.set_ylabel("y (µm)")
+    ax.tick_params(labelsize=7)
+    bar = _nice_length(dw)
+    by = die[1] - 1.6 * pad
+    ax.plot([die[0], die[0] + bar], [by, by], color=style.BLACK, linewidth=3,
+            solid_capstyle="butt", zorder=8, gid="scale-bar")
+    ax.text(die[0] + bar / 2, by + 0.25 * pad, f"{bar:g} µm", ha="center", va="bottom",
+            fontsize=7)
+
+    present = {int(s) for s in status[mac]}
+    handles = [Patch(facecolor=(*_rgb(st.fill), st.fill_opacity), edgecolor=st.stroke,
+                     linewidth=st.stroke_width, linestyle=st.mpl_linestyle(),
+                     hatch=st.hatch or None, label=st.label)
+               for code, st in ((c, style.block_style(c)) for c in range(3))
+               if code in present or code == 0]
+    if bad.any():
+        handles.append(Patch(facecolor="none", edgecolor=ill.fill, linewidth=ill.stroke_width,
+                             linestyle=ill.mpl_linestyle(), hatch=ill.hatch,
+                             label="breaks a rule (overlap, die, core, blockage or grid)"))
+    if (design.halo[mac] > 0).any():
+        handles.append(Patch(facecolor="none", edgecolor=style.HALO.stroke,
+                             linewidth=style.HALO.stroke_width,
+                             linestyle=style.HALO.mpl_linestyle(), label="halo"))
+    if len(mac):
+        handles.append(Line2D([], [], marker=(3, 0, 45), linestyle="none", color=style.BLACK,
+                              markersize=6, label="orientation mark (N lower-left)"))
+    if len(design.blockages):
+        handles.append(Patch(facecolor=(0, 0, 0, style.BLOCKAGE.fill_opacity),
+                             edgecolor=style.BLACK, hatch=style.BLOCKAGE.hatch,
+                             label=style.BLOCKAGE.label))
+    if term.any():
+        handles.append(Line2D([], [], marker="s", linestyle="none", color=style.BLACK,
+                              markersize=4, label="I/O terminal"))
+    if heat is None and data is not None:
+        handles.append(Patch(facecolor=style.CELL_RAMP[3], label="standard-cell area"))
+    handles.append(Line2D([], [], color=style.BLACK, linewidth=1.6, label="die"))
+    handles.append(Line2D([], [], color=style.BLACK, linewidth=0.8,
+                          linestyle=style.CORE.mpl_linestyle(), label="core (rows)"))
+    ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(1.02, 1.0), fontsize=7,
+              frameon=False, borderaxespad=0.0)
+    if image is not None and heat is not None:
+        cb = fig.colorbar(image, ax=ax, shrink=0.45, pad=0.02, anchor=(0.0, 0.0),
+                          location="right")
+        cb.set_label(raster_label, fontsize=7)
+        cb.ax.tick_params(labelsize=6)
+
+    rep = metrics.evaluate(design, fp)
+    names = np.bincount(status[mac], minlength=3) if len(mac) else np.zeros(3, int)
+    counts = ", ".join(f"{int(c)} {STATUS_NAMES[k]}" for k, c in enumerate(names) if c)
+    head = title if title is not None else f"{design.name}: {len(mac)} macros ({counts or 'none'})"
+    sub = (f"HPWL {rep['hpwl']:.4g} µm · overflow {rep['density_overflow']:.3f} at 0.8 · "
+           f"RUDY peak {rep['congestion_peak']:.3g} · "
+           f"{'legal' if rep['legal'] else str(rep['macro_overlaps']) + ' macro overlaps'}"
+           f"\nearly floorplanning estimates; sign-off belongs to the implementation flow")
+    ax.set_title(f"{head}\n{sub}", fontsize=8.5, loc="left")
+
+    if path is not None:
+        from .formats._io import atomic_write
+
+        meta = {"Date": None} if fmt == "svg" else {}
+        with atomic_write(path, "wb") as f:
+            fig.savefig(f, format=fmt, dpi=dpi, metadata=meta, bbox_inches="tight")
+    return fig
+
+
+def _rgb(hex_colour: str) -> tuple[float, float, float]:
+    h = hex_colour.lstrip("#")
+    return tuple(int(h[k:k + 2], 16) / 255.0 for k in (0, 2, 4))

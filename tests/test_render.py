@@ -1,0 +1,132 @@
+"""Headless rendering: real PNG and SVG files on disk, atomic writes, clear errors."""
+
+from __future__ import annotations
+
+import os
+import xml.etree.ElementTree as ET
+
+import numpy as np
+import pytest
+
+pytest.importorskip("matplotlib")
+
+from floorwidget import style  # noqa: E402
+from floorwidget.design import MACRO, PINNED, DesignError, snap  # noqa: E402
+from floorwidget.render import render  # noqa: E402
+
+PNG_MAGIC = b"\x89PNG\r\n\x1a\n"  # PNG specification (W3C / ISO/IEC 15948), file signature
+
+
+def spread(design):
+    """The demo's macros on a loose lattice (no placer needed), clusters left in a pile."""
+    fp = design.initial.copy()
+    mac = np.flatnonzero(design.kind == MACRO)
+    c = design.core
+    cols = 6
+    fp.x[mac] = c[0] + 30 + (np.arange(len(mac)) % cols) * 385.0
+    fp.y[mac] = c[1] + 30 + (np.arange(len(mac)) // cols) * 380.0
+    g0, gp = design.grid_origin, design.grid_pitch
+    fp.x[mac] = snap(fp.x[mac], g0[0], gp[0])
+    fp.y[mac] = snap(fp.y[mac], g0[1], gp[1])
+    return fp
+
+
+def test_png_written(demo_design, tmp_path, artifacts):
+    fp = spread(demo_design)
+    out = tmp_path / "heron.png"
+    fig = render(demo_design, fp, out)
+    data = out.read_bytes()
+    assert data[:8] == PNG_MAGIC
+    assert fig.axes
+    (artifacts / "render_demo.png").write_bytes(data)
+    assert [p.name for p in tmp_path.iterdir()] == ["heron.png"]   # no temporary left over
+
+
+def test_svg_has_one_shape_per_macro(demo_design, tmp_path):
+    fp = spread(demo_design)
+    out = tmp_path / "heron.svg"
+    render(demo_design, fp, out, heat="density")
+    root = ET.parse(out).getroot()           # parses as XML
+    assert root.tag.endswith("svg")
+    ids = [el.get("id") for el in root.iter() if (el.get("id") or "").startswith("macro:")]
+    assert sorted(ids) == sorted(f"macro:{m}" for m in demo_design.macros)
+    ns = "{http://www.w3.org/2000/svg}"
+    for el in root.iter():
+        if (el.get("id") or "").startswith("macro:"):
+            assert el.find(f"{ns}path") is not None
+
+
+def test_status_colour_reaches_the_pixels(demo_design, tmp_path):
+    # pinned macros are filled with Okabe-Ito orange: those pixels must appear in the PNG
+    import matplotlib.image as mpimg
+
+    fp = spread(demo_design)
+    out = tmp_path / "p.png"
+    render(demo_design, fp, out, dpi=60)
+    img = mpimg.imread(out)[..., :3]
+    a = style.STATUS_STYLES["pinned"].fill_opacity
+    orange = a * np.array([0xE6, 0x9F, 0x00]) / 255.0 + (1 - a)   # alpha-blended over white
+    before = (np.abs(img - orange).max(axis=2) < 0.06).sum()
+    fp.status[demo_design.kind == MACRO] = PINNED
+    render(demo_design, fp, out, dpi=60)
+    img = mpimg.imread(out)[..., :3]
+    after = (np.abs(img - orange).max(axis=2) < 0.06).sum()
+    assert after > before + 1000
+
+
+@pytest.mark.parametrize("name", ["plan.pdf", "plan", "plan.png.txt"])
+def test_bad_suffix_writes_nothing(demo_design, tmp_path, name):
+    with pytest.raises(DesignError, match="png"):
+        render(demo_design, None, tmp_path / name)
+    assert os.listdir(tmp_path) == []
+
+
+def test_failed_save_leaves_nothing(demo_design, tmp_path, monkeypatch):
+    from matplotlib.figure import Figure
+
+    out = tmp_path / "keep.svg"
+    out.write_text("old")
+
+    def broken(self, f, **kw):
+        f.write(b"<svg partial")
+        raise RuntimeError("disk trouble")
+
+    monkeypatch.setattr(Figure, "savefig", broken)
+    with pytest.raises(RuntimeError):
+        render(demo_design, None, out)
+    assert out.read_text() == "old"
+    assert os.listdir(tmp_path) == ["keep.svg"]
+
+
+def test_bad_heat_and_missing_folder(demo_design, tmp_path):
+    with pytest.raises(DesignError, match="heat"):
+        render(demo_design, None, tmp_path / "a.png", heat="warmth")
+    with pytest.raises(DesignError, match="does not exist"):
+        render(demo_design, None, tmp_path / "nope" / "a.png")
+    assert os.listdir(tmp_path) == []
+
+
+def test_into_given_axes_and_heat_layers(demo_design):
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    fig = Figure()
+    FigureCanvasAgg(fig)
+    ax = fig.add_subplot()
+    got = render(demo_design, spread(demo_design), ax=ax, heat="congestion", show_labels=False)
+    assert got is fig
+    assert len(fig.axes) == 2                     # the plot and the colour bar
+    assert "estimates" in ax.get_title(loc="left")
+    assert not ax.texts or all("µm" in t.get_text() for t in ax.texts)
+
+
+def test_palette_is_okabe_ito_and_greyscale_distinct():
+    # Okabe and Ito (2008): the eight colours of the palette, from memory
+    assert set(style.OKABE_ITO.values()) == {"#000000", "#E69F00", "#56B4E9", "#009E73",
+                                             "#F0E442", "#0072B2", "#D55E00", "#CC79A7"}
+    st = style.STATUS_STYLES
+    # status must read without colour: outline dash and width differ pairwise
+    keys = [(s.dash, s.stroke_width) for s in st.values()]
+    assert len(set(keys)) == len(keys)
+    assert len({s.bq_line_style for s in st.values()}) == len(st)
+    assert {s.fill for s in st.values()} <= set(style.OKABE_ITO.values())
