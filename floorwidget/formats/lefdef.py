@@ -1387,8 +1387,8 @@ def _abstracts(design: Design) -> _Abstracts:
     bm = np.full(n, -1, np.int64)
     for i in range(n):
         k = int(d.kind[i])
-        if k == TERMINAL:
-            continue
+        if k == TERMINAL and not (bt is not None and bt[i]):
+            continue  # an I/O pin (DEF PINS); typed terminals are pads (DEF COMPONENTS)
         t = bt[i] if bt is not None and bt[i] else f"{KIND_NAMES[k]}_{wd[i]}x{hd[i]}"
         key = (t, k, int(wd[i]), int(hd[i]), int(d.orient_allowed[i]))
         j = key_of.get(key)
@@ -1505,7 +1505,7 @@ def write_lef(design: Design, path: str | Path) -> None:
     for nm, (w, h) in zip(snames, ssizes):
         out += [f"SITE {nm}", "  CLASS CORE ;", f"  SIZE {_um(w, dbu)} BY {_um(h, dbu)} ;",
                 f"END {nm}", ""]
-    cls = {MACRO: "BLOCK", CLUSTER: "BLOCK SOFT", CELL: "CORE"}
+    cls = {MACRO: "BLOCK", CLUSTER: "BLOCK SOFT", CELL: "CORE", TERMINAL: "PAD"}
     widened = []
     e = 1.0 / dbu
     for k, nm in enumerate(ab.names):
@@ -1559,8 +1559,8 @@ def write_def(design: Design, fp: Floorplan, path: str | Path) -> None:
     if fp.design is not d:
         raise DesignError("the floorplan belongs to another design", file=str(path))
     ab = _abstracts(d)
-    comp = np.flatnonzero(d.kind != TERMINAL)
-    term = np.flatnonzero(d.kind == TERMINAL)
+    comp = np.flatnonzero(ab.block_master >= 0)
+    term = np.flatnonzero(ab.block_master < 0)
     names = d.names
     tnames = [names[i][len(_TERMINAL_PREFIX):] if names[i].startswith(_TERMINAL_PREFIX)
               else names[i] for i in term]
@@ -1604,7 +1604,7 @@ def write_def(design: Design, fp: Floorplan, path: str | Path) -> None:
     first_net: dict[int, str] = {}
     pn = d.pin_net
     if len(term):
-        tmask = d.kind[d.pin_block] == TERMINAL
+        tmask = ab.block_master[d.pin_block] < 0
         tj = np.flatnonzero(tmask)
         for j in tj[::-1].tolist():
             first_net[int(d.pin_block[j])] = d.net_names[int(pn[j])]

@@ -1,0 +1,433 @@
+"""LEF/DEF subset: reading, writing, round trips and error reporting.
+
+Outside sources
+---------------
+* Orientation definitions and placement-point rule: the public LEF/DEF Language Reference 5.8
+  (N = R0, S = R180, W = R90 counter-clockwise, E = R270, FN = MY, FS = MX, FW = MX90,
+  FE = MY90; a component's placement point is the lower-left corner of its footprint after
+  orientation).  Expected pin positions below are worked by hand from those definitions: rotate
+  or mirror the N footprint about the LEF origin, then translate it so that the lower-left of
+  the result sits on the placement point.
+* Polygon areas: shapely (GEOS).
+* The data files in ``tests/data/lefdef/`` are invented ("kestrel" library and block).
+"""
+
+from __future__ import annotations
+
+import shutil
+import warnings
+from pathlib import Path
+
+import numpy as np
+import pytest
+from shapely.geometry import Polygon, box
+from shapely.ops import unary_union
+
+import floorwidget as fw
+from floorwidget.design import CELL, FIXED, MACRO, ORIENT_CODE, PINNED, TERMINAL, DesignError
+from floorwidget.formats.lefdef import (
+    LefDefWarning,
+    _polygon_rects,
+    lef_path_for,
+    read_def,
+    read_lef,
+    symmetry_orientations,
+    write_def,
+    write_def_pair,
+    write_lef,
+)
+
+DATA = Path(__file__).parent / "data" / "lefdef"
+DEF = DATA / "kestrel.def"
+LEFS = [DATA / "kestrel_tech.lef", DATA / "kestrel_cells.lef"]
+
+
+@pytest.fixture(scope="module")
+def kestrel():
+    return read_def(DEF, lef=LEFS)
+
+
+def _line_of(path: Path, needle: str) -> int:
+    """1-based line of the first line containing ``needle`` (computed, not typed in)."""
+    for i, line in enumerate(path.read_text().splitlines(), 1):
+        if needle in line:
+            return i
+    raise AssertionError(f"{needle!r} not in {path}")
+
+
+def _pin_at(design, fp, block: str, pin: str):
+    px, py = fp.pin_positions()
+    b = design.block(block)
+    for j in np.flatnonzero(design.pin_block == b):
+        if design.pin_names[j] == pin:
+            return float(px[j]), float(py[j])
+    raise AssertionError(f"no pin {block}/{pin}")
+
+
+# ---------------------------------------------------------------------------------------------
+# LEF
+
+def test_lef_library_contents():
+    lib = read_lef([str(p) for p in LEFS])
+    assert lib.dbu == 1000
+    assert lib.sites == {"kcore": (0.2, 2.0)}
+    ram = lib.macros["ram_k1"]
+    assert (ram.kind, ram.width, ram.height) == (MACRO, 100.0, 50.0)
+    # first RECT of the first PORT: centre (10, 40) -> offset from the centre (50, 25)
+    assert ram.pins["A"] == pytest.approx((-40.0, 15.0))
+    assert ram.pins["Q"] == pytest.approx((40.0, -20.0))  # RECT MASK 1 ... centre (90, 5)
+    pll = lib.macros["pll_k"]
+    # LEF point (-9, -4) + ORIGIN (10, 5) = (1, 1) in the footprint; centre (20, 15)
+    assert pll.pins["CK"] == pytest.approx((-19.0, -14.0))
+    inv = lib.macros["inv_k"]
+    assert inv.kind == CELL
+    assert inv.pins["A"] == pytest.approx((0.15 - 0.3, 0.0))  # POLYGON bounding-box centre
+    assert lib.macros["pad_k"].kind == TERMINAL
+    assert lib.skipped["LAYER"] == 3 and lib.skipped["VIA"] == 1
+
+
+def test_symmetry_groups():
+    # Closure of the generators X -> FS, Y -> FN, R90 -> W (LEF/DEF reference SYMMETRY).
+    def names(bits):
+        return {o for o, c in ORIENT_CODE.items() if bits >> c & 1}
+
+    assert names(symmetry_orientations([])) == {"N"}
+    assert names(symmetry_orientations(["X"])) == {"N", "FS"}
+    assert names(symmetry_orientations(["Y"])) == {"N", "FN"}
+    assert names(symmetry_orientations(["X", "Y"])) == {"N", "FN", "FS", "S"}
+    assert names(symmetry_orientations(["R90"])) == {"N", "W", "S", "E"}
+    assert len(names(symmetry_orientations(["X", "R90"]))) == 8
+    assert len(names(symmetry_orientations(["X", "Y", "R90"]))) == 8
+
+
+def test_lef_unknown_statement_warns_once(tmp_path):
+    p = tmp_path / "odd.lef"
+    p.write_text("VERSION 5.8 ;\nFROBNICATE 1 2 ;\nFROBNICATE 3 ;\nWIDGETRULE x ;\n"
+                 "MACRO b1\n  CLASS BLOCK ;\n  SIZE 10 BY 10 ;\n  GADGET 4 ;\nEND b1\n"
+                 "END LIBRARY\n")
+    with pytest.warns(LefDefWarning) as rec:
+        lib = read_lef(p)
+    assert len(rec) == 1
+    msg = str(rec[0].message)
+    assert "FROBNICATE x2" in msg and "WIDGETRULE x1" in msg and "MACRO GADGET x1" in msg
+    assert lib.macros["b1"].width == 10
+
+
+@pytest.mark.parametrize("text, needle, words", [
+    ("MACRO b1\n  CLASS BLOCK ;\n  SIZE 1x0 BY 10 ;\nEND b1\n", "SIZE 1x0", "bad number"),
+    ("MACRO b1\n  CLASS BLOCK ;\n  SIZE 10 BY 10 ;\nEND b2\n", "END b2", "does not close"),
+    ("MACRO b1\n  CLASS BLOCK ;\n  SIZE 10 BY 10 ;\n", "MACRO b1", "end of file"),
+    ("MACRO b1\n  CLASS BLOCK ;\nEND b1\n", "MACRO b1", "no SIZE"),
+    ("LAYER m9\n  TYPE ROUTING ;\n", "LAYER m9", "not terminated"),
+])
+def test_lef_errors_name_file_and_line(tmp_path, text, needle, words):
+    p = tmp_path / "bad.lef"
+    p.write_text("VERSION 5.8 ;\n" + text)
+    with pytest.raises(DesignError) as e:
+        read_lef(p)
+    assert e.value.file == str(p)
+    assert words in e.value.message
+    if words != "end of file":
+        assert e.value.line == _line_of(p, needle)
+    else:
+        assert e.value.line >= _line_of(p, needle)
+
+
+# ---------------------------------------------------------------------------------------------
+# DEF reading
+
+def test_def_geometry_and_units(kestrel):
+    d = kestrel
+    assert d.name == "kestrel_top" and d.dbu == 1000
+    assert d.die.tolist() == [10.0, 20.0, 510.0, 420.0]  # offset die origin
+    assert d.core.tolist() == [20.0, 30.0, 420.0, 34.0]  # 2000 sites of 0.2 um, two rows
+    assert d.row_orient.tolist() == [ORIENT_CODE["N"], ORIENT_CODE["FS"]]
+    assert d.grid_pitch.tolist() == [0.2, 2.0]
+    # the placement blockage only; the m1 routing blockage is skipped
+    assert d.blockages.tolist() == [[450.0, 350.0, 500.0, 400.0]]
+    assert d.halo[d.block("u_ram5")].tolist() == [5.0] * 4
+    assert d.net_weight[d.net_names.index("dq")] == 3.0
+
+
+def test_def_kinds_statuses_positions(kestrel):
+    d, fp = kestrel, kestrel.initial
+    kinds = {nm: int(d.kind[i]) for i, nm in enumerate(d.names)}
+    assert kinds["u_ram0"] == MACRO and kinds["u_pll"] == MACRO
+    assert kinds["u_inv0"] == CELL and kinds["u_pad"] == TERMINAL and kinds["clk_in"] == TERMINAL
+    assert fp.status_of("u_ram0") == "fixed" and fp.status_of("u_ram3") == "fixed"  # COVER
+    assert fp.status_of("u_ram1") == "movable" and fp.status_of("u_inv0") == "movable"
+    # x, y map directly: the placement point is the lower-left of the oriented footprint
+    assert fp.position("u_ram1") == (200.0, 100.0) and fp.orientation("u_ram1") == "W"
+    assert fp.position("u_ram4") == (300.0, 50.0) and fp.orientation("u_ram4") == "S"
+    # UNPLACED -> at the core centre (220, 32): lower-left (220 - 0.3, 32 - 1)
+    assert fp.position("u_inv0") == pytest.approx((219.7, 31.0))
+    assert d.allowed_orientations("u_pll") == ["N", "FN"]        # SYMMETRY Y
+    assert d.allowed_orientations("u_inv0") == ["N", "S", "FN", "FS"]  # SYMMETRY X Y
+    assert len(d.allowed_orientations("u_ram0")) == 8            # SYMMETRY X Y R90
+
+
+# Expected absolute pins, worked by hand.  ram_k1 is 100 x 50 with pin A at (10, 40) and Q at
+# (90, 5) in its N footprint.  For each orientation: transform the footprint and the pin point,
+# shift so the footprint's lower-left is at (0, 0), add the placement point.
+HAND_PINS = [
+    # N at (100, 200): identity.  A (110, 240), Q (190, 205)
+    ("u_ram0", "A", (110.0, 240.0)), ("u_ram0", "Q", (190.0, 205.0)),
+    # W = R90 (x, y) -> (-y, x): footprint [-50, 0] x [0, 100], shift (50, 0).
+    # A (10, 40) -> (-40, 10) -> (10, 10); at (200, 100) -> (210, 110)
+    ("u_ram1", "A", (210.0, 110.0)),
+    # FS = MX (x, y) -> (x, -y): footprint [0, 100] x [-50, 0], shift (0, 50).
+    # Q (90, 5) -> (90, -5) -> (90, 45); at (300, 250) -> (390, 295)
+    ("u_ram2", "Q", (390.0, 295.0)),
+    # FE = MY90 (x, y) -> (-y, -x): footprint [-50, 0] x [-100, 0], shift (50, 100).
+    # A (10, 40) -> (-40, -10) -> (10, 90); at (50, 50) -> (60, 140)
+    ("u_ram3", "A", (60.0, 140.0)),
+    # S = R180 (x, y) -> (-x, -y): footprint [-100, 0] x [-50, 0], shift (100, 50).
+    # Q (90, 5) -> (-90, -5) -> (10, 45); at (300, 50) -> (310, 95)
+    ("u_ram4", "Q", (310.0, 95.0)),
+    # E = R270 (x, y) -> (y, -x): footprint [0, 50] x [-100, 0], shift (0, 100).
+    # A (10, 40) -> (40, -10) -> (40, 90); at (150, 300) -> (190, 390)
+    ("u_ram5", "A", (190.0, 390.0)),
+    # FN = MY (x, y) -> (-x, y): footprint [-100, 0] x [0, 50], shift (100, 0).
+    # A (10, 40) -> (-10, 40) -> (90, 40); at (50, 300) -> (140, 340)
+    ("u_ram6", "A", (140.0, 340.0)),
+    # FW = MX90 (x, y) -> (y, x): footprint [0, 50] x [0, 100], no shift.
+    # Q (90, 5) -> (5, 90); at (420, 100) -> (425, 190)
+    ("u_ram7", "Q", (425.0, 190.0)),
+    # pll_k 40 x 30, ORIGIN 10 5, CK rect centre (-9, -4) -> (1, 1) in the footprint.
+    # FN: (1, 1) -> (-1, 1) -> shift (40, 0) -> (39, 1); at (400, 300) -> (439, 301)
+    ("u_pll", "CK", (439.0, 301.0)),
+    # inv_k Y at (0.5, 1.0), N at (20, 30) -> (20.5, 31.0)
+    ("u_inv1", "Y", (20.5, 31.0)),
+    # pad_k PAD at (10, 1), N at the die corner (10, 20) -> (20, 21)
+    ("u_pad", "PAD", (20.0, 21.0)),
+    # I/O pin clk_in: rect (-0.1, 0) .. (0.1, 0.4) about (260, 20), N -> centre (260, 20.2)
+    ("clk_in", "clk_in", (260.0, 20.2)),
+    # d_out: same rect, W about (510, 200): x in [-0.4, 0], y in [-0.1, 0.1] -> centre
+    # (509.8, 200.0)
+    ("d_out", "d_out", (509.8, 200.0)),
+]
+
+
+@pytest.mark.parametrize("block, pin, expected", HAND_PINS)
+def test_absolute_pin_positions_by_hand(kestrel, block, pin, expected):
+    assert _pin_at(kestrel, kestrel.initial, block, pin) == pytest.approx(expected, abs=1e-9)
+
+
+def test_io_terminal_footprints(kestrel):
+    fp = kestrel.initial
+    d = kestrel
+    i = d.block("d_out")
+    assert (d.width[i], d.height[i]) == pytest.approx((0.2, 0.4))
+    assert fp.rects()[i] == pytest.approx([509.6, 199.9, 510.0, 200.1])
+    assert fp.status_of("clk_in") == "fixed" and fp.status_of("d_out") == "movable"
+
+
+def test_nets_and_pin_names(kestrel):
+    d = kestrel
+    k = d.net_names.index("n2")
+    s, e = d.net_start[k], d.net_start[k + 1]
+    assert [d.names[b] for b in d.pin_block[s:e]] == ["u_ram3", "u_ram4", "u_ram5", "u_ram6",
+                                                      "u_ram7", "u_pad"]
+    assert d.pin_names[s:e] == ["A", "Q", "A", "A", "Q", "PAD"]
+    assert d.num_nets == 4 and d.num_pins == 15
+
+
+def test_load_dispatch_lef_as_str_or_list():
+    a = fw.load(str(DEF), lef=[str(p) for p in LEFS])
+    # one LEF given as a plain string is accepted; the cell LEF alone lacks the site
+    with pytest.raises(DesignError, match="site 'kcore'"):
+        fw.load(DEF, lef=str(LEFS[1]))
+    assert a.num_blocks == 14
+
+
+def test_auto_sibling_lef(tmp_path):
+    # the convention of write_def_pair: y.lef beside y.def is used when no lef= is given
+    d = tmp_path / "blk.def"
+    shutil.copy(DEF, d)
+    lef = lef_path_for(d)
+    lef.write_text(LEFS[0].read_text().replace("END LIBRARY", "")
+                   + LEFS[1].read_text().replace("VERSION 5.8 ;", ""))
+    assert read_def(d).initial.identical(read_def(DEF, lef=LEFS).initial)
+
+
+# ---------------------------------------------------------------------------------------------
+# rectilinear die
+
+L_SHAPE = [(0, 0), (300, 0), (300, 100), (100, 100), (100, 200), (0, 200)]
+U_SHAPE = [(0, 0), (300, 0), (300, 200), (200, 200), (200, 80), (100, 80), (100, 200), (0, 200)]
+
+
+@pytest.mark.parametrize("poly", [L_SHAPE, U_SHAPE])
+def test_rectilinear_die_notches_become_blockages(tmp_path, poly):
+    pts = " ".join(f"( {x * 1000} {y * 1000} )" for x, y in poly)
+    p = tmp_path / "shape.def"
+    p.write_text(f"VERSION 5.8 ;\nDESIGN shape ;\nUNITS DISTANCE MICRONS 1000 ;\n"
+                 f"DIEAREA {pts} ;\nEND DESIGN\n")
+    d = read_def(p)
+    shp = Polygon(poly)
+    bb = box(*shp.bounds)
+    assert d.die.tolist() == list(shp.bounds)
+    blk = [box(*b) for b in d.blockages]
+    # shapely: bbox area - polygon area == blockage area, and the blockages are that region
+    assert sum(b.area for b in blk) == pytest.approx(bb.area - shp.area)
+    assert unary_union(blk).symmetric_difference(bb.difference(shp)).area == pytest.approx(0.0)
+    assert unary_union(blk).intersection(shp).area == pytest.approx(0.0)
+
+
+def test_polygon_rects_inside_cover_polygon():
+    shp = Polygon(U_SHAPE)
+    rects = _polygon_rects(np.array(U_SHAPE, float), True)
+    assert sum(box(*r).area for r in rects) == pytest.approx(shp.area)  # shapely area
+    assert unary_union([box(*r) for r in rects]).symmetric_difference(shp).area == \
+        pytest.approx(0.0)
+
+
+# ---------------------------------------------------------------------------------------------
+# writing and round trips
+
+def test_def_roundtrip_identical(kestrel, tmp_path):
+    out = tmp_path / "again.def"
+    write_def(kestrel, kestrel.initial, out)
+    d2 = read_def(out, lef=LEFS)
+    assert d2.initial.identical(kestrel.initial)
+    assert d2.names == kestrel.names
+    assert np.array_equal(d2.width, kestrel.width) and np.array_equal(d2.halo, kestrel.halo)
+    assert np.array_equal(d2.pin_block, kestrel.pin_block)
+    assert np.array_equal(d2.pin_dx, kestrel.pin_dx) and np.array_equal(d2.pin_dy, kestrel.pin_dy)
+    assert np.array_equal(d2.net_weight, kestrel.net_weight)
+    assert np.array_equal(d2.blockages, kestrel.blockages)
+    # and once more: DEF -> floorplan -> DEF gives the same text
+    out2 = tmp_path / "again2.def"
+    write_def(d2, d2.initial, out2)
+    assert out2.read_text() == out.read_text()
+
+
+def test_pinned_status_survives(kestrel, tmp_path):
+    fp = kestrel.initial.copy()
+    i = kestrel.block("u_ram2")
+    fp.status[i] = PINNED
+    fp.x[i], fp.y[i], fp.orient[i] = 321.5, 260.25, ORIENT_CODE["FE"]
+    out = tmp_path / "pinned.def"
+    fw.save(kestrel, fp, out)
+    text = out.read_text()
+    assert "- u_ram2 ram_k1 + FIXED ( 321500 260250 ) FE + PROPERTY FW_STATUS PINNED ;" in text
+    fp2 = read_def(out, lef=LEFS).initial
+    assert fp2.identical(fp)
+    assert fp2.status[i] == PINNED and fp2.status[kestrel.block("u_ram0")] == FIXED
+
+
+def test_demo_json_to_def_lef_and_back(demo_design, tmp_path):
+    from floorwidget.metrics import hpwl
+
+    d = demo_design
+    fp = d.initial.copy()
+    # exercise every orientation and status on the macros
+    mac = np.flatnonzero(d.kind == MACRO)[:8]
+    fp.orient[mac] = np.arange(8)
+    fp.status[mac[:2]] = PINNED
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")  # our own files read back without anything skipped
+        dp, lp = write_def_pair(d, fp, tmp_path / "heron.def")
+        assert lp == tmp_path / "heron.lef" and lp.is_file()
+        d2 = fw.load(dp, lef=str(lp))
+    f2 = d2.initial
+    assert d2.names == d.names
+    assert np.array_equal(d2.kind, d.kind)
+    on_dbu = np.round(fp.x * d.dbu) / d.dbu
+    assert np.array_equal(f2.x, on_dbu) and np.array_equal(f2.y, np.round(fp.y * d.dbu) / d.dbu)
+    assert np.array_equal(f2.orient, fp.orient) and np.array_equal(f2.status, fp.status)
+    assert np.array_equal(d2.orient_allowed, d.orient_allowed)
+    assert np.array_equal(d2.halo, d.halo)
+    # pins go through LEF rectangles on a half-database-unit grid: HPWL equal to within that
+    tol = 0.5 / d.dbu * d.num_pins
+    assert hpwl(d2, f2) == pytest.approx(hpwl(d, fp), abs=tol)
+    assert hpwl(d2, f2) == pytest.approx(hpwl(d, fp), rel=1e-9)
+
+
+def test_write_lef_classes(demo_design, tmp_path):
+    p = tmp_path / "demo.lef"
+    write_lef(demo_design, p)
+    lib = read_lef(p)
+    classes = {m.cls for m in lib.macros.values()}
+    assert classes == {"BLOCK", "BLOCK SOFT"}
+    assert lib.sites[demo_design.site_name] == (0.2, 1.8)
+
+
+def test_writer_is_atomic_on_bad_names(kestrel, tmp_path):
+    out = tmp_path / "x.def"
+    out.write_text("previous content\n")
+    d = kestrel
+    bad = fw.Design(d.name, d.die, ["has space"] + d.names[1:], d.kind, d.width, d.height,
+                    d.net_start, d.pin_block, d.pin_dx, d.pin_dy, block_type=d.block_type,
+                    pin_names=d.pin_names, net_names=d.net_names, dbu=d.dbu)
+    with pytest.raises(DesignError, match="has space"):
+        write_def(bad, bad.initial, out)
+    assert out.read_text() == "previous content\n"
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["x.def"]
+
+
+# ---------------------------------------------------------------------------------------------
+# malformed DEF
+
+def _broken(tmp_path, old: str, new: str) -> Path:
+    text = DEF.read_text()
+    assert old in text
+    p = tmp_path / "broken.def"
+    p.write_text(text.replace(old, new, 1))
+    return p
+
+
+@pytest.mark.parametrize("old, new, needle, words", [
+    ("END NETS\n", "", "NETS 4 ;", "not terminated"),
+    ("END COMPONENTS\n", "", "COMPONENTS 12 ;", "not terminated"),
+    ("- u_ram1 ram_k1", "- u_ram1 ram_zz", "- u_ram1", "unknown LEF macro 'ram_zz'"),
+    ("( 200000 100000 ) W", "( 2x0000 100000 ) W", "- u_ram1", "bad number '2x0000'"),
+    ("COMPONENTS 12 ;", "COMPONENTS 13 ;", "COMPONENTS 13 ;", "header says 13"),
+    ("NETS 4 ;", "NETS 3 ;", "NETS 3 ;", "header says 3"),
+    ("PINS 2 ;", "PINS 1 ;", "PINS 1 ;", "header says 1"),
+    ("( u_ram2 Q )", "( u_ramX Q )", "- n1 ", "unknown component 'u_ramX'"),
+    ("( u_ram2 Q )", "( u_ram2 Z )", "- n1 ", "has no pin 'Z'"),
+    ("( PIN d_out )", "( PIN d_in )", "- dq ", "unknown I/O pin 'd_in'"),
+    ("UNITS DISTANCE MICRONS 1000 ;", "UNITS DISTANCE MICRONS 1e3x ;", "UNITS", "bad number"),
+    ("- u_ram6 ram_k1 + PLACED ( 50000 300000 ) FN ;", "- u_ram6 ;", "- u_ram6",
+     "cannot read"),
+    ("+ PLACED ( 420000 100000 ) FW", "+ PLACED ( 420000 100000 ) NE", "- u_ram7",
+     "unknown orientation 'NE'"),
+])
+def test_malformed_def_names_file_and_line(tmp_path, old, new, needle, words):
+    p = _broken(tmp_path, old, new)
+    with pytest.raises(DesignError) as e:
+        read_def(p, lef=LEFS)
+    assert e.value.file == str(p)
+    assert words in e.value.message
+    assert e.value.line == _line_of(p, needle)
+    assert str(e.value).startswith(f"{p}:{e.value.line}: ")
+
+
+def test_missing_lef(tmp_path):
+    p = tmp_path / "lonely.def"
+    shutil.copy(DEF, p)
+    with pytest.raises(DesignError) as e:
+        read_def(p)
+    assert "no LEF given" in e.value.message and e.value.file == str(p)
+    with pytest.raises(DesignError, match="file not found"):
+        read_def(p, lef=[tmp_path / "nope.lef"])
+
+
+def test_comments_and_loose_spacing(tmp_path):
+    # '#' comments anywhere, ';' glued to a word, parentheses glued to numbers
+    text = DEF.read_text()
+    text = text.replace("- u_ram6 ram_k1 + PLACED ( 50000 300000 ) FN ;",
+                        "- u_ram6 ram_k1 # the sixth\n  + PLACED (50000 300000) FN;")
+    text = text.replace("- dq ( u_ram0 Q ) ( PIN d_out )", "- dq (u_ram0 Q) (PIN d_out) # io\n ")
+    p = tmp_path / "loose.def"
+    p.write_text(text)
+    d = read_def(p, lef=LEFS)
+    assert d.initial.identical(read_def(DEF, lef=LEFS).initial)
+
+
+def test_unknown_def_statement_warns(tmp_path):
+    p = _broken(tmp_path, "DIEAREA", "REGIONS 1 ;\n- rg ( 0 0 ) ( 10 10 ) ;\nEND REGIONS\nDIEAREA")
+    with pytest.warns(LefDefWarning, match="REGIONS x1"):
+        d = read_def(p, lef=LEFS)
+    assert d.num_blocks == 14
