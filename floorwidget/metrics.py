@@ -375,9 +375,9 @@ class DensityMap:
     Attributes
     ----------
     grid : BinGrid
-    movable, fixed, blockage, free : ndarray
-        Movable block area, pinned/fixed block area, placement-blockage area (union) and free
-        area (bin area inside the core minus blockage) per bin.
+    movable, fixed, blockage, free, core : ndarray
+        Movable block area, pinned/fixed block area, placement-blockage area (union), free
+        area (bin area inside the core minus blockage) and bin area inside the core, per bin.
     movable_outside : float
         Movable area outside the core (it is in no bin).
     total_movable : float
@@ -389,13 +389,20 @@ class DensityMap:
     fixed: np.ndarray
     blockage: np.ndarray
     free: np.ndarray
+    core: np.ndarray
     movable_outside: float
     total_movable: float
 
     @property
     def utilisation(self) -> np.ndarray:
-        """``(movable + fixed) / bin area`` per bin (1.0 = the bin is exactly full)."""
-        return (self.movable + self.fixed) / self.grid.bin_area
+        """``(movable + fixed) / (bin area inside the core)`` per bin (1.0 = exactly full).
+
+        Bins outside the core read 0.
+        """
+        used = self.movable + self.fixed
+        out = np.zeros_like(used)
+        np.divide(used, self.core, out=out, where=self.core > 1e-12 * self.grid.bin_area)
+        return out
 
     def overflow(self, target_density: float = 0.8) -> float:
         """Overflow ratio at ``target_density`` (see :func:`density_overflow`)."""
@@ -442,7 +449,7 @@ def density_map(design: Design, fp: Floorplan, grid: BinGrid | None = None) -> D
     outside = max(0.0, total - float(movable.sum()))
     if outside <= 1e-9 * max(total, 1.0):
         outside = 0.0
-    return DensityMap(grid, movable, fixed, blockage, free, outside, total)
+    return DensityMap(grid, movable, fixed, blockage, free, core_area, outside, total)
 
 
 def density_overflow(design: Design, fp: Floorplan, target_density: float = 0.8,
@@ -475,7 +482,7 @@ def density_overflow(design: Design, fp: Floorplan, target_density: float = 0.8,
 
 
 def peak_density(design: Design, fp: Floorplan, grid: BinGrid | None = None) -> float:
-    """Largest ``(movable + fixed) / bin area`` over the bins."""
+    """Largest ``(movable + fixed) / (bin area inside the core)`` over the bins."""
     dm = density_map(design, fp, grid)
     return float(dm.utilisation.max()) if dm.movable.size else 0.0
 

@@ -184,6 +184,12 @@ def test_density_map_matches_shapely():
     assert M.density_overflow(d, fp, t, grid) == pytest.approx(dm.overflow(t))
     assert M.peak_density(d, fp, grid) == pytest.approx(
         ((dm.movable + dm.fixed) / grid.bin_area).max())
+    # a grid reaching past the core: utilisation is per bin area *inside* the core
+    g2 = M.BinGrid(0.0, 0.0, 5, 5, 20.0, 20.0)
+    dm2 = M.density_map(d, fp, g2)
+    core_in = shapely_bin_areas(g2, np.array([[5.0, 5.0, 95.0, 95.0]]))
+    np.testing.assert_allclose(dm2.core, core_in, atol=1e-8)
+    np.testing.assert_allclose(dm2.utilisation, (dm2.movable + dm2.fixed) / core_in)
 
 
 # --------------------------------------------------------------------------------------------
