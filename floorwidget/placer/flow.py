@@ -128,7 +128,8 @@ class _Stage:
 
     def wirelength(self, cx, cy, orient, opts, iterations, progress, stage):
         for k in range(iterations):
-            nx, ny, _ = self.sys.solve(cx, cy, orient, rtol=opts.cg_tol, maxiter=opts.cg_maxiter)
+            nx, ny, _ = self.sys.solve(cx, cy, orient, rtol=opts.cg_tol,
+                                       maxiter=4 * opts.cg_maxiter)
             cx[self.vars] = nx
             cy[self.vars] = ny
             self.clamp(cx, cy)

@@ -68,9 +68,10 @@ class PlacerOptions:
     stall_iterations : int
         Stop when the overflow has not improved by 2 % (relative) over this many iterations.
     cg_tol : float
-        Relative residual of the conjugate-gradient solves.  Default 1e-5.
+        Relative residual of the conjugate-gradient solves.  Default 1e-4.
     cg_maxiter : int
-        Iteration cap of each conjugate-gradient solve.  Default 300.
+        Iteration cap of each conjugate-gradient solve during spreading (the wirelength-only
+        solves before spreading get four times as many).  Default 150.
     anchor_weight : float
         Initial weight of the anchor pseudo-nets to the look-ahead placement, relative to the
         average net weight of an object; it grows linearly with the iteration count.
@@ -93,8 +94,8 @@ class PlacerOptions:
     initial_iterations: int = 6
     refine_iterations: int = 4
     stall_iterations: int = 10
-    cg_tol: float = 1e-5
-    cg_maxiter: int = 300
+    cg_tol: float = 1e-4
+    cg_maxiter: int = 150
     anchor_weight: float = 0.02
     anchor_growth: float = 1.0
     bin_size: float | None = None

@@ -21,7 +21,7 @@ from __future__ import annotations
 import numpy as np
 import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components
-from scipy.sparse.linalg import cg
+from scipy.sparse.linalg import LinearOperator, cg
 
 from ..design import TERMINAL, orient_offsets
 from .netmodel import NetTopology, b2b_edges
@@ -41,7 +41,9 @@ def solve_spd(A, b, x0=None, *, rtol: float = 1e-6, maxiter: int = 500):
         0 when converged to ``rtol``, the iteration count reached otherwise.
     """
     d = A.diagonal()
-    M = sp.diags_array(1.0 / np.where(d > 0, d, 1.0))
+    dinv = 1.0 / np.where(d > 0, d, 1.0)
+    n = len(d)
+    M = LinearOperator((n, n), matvec=lambda v: dinv * v.ravel(), dtype=np.float64)
     x, info = cg(A, b, x0=x0, rtol=rtol, atol=0.0, maxiter=maxiter, M=M)
     return x, info
 
