@@ -483,7 +483,8 @@ class _Problem:
 
     def cover(self, bad, i, j, keep) -> np.ndarray:
         """Macros that must move: all with own violations plus a greedy vertex cover of the
-        remaining overlap edges (highest degree first, then not in ``keep``, then smaller)."""
+        remaining overlap edges (macros not in ``keep`` first, then highest degree, then the
+        smaller)."""
         chosen = bad.copy()
         live = ~(chosen[i] | chosen[j])
         i, j = i[live], j[live]
@@ -491,9 +492,9 @@ class _Problem:
         pen = np.zeros(n) if keep is None else keep.astype(float)
         while len(i):
             deg = np.bincount(i, minlength=n) + np.bincount(j, minlength=n)
-            cand = np.flatnonzero(deg == deg.max())
-            # prefer not to move 'keep' macros, then the smaller one, then the later index
-            k = cand[np.lexsort((-cand, self.area[cand], pen[cand]))[0]]
+            cand = np.flatnonzero(deg > 0)
+            # not a 'keep' macro if possible, then the most conflicts, the smaller, the later
+            k = cand[np.lexsort((-cand, self.area[cand], -deg[cand], pen[cand]))[0]]
             chosen[k] = True
             live = (i != k) & (j != k)
             i, j = i[live], j[live]

@@ -1,0 +1,348 @@
+"""Macro legalisation, checked from outside.
+
+* Overlaps, containment and blockages are measured with shapely's polygon intersections
+  (shapely 2, GEOS), independent of the legaliser's own arithmetic: halo boxes of two macros
+  must intersect with area exactly 0.
+* Grid membership is recomputed here as ``(x - origin) / pitch`` being an integer.
+* Minimum displacement, closed forms: two axis-aligned boxes overlapping by ``ox`` along x and
+  ``oy`` along y are separated with least total L1 movement ``min(ox, oy)`` (one box slides
+  out along the shallower direction; elementary geometry).  ``n`` equal macros of width ``w``
+  all aimed at the same spot of a channel one macro high end up side by side; the least total
+  L1 displacement of a run ``s, s + w, ..., s + (n-1)w`` from a common target ``t`` is
+  ``w * sum_k |k - (n-1)/2|`` (the median minimises a sum of absolute deviations -- Laplace's
+  classical result, e.g. any statistics handbook).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+import shapely
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+
+from floorwidget.design import FIXED, MACRO, MOVABLE, PINNED, Design
+from floorwidget.placer.errors import PlacementError
+from floorwidget.placer.legalize import is_legal, legalize_macros
+
+# ---------------------------------------------------------------------------------------------
+# instance builder
+
+
+def _design(die, w, h, *, halo=None, status=None, x=None, y=None, core=None, pitch=(1.0, 1.0),
+            blockages=None, name="t"):
+    n = len(w)
+    rows = None
+    if core is not None:
+        sw = pitch[0]
+        rows = {"x": [core[0]], "y": [core[1]], "height": [core[3] - core[1]],
+                "site_width": [sw], "num_sites": [int(round((core[2] - core[0]) / sw))]}
+    return Design(name, die, [f"m{i}" for i in range(n)], np.full(n, MACRO), w, h,
+                  np.array([0]), np.zeros(0, int), np.zeros(0), np.zeros(0),
+                  halo=halo, rows=rows, grid_pitch=pitch, blockages=blockages,
+                  x=x, y=y, status=status)
+
+
+def _random_instance(seed: int, n_mov: int, n_pin: int, n_blk: int, util: float):
+    """A feasible instance by construction: a legal witness is drawn first (rejection
+    sampling), then the movable macros are scattered from it."""
+    rng = np.random.default_rng(seed)
+    W, H = rng.uniform(500, 1500, 2).round(1)
+    m = float(rng.uniform(0, 30))
+    pitch = tuple(rng.choice([0.1, 0.2, 0.5, 1.0, 1.8, 2.5], 2))
+    sw = pitch[0]
+    core = [m, m, m + sw * np.floor((W - 2 * m) / sw), H - m]
+    ox, oy = core[0], core[1]
+    cap = (core[2] - core[0]) * (core[3] - core[1]) * util
+    boxes, foot, ww, hh, hl, xs, ys, status = [], [], [], [], [], [], [], []
+    used = 0.0
+    tries = 0
+    while len(ww) < n_mov + n_pin and tries < 4000:
+        tries += 1
+        w, h = rng.uniform(15, 160, 2).round(1)
+        halo = rng.uniform(0, 8, 4).round(1) * (rng.random() < 0.7)
+        a = (w + halo[0] + halo[2]) * (h + halo[1] + halo[3])
+        pinned = len(ww) < n_pin
+        if not pinned and used + a > cap:
+            continue
+        if pinned:
+            x = rng.uniform(core[0], core[2] - w)
+            y = rng.uniform(core[1], core[3] - h)
+        else:
+            kx = rng.integers(0, max(1, int((core[2] - w - ox) / pitch[0])))
+            ky = rng.integers(0, max(1, int((core[3] - h - oy) / pitch[1])))
+            x, y = ox + kx * pitch[0], oy + ky * pitch[1]
+        hb = (x - halo[0], y - halo[1], x + w + halo[2], y + h + halo[3])
+        if x + w > core[2] or y + h > core[3] or hb[0] < 0 or hb[1] < 0 or hb[2] > W \
+                or hb[3] > H:
+            continue
+        if any(hb[0] < b[2] and b[0] < hb[2] and hb[1] < b[3] and b[1] < hb[3] for b in boxes):
+            continue
+        boxes.append(hb)
+        foot.append((x, y, x + w, y + h))
+        ww.append(w)
+        hh.append(h)
+        hl.append(halo)
+        xs.append(x)
+        ys.append(y)
+        status.append(PINNED if pinned else MOVABLE)
+        if not pinned:
+            used += a
+    blk = []
+    for _ in range(200):
+        if len(blk) >= n_blk:
+            break
+        bw, bh = rng.uniform(10, 80, 2)
+        bx = rng.uniform(core[0], core[2] - bw)
+        by = rng.uniform(core[1], core[3] - bh)
+        r = (bx, by, bx + bw, by + bh)
+        if any(r[0] < f[2] and f[0] < r[2] and r[1] < f[3] and f[1] < r[3] for f in foot):
+            continue
+        blk.append(r)
+    n = len(ww)
+    status = np.array(status)
+    x0, y0 = np.array(xs), np.array(ys)
+    mov = status == MOVABLE
+    # scatter: some stay, some move a little, some land anywhere
+    kind = rng.integers(0, 3, n)
+    jx = np.where(kind == 1, rng.normal(0, 40, n), rng.uniform(core[0], core[2], n) - x0)
+    jy = np.where(kind == 1, rng.normal(0, 40, n), rng.uniform(core[1], core[3], n) - y0)
+    x0 = np.where(mov & (kind > 0), x0 + jx, x0)
+    y0 = np.where(mov & (kind > 0), y0 + jy, y0)
+    d = _design((0, 0, W, H), ww, hh, halo=np.array(hl).reshape(n, 4), status=status,
+                x=x0, y=y0, core=core, pitch=pitch,
+                blockages=np.array(blk).reshape(-1, 4))
+    return d, d.initial
+
+
+# ---------------------------------------------------------------------------------------------
+# outside checks
+
+
+def _assert_legal(d: Design, out, src):
+    macro = np.flatnonzero(d.kind == MACRO)
+    hb = out.rects(halo=True)[macro]
+    fb = out.rects()[macro]
+    polys = shapely.box(hb[:, 0], hb[:, 1], hb[:, 2], hb[:, 3])
+    feet = shapely.box(fb[:, 0], fb[:, 1], fb[:, 2], fb[:, 3])
+    # every pair of halo boxes: intersection area exactly zero (shapely/GEOS)
+    ii, jj = np.triu_indices(len(macro), 1)
+    areas = shapely.area(shapely.intersection(polys[ii], polys[jj]))
+    bad = np.flatnonzero(areas > 0)
+    assert not len(bad), f"overlap {d.names[macro[ii[bad[0]]]]} / {d.names[macro[jj[bad[0]]]]}"
+    mov = out.status[macro] == MOVABLE
+    core = shapely.box(*d.core)
+    die = shapely.box(*d.die)
+    assert shapely.covers(core, feet[mov]).all()
+    assert shapely.covers(die, polys[mov]).all()
+    if len(d.blockages):
+        bl = shapely.box(*d.blockages.T)
+        a = shapely.area(shapely.intersection(feet[mov][:, None], bl[None, :]))
+        assert (a == 0).all()
+    # on the grid: recomputed here
+    for v, o, p in ((out.x, d.grid_origin[0], d.grid_pitch[0]),
+                    (out.y, d.grid_origin[1], d.grid_pitch[1])):
+        k = (v[macro][mov] - o) / p
+        assert np.all(np.abs(k - np.round(k)) * p < 1e-6)
+    # pinned and fixed: bit-exact; orientation and status untouched
+    stay = out.status != MOVABLE
+    assert np.array_equal(out.x[stay], src.x[stay]) and np.array_equal(out.y[stay], src.y[stay])
+    assert np.array_equal(out.orient, src.orient) and np.array_equal(out.status, src.status)
+
+
+def _snapshot(fp):
+    return fp.x.copy(), fp.y.copy(), fp.orient.copy(), fp.status.copy()
+
+
+def _unchanged(fp, snap):
+    return all(np.array_equal(a, b) for a, b in zip((fp.x, fp.y, fp.orient, fp.status), snap))
+
+
+# ---------------------------------------------------------------------------------------------
+
+
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(seed=st.integers(0, 2**32 - 1), n_mov=st.integers(5, 40), n_pin=st.integers(0, 4),
+       n_blk=st.integers(0, 3), util=st.floats(0.05, 0.5))
+def test_random_feasible_instances_become_legal(seed, n_mov, n_pin, n_blk, util):
+    d, fp = _random_instance(seed, n_mov, n_pin, n_blk, util)
+    snap = _snapshot(fp)
+    out = legalize_macros(d, fp)
+    assert _unchanged(fp, snap), "input floorplan was modified"
+    _assert_legal(d, out, fp)
+    assert is_legal(d, out)
+    # the LP never makes the greedy result worse
+    greedy = legalize_macros(d, fp, lp=False)
+    _assert_legal(d, greedy, fp)
+    assert out.info["legalize_displacement"] <= greedy.info["legalize_displacement"] + 1e-6
+    # deterministic
+    assert legalize_macros(d, fp).identical(out)
+
+
+def test_already_legal_is_returned_bit_exact():
+    d, fp = _random_instance(3, 25, 2, 2, 0.4)
+    legal = legalize_macros(d, fp)
+    again = legalize_macros(d, legal)
+    assert again.identical(legal)
+    assert again.info["legalize_mode"] == "unchanged" and again.info["legalize_moved"] == 0
+
+
+@pytest.mark.parametrize("ox, oy", [(7.0, 50.0), (40.0, 12.0)])
+def test_single_overlap_moves_one_macro_by_the_overlap(ox, oy):
+    # A is 100 x 50 at (100, 100); B is 60 x 50 overlapping A by ox along x and oy along y.
+    # Closed form: least total L1 displacement is min(ox, oy), by one macro only.
+    w = [100.0, 60.0]
+    h = [50.0, 50.0]
+    x = [100.0, 200.0 - ox]
+    y = [100.0, 150.0 - oy]
+    d = _design((0, 0, 1000, 1000), w, h, x=x, y=y)
+    fp = d.initial
+    out = legalize_macros(d, fp)
+    _assert_legal(d, out, fp)
+    moved = (out.x != fp.x) | (out.y != fp.y)
+    assert moved.sum() == 1
+    disp = np.abs(out.x - fp.x).sum() + np.abs(out.y - fp.y).sum()
+    assert disp == pytest.approx(min(ox, oy), abs=1e-9)
+
+
+def test_single_overlap_with_halos():
+    # Halo boxes: A right halo 5, B left halo 3; footprints 4 µm apart, so the halo boxes
+    # overlap by 5 + 3 - 4 = 4 µm: one macro moves 4 µm along x.
+    d = _design((0, 0, 1000, 1000), [100.0, 60.0], [50.0, 50.0],
+                halo=[[0, 0, 5, 0], [3, 0, 0, 0]], x=[100.0, 204.0], y=[100.0, 100.0])
+    out = legalize_macros(d, d.initial)
+    _assert_legal(d, out, d.initial)
+    disp = np.abs(out.x - d.initial.x).sum() + np.abs(out.y - d.initial.y).sum()
+    assert disp == pytest.approx(4.0, abs=1e-9)
+
+
+@pytest.mark.parametrize("n", [2, 3, 4, 5])
+def test_channel_of_equal_macros_matches_median_closed_form(n):
+    # core one macro high: n macros of width 40 all aimed at x = 400 must sit in a row;
+    # the optimum total displacement is w * sum |k - (n-1)/2|.
+    d = _design((0, 0, 1000, 100), [40.0] * n, [60.0] * n, x=[400.0] * n, y=[20.0] * n,
+                core=(0, 20, 1000, 80))
+    out = legalize_macros(d, d.initial)
+    _assert_legal(d, out, d.initial)
+    expect = 40.0 * sum(abs(k - (n - 1) / 2) for k in range(n))
+    assert out.info["legalize_displacement"] == pytest.approx(expect, abs=1e-6)
+
+
+def test_pinned_and_fixed_are_obstacles_and_stay_bit_exact():
+    # a pinned macro at an off-grid spot and a fixed one; three movable ones dropped on them
+    d = _design((0, 0, 600, 600), [100.0, 80.0, 50.0, 50.0, 50.0], [100.0, 80.0, 50, 50, 50],
+                halo=np.full((5, 4), 2.5), status=[PINNED, FIXED, MOVABLE, MOVABLE, MOVABLE],
+                x=[100.3, 300.7, 120.0, 310.0, 150.0], y=[100.1, 300.9, 130.0, 320.0, 100.0],
+                pitch=(0.5, 0.5))
+    fp = d.initial
+    out = legalize_macros(d, fp)
+    _assert_legal(d, out, fp)
+    assert out.x[0] == 100.3 and out.y[1] == 300.9
+
+
+def test_subset_only_moves_the_subset():
+    d, fp = _random_instance(11, 30, 0, 0, 0.3)
+    legal = legalize_macros(d, fp)
+    moved = legal.copy()
+    # drop m3 onto m7; legalise m3 only: nobody else may move
+    moved.x[3], moved.y[3] = legal.x[7] + 1.0, legal.y[7] + 1.0
+    out = legalize_macros(d, moved, macros=["m3"])
+    _assert_legal(d, out, moved)
+    others = np.arange(d.num_blocks) != 3
+    assert np.array_equal(out.x[others], moved.x[others])
+    assert np.array_equal(out.y[others], moved.y[others])
+
+
+def test_hand_move_on_demo_design_moves_only_the_conflict(demo_design):
+    d = demo_design
+    legal = legalize_macros(d, d.initial)
+    _assert_legal(d, legal, d.initial)
+    mac = np.flatnonzero((d.kind == MACRO) & (legal.status == MOVABLE))
+    a, b = mac[2], mac[9]
+    moved = legal.copy()
+    moved.x[a], moved.y[a] = legal.x[b] + 12.0, legal.y[b] + 5.4  # on the grid, on top of b
+    out = legalize_macros(d, moved, keep=[a])
+    _assert_legal(d, out, moved)
+    changed = np.flatnonzero((out.x != moved.x) | (out.y != moved.y))
+    assert out.info["legalize_mode"] == "local"
+    # only macros whose halo box the dropped one now overlaps (shapely) may move; it stays
+    hb = moved.rects(halo=True)
+    polys = shapely.box(hb[:, 0], hb[:, 1], hb[:, 2], hb[:, 3])
+    hit = np.flatnonzero(shapely.area(shapely.intersection(polys[a], polys[mac])) > 0)
+    conflict = set(mac[hit].tolist()) - {a}
+    assert b in conflict
+    assert set(changed.tolist()) <= conflict and len(changed) >= 1
+    # non-macro blocks are never touched
+    soft = d.kind != MACRO
+    assert np.array_equal(out.x[soft], moved.x[soft])
+
+
+# ---------------------------------------------------------------------------------------------
+# infeasible inputs: a clear PlacementError, the input unchanged
+
+
+def test_more_macro_area_than_core_raises():
+    d = _design((0, 0, 300, 300), [100.0] * 10, [100.0] * 10, x=[0.0] * 10, y=[0.0] * 10)
+    snap = _snapshot(d.initial)
+    with pytest.raises(PlacementError, match="µm²"):
+        legalize_macros(d, d.initial)
+    assert _unchanged(d.initial, snap)
+
+
+def test_halo_area_over_capacity_raises():
+    # footprints fit (4 x 100² in 300²) but not with 30 µm halos all round
+    d = _design((0, 0, 300, 300), [100.0] * 4, [100.0] * 4, halo=np.full((4, 4), 30.0),
+                x=[100.0] * 4, y=[100.0] * 4, core=(40, 40, 260, 260))
+    snap = _snapshot(d.initial)
+    with pytest.raises(PlacementError):
+        legalize_macros(d, d.initial)
+    assert _unchanged(d.initial, snap)
+
+
+def test_overlapping_pinned_pair_is_named():
+    d = _design((0, 0, 500, 500), [100.0, 100.0, 50.0], [100.0, 100.0, 50.0],
+                status=[PINNED, FIXED, MOVABLE], x=[50.0, 120.0, 300.0], y=[50.0, 60.0, 300.0])
+    snap = _snapshot(d.initial)
+    with pytest.raises(PlacementError) as err:
+        legalize_macros(d, d.initial)
+    msg = str(err.value)
+    assert "'m0'" in msg and "'m1'" in msg and "\n" not in msg
+    assert _unchanged(d.initial, snap)
+
+
+def test_macro_larger_than_core_is_named():
+    d = _design((0, 0, 500, 500), [50.0, 470.0], [50.0, 40.0], x=[0.0, 0.0], y=[0.0, 100.0],
+                core=(20, 20, 480, 480))
+    with pytest.raises(PlacementError, match="'m1'"):
+        legalize_macros(d, d.initial)
+
+
+def test_macro_that_fits_nowhere_is_named():
+    # two pinned macros leave a 60 µm gap; a 70 µm-wide movable macro cannot fit anywhere
+    d = _design((0, 0, 300, 100), [120.0, 120.0, 70.0], [100.0, 100.0, 20.0],
+                status=[PINNED, PINNED, MOVABLE], x=[0.0, 180.0, 100.0], y=[0.0, 0.0, 0.0])
+    snap = _snapshot(d.initial)
+    with pytest.raises(PlacementError, match="'m2'"):
+        legalize_macros(d, d.initial)
+    assert _unchanged(d.initial, snap)
+
+
+@settings(max_examples=15, deadline=None)
+@given(seed=st.integers(0, 2**32 - 1))
+def test_random_instance_with_overlapping_pinned_pair_raises(seed):
+    d0, _ = _random_instance(seed, 10, 2, 1, 0.3)
+    x = d0.initial.x.copy()
+    y = d0.initial.y.copy()
+    x[1], y[1] = x[0] + 0.5, y[0] + 0.5  # second pinned macro onto the first
+    d = _design(d0.die, d0.width, d0.height, halo=d0.halo, status=d0.initial.status, x=x, y=y,
+                core=d0.core, pitch=tuple(d0.grid_pitch), blockages=d0.blockages)
+    snap = _snapshot(d.initial)
+    with pytest.raises(PlacementError, match="'m0'.*'m1'"):
+        legalize_macros(d, d.initial)
+    assert _unchanged(d.initial, snap)
+
+
+def test_unknown_option_is_a_type_error():
+    d = _design((0, 0, 100, 100), [10.0], [10.0])
+    with pytest.raises(TypeError, match="bogus"):
+        legalize_macros(d, d.initial, bogus=1)
