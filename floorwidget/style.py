@@ -47,7 +47,9 @@ __all__ = [
     "YELLOW",
     "BlockStyle",
     "block_style",
+    "heat_colors",
     "heat_scale",
+    "status_style",
     "mpl_colormap",
 ]
 
@@ -141,6 +143,23 @@ def block_style(status: int | str, illegal: bool = False) -> BlockStyle:
     return STATUS_STYLES[key]
 
 
+def status_style(key: str) -> dict:
+    """One status style (``movable``, ``pinned``, ``fixed`` or ``illegal``) as a plain dict.
+
+    Keys: ``fill``, ``fill_opacity`` (also ``opacity``), ``stroke``, ``stroke_width`` (also
+    ``width``), ``dash`` (bqplot ``line_style`` name), ``dasharray`` (SVG), ``hatch``, ``label``.
+    """
+    try:
+        s = STATUS_STYLES[key]
+    except KeyError:
+        raise KeyError(f"unknown status style {key!r}: expected one of "
+                       f"{', '.join(STATUS_STYLES)}") from None
+    return {"fill": s.fill, "fill_opacity": s.fill_opacity, "opacity": s.fill_opacity,
+            "stroke": s.stroke, "stroke_width": s.stroke_width, "width": s.stroke_width,
+            "dash": s.bq_line_style, "dasharray": s.svg_dash(), "hatch": s.hatch,
+            "label": s.label}
+
+
 # --- sequential heat scales (low -> high) --------------------------------------------------
 #: ColorBrewer YlOrRd, 9 classes (from memory).
 CONGESTION_SCALE = ("#FFFFCC", "#FFEDA0", "#FED976", "#FEB24C", "#FD8D3C", "#FC4E2A", "#E31A1C",
@@ -159,6 +178,11 @@ def heat_scale(kind: str) -> tuple[str, ...]:
     except KeyError:
         raise ValueError(f"unknown heat scale {kind!r}: expected 'density', 'congestion' "
                          "or 'cells'") from None
+
+
+def heat_colors(kind: str) -> list[str]:
+    """:func:`heat_scale` as a list (for ``bqplot.ColorScale(colors=...)``)."""
+    return list(heat_scale(kind))
 
 
 def mpl_colormap(kind: str):

@@ -130,3 +130,14 @@ def test_palette_is_okabe_ito_and_greyscale_distinct():
     assert len(set(keys)) == len(keys)
     assert len({s.bq_line_style for s in st.values()}) == len(st)
     assert {s.fill for s in st.values()} <= set(style.OKABE_ITO.values())
+
+
+def test_status_style_dicts_for_the_canvas():
+    for key, s in style.STATUS_STYLES.items():
+        d = style.status_style(key)
+        assert (d["fill"], d["dash"], d["width"]) == (s.fill, s.bq_line_style, s.stroke_width)
+    with pytest.raises(KeyError, match="unknown status"):
+        style.status_style("asleep")
+    assert style.heat_colors("congestion")[0] == style.CONGESTION_SCALE[0]
+    with pytest.raises(ValueError):
+        style.heat_scale("warmth")
