@@ -219,6 +219,23 @@ def _next_orientation(kind: str, code: int, allowed: int) -> int | None:
     return None if c is None or c == code else c
 
 
+def _placer_function(name: str) -> Callable:
+    """``floorwidget.placer.<name>``, imported on first use.
+
+    Guards against the package attribute being shadowed by a submodule of the same name
+    (importing ``floorwidget.placer.legalize`` rebinds ``floorwidget.placer.legalize``).
+    """
+    import importlib  # noqa: PLC0415
+    import types  # noqa: PLC0415
+
+    pkg = importlib.import_module(".placer", __package__)
+    fn = getattr(pkg, name, None)
+    if isinstance(fn, types.ModuleType) or fn is None:
+        flow = importlib.import_module(".placer.flow", __package__)
+        fn = getattr(flow, name)
+    return fn
+
+
 def _finite(v, what: str) -> float:
     if isinstance(v, bool):
         raise DesignError(f"{what} must be a number, got {v!r}")
@@ -560,9 +577,9 @@ class Session:
             w1, h1 = (float(v) for v in orient_size(d.width[i], d.height[i], nxt))
             cx, cy = float(fp.x[i]) + w0 / 2, float(fp.y[i]) + h0 / 2
             x, y = cx - w1 / 2, cy - h1 / 2
-        else:
-            x, y = float(fp.x[i]), float(fp.y[i])
-        nx, ny = self._fit(i, x, y, nxt)
+            nx, ny = self._fit(i, x, y, nxt)
+        else:  # same footprint, mirrored in place: the corner does not move (nor re-snap)
+            nx, ny = float(fp.x[i]), float(fp.y[i])
         new = fp.copy()
         new.x[i], new.y[i], new.orient[i] = nx, ny, nxt
         self._commit(action, new, log=((name,),), blocks=[i])
@@ -576,7 +593,9 @@ class Session:
         self._reorient("rotate", name)
 
     def flip(self, name: str) -> None:
-        """Mirror a block about its vertical axis (N↔FN, S↔FS, E↔FW, W↔FE), in place.
+        """Mirror a block about its vertical axis (N↔FN, S↔FS, E↔FE, W↔FW), in place.
+
+        The footprint is unchanged, so the lower-left corner stays where it is.
 
         Raises :class:`DesignError` when the mirror image is not an allowed orientation.
         """
@@ -623,7 +642,7 @@ class Session:
         PlacementError
             Infeasible; the floorplan and history are unchanged.
         """
-        from .placer import place as _place  # noqa: PLC0415
+        _place = _placer_function("place")
         opts = {"target_density": self.target_density if target_density is None
                 else _finite(target_density, "target_density"), "seed": int(seed), **options}
         self._run_placer("place", _place, opts, progress or self.progress)
@@ -631,7 +650,7 @@ class Session:
     def refine(self, *, target_density: float | None = None, seed: int = 0,
                progress: Callable | None = None, **options) -> None:
         """Improve the current floorplan incrementally (see :meth:`place` for parameters)."""
-        from .placer import refine as _refine  # noqa: PLC0415
+        _refine = _placer_function("refine")
         opts = {"target_density": self.target_density if target_density is None
                 else _finite(target_density, "target_density"), "seed": int(seed), **options}
         self._run_placer("refine", _refine, opts, progress or self.progress)
@@ -642,7 +661,7 @@ class Session:
         Raises :class:`~floorwidget.placer.errors.PlacementError` when infeasible, leaving the
         floorplan and history unchanged.
         """
-        from .placer import legalize as _legalize  # noqa: PLC0415
+        _legalize = _placer_function("legalize")
         self._run_placer("legalize", _legalize, dict(options), None)
 
     # --- undo / redo ---------------------------------------------------------------------------
