@@ -348,6 +348,7 @@ def _read_nodes(path):
         term[four] = np.where(is_t, 1, 2)
     zero = (term == 0) & ((w == 0) | (h == 0))
     _first_bad(t, body, zero, "movable node of zero size")
+    table = _NameTable(t, first, "node")
     n, nterm = len(body), int((term > 0).sum())
     if "NumNodes" in counts and counts["NumNodes"][0] != n:
         t.fail(counts["NumNodes"][1], f"NumNodes says {counts['NumNodes'][0]} but the file has "
@@ -355,7 +356,6 @@ def _read_nodes(path):
     if "NumTerminals" in counts and counts["NumTerminals"][0] != nterm:
         t.fail(counts["NumTerminals"][1], f"NumTerminals says {counts['NumTerminals'][0]} but "
                                           f"the file has {nterm} terminals")
-    table = _NameTable(t, first, "node")
     return t, first, w, h, term, table
 
 
@@ -545,6 +545,8 @@ def _read_scl(path) -> dict:
             else:
                 t.fail(ln, f"expected 'CoreRow Horizontal' or 'NumRows', got {toks[0][:40]!r}")
             continue
+        if head == "corerow":
+            t.fail(ln, f"the row starting on line {start_line} has no End")
         if head == "end":
             if len(toks) != 1:
                 t.fail(ln, "expected 'End'")
