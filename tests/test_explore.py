@@ -30,8 +30,9 @@ from floorwidget.explore import (
     to_session,
 )
 
-# four parameter sets on the demo design
+# four parameter sets on the demo design; fewer spreading iterations keep the test short
 GRID = {"target_density": [0.7, 0.85], "seed": [0, 3]}
+FAST = {"max_iterations": 8}
 
 
 def assert_same(a: list[SweepResult], b: list[SweepResult]) -> None:
@@ -45,7 +46,7 @@ def assert_same(a: list[SweepResult], b: list[SweepResult]) -> None:
 
 @pytest.fixture(scope="module")
 def serial(demo_design):
-    return sweep(demo_design, GRID, executor=SerialExecutor())
+    return sweep(demo_design, GRID, executor=SerialExecutor(), **FAST)
 
 
 def test_serial_matches_direct_place(demo_design, serial):
@@ -53,9 +54,11 @@ def test_serial_matches_direct_place(demo_design, serial):
     assert [r.params for r in serial] == sets == [
         dict(zip(GRID, v)) for v in itertools.product(*GRID.values())]
     for k, r in enumerate(serial):
-        assert r.index == k and r.ok and r.seconds > 0
+        assert r.index == k and r.ok and r.seconds > 0, r.error
         assert r.floorplan.design is demo_design
-        ref = fw.place(demo_design, **r.params)
+        assert r.fixed == FAST and r.floorplan.info.get("seed") == r.params["seed"]
+    for r in serial[1:3]:
+        ref = fw.place(demo_design, **r.params, **FAST)
         assert r.floorplan.identical(ref), r.params
         assert r.report == fw.evaluate(demo_design, ref,
                                        target_density=r.params["target_density"])
@@ -67,7 +70,8 @@ def test_serial_matches_direct_place(demo_design, serial):
 def test_default_pool_and_dask_cluster_match_serial(demo_design, serial):
     distributed = pytest.importorskip("distributed")
     seen = []
-    pooled = sweep(demo_design, GRID, progress=lambda d, t, r: seen.append((d, t, r.index)))
+    pooled = sweep(demo_design, GRID, progress=lambda d, t, r: seen.append((d, t, r.index)),
+                   **FAST)
     assert_same(pooled, serial)
     assert [d for d, _, _ in seen] == [1, 2, 3, 4] and {t for _, t, _ in seen} == {4}
     assert sorted(i for _, _, i in seen) == [0, 1, 2, 3]
@@ -76,7 +80,7 @@ def test_default_pool_and_dask_cluster_match_serial(demo_design, serial):
                                   dashboard_address=None) as cluster, \
             distributed.Client(cluster) as client:
         ex = client.get_executor()
-        on_dask = sweep(demo_design, GRID, executor=ex)
+        on_dask = sweep(demo_design, GRID, executor=ex, **FAST)
         # the runs really went to the two worker processes
         who = client.run(lambda: __import__("os").getpid())
     assert len(who) == 2
@@ -98,7 +102,7 @@ def test_failing_runs_are_reported_and_others_complete(demo_design):
     ]
     seen = []
     res = sweep(d, grid, executor=SerialExecutor(), base=base,
-                progress=lambda done, total, r: seen.append(r.error))
+                progress=lambda done, total, r: seen.append(r.error), **FAST)
     assert [r.params for r in res] == grid
     assert [r.ok for r in res] == [True, False, False, False, True]
     for r in res[1:4]:
@@ -109,33 +113,36 @@ def test_failing_runs_are_reported_and_others_complete(demo_design):
     assert "no_such_macro" in res[3].error
     assert sum(e is not None for e in seen) == 3
     # the good runs are exactly what a direct call gives
-    ref = fw.place(d, base, target_density=0.8, seed=1)
+    ref = fw.place(d, base, target_density=0.8, seed=1, **FAST)
     assert res[4].floorplan.identical(ref)
     # the caller's base floorplan is untouched
     assert base.x[d.block(b)] == base.x[d.block(a)]
     assert (base.status == d.initial.status).all()
 
 
-def test_pinned_macros_stay_at_base(demo_design):
+def test_pinned_macros_stay_at_base(demo_design, serial):
     d = demo_design
-    start = fw.place(d, seed=0)
+    start = serial[0].floorplan  # a legalised placement: its macros do not overlap
     pins = set(d.macros[:3])
-    res = sweep(d, {"pinned": [pins, set()], "seed": [5]}, executor=SerialExecutor(),
-                base=start)
-    assert all(r.ok for r in res), [r.error for r in res]
+    res = sweep(d, {"pinned": [pins], "seed": [5]}, executor=SerialExecutor(), base=start,
+                **FAST)
+    assert res[0].ok, res[0].error
     idx = [d.block(n) for n in pins]
     fp = res[0].floorplan
     assert (fp.status[idx] == PINNED).all()
     np.testing.assert_array_equal(fp.x[idx], start.x[idx])
     np.testing.assert_array_equal(fp.y[idx], start.y[idx])
+    # the other macros did move
+    others = [d.block(n) for n in d.macros[3:]]
+    assert not np.array_equal(fp.x[others], start.x[others])
     # same as pinning by hand and placing
     manual = start.copy()
     manual.status[idx] = PINNED
-    assert fp.identical(fw.place(d, manual, seed=5))
+    assert fp.identical(fw.place(d, manual, seed=5, **FAST))
     assert (start.status[idx] != PINNED).all()
 
 
-def test_weight_scale(demo_design):
+def test_weight_scale(demo_design, serial):
     d = demo_design
     ws = {"sram_dp": 4.0, "lnk": 0.5}
     f = net_weight_factors(d, ws)
@@ -156,11 +163,12 @@ def test_weight_scale(demo_design):
     with pytest.raises(ValueError, match="factor"):
         net_weight_factors(d, {"lnk": -1.0})
 
-    res = sweep(d, {"weight_scale": [ws, {}]}, executor=SerialExecutor(), seed=0)
-    assert all(r.ok for r in res), [r.error for r in res]
-    assert res[0].floorplan.identical(fw.place(d, seed=0, net_weight_scale=f))
-    assert res[1].floorplan.identical(fw.place(d, seed=0))
-    assert not res[0].floorplan.identical(res[1].floorplan)
+    res = sweep(d, {"weight_scale": [ws]}, executor=SerialExecutor(), seed=0,
+                target_density=0.7, **FAST)
+    assert res[0].ok, res[0].error
+    assert res[0].floorplan.identical(
+        fw.place(d, seed=0, target_density=0.7, net_weight_scale=f, **FAST))
+    assert not res[0].floorplan.identical(serial[0].floorplan)  # same but for the weights
     # the report keeps the design's own weights, so the runs stay comparable
     ref = fw.evaluate(d, res[0].floorplan)
     assert res[0].report["hpwl_weighted"] == ref["hpwl_weighted"]
@@ -185,12 +193,18 @@ class ReverseExecutor(cf.Executor):
         return fut
 
 
-def test_results_in_grid_order_whatever_the_completion_order(demo_design, serial):
+def test_results_in_grid_order_whatever_the_completion_order(demo_design):
     order = []
-    res = sweep(demo_design, GRID, executor=ReverseExecutor(4),
-                progress=lambda done, total, r: order.append(r.index))
+    grid = {"seed": [4, 1, 7, 2]}
+    quick = {"max_iterations": 1, "initial_iterations": 1, "legalize_macros": False}
+    res = sweep(demo_design, grid, executor=ReverseExecutor(4),
+                progress=lambda done, total, r: order.append(r.index), **quick)
     assert order == [3, 2, 1, 0]
-    assert_same(res, serial)
+    assert [r.params for r in res] == expand_grid(grid)
+    assert [r.index for r in res] == [0, 1, 2, 3]
+    # each floorplan is the one its own seed produced
+    assert [r.floorplan.info["seed"] for r in res] == [4, 1, 7, 2]
+    assert res[2].floorplan.identical(fw.place(demo_design, seed=7, **quick))
 
 
 def test_design_pickles_cheaply_and_exactly(demo_design):

@@ -127,7 +127,7 @@ class ParetoView(widgets.VBox):
         Index into ``results`` of each point of :attr:`points`.
     front : ndarray of bool
         Per plotted point, whether it is non-dominated.
-    tooltip : ipywidgets.HTML
+    hover_html : ipywidgets.HTML
         Shown on hover, filled with the hovered result's parameters and figures.
     status : ipywidgets.HTML
         One line under the figure (counts, failures, the last selection).
@@ -144,7 +144,7 @@ class ParetoView(widgets.VBox):
                  y: str = "congestion_peak", color: str = "density_overflow", size: int = 560):
         self.results = list(results)
         self.session = session
-        self.keys = (x, y, color)
+        self.figure_keys = (x, y, color)
         pts = result_points(self.results, (x, y, color))
         ok = ~np.isnan(pts[:, :2]).any(axis=1)
         self.plotted = np.flatnonzero(ok)
@@ -162,12 +162,12 @@ class ParetoView(widgets.VBox):
         sc = bq.ColorScale(colors=overflow_colors(), min=cmin, max=cmax)
         cvals = np.where(np.isfinite(c), c, cmin)
 
-        self.tooltip = widgets.HTML(value="", layout=widgets.Layout(padding="2px 6px"))
+        self.hover_html = widgets.HTML(value="", layout=widgets.Layout(padding="2px 6px"))
         self.points = bq.Scatter(
             x=xy[:, 0], y=xy[:, 1], color=cvals,
             scales={"x": sx, "y": sy, "color": sc},
             default_size=64, stroke=_GREY, stroke_width=1.0,
-            tooltip=self.tooltip, interactions={"hover": "tooltip", "click": "select"},
+            tooltip=self.hover_html, interactions={"hover": "tooltip", "click": "select"},
             selected_style={"stroke": _BLUE, "stroke-width": 3},
             unselected_style={"opacity": 0.9},
         )
@@ -178,7 +178,7 @@ class ParetoView(widgets.VBox):
         self.front_points = bq.Scatter(
             x=fx, y=fy, color=cvals[self.front], scales={"x": sx, "y": sy, "color": sc},
             default_size=170, stroke=_BLACK, stroke_width=2.5, marker="diamond",
-            tooltip=self.tooltip, interactions={"hover": "tooltip", "click": "select"},
+            tooltip=self.hover_html, interactions={"hover": "tooltip", "click": "select"},
         )
         self._front_pos = np.flatnonzero(self.front)
         self.points.on_hover(self._on_hover_points)
@@ -187,9 +187,9 @@ class ParetoView(widgets.VBox):
         self.front_points.on_element_click(self._on_click_front)
 
         ax = bq.Axis(scale=sx, label=_LABELS.get(x, x), tick_format=".3s", num_ticks=5)
-        ay = bq.Axis(scale=sy, orientation="vertical", label=_LABELS.get(y, y),
+        ay = bq.Axis(scale=sy, side="left", label=_LABELS.get(y, y),
                      tick_format=".3g", num_ticks=5)
-        acol = bq.ColorAxis(scale=sc, orientation="vertical", side="right",
+        acol = bq.ColorAxis(scale=sc, side="right",
                             label=_LABELS.get(color, color), tick_format=".2g")
         self.figure = bq.Figure(
             marks=[self.front_line, self.points, self.front_points], axes=[ax, ay, acol],
@@ -212,7 +212,7 @@ class ParetoView(widgets.VBox):
     def _status_text(self) -> str:
         n_fail = sum(1 for r in self.results if not r.ok)
         s = (f"{len(self.plotted)} runs plotted, {int(self.front.sum())} non-dominated"
-             f" (lower {self.keys[0]} and {self.keys[1]} is better)")
+             f" (lower {self.figure_keys[0]} and {self.figure_keys[1]} is better)")
         if n_fail:
             first = next(r for r in self.results if not r.ok)
             s += (f"; {n_fail} failed, e.g. {html.escape(first.label)}: "
@@ -227,7 +227,7 @@ class ParetoView(widgets.VBox):
         rows = [f"<b>run {r.index}</b>"]
         rows += [f"{html.escape(str(k))} = {html.escape(_fmt(v))}" for k, v in r.params.items()]
         if r.report:
-            for k in dict.fromkeys(self.keys):
+            for k in dict.fromkeys(self.figure_keys):
                 if k in r.report:
                     rows.append(f"{html.escape(_LABELS.get(k, k))}: {r.report[k]:.5g}")
         pos = self._pos_of.get(int(index))
@@ -246,12 +246,12 @@ class ParetoView(widgets.VBox):
     def _on_hover_points(self, mark, event) -> None:
         k = self._event_index(event)
         if k is not None and 0 <= k < len(self.plotted):
-            self.tooltip.value = self.describe(int(self.plotted[k]))
+            self.hover_html.value = self.describe(int(self.plotted[k]))
 
     def _on_hover_front(self, mark, event) -> None:
         k = self._event_index(event)
         if k is not None and 0 <= k < len(self._front_pos):
-            self.tooltip.value = self.describe(int(self.plotted[self._front_pos[k]]))
+            self.hover_html.value = self.describe(int(self.plotted[self._front_pos[k]]))
 
     def _on_click_points(self, mark, event) -> None:
         k = self._event_index(event)
