@@ -38,6 +38,7 @@ import contextlib
 import datetime as _dt
 import math
 import os
+import threading
 import warnings
 from collections import OrderedDict
 from collections.abc import Callable, Iterable, Iterator, Mapping, Sequence
@@ -236,6 +237,18 @@ def _placer_function(name: str) -> Callable:
     return fn
 
 
+def _locked(method):
+    """Run ``method`` holding the session's re-entrant lock (one change at a time)."""
+    import functools  # noqa: PLC0415
+
+    @functools.wraps(method)
+    def wrapper(self, *args, **kwargs):
+        with self._lock:
+            return method(self, *args, **kwargs)
+
+    return wrapper
+
+
 def _finite(v, what: str) -> float:
     if isinstance(v, bool):
         raise DesignError(f"{what} must be a number, got {v!r}")
@@ -339,6 +352,7 @@ class Session:
         self._reports: OrderedDict[int, dict] = OrderedDict()
         self._batches: list[_Batch] = []
         self._source = os.path.abspath(design.source) if design.source else None
+        self._lock = threading.RLock()
 
     # --- state ---------------------------------------------------------------------------------
     @property
@@ -499,6 +513,7 @@ class Session:
                     _clamp_to_grid(y, h, box[1], box[3], float(oy), float(py)))
         return _clamp(x, w, box[0], box[2]), _clamp(y, h, box[1], box[3])
 
+    @_locked
     def move(self, name: str, x: float, y: float) -> tuple[float, float]:
         """Move block ``name`` so its lower-left corner is near ``(x, y)`` µm.
 
@@ -550,6 +565,7 @@ class Session:
         self._commit(action, new, log=((names if isinstance(names, str) else lst,),),
                      blocks=idx)
 
+    @_locked
     def pin(self, names: str | Iterable[str]) -> None:
         """Pin block(s): placers will not move them (hand moves still can).
 
@@ -558,6 +574,7 @@ class Session:
         """
         self._set_status("pin", names, PINNED)
 
+    @_locked
     def unpin(self, names: str | Iterable[str]) -> None:
         """Make pinned block(s) movable again (fixed blocks stay fixed: an error)."""
         self._set_status("unpin", names, MOVABLE)
@@ -584,6 +601,7 @@ class Session:
         new.x[i], new.y[i], new.orient[i] = nx, ny, nxt
         self._commit(action, new, log=((name,),), blocks=[i])
 
+    @_locked
     def rotate(self, name: str) -> None:
         """Turn a block 90° counter-clockwise to its next allowed orientation.
 
@@ -592,6 +610,7 @@ class Session:
         """
         self._reorient("rotate", name)
 
+    @_locked
     def flip(self, name: str) -> None:
         """Mirror a block about its vertical axis (N↔FN, S↔FS, E↔FE, W↔FW), in place.
 
@@ -605,10 +624,21 @@ class Session:
     def _run_placer(self, action: str, fn: Callable, opts: dict, progress) -> None:
         d = self.design
         opts = {k: _plain(v, f"{action} option {k!r}") for k, v in opts.items()}
-        before = self._fp
-        work = before.copy()  # the placer gets a private, writable copy
+        with self._lock:
+            before = self._fp
+            work = before.copy()  # the placer gets a private, writable copy
+        # the solve runs without the lock, so a notebook stays responsive while a background
+        # thread places; the result is committed only onto the floorplan it started from
         out = fn(d, work, progress=progress, **opts) if progress is not None else \
             fn(d, work, **opts)
+        with self._lock:
+            if self._fp is not before:
+                raise DesignError(f"the floorplan changed while {action} was running; its "
+                                  "result was discarded (run it again)")
+            self._check_and_commit(action, before, out, opts)
+
+    def _check_and_commit(self, action: str, before: Floorplan, out, opts: dict) -> None:
+        d = self.design
         if not isinstance(out, Floorplan) or out.design is not d:
             raise DesignError(f"{action} returned {type(out).__name__}, not a Floorplan of "
                               f"design {d.name!r}")
@@ -665,6 +695,7 @@ class Session:
         self._run_placer("legalize", _legalize, dict(options), None)
 
     # --- undo / redo ---------------------------------------------------------------------------
+    @_locked
     def undo(self) -> None:
         """Undo the last step (a batch counts as one).  ``DesignError`` when there is none."""
         self._no_batch("undo")
@@ -676,6 +707,7 @@ class Session:
         self._record("undo")
         self._emit("undo", step.idx)
 
+    @_locked
     def redo(self) -> None:
         """Redo the last undone step.  ``DesignError`` when there is none."""
         self._no_batch("redo")
@@ -702,6 +734,10 @@ class Session:
         ...     s.move("ram0", 300, 200); s.pin("ram0"); s.refine()
         """
         label = str(label)
+        with self._lock:
+            yield from self._batch(label)
+
+    def _batch(self, label: str) -> Iterator[Session]:
         b = _Batch(label, self._fp, self._state_id, dict(self._alts), list(self._redo))
         self._batches.append(b)
         ok = False
@@ -748,6 +784,7 @@ class Session:
             raise DesignError(f"there is already an alternative labelled {label!r}")
         return label
 
+    @_locked
     def snapshot(self, label: str, note: str = "") -> Alternative:
         """Keep the current floorplan and its report as alternative ``label`` (unique)."""
         label = self._check_label(label)
@@ -758,6 +795,7 @@ class Session:
         self._emit("snapshot", [], label)
         return alt
 
+    @_locked
     def add_alternative(self, label: str, floorplan: Floorplan, note: str = "",
                         params: Mapping[str, Any] | None = None,
                         report: Mapping[str, Any] | None = None) -> Alternative:
@@ -798,6 +836,7 @@ class Session:
             known = ", ".join(map(repr, self._alts)) or "none"
             raise KeyError(f"no alternative labelled {label!r} (known: {known})") from None
 
+    @_locked
     def restore(self, label: str) -> None:
         """Make alternative ``label`` the current floorplan (an undoable step)."""
         alt = self.alternative(label)
@@ -836,6 +875,7 @@ class Session:
         return Comparison.of(self.design, la, fa, ra, lb, fb, rb)
 
     # --- record --------------------------------------------------------------------------------
+    @_locked
     def script(self) -> str:
         """Plain Python that rebuilds this session in a fresh interpreter.
 
@@ -856,6 +896,7 @@ class Session:
         from .session_io import script_text  # noqa: PLC0415
         return script_text(self)
 
+    @_locked
     def save(self, path) -> None:
         """Write the session (design reference, floorplans, alternatives, log, history) as
         versioned JSON, atomically: the file is either the complete new one or untouched."""

@@ -479,3 +479,43 @@ def test_session_checks_design(demo_design):
     s = Session(demo_design, demo_design.initial)
     assert s.floorplan is not demo_design.initial and s.floorplan.identical(demo_design.initial)
     assert ORIENT_CODE["N"] == 0
+
+
+def test_background_placer_result_discarded_when_floorplan_changed(s, names, monkeypatch):
+    """A placer running in another thread must not overwrite a change made meanwhile."""
+    import sys
+    import threading
+    import types
+
+    started, go = threading.Event(), threading.Event()
+
+    def slow_place(design, fp, **kw):
+        started.set()
+        go.wait(10)
+        out = fp.copy()
+        out.x[out.status == MOVABLE] += 1.0
+        return out
+
+    fake = types.ModuleType("floorwidget.placer")
+    fake.place = slow_place
+    monkeypatch.setitem(sys.modules, "floorwidget.placer", fake)
+    errors = []
+
+    def run():
+        try:
+            s.place(seed=0)
+        except DesignError as e:
+            errors.append(e)
+
+    t = threading.Thread(target=run)
+    t.start()
+    assert started.wait(10)
+    moved = s.move(names["full"][0], 555.0, 555.0)  # not blocked by the running solve
+    go.set()
+    t.join(10)
+    assert errors and "changed while place was running" in str(errors[0])
+    assert s.floorplan.position(names["full"][0]) == moved and s.history == ["move"]
+    # without interference the result is taken
+    go.set()
+    s.place(seed=0)
+    assert s.history == ["move", "place"]
