@@ -20,6 +20,7 @@ import time
 from pathlib import Path
 
 from .design import DesignError
+from .formats import load, save
 
 CAUTION = ("early-floorplanning estimates; timing, power and physical sign-off belong to the "
            "full implementation flow")
@@ -127,27 +128,7 @@ class _Progress:
 
 
 def _load(path: str, lef: list[str]):
-    from . import load
-
     return load(path, lef=lef or None)
-
-
-def _save(design, fp, out: str) -> None:
-    suffix = Path(out).suffix.lower()
-    if suffix == ".aux":
-        from .formats.bookshelf import write_aux
-
-        write_aux(design, fp, out)
-    elif suffix == ".def" and design.block_type is None:
-        # a design with no LEF library behind it: write the abstracts beside the DEF
-        from .formats.lefdef import write_def, write_lef
-
-        write_lef(design, Path(out).with_suffix(".lef"))
-        write_def(design, fp, out)
-    else:
-        from . import save
-
-        save(design, fp, out)
 
 
 def _run(args) -> int:
@@ -166,11 +147,11 @@ def _run(args) -> int:
             fp = place(design, target_density=args.target_density, seed=args.seed, progress=bar)
         finally:
             bar.close()
-        _save(design, fp, args.output)
+        save(design, fp, args.output)
         _print_report(evaluate(design, fp, target_density=args.target_density), args.json)
     elif args.command == "convert":
         design = _load(args.input, args.lef)
-        _save(design, design.initial, args.output)
+        save(design, design.initial, args.output)
     elif args.command == "render":
         from .render import render
 
@@ -188,6 +169,8 @@ def main(argv: list[str] | None = None) -> int:
         msg = " ".join(str(e).split())  # exactly one line
         sys.stderr.write(f"floorwidget: error: {msg}\n")
         return 2
+    except BrokenPipeError:  # e.g. piped into head: not an error of ours
+        return 0
     except OSError as e:
         where = f"{e.filename}: " if e.filename else ""
         sys.stderr.write(f"floorwidget: error: {where}{e.strerror or e}\n")

@@ -20,7 +20,7 @@ from ..design import Design, DesignError, Floorplan
 __all__ = ["load", "save", "READ_SUFFIXES", "WRITE_SUFFIXES"]
 
 READ_SUFFIXES = (".json", ".aux", ".def")
-WRITE_SUFFIXES = (".json", ".pl", ".def")
+WRITE_SUFFIXES = (".json", ".aux", ".pl", ".def")
 
 
 def _lefs(lef) -> list[str]:
@@ -55,7 +55,12 @@ def load(path, lef: str | Sequence[str] | None = None) -> Design:
 
 
 def save(design: Design, floorplan: Floorplan | None, path) -> None:
-    """Write ``floorplan`` (default: the design's initial one) by extension, atomically."""
+    """Write ``floorplan`` (default: the design's initial one) by extension, atomically.
+
+    ``.aux`` writes a whole Bookshelf set beside it.  ``.def`` also writes LEF abstracts to
+    ``y.lef`` beside ``y.def`` when the design did not come from a DEF (so there is no LEF
+    library of its own to refer to), so that the pair reads back with ``load("y.def")``.
+    """
     p = Path(path)
     fp = design.initial if floorplan is None else floorplan
     if fp.design is not design:
@@ -64,11 +69,18 @@ def save(design: Design, floorplan: Floorplan | None, path) -> None:
     if suffix == ".json":
         from .native_json import write_json
         return write_json(design, fp, p)
+    if suffix == ".aux":
+        from .bookshelf import write_aux
+        write_aux(design, fp, p)
+        return None
     if suffix == ".pl":
         from .bookshelf import write_pl
         return write_pl(design, fp, p)
     if suffix == ".def":
-        from .lefdef import write_def
-        return write_def(design, fp, p)
+        from .lefdef import write_def, write_def_pair
+        if str(design.source or "").lower().endswith(".def"):
+            return write_def(design, fp, p)
+        write_def_pair(design, fp, p)
+        return None
     raise DesignError(f"unknown output format {suffix or '(no suffix)'!r}; "
                       f"expected one of {', '.join(WRITE_SUFFIXES)}", file=str(p))
