@@ -17,7 +17,6 @@ import argparse
 import json
 import sys
 import time
-from pathlib import Path
 
 from .design import DesignError
 from .formats import load, save
