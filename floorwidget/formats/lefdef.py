@@ -580,6 +580,56 @@ def _split_tokens(s: str) -> list[str]:
     return out
 
 
+_WS = np.zeros(256, bool)
+_WS[[9, 10, 11, 12, 13, 28, 29, 30, 31, 32]] = True  # what str.split() splits on (ASCII)
+
+
+class _Words:
+    """A section split on whitespace (``str.split``, in C), with every token's first byte and
+    length from one vectorised pass over the bytes, so structural tokens (``;`` ``(`` ``)``
+    ``+`` ``-``) are found without a Python comparison per token."""
+
+    def __init__(self, sec: str):
+        self.words = sec.split()
+        b = np.frombuffer(sec.encode("utf-8"), np.uint8)
+        sp = _WS[b]
+        del b
+        prev = np.empty_like(sp)
+        prev[0] = True
+        prev[1:] = sp[:-1]
+        starts = np.flatnonzero(~sp & prev)
+        nxt = np.empty_like(sp)
+        nxt[-1:] = True
+        nxt[:-1] = sp[1:]
+        ends = np.flatnonzero(~sp & nxt) + 1
+        del sp, prev, nxt
+        self.ok = len(starts) == len(self.words)  # False with non-ASCII whitespace
+        if not self.ok:
+            return
+        raw = sec.encode("utf-8")
+        self.first = np.frombuffer(raw, np.uint8)[starts] if len(starts) else \
+            np.zeros(0, np.uint8)
+        self.length = (ends - starts).astype(np.int32)
+        del starts, ends
+        semi = self.mask(";")
+        self.semi = np.flatnonzero(semi)
+        self.n_open_text = sec.count("(")
+        n = len(self.words)
+        if len(self.semi) != sec.count(";") or (n and not semi[-1]):
+            self.ok = False
+            return
+        self.begin = np.concatenate([[0], self.semi[:-1] + 1]).astype(np.int64)
+        if len(self.begin) and not self.mask("-")[self.begin].all():
+            self.ok = False
+
+    def mask(self, ch: str) -> np.ndarray:
+        """Tokens that are exactly the one ASCII character ``ch``."""
+        return (self.length == 1) & (self.first == ord(ch))
+
+    def get(self, idx) -> list[str]:
+        return list(map(self.words.__getitem__, np.asarray(idx).tolist()))
+
+
 class _Def:
     """DEF reader state: header statements go through a lazy scanner, sections are parsed
     whole with regular expressions and vectorised conversion."""
@@ -652,6 +702,11 @@ class _Def:
         return pts
 
     def section_end(self, kw: str, start: int) -> tuple[int, int]:
+        text = self.text
+        i = text.find("END " + kw, self.pos)
+        e = i + 4 + len(kw)
+        if i >= 0 and (i == 0 or text[i - 1].isspace()) and (e == len(text) or text[e].isspace()):
+            return i, e
         m = re.compile(r"\bEND\s+" + kw + r"\b").search(self.text, self.pos)
         if m is None:
             self.fail(f"{kw} section is not terminated (no END {kw})", start)
@@ -788,9 +843,23 @@ class _Def:
         m = re.compile(r"-\s+" + re.escape(name) + r"(?=[\s;])").search(self.text, start, end)
         return m.start() if m else start
 
+    def _split_section(self, start: int, end: int) -> _Words | None:
+        """Whitespace tokens of a section, classified by numpy over the bytes; ``None`` when
+        some ``;`` is glued to a word (or sits in a string), or a statement does not start
+        with ``-``: the regular-expression path then reads (or rejects) the section."""
+        w = _Words(self.text[start:end])
+        if not w.ok:
+            return None
+        return w
+
     def components(self, start: int, end: int, count: int, hpos: int) -> None:
         self.comp_line = hpos
-        rows = self._COMP.findall(self.text, start, end)
+        sp = self._split_section(start, end)
+        if sp is not None:
+            return self._components_split(sp, start, end, count, hpos)
+        return self._components_regex(start, end, count, hpos)
+
+    def _components_rows(self, rows, start: int, end: int, count: int, hpos: int) -> None:
         if not rows:
             cols = [()] * 8
         else:
@@ -844,6 +913,68 @@ class _Def:
                 pinned.append(int(i))
         self.comps = dict(names=names, models=models, status=status, x=x, y=y, orient=orient,
                           halo=halo, pinned=pinned, start=start, end=end)
+
+    def _components_split(self, w: _Words, start: int, end: int, count: int,
+                          hpos: int) -> None:
+        begin, semi = w.begin, w.semi
+        n = len(begin)
+        if n != count:
+            self.fail(f"COMPONENTS header says {count}, the section has {n}", hpos)
+        ln = semi - begin
+        if (ln < 3).any():
+            return self._components_regex(start, end, count, hpos)
+        last = max(len(w.words) - 1, 0)
+        names = w.get(begin + 1)
+        models = w.get(begin + 2)
+        status = np.full(n, -1, np.int8)
+        orient = np.zeros(n, np.int8)
+        x = np.full(n, np.nan)
+        y = np.full(n, np.nan)
+        plus, opn, cls = w.mask("+"), w.mask("("), w.mask(")")
+
+        def at(mask, k):
+            return mask[np.minimum(begin + k, last)]
+
+        # "- name model + PLACED ( x y ) O ;": ten tokens before the ';'
+        a = np.flatnonzero((ln == 10) & at(plus, 3) & at(opn, 5) & at(cls, 8))
+        st_map = {"PLACED": MOVABLE, "FIXED": FIXED, "COVER": FIXED}
+        st = np.fromiter(map(st_map.get, w.get(begin[a] + 4), repeat(-2)), np.int8, len(a))
+        oc = np.fromiter(map(ORIENT_CODE.get, w.get(begin[a] + 9), repeat(-1)), np.int8,
+                         len(a))
+        good = (st >= 0) & (oc >= 0)
+        a_ok = a[good]
+        try:
+            x[a_ok] = np.fromiter(map(float, w.get(begin[a_ok] + 6)), np.float64, len(a_ok))
+            y[a_ok] = np.fromiter(map(float, w.get(begin[a_ok] + 7)), np.float64, len(a_ok))
+        except ValueError:  # the slow path below finds the offender and names its line
+            good[:] = False
+            a_ok = a[good]
+        status[a_ok] = st[good]
+        orient[a_ok] = oc[good]
+        slow = np.ones(n, bool)
+        slow[a_ok] = False
+        slow[ln == 3] = False  # "- name model ;": unplaced
+        u = np.flatnonzero((ln == 5) & at(plus, 3))
+        slow[u[np.array([t == "UNPLACED" for t in w.get(begin[u] + 4)], bool)]] = False
+        toks = w.words
+        halo = None
+        pinned: list[int] = []
+        for i in np.flatnonzero(slow).tolist():  # options beyond the plain forms: few
+            opts = " ".join(toks[begin[i] + 3:semi[i]])
+            r = self._comp_options(names[i], opts, start, end)
+            status[i], x[i], y[i], orient[i] = r[0], r[1], r[2], r[3]
+            if r[4] is not None:
+                if halo is None:
+                    halo = np.zeros((n, 4))
+                halo[i] = r[4]
+            if r[5]:
+                pinned.append(int(i))
+        self.comps = dict(names=names, models=models, status=status, x=x, y=y, orient=orient,
+                          halo=halo, pinned=pinned, start=start, end=end)
+
+    def _components_regex(self, start: int, end: int, count: int, hpos: int) -> None:
+        rows = self._COMP.findall(self.text, start, end)
+        return self._components_rows(rows, start, end, count, hpos)
 
     def _comp_options(self, name: str, opts: str, start: int, end: int):
         toks = _split_tokens(opts)
@@ -958,6 +1089,9 @@ class _Def:
     _WEIGHT = re.compile(r"\+\s*WEIGHT\s+(\S+)")
 
     def net_section(self, start: int, end: int, count: int, hpos: int) -> None:
+        sp = self._split_section(start, end)
+        if sp is not None and self._nets_split(sp, start, end, count, hpos):
+            return
         rows = self._NET.findall(self.text, start, end)
         cols = list(zip(*rows)) if rows else [()] * 4
         if any(cols[3]):
@@ -966,6 +1100,9 @@ class _Def:
         if len(names) != count:
             self.fail(f"NETS header says {count}, the section has {len(names)}", hpos)
         pinpart, rest = cols[1], cols[2]
+        self._nets_regex_rest(names, pinpart, rest, start, end)
+
+    def _nets_regex_rest(self, names, pinpart, rest, start, end) -> None:
         m = len(names)
         deg = np.fromiter(map(str.count, pinpart, repeat("(")), np.int64, m) if m else \
             np.zeros(0, np.int64)
@@ -992,11 +1129,67 @@ class _Def:
                 extra_pairs.append((toks[k + 1], toks[k + 2]))
                 extra_net.append(int(i))
                 k = j + 1
+        net_of = np.repeat(np.arange(m), deg)
+        if extra_pairs:
+            net_of = np.concatenate([net_of, np.array(extra_net, np.int64)])
+            pairs = pairs + extra_pairs
+            order = np.argsort(net_of, kind="stable")
+            net_of = net_of[order]
+            pairs = [pairs[i] for i in order]
+        pc, pp = (list(c) for c in zip(*pairs)) if pairs else ([], [])
+        self._nets_done(names, net_of, pc, pp, weight, start, end)
+
+    def _nets_done(self, names, net_of, pc, pp, weight, start, end) -> None:
+        m = len(names)
         keep = np.fromiter(map("MUSTJOIN".__ne__, names), bool, m) if m else np.zeros(0, bool)
-        self.nets = dict(names=names, deg=deg, pairs=pairs, weight=weight, keep=keep,
-                         extra_net=extra_net, extra_pairs=extra_pairs, start=start, end=end)
+        self.nets = dict(names=names, net_of=net_of, pc=pc, pp=pp, weight=weight, keep=keep,
+                         start=start, end=end)
         if not keep.all():
             self.skipped["NETS MUSTJOIN"] += int((~keep).sum())
+
+    def _nets_split(self, wd: _Words, start: int, end: int, count: int, hpos: int) -> bool:
+        """Whitespace-token path; False when a statement needs the regular-expression path
+        (e.g. ``+ SYNTHESIZED`` inside a connection, or a parenthesis glued to a name)."""
+        begin, semi = wd.begin, wd.semi
+        m = len(begin)
+        if m != count:
+            self.fail(f"NETS header says {count}, the section has {m}", hpos)
+        if ((semi - begin) < 2).any():
+            return False
+        names = wd.get(begin + 1)
+        big = len(wd.words)
+        plus = np.flatnonzero(wd.mask("+"))
+        opens = np.flatnonzero(wd.mask("("))
+        if len(opens) != wd.n_open_text:
+            return False
+        stmt = np.searchsorted(semi, opens)
+        if len(plus):
+            k = np.searchsorted(plus, begin)
+            first_plus = np.where(k < len(plus), plus[np.minimum(k, len(plus) - 1)], big)
+            first_plus = np.minimum(first_plus, semi)
+        else:
+            first_plus = semi
+        sel = opens < first_plus[stmt]
+        po = opens[sel]
+        net_of = stmt[sel]
+        if len(po) and (po[-1] + 3 >= big or not wd.mask(")")[po + 3].all()):
+            return False
+        if len(po) and not (po[1:] >= po[:-1] + 4).all():
+            return False
+        weight = np.ones(m)
+        w = np.flatnonzero((wd.length == 6) & (wd.first == ord("W")))
+        if len(w):
+            w = w[np.array([t == "WEIGHT" for t in wd.get(w)], bool)]
+            w = w[wd.mask("+")[w - 1] & (w + 1 < semi[np.searchsorted(semi, w)])]
+            ws = np.searchsorted(semi, w)
+            for i, v in zip(ws.tolist(), wd.get(w + 1)):  # weighted nets only
+                try:
+                    weight[i] = float(v)
+                except ValueError:
+                    self.fail(f"net {names[i]!r}: bad number {v!r} for WEIGHT",
+                              self._find(start, end, names[i]))
+        self._nets_done(names, net_of, wd.get(po + 1), wd.get(po + 2), weight, start, end)
+        return True
 
     # --- BLOCKAGES ---------------------------------------------------------------------------
     def blockage_section(self, start: int, end: int, count: int, hpos: int) -> None:
@@ -1118,7 +1311,7 @@ class _Def:
 
         # I/O pins -> terminals
         pins = self.pins or []
-        comp_index = {nm: i for i, nm in enumerate(c["names"])}
+        comp_index = dict(zip(c["names"], range(nc)))
         t_names, t_w, t_h, t_x, t_y, t_o, t_s = [], [], [], [], [], [], []
         for name, rect, place in pins:
             st, px, py, o = place if place is not None else (-1, 0.0, 0.0, 0)
@@ -1144,30 +1337,23 @@ class _Def:
         term_index = {p[0]: nc + k for k, p in enumerate(pins)}
 
         # nets
-        nt = self.nets or dict(names=[], deg=np.zeros(0, np.int64), pairs=[],
-                               weight=np.zeros(0), keep=np.zeros(0, bool), extra_net=[],
-                               extra_pairs=[], start=0, end=0)
-        deg = nt["deg"]
-        net_of = np.repeat(np.arange(len(deg)), deg)
-        pairs = nt["pairs"]
-        if nt["extra_pairs"]:
-            net_of = np.concatenate([net_of, np.array(nt["extra_net"], np.int64)])
-            pairs = pairs + nt["extra_pairs"]
-            order = np.argsort(net_of, kind="stable")
-            net_of = net_of[order]
-            pairs = [pairs[i] for i in order]
-        npins = len(pairs)
-        if npins:
-            pc, pp = map(list, zip(*pairs))
-        else:
-            pc, pp = [], []
+        nt = self.nets or dict(names=[], net_of=np.zeros(0, np.int64), pc=[], pp=[],
+                               weight=np.zeros(0), keep=np.zeros(0, bool), start=0, end=0)
+        net_of, pc, pp = nt["net_of"], nt["pc"], nt["pp"]
+        deg = np.zeros(len(nt["names"]))  # only its length (the number of nets) is used
+        npins = len(pc)
         keep_pin = nt["keep"][net_of] if npins else np.zeros(0, bool)
         ci = np.fromiter(map(comp_index.get, pc, repeat(-1)), np.int64, npins)
-        is_io = np.fromiter(map("PIN".__eq__, pc), bool, npins)
+        is_io = np.zeros(npins, bool)
+        if "PIN" in comp_index:  # a component named PIN: look at every connection
+            is_io[:] = np.fromiter(map("PIN".__eq__, pc), bool, npins)
+        else:
+            cand = np.flatnonzero(ci < 0)
+            is_io[cand[np.array([pc[i] == "PIN" for i in cand.tolist()], bool)]] = True
         io = np.flatnonzero(is_io)
         if len(io):
-            ci[io] = np.fromiter(map(term_index.get, (pp[i] for i in io), repeat(-1)), np.int64,
-                                 len(io))
+            ci[io] = np.fromiter(map(term_index.get, [pp[i] for i in io.tolist()], repeat(-1)),
+                                 np.int64, len(io))
         bad = np.flatnonzero((ci < 0) & keep_pin)
         if len(bad):
             j = int(bad[0])
@@ -1193,8 +1379,7 @@ class _Def:
         dy = np.zeros(npins)
         sel = np.flatnonzero(comp_pin)
         if len(sel):
-            pid = np.fromiter(map(pname_id.get, (pp[i] for i in sel), repeat(-1)), np.int64,
-                              len(sel))
+            pid = np.fromiter(map(pname_id.get, pp, repeat(-1)), np.int64, npins)[sel]
             key = cm[ci[sel]] * P + pid
             if len(tab):
                 pos = np.minimum(np.searchsorted(tab, key), len(tab) - 1)
