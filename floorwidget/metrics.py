@@ -66,6 +66,7 @@ __all__ = [
     "net_hpwl",
     "nets_hpwl",
     "peak_density",
+    "pin_positions",
     "rudy_map",
 ]
 
@@ -106,9 +107,30 @@ def _segment_bbox(px: np.ndarray, py: np.ndarray, starts: np.ndarray, deg: np.nd
     return out
 
 
+def pin_positions(design: Design, fp: Floorplan) -> tuple[np.ndarray, np.ndarray]:
+    """Absolute pin positions, as :meth:`Floorplan.pin_positions`, faster when most blocks are N.
+
+    Only the pins of blocks in another orientation go through :func:`orient_offsets`.
+    """
+    b = design.pin_block
+    w, h = fp.sizes()
+    cx, cy = (fp.x + w / 2)[b], (fp.y + h / 2)[b]
+    po = fp.orient[b]
+    turned = np.flatnonzero(po != 0)
+    if len(turned) == len(b):
+        ox, oy = orient_offsets(design.pin_dx, design.pin_dy, po)
+        return cx + ox, cy + oy
+    px, py = cx + design.pin_dx, cy + design.pin_dy
+    if len(turned):
+        ox, oy = orient_offsets(design.pin_dx[turned], design.pin_dy[turned], po[turned])
+        px[turned] = cx[turned] + ox
+        py[turned] = cy[turned] + oy
+    return px, py
+
+
 def net_boxes(design: Design, fp: Floorplan) -> np.ndarray:
     """Pin bounding box of every net as a ``(m, 4)`` array ``xlo, ylo, xhi, yhi`` (µm)."""
-    px, py = fp.pin_positions()
+    px, py = pin_positions(design, fp)
     st = design.net_start
     box = _segment_bbox(px, py, st[:-1], np.diff(st))
     return box.T.copy()
@@ -516,7 +538,10 @@ def rudy_map(design: Design, fp: Floorplan, grid: BinGrid | None = None) -> np.n
     routability-driven placement", DATE 2007.
     """
     grid = bin_grid(design) if grid is None else grid
-    box = net_boxes(design, fp)
+    return _rudy(grid, net_boxes(design, fp))
+
+
+def _rudy(grid: BinGrid, box: np.ndarray) -> np.ndarray:
     w = box[:, 2] - box[:, 0]
     h = box[:, 3] - box[:, 1]
     demand = w + h
@@ -672,9 +697,10 @@ def evaluate(design: Design, fp: Floorplan | None = None, target_density: float 
     """
     fp = design.initial if fp is None else fp
     grid = bin_grid(design, bin_size)
-    per = net_hpwl(design, fp)
+    box = net_boxes(design, fp)
+    per = (box[:, 2] - box[:, 0]) + (box[:, 3] - box[:, 1])
     dm = density_map(design, fp, grid)
-    peak, p99 = congestion_stats(rudy_map(design, fp, grid))
+    peak, p99 = congestion_stats(_rudy(grid, box))
     leg = legality(design, fp)
     return {
         "hpwl": float(per.sum()),

@@ -93,6 +93,9 @@ def test_nets_hpwl_subset_matches(demo_design):
     fp.x += rng.uniform(-500, 500, d.num_blocks)
     fp.y += rng.uniform(-500, 500, d.num_blocks)
     fp.orient[d.kind == MACRO] = rng.integers(0, 8, int((d.kind == MACRO).sum()))
+    px, py = M.pin_positions(d, fp)          # the fast path agrees with the Floorplan method
+    qx, qy = fp.pin_positions()
+    assert np.array_equal(px, qx) and np.array_equal(py, qy)
     full = M.net_hpwl(d, fp)
     nets = d.nets_of([d.block(d.macros[3])])
     np.testing.assert_allclose(M.nets_hpwl(d, fp, nets), full[nets])
