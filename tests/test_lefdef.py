@@ -344,6 +344,19 @@ def test_demo_json_to_def_lef_and_back(demo_design, tmp_path):
     assert hpwl(d2, f2) == pytest.approx(hpwl(d, fp), rel=1e-9)
 
 
+def test_save_writes_lef_beside_def_for_native_designs(demo_design, kestrel, tmp_path):
+    out = tmp_path / "native.def"
+    fw.save(demo_design, None, out)
+    assert (tmp_path / "native.lef").is_file()
+    back = fw.load(out)  # finds native.lef by the convention
+    assert back.initial.identical(read_def(out, lef=tmp_path / "native.lef").initial)
+    assert np.array_equal(back.initial.x, np.round(demo_design.initial.x * 2000) / 2000)
+    # a design read from DEF refers to its own LEF: no new LEF is written
+    out2 = tmp_path / "from_def.def"
+    fw.save(kestrel, None, out2)
+    assert not (tmp_path / "from_def.lef").exists()
+
+
 def test_write_lef_classes(demo_design, tmp_path):
     p = tmp_path / "demo.lef"
     write_lef(demo_design, p)
@@ -361,9 +374,9 @@ def test_writer_is_atomic_on_bad_names(kestrel, tmp_path):
                     d.net_start, d.pin_block, d.pin_dx, d.pin_dy, block_type=d.block_type,
                     pin_names=d.pin_names, net_names=d.net_names, dbu=d.dbu)
     with pytest.raises(DesignError, match="has space"):
-        write_def(bad, bad.initial, out)
+        write_def(bad, bad.initial, out)  # no lef_files: would write x.lef as well
     assert out.read_text() == "previous content\n"
-    assert sorted(p.name for p in tmp_path.iterdir()) == ["x.def"]
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["x.def"]  # and no x.lef either
 
 
 # ---------------------------------------------------------------------------------------------

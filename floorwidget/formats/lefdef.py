@@ -52,10 +52,11 @@ DEF 5.8 with integers in the design's database units (``round(v * dbu)``).  Macr
 soft clusters are all written as ``COMPONENTS`` (clusters with a ``CLASS BLOCK SOFT`` master), so
 that the netlist and its wirelength survive the round trip; ``FIXED`` for fixed and pinned
 blocks, ``PLACED`` otherwise; terminals as ``PINS``.  A design without a LEF of its own (from
-JSON or Bookshelf) is given one by :func:`write_lef`: one ``MACRO`` abstract per distinct master
-and geometry, pins as tiny rectangles at their offsets.  The convention for the pair is
-``y.lef`` beside ``y.def`` (:func:`lef_path_for`), which :func:`read_def` also picks up when no
-``lef=`` is given.
+JSON or Bookshelf) is given one (:func:`write_lef`: one ``MACRO`` abstract per distinct master
+and geometry, pins as tiny rectangles at their offsets), which :func:`write_def` writes by
+default beside the DEF.  The convention for the pair is ``y.lef`` beside ``y.def``
+(:func:`lef_path_for`), which :func:`read_def` also picks up when no ``lef=`` is given, so
+``fw.save(design, fp, "y.def")`` followed by ``fw.load("y.def")`` works for any design.
 
 References
 ----------
@@ -1528,7 +1529,9 @@ def read_def(path: str | Path, lef: str | Path | Sequence[str | Path] | None = N
         text = _COMMENT.sub("", text)
     r = _Def(str(path), text, lib)
     r.parse()
-    return r.design()
+    design = r.design()
+    design.lef_files = [str(p) for p in lef]  # the library the masters and pin names refer to
+    return design
 
 
 # ---------------------------------------------------------------------------------------------
@@ -1674,8 +1677,14 @@ def write_lef(design: Design, path: str | Path) -> None:
 
     Examples
     --------
-    >>> write_lef(design, "blk.lef"); write_def(design, fp, "blk.def")   # doctest: +SKIP
+    >>> write_lef(design, "blk.lef"); write_def(design, fp, "blk.def", lef=False)  # doctest: +SKIP
     """
+    text = _lef_text(design, path)
+    with atomic_write(path) as f:
+        f.write(text)
+
+
+def _lef_text(design: Design, path) -> str:
     d = design
     dbu = d.dbu
     ab = _abstracts(d)
@@ -1714,13 +1723,19 @@ def write_lef(design: Design, path: str | Path) -> None:
     if widened:
         warnings.warn(f"{path}: LEF SYMMETRY cannot state exactly the allowed orientations of "
                       f"{len(widened)} master(s), e.g. {widened[0]!r}; wrote the smallest "
-                      f"symmetry that contains them", LefDefWarning, stacklevel=2)
-    with atomic_write(path) as f:
-        f.write("\n".join(out) + "\n")
+                      f"symmetry that contains them", LefDefWarning, stacklevel=3)
+    return "\n".join(out) + "\n"
 
 
-def write_def(design: Design, fp: Floorplan, path: str | Path) -> None:
+def write_def(design: Design, fp: Floorplan, path: str | Path, *,
+              lef: bool | str | Path | None = None) -> None:
     """Write ``fp`` as DEF 5.8, atomically, with integers in ``design.dbu`` units.
+
+    A design that was not read from DEF and LEF (``design.lef_files`` unset: native JSON,
+    Bookshelf) has no library to go with the DEF, so by default its LEF abstracts are written
+    too, to ``y.lef`` beside ``y.def`` (:func:`lef_path_for`); ``lef=False`` never writes one,
+    ``lef=True`` always does, and a path names the LEF.  Both texts are built and checked
+    before either file is touched.
 
     Components: every macro, cell and soft cluster (``+ FIXED`` when fixed or pinned, pinned
     ones with ``+ PROPERTY FW_STATUS PINNED``; ``+ PLACED`` otherwise; ``+ HALO`` when set);
@@ -1734,11 +1749,26 @@ def write_def(design: Design, fp: Floorplan, path: str | Path) -> None:
         The placement to write (of ``design``).
     path : path
         Output ``.def``.
+    lef : bool or path, optional
+        Whether (or where) to write the LEF abstracts as well; see above.
 
     Examples
     --------
     >>> write_def(design, fp, "blk_placed.def")                # doctest: +SKIP
     """
+    if lef is None:
+        lef = not getattr(design, "lef_files", None)
+    lef_path = None if lef is False else (lef_path_for(path) if lef is True else Path(lef))
+    lef_text = _lef_text(design, lef_path) if lef_path is not None else None
+    text = _def_text(design, fp, path)
+    if lef_path is not None:
+        with atomic_write(lef_path) as f:
+            f.write(lef_text)
+    with atomic_write(path) as f:
+        f.write(text)
+
+
+def _def_text(design: Design, fp: Floorplan, path) -> str:
     d = design
     dbu = d.dbu
     if fp.design is not d:
@@ -1834,22 +1864,21 @@ def write_def(design: Design, fp: Floorplan, path: str | Path) -> None:
     out.append("END NETS")
     out.append("")
     out.append("END DESIGN")
-    with atomic_write(path) as f:
-        f.write("\n".join(out) + "\n")
+    return "\n".join(out) + "\n"
 
 
 def write_def_pair(design: Design, fp: Floorplan, def_path: str | Path,
                    lef_path: str | Path | None = None) -> tuple[Path, Path]:
     """Write ``def_path`` and its LEF abstracts (default ``y.lef`` beside ``y.def``).
 
-    The LEF is written first; each file is atomic.  :func:`read_def` on ``def_path`` with no
-    ``lef=`` finds the LEF by the same convention.
+    Both texts are built and checked first, then the LEF and the DEF are written, each
+    atomically.  :func:`read_def` on ``def_path`` with no ``lef=`` finds the LEF by the same
+    convention.
 
     Returns
     -------
     (def_path, lef_path)
     """
     lp = lef_path_for(def_path) if lef_path is None else Path(lef_path)
-    write_lef(design, lp)
-    write_def(design, fp, def_path)
+    write_def(design, fp, def_path, lef=lp)
     return Path(def_path), lp
