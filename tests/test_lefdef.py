@@ -113,6 +113,15 @@ def test_lef_unknown_statement_warns_once(tmp_path):
     assert lib.macros["b1"].width == 10
 
 
+def test_lef_pin_beyond_edge_is_moved_onto_it(tmp_path):
+    p = tmp_path / "edge.lef"
+    p.write_text("MACRO b1\n  CLASS BLOCK ;\n  SIZE 10 BY 10 ;\n  PIN Z\n    PORT\n"
+                 "      LAYER m1 ;\n      RECT 9 4 13 6 ;\n    END\n  END Z\nEND b1\n")
+    with pytest.warns(LefDefWarning, match="outside its MACRO"):
+        lib = read_lef(p)
+    assert lib.macros["b1"].pins["Z"] == (5.0, 0.0)  # centre (11, 5) -> edge x = 10
+
+
 @pytest.mark.parametrize("text, needle, words", [
     ("MACRO b1\n  CLASS BLOCK ;\n  SIZE 1x0 BY 10 ;\nEND b1\n", "SIZE 1x0", "bad number"),
     ("MACRO b1\n  CLASS BLOCK ;\n  SIZE 10 BY 10 ;\nEND b2\n", "END b2", "does not close"),

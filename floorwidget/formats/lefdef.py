@@ -435,8 +435,19 @@ def _read_macro(tk: _Tokens, start: int) -> LefMacro:
     m.allowed = symmetry_orientations(m.symmetry)
     # pins: footprint-relative point = LEF point + ORIGIN; offset from the centre
     ox, oy = m.origin
-    m.pins = {p: (np.nan, np.nan) if c is None else
-              (c[0] + ox - size[0] / 2, c[1] + oy - size[1] / 2) for p, c in m.pins.items()}
+    hw, hh = size[0] / 2, size[1] / 2
+    pins = {}
+    for p, c in m.pins.items():
+        if c is None:
+            pins[p] = (np.nan, np.nan)
+            continue
+        dx, dy = c[0] + ox - hw, c[1] + oy - hh
+        if m.kind != TERMINAL and (abs(dx) > hw + 1e-9 or abs(dy) > hh + 1e-9):
+            # a pin shape centred beyond the macro edge: moved onto the edge (and counted)
+            tk.skipped["PIN centre outside its MACRO, moved to the edge"] += 1
+            dx, dy = min(max(dx, -hw), hw), min(max(dy, -hh), hh)
+        pins[p] = (dx, dy)
+    m.pins = pins
     return m
 
 
