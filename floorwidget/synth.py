@@ -269,8 +269,9 @@ def rent_design(num_cells: int, *, rent_exponent: float = 0.6, avg_pins: float =
         more = np.concatenate(extra_starts)
         net_start = np.concatenate([net_start, P + np.cumsum(more)])
     pin_block = np.concatenate(pin_block)
-    pin_dx = np.concatenate(pin_dx)
-    pin_dy = np.concatenate(pin_dy)
+    # geometry on a 1 nm grid (a DEF-like database unit; short numbers in written files)
+    pin_dx = np.round(np.concatenate(pin_dx), 3)
+    pin_dy = np.round(np.concatenate(pin_dy), 3)
 
     # terminals spread evenly along the perimeter, anticlockwise from the lower-left corner
     s = (np.arange(T) + 0.5) / max(T, 1) * 2 * (W + H)
@@ -283,10 +284,12 @@ def rent_design(num_cells: int, *, rent_exponent: float = 0.6, avg_pins: float =
     height = np.concatenate([ch, mh, np.zeros(T)])
     names = ([f"c{i}" for i in range(N)] + [f"m{i}" for i in range(M)]
              + [f"io{i}" for i in range(T)])
-    x = np.concatenate([W / 2 - width[:N + M] / 2, tx])
-    y = np.concatenate([H / 2 - height[:N + M] / 2, ty])
+    width, height = np.round(width, 3), np.round(height, 3)
+    W, H = round(W, 3), round(H, 3)
+    x = np.round(np.concatenate([W / 2 - width[:N + M] / 2, tx]), 3)
+    y = np.round(np.concatenate([H / 2 - height[:N + M] / 2, ty]), 3)
     status = np.concatenate([np.full(N + M, MOVABLE), np.full(T, FIXED)]).astype(np.int8)
-    rows = {"x": np.zeros(nrows), "y": np.arange(nrows) * ROW_HEIGHT,
+    rows = {"x": np.zeros(nrows), "y": np.round(np.arange(nrows) * ROW_HEIGHT, 3),
             "height": np.full(nrows, ROW_HEIGHT), "site_width": np.full(nrows, SITE_WIDTH),
             "num_sites": np.full(nrows, nsites), "orient": np.where(np.arange(nrows) % 2, 5, 0)}
     assert len(kind) == n

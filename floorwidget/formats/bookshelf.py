@@ -69,6 +69,8 @@ _COMMENT = re.compile(rb"#[^\n]*")
 _FNV_OFFSET = np.uint64(0xCBF29CE484222325)
 _FNV_PRIME = np.uint64(0x100000001B3)
 _MAX_NUMBER_LEN = 64
+_POW10 = 10 ** np.arange(19, dtype=np.int64)
+_POW10F = np.array([float(10**k) for k in range(23)])  # exact
 
 
 # ---------------------------------------------------------------------------------------------
@@ -87,45 +89,73 @@ class _Tokens:
         if text is None:
             text = read_text(path)
         data = text.encode("utf-8")
-        if b"#" in data:  # blank out comments, keeping every byte offset
+        del text
+        hashes = data.count(b"#")
+        if hashes > 10000:  # blank out comments, keeping every byte offset
             data = _COMMENT.sub(lambda m: b" " * len(m.group()), data)
+        elif hashes:
+            arr = bytearray(data)
+            pos = data.find(b"#")
+            while pos >= 0:
+                end = data.find(b"\n", pos)
+                end = len(data) if end < 0 else end
+                arr[pos:end] = b" " * (end - pos)
+                pos = data.find(b"#", end)
+            data = bytes(arr)
         self.data = data
         buf = np.frombuffer(data, np.uint8)
         self.buf = buf
         itype = np.int32 if len(buf) < 2**31 - 2 else np.int64
         colon = buf == 58
-        tc = (buf > 32) & ~colon
+        tc = buf > 32
+        tc &= ~colon
         st = tc.copy()
         st[1:] &= ~tc[:-1]
         st |= colon
         self.start = np.flatnonzero(st).astype(itype)
         del st
-        en = tc.copy()
+        en = tc
         en[:-1] &= ~tc[1:]
         en |= colon
-        del tc, colon
+        del colon
         self.length = (np.flatnonzero(en).astype(itype) + 1 - self.start).astype(itype)
-        del en
+        del en, tc
         nl = np.flatnonzero(buf == 10)
         self.num_lines = len(nl) + (0 if data.endswith(b"\n") else 1)
-        self.line = (np.searchsorted(nl, self.start) + 1).astype(itype)
-        del nl
         ntok = len(self.start)
-        first = np.ones(ntok, bool)
-        if ntok:
-            first[1:] = self.line[1:] != self.line[:-1]
-        self.ls = np.flatnonzero(first).astype(itype)
+        # the first token after each newline starts a line; its line is one past the last
+        # newline before it (a run of blank lines maps to one token)
+        f = np.searchsorted(self.start, nl)
+        last = np.flatnonzero(np.diff(np.append(f, ntok + 1)) != 0)
+        first_tok, first_line = f[last], last + 2
+        keep = first_tok < ntok
+        first_tok, first_line = first_tok[keep], first_line[keep]
+        if ntok and (not len(first_tok) or first_tok[0] != 0):
+            first_tok = np.concatenate([[0], first_tok])
+            first_line = np.concatenate([[1], first_line])
+        del nl, f
+        self.ls = first_tok.astype(itype)
         self.lc = np.diff(np.append(self.ls, ntok)).astype(itype)
-        self.lline = self.line[self.ls]
+        self.lline = first_line.astype(itype)
+        self._ls_all, self._lline_all = self.ls, self.lline
         self.header_skipped = False
         # skip the ``UCLA <kind> 1.0`` header when it is the first statement
         if len(self.ls) and self.eq(self.ls[:1], b"UCLA")[0]:
             self.ls, self.lc, self.lline = self.ls[1:], self.lc[1:], self.lline[1:]
             self.header_skipped = True
 
+    def line_of(self, i) -> int:
+        """Line number of token ``i`` (looked up only when reporting an error)."""
+        k = int(np.searchsorted(self._ls_all, int(i), side="right")) - 1
+        return int(self._lline_all[k])
+
     # --- errors ------------------------------------------------------------------------------
     def fail(self, line, msg: str):
         raise DesignError(msg, file=self.path, line=None if line is None else int(line))
+
+    def words(self) -> list[str]:
+        """Every token as a str (for the small files read line by line)."""
+        return self.names(np.arange(len(self.start)))
 
     def text(self, i) -> str:
         i = int(i)
@@ -151,35 +181,96 @@ class _Tokens:
         return res
 
     def floats(self, idx, what: str = "number") -> np.ndarray:
-        """Tokens ``idx`` as finite float64 (an error names the line of the first bad one)."""
+        """Tokens ``idx`` as finite float64 (an error names the line of the first bad one).
+
+        Plain decimals of at most 15 digits (``-12.375``) are converted by integer arithmetic
+        over the bytes: the digits as an exact integer divided by an exact power of ten, which
+        IEEE division rounds correctly (the fast path of Clinger, "How to read floating point
+        numbers accurately", PLDI 1990).  Anything else (exponents, long mantissas, ``nan``)
+        goes through numpy's string-to-float conversion.
+        """
         idx = np.asarray(idx)
         k = len(idx)
+        out = np.empty(k)
         if k == 0:
-            return np.zeros(0)
+            return out
         L = self.length[idx]
         long = np.flatnonzero(L > _MAX_NUMBER_LEN)
         if len(long):
             i = idx[long[0]]
-            self.fail(self.line[i], f"{what}: {self.text(i)[:40]!r} is not a number")
-        W = int(L.max())
-        mat = np.zeros((k, W), np.uint8)
-        s = self.start[idx]
-        act = np.arange(k)
-        for j in range(W):
-            mat[act, j] = self.buf[s[act] + j]
-            act = act[L[act] > j + 1]
-        arr = mat.view(f"S{W}").reshape(k)
-        try:
-            v = arr.astype(np.float64)
-        except ValueError:
-            v = None
-        if v is None:
-            self._bad_number(idx, arr, what)
-        bad = ~np.isfinite(v)
+            self.fail(self.line_of(i), f"{what}: {self.text(i)[:40]!r} is not a number")
+        slow = np.zeros(k, bool)
+        step = 1 << 20
+        for c0 in range(0, k, step):  # chunks bound the temporary arrays, not a loop per token
+            sl = slice(c0, min(k, c0 + step))
+            out[sl], slow[sl] = self._decimals(idx[sl])
+        rest = np.flatnonzero(slow)
+        if len(rest):
+            out[rest] = self._floats_numpy(idx[rest], what)
+        bad = ~np.isfinite(out)
         if bad.any():
             i = idx[np.flatnonzero(bad)[0]]
-            self.fail(self.line[i], f"{what}: {self.text(i)!r} is not a finite number")
-        return v
+            self.fail(self.line_of(i), f"{what}: {self.text(i)!r} is not a finite number")
+        return out
+
+    def _decimals(self, idx) -> tuple[np.ndarray, np.ndarray]:
+        """(values, needs-the-slow-path mask) for tokens ``idx`` by the exact fast path.
+
+        Byte columns left to right over the tokens sorted by length (Horner's rule on the
+        digits), so each step works on a prefix slice and no per-byte index arrays are built.
+        """
+        k = len(idx)
+        L = self.length[idx]
+        order, cnt = _by_length(L, int(L.max()))
+        s = self.start[idx][order]
+        m = np.zeros(k, np.int64)
+        nd = np.zeros(k, np.int16)
+        frac = np.zeros(k, np.int16)
+        ndot = np.zeros(k, np.int16)
+        seen = np.zeros(k, bool)
+        bad = np.zeros(k, bool)
+        neg = np.zeros(k, bool)
+        for j, c in enumerate(cnt.tolist()):
+            by = self.buf[s[:c] + j]
+            d = by - np.uint8(48)
+            isd = d < 10
+            isdot = by == 46
+            if j == 0:
+                neg = by == 45
+                bad |= ~(isd | isdot | neg | (by == 43))
+            else:
+                bad[:c] |= ~(isd | isdot)
+            mc = m[:c]
+            np.copyto(mc, mc * 10 + d, where=isd)
+            nd[:c] += isd
+            frac[:c] += isd & seen[:c]
+            seen[:c] |= isdot
+            ndot[:c] += isdot
+        fast = ~bad & (ndot <= 1) & (nd >= 1) & (nd <= 15)
+        v = m / _POW10F[np.minimum(frac, 22)]
+        v[neg] *= -1.0
+        out = np.empty(k)
+        out[order] = v
+        slow = np.empty(k, bool)
+        slow[order] = ~fast
+        return out, slow
+
+    def _floats_numpy(self, idx, what) -> np.ndarray:
+        k = len(idx)
+        L = self.length[idx]
+        W = int(L.max())
+        order, cnt = _by_length(L, W)
+        s = self.start[idx][order]
+        mat = np.zeros((k, W), np.uint8)
+        for j, c in enumerate(cnt.tolist()):  # byte columns, longest tokens first
+            mat[:c, j] = self.buf[s[:c] + j]
+        arr = mat.view(f"S{W}").reshape(k)
+        out = np.empty(k)
+        try:
+            out[order] = arr.astype(np.float64)
+        except ValueError:
+            self._bad_number(idx[order], arr, what)
+        return out
 
     def _bad_number(self, idx, arr, what):
         chunk = 4096
@@ -194,16 +285,16 @@ class _Tokens:
                     np.array(arr[j:j + 1]).astype(np.float64)
                 except ValueError:
                     i = idx[j]
-                    self.fail(self.line[i], f"{what}: {self.text(i)[:40]!r} is not a number")
+                    self.fail(self.line_of(i), f"{what}: {self.text(i)[:40]!r} is not a number")
         i = idx[0]  # pragma: no cover - astype failed on the whole but on no chunk
-        self.fail(self.line[i], f"{what}: not a number")
+        self.fail(self.line_of(i), f"{what}: not a number")
 
     def ints(self, idx, what: str, minimum: int = 0) -> np.ndarray:
         v = self.floats(idx, what)
         bad = (v != np.round(v)) | (v < minimum) | (v > 2**62)
         if bad.any():
             i = idx[np.flatnonzero(bad)[0]]
-            self.fail(self.line[i], f"{what}: expected a whole number >= {minimum}, "
+            self.fail(self.line_of(i), f"{what}: expected a whole number >= {minimum}, "
                                     f"got {self.text(i)!r}")
         return v.astype(np.int64)
 
@@ -225,31 +316,44 @@ class _Tokens:
     def hash(self, idx) -> np.ndarray:
         """64-bit FNV-1a hash of tokens ``idx`` (vectorised, byte column by byte column)."""
         idx = np.asarray(idx)
-        h = np.full(len(idx), _FNV_OFFSET, np.uint64)
         L = self.length[idx]
-        s = self.start[idx]
-        act = np.arange(len(idx))
-        j = 0
-        while len(act):
-            h[act] = (h[act] ^ self.buf[s[act] + j].astype(np.uint64)) * _FNV_PRIME
-            j += 1
-            act = act[L[act] > j]
-        return (h ^ L.astype(np.uint64)) * _FNV_PRIME
+        k = len(idx)
+        h = np.full(k, _FNV_OFFSET, np.uint64)
+        if k == 0:
+            return h
+        order, cnt = _by_length(L, int(L.max()))
+        s = self.start[idx][order].astype(np.int64)
+        for j, c in enumerate(cnt.tolist()):  # columns over the tokens at least j+1 long
+            h[:c] ^= self.buf[s[:c] + j]
+            h[:c] *= _FNV_PRIME
+        out = np.empty(k, np.uint64)
+        out[order] = (h ^ L[order].astype(np.uint64)) * _FNV_PRIME
+        return out
+
+
+def _by_length(L: np.ndarray, W: int) -> tuple[np.ndarray, np.ndarray]:
+    """Order of tokens by decreasing length and, per byte column j, how many are longer than j."""
+    key = (W - L).astype(np.int16 if W < 32000 else np.int64)
+    order = np.argsort(key, kind="stable")
+    Ls = L[order]
+    cnt = np.searchsorted(-Ls, -np.arange(W), side="left")
+    return order, cnt
 
 
 def _same(ta: _Tokens, ia, tb: _Tokens, ib) -> np.ndarray:
     """Mask: token ``ia[k]`` of ``ta`` equals token ``ib[k]`` of ``tb`` byte for byte."""
+    ia, ib = np.asarray(ia), np.asarray(ib)
     la, lb = ta.length[ia], tb.length[ib]
     ok = la == lb
-    act = np.flatnonzero(ok)
-    sa, sb = ta.start[ia], tb.start[ib]
-    j = 0
-    while len(act):
-        diff = ta.buf[sa[act] + j] != tb.buf[sb[act] + j]
-        ok[act[diff]] = False
-        j += 1
-        act = act[~diff]
-        act = act[la[act] > j]
+    if not len(ia):
+        return ok
+    order, cnt = _by_length(la, int(la.max()))
+    sa = ta.start[ia][order].astype(np.int64)
+    sb = tb.start[ib][order].astype(np.int64)
+    oks = ok[order]
+    for j, c in enumerate(cnt.tolist()):
+        oks[:c] &= ta.buf[sa[:c] + j] == tb.buf[np.minimum(sb[:c] + j, len(tb.buf) - 1)]
+    ok[order] = oks
     return ok
 
 
@@ -271,7 +375,7 @@ class _NameTable:
                 later = np.maximum(a, b)[same]
                 k = int(later.min())
                 i = self.idx[k]
-                tok.fail(tok.line[i], f"duplicate {what} name {tok.text(i)!r}")
+                tok.fail(tok.line_of(i), f"duplicate {what} name {tok.text(i)!r}")
             # a true 64-bit hash collision: exact dictionary instead (practically never)
             self.fallback = {nm: i for i, nm in enumerate(tok.names(self.idx))}
 
@@ -524,9 +628,9 @@ def _read_scl(path) -> dict:
             t.fail(ln, f"{key} must be positive, got {tok}")
         return v
 
-    for k in range(len(t.ls)):
-        ln = int(t.lline[k])
-        toks = [t.text(i) for i in range(int(t.ls[k]), int(t.ls[k] + t.lc[k]))]
+    words = t.words()
+    for ls_, lc_, ln in zip(t.ls.tolist(), t.lc.tolist(), t.lline.tolist()):
+        toks = words[ls_:ls_ + lc_]
         head = toks[0].lower()
         if cur is None:
             if head == "numrows":
