@@ -159,10 +159,20 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
         if data is not None:
             data = np.ma.masked_less_equal(data, 1e-9)
     image = None
+    vmax = 1.0
+    if data is not None and heat is not None:
+        # empty bins stay white; the colour range stops at the 99th percentile of the rest (or
+        # 1.0 for utilisation, "exactly full") so one hot spot does not wash out the map
+        data = np.ma.masked_less_equal(data, 1e-9)
+        filled = data.compressed()
+        vmax = float(np.percentile(filled, 99)) if filled.size else 1.0
+        if heat == "density":
+            vmax = max(vmax, 1.0)
+        vmax = vmax if vmax > 0 else 1.0
     if data is not None:
         image = ax.imshow(data.T, origin="lower", extent=extent, cmap=cmap, zorder=0,
-                          interpolation="nearest", alpha=0.9 if heat else 0.75,
-                          vmin=0.0, vmax=None if heat else 1.0)
+                          interpolation="nearest", alpha=0.85 if heat else 0.75,
+                          vmin=0.0, vmax=vmax)
         image.set_gid("raster")
 
     # --- outlines and blockages ----------------------------------------------------------
@@ -283,8 +293,9 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
     ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(1.02, 1.0), fontsize=7,
               frameon=False, borderaxespad=0.0)
     if image is not None and heat is not None:
+        over = float(data.max()) > vmax if data.count() else False
         cb = fig.colorbar(image, ax=ax, shrink=0.45, pad=0.02, anchor=(0.0, 0.0),
-                          location="right")
+                          location="right", extend="max" if over else "neither")
         cb.set_label(raster_label, fontsize=7)
         cb.ax.tick_params(labelsize=6)
 
