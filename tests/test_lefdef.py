@@ -448,6 +448,12 @@ def test_comments_and_loose_spacing(tmp_path):
     assert d.initial.identical(read_def(DEF, lef=LEFS).initial)
 
 
+def test_global_and_mustjoin_connections_skipped(tmp_path, kestrel):
+    p = _broken(tmp_path, "NETS 4 ;\n", "NETS 6 ;\n- vss ( * VSS ) ;\n- MUSTJOIN ( u_ram0 A ) ;\n")
+    d = read_def(p, lef=LEFS)
+    assert d.net_names == kestrel.net_names and np.array_equal(d.pin_block, kestrel.pin_block)
+
+
 def test_unknown_def_statement_warns(tmp_path):
     p = _broken(tmp_path, "DIEAREA", "REGIONS 1 ;\n- rg ( 0 0 ) ( 10 10 ) ;\nEND REGIONS\nDIEAREA")
     with pytest.warns(LefDefWarning, match="REGIONS x1"):

@@ -545,7 +545,7 @@ _QUIET_SKIPS = {
     # DEF routing content
     "TRACKS", "GCELLGRID", "VIAS", "SPECIALNETS", "STYLES", "NONDEFAULTRULES", "FILLS",
     "SLOTS", "PINPROPERTIES", "SCANCHAINS", "COMPONENTMASKSHIFT", "BLOCKAGES LAYER",
-    "NETS MUSTJOIN", "COMPONENTS +SOURCE", "COMPONENTS +WEIGHT", "COMPONENTS +MASKSHIFT",
+    "NETS MUSTJOIN", "NETS ( * pin )", "COMPONENTS +SOURCE", "COMPONENTS +WEIGHT", "COMPONENTS +MASKSHIFT",
     "COMPONENTS +ROUTEHALO", "COMPONENTS +EEQMASTER", "COMPONENTS +GENERATE",
 }
 
@@ -1366,6 +1366,14 @@ class _Def:
         if len(io):
             ci[io] = np.fromiter(map(term_index.get, [pp[i] for i in io.tolist()], repeat(-1)),
                                  np.int64, len(io))
+        # "( * pin )": a connection to that pin of every component (global nets): skipped
+        cand = np.flatnonzero((ci < 0) & ~is_io)
+        star = np.zeros(npins, bool)
+        if len(cand):
+            star[cand[np.array([pc[i] == "*" for i in cand.tolist()], bool)]] = True
+            if star.any():
+                self.skipped["NETS ( * pin )"] += int(star.sum())
+                keep_pin = keep_pin & ~star
         bad = np.flatnonzero((ci < 0) & keep_pin)
         if len(bad):
             j = int(bad[0])
@@ -1411,9 +1419,9 @@ class _Def:
             dx[sel[ok]] = kdx_a[pos[ok]]
             dy[sel[ok]] = kdy_a[pos[ok]]
         # keep nets with pins (drop MUSTJOIN and empty ones)
-        net_keep = nt["keep"] & (np.bincount(net_of, minlength=len(deg)) > 0) if len(deg) else \
-            np.zeros(0, bool)
-        pin_keep = net_keep[net_of] if npins else np.zeros(0, bool)
+        net_keep = nt["keep"] & (np.bincount(net_of[keep_pin], minlength=len(deg)) > 0) \
+            if len(deg) else np.zeros(0, bool)
+        pin_keep = (net_keep[net_of] & keep_pin) if npins else np.zeros(0, bool)
         pcanon = {p: p for p in pname_id}
         pin_names = list(map(pcanon.get, pp, pp))
         if not pin_keep.all():
