@@ -67,8 +67,7 @@ def test_serial_matches_direct_place(demo_design, serial):
     assert not serial[0].floorplan.identical(serial[2].floorplan)
 
 
-def test_default_pool_and_dask_cluster_match_serial(demo_design, serial):
-    distributed = pytest.importorskip("distributed")
+def test_default_process_pool_matches_serial(demo_design, serial):
     seen = []
     pooled = sweep(demo_design, GRID, progress=lambda d, t, r: seen.append((d, t, r.index)),
                    **FAST)
@@ -76,6 +75,9 @@ def test_default_pool_and_dask_cluster_match_serial(demo_design, serial):
     assert [d for d, _, _ in seen] == [1, 2, 3, 4] and {t for _, t, _ in seen} == {4}
     assert sorted(i for _, _, i in seen) == [0, 1, 2, 3]
 
+
+def test_dask_local_cluster_matches_serial(demo_design, serial):
+    distributed = pytest.importorskip("distributed")
     with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
                                   dashboard_address=None) as cluster, \
             distributed.Client(cluster) as client:
