@@ -150,7 +150,10 @@ def save_session(session: Session, path) -> None:
         raise DesignError("cannot save a session in the middle of a batch", file=str(path))
     p = Path(path)
     try:
-        text = json.dumps(session_document(session, p), allow_nan=False, indent=1)
+        # one top-level key per line (readable, diff-friendly) with the fast compact encoder
+        doc = session_document(session, p)
+        text = "{\n" + ",\n".join(f"{json.dumps(k)}: {json.dumps(v, allow_nan=False)}"
+                                   for k, v in doc.items()) + "\n}"
     except (TypeError, ValueError) as e:
         raise DesignError(f"cannot write the session: {e}", file=str(p)) from None
     with atomic_write(p) as f:
@@ -198,9 +201,8 @@ class _Doc:
         v = self.lst(v, where)
         if n is not None and len(v) != n:
             self.fail(where, f"expected {n} numbers, got {len(v)}")
-        if not all(isinstance(e, (int, float)) and not isinstance(e, bool) for e in v):
-            k = next(i for i, e in enumerate(v)
-                     if isinstance(e, bool) or not isinstance(e, (int, float)))
+        if not set(map(type, v)) <= {int, float}:
+            k = next(i for i, e in enumerate(v) if type(e) not in (int, float))
             self.fail(f"{where}[{k}]", f"expected a number, got {v[k]!r}")
         a = np.array(v, dtype=np.float64)
         if not np.isfinite(a).all():
@@ -212,10 +214,12 @@ class _Doc:
         v = self.lst(v, where)
         if n is not None and len(v) != n:
             self.fail(where, f"expected {n} codes, got {len(v)}")
-        for k, e in enumerate(v):
-            if isinstance(e, bool) or not isinstance(e, int) or not 0 <= e < hi:
-                self.fail(f"{where}[{k}]", f"expected a code 0..{hi - 1}, got {e!r}")
-        return np.array(v, dtype=np.int8)
+        ok = set(map(type, v)) <= {int}
+        a = np.array(v, dtype=np.int64) if ok else None
+        if a is None or ((a < 0) | (a >= hi)).any():
+            k = next(i for i, e in enumerate(v) if type(e) is not int or not 0 <= e < hi)
+            self.fail(f"{where}[{k}]", f"expected a code 0..{hi - 1}, got {v[k]!r}")
+        return a.astype(np.int8)
 
     def fp_arrays(self, v, n: int | None, where: str):
         self.obj(v, where)

@@ -519,3 +519,18 @@ def test_background_placer_result_discarded_when_floorplan_changed(s, names, mon
     go.set()
     s.place(seed=0)
     assert s.history == ["move", "place"]
+
+
+def test_local_orientation_maps_agree_with_placer_orient():
+    """The session's fallback maps (built from design.orient_offsets) and placer.orient agree
+    for every orientation and every allowed-set bitmask."""
+    orient = pytest.importorskip("floorwidget.placer.orient")
+    from floorwidget.session import _fallback_flipped, _fallback_rotated, _next_orientation
+
+    for code in range(8):
+        for mask in range(1, 256):
+            r, f = orient.rotated(code, mask), orient.flipped(code, mask)
+            lr, lf = _fallback_rotated(code, mask), _fallback_flipped(code, mask)
+            assert (r if r != code else None) == (lr if lr != code else None)
+            assert (f if f != code else None) == (lf if lf != code else None)
+            assert _next_orientation("rotate", code, mask) == (r if r != code else None)

@@ -1,0 +1,114 @@
+"""Session speed and history memory: hand edits, undo/redo, batches, files, scripts.
+
+``python benchmarks/bench_session.py [--quick]`` prints one table per design: the demo design
+and a synthetic one with many blocks (100 macros plus soft blocks; ``--quick`` keeps it small).
+Times are medians over repeats (the machine is shared and noisy); the memory column is the size
+of the undo record kept per step.  Placer and metrics calls are benchmarked by their own areas.
+"""
+
+from __future__ import annotations
+
+import statistics
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+
+ROOT = Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(ROOT))
+
+import floorwidget as fw  # noqa: E402
+from floorwidget.design import CLUSTER, MACRO, Design  # noqa: E402
+from floorwidget.session import Session  # noqa: E402
+
+
+def synthetic(n_soft: int, n_macros: int = 100, seed: int = 0) -> Design:
+    rng = np.random.default_rng(seed)
+    n = n_macros + n_soft
+    side = float(np.sqrt(n) * 20.0 + 2000.0)
+    kind = np.full(n, CLUSTER, np.int8)
+    kind[:n_macros] = MACRO
+    w = np.where(kind == MACRO, rng.uniform(50, 200, n), 4.0)
+    h = np.where(kind == MACRO, rng.uniform(50, 200, n), 4.0)
+    m = n  # two-pin nets
+    pin_block = rng.integers(0, n, 2 * m)
+    pin_block[1::2] = (pin_block[::2] + 1 + rng.integers(0, n - 1, m)) % n
+    return Design("synthetic", (0, 0, side, side), [f"b{i}" for i in range(n)], kind, w, h,
+                  np.arange(0, 2 * m + 1, 2), pin_block, np.zeros(2 * m), np.zeros(2 * m),
+                  grid_pitch=(1.0, 1.0), x=rng.uniform(0, side - 200, n),
+                  y=rng.uniform(0, side - 200, n), validate=False, source=None)
+
+
+def median_ms(fn, repeats: int) -> float:
+    ts = []
+    for _ in range(repeats):
+        t0 = time.perf_counter()
+        fn()
+        ts.append((time.perf_counter() - t0) * 1e3)
+    return statistics.median(ts)
+
+
+def bench(design: Design, repeats: int) -> list[tuple[str, str, str]]:
+    s = Session(design)
+    macros = design.macros
+    rng = np.random.default_rng(1)
+    pts = rng.uniform(0, float(design.core[2]) * 0.8, (repeats * 4, 2))
+    k = iter(range(len(pts)))
+
+    def move():
+        j = next(k)
+        s.move(macros[j % len(macros)], *pts[j])
+
+    rows = []
+    t = median_ms(move, repeats)
+    step = s._undo[-1]
+    step_bytes = sum(a.nbytes for a in step.old + step.new) + step.idx.nbytes
+    rows.append(("move (snap, clamp, record)", f"{t:.3f}", f"{step_bytes} B/step"))
+    rows.append(("undo", f"{median_ms(s.undo, repeats):.3f}", ""))
+    rows.append(("redo", f"{median_ms(s.redo, repeats):.3f}", ""))
+
+    def drag():
+        j = next(k)
+        nm = macros[j % len(macros)]
+        with s.batch("drag"):
+            s.move(nm, *pts[j])
+            s.pin(nm)
+
+    rows.append(("batch: move + pin", f"{median_ms(drag, repeats):.3f}", ""))
+    rows.append(("rotate", f"{median_ms(lambda: s.rotate(macros[0]), repeats):.3f}", ""))
+    fp_bytes = sum(a.nbytes for a in (s.floorplan.x, s.floorplan.y, s.floorplan.orient,
+                                      s.floorplan.status))
+    rows.append(("floorplan copy (full state)", f"{median_ms(s.floorplan.copy, repeats):.3f}",
+                 f"{fp_bytes} B"))
+    with tempfile.TemporaryDirectory() as tmp:
+        p = Path(tmp) / "s.json"
+        s._reports.clear()
+        rows.append(("save session file", f"{median_ms(lambda: s.save(p), 3):.1f}",
+                     f"{p.stat().st_size} B file"))
+        rows.append(("load session file",
+                     f"{median_ms(lambda: Session.load(p, design=design), 3):.1f}", ""))
+    if design.source:
+        rows.append(("script()", f"{median_ms(s.script, 3):.1f}",
+                     f"{len(s.script())} chars, {len(s.log)} log entries"))
+    return rows
+
+
+def main(argv: list[str]) -> int:
+    quick = "--quick" in argv
+    repeats = 20 if quick else 200
+    designs = [("demo heron_dsp", fw.load(ROOT / "demo_data" / "heron_dsp.json")),
+               ("synthetic", synthetic(20_000 if quick else 200_000))]
+    for label, d in designs:
+        print(f"\n{label}: {d.num_blocks} blocks ({len(d.macros)} macros), "
+              f"median of {repeats} (files: 3)")
+        print(f"{'operation':<30} {'ms':>10}  memory")
+        print("-" * 64)
+        for op, ms, mem in bench(d, repeats):
+            print(f"{op:<30} {ms:>10}  {mem}")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main(sys.argv[1:]))
