@@ -347,3 +347,22 @@ def test_evaluate_report_keys(demo_design):
     assert rep["hpwl"] == pytest.approx(M.hpwl(demo_design, demo_design.initial))
     # every movable block starts at the core centre: a pile-up, so not legal and overflowing
     assert rep["macro_overlaps"] > 0 and not rep["legal"] and rep["density_overflow"] > 0.5
+
+
+def test_overlap_broad_phase_matches_all_pairs():
+    # the sort-based broad phase finds exactly the pairs an all-pairs test finds
+    rng = np.random.default_rng(13)
+    n = 800
+    x0 = rng.uniform(0, 1000, n)
+    x0[:100] = 500.0                      # a column of equal left edges, and exact touches
+    y0 = rng.uniform(0, 1000, n)
+    r = np.stack([x0, y0, x0 + rng.uniform(1, 40, n), y0 + rng.uniform(1, 40, n)], 1)
+    # rectangles whose left edge is another's right edge, same rows: touching only
+    r[100:110] = np.stack([r[90:100, 2], r[90:100, 1], r[90:100, 2] + 10, r[90:100, 3]], 1)
+    a, b, area = M._overlap_pairs(r)
+    ox = np.minimum(r[:, None, 2], r[None, :, 2]) - np.maximum(r[:, None, 0], r[None, :, 0])
+    oy = np.minimum(r[:, None, 3], r[None, :, 3]) - np.maximum(r[:, None, 1], r[None, :, 1])
+    hit = np.triu((ox > M.TOL) & (oy > M.TOL), 1)
+    ea, eb = np.nonzero(hit)
+    assert set(zip(a.tolist(), b.tolist())) == set(zip(ea.tolist(), eb.tolist()))
+    np.testing.assert_allclose(np.sort(area), np.sort((ox * oy)[hit]))
