@@ -545,7 +545,9 @@ _QUIET_SKIPS = {
     # DEF routing content
     "TRACKS", "GCELLGRID", "VIAS", "SPECIALNETS", "STYLES", "NONDEFAULTRULES", "FILLS",
     "SLOTS", "PINPROPERTIES", "SCANCHAINS", "COMPONENTMASKSHIFT", "BLOCKAGES LAYER",
-    "NETS MUSTJOIN", "NETS ( * pin )", "COMPONENTS +SOURCE", "COMPONENTS +WEIGHT", "COMPONENTS +MASKSHIFT",
+    "NETS MUSTJOIN", "NETS ( * pin )", "NETS without pins", "COMPONENTS +SOURCE",
+    "COMPONENTS +WEIGHT",
+    "COMPONENTS +MASKSHIFT",
     "COMPONENTS +ROUTEHALO", "COMPONENTS +EEQMASTER", "COMPONENTS +GENERATE",
 }
 
@@ -603,26 +605,21 @@ class _Words:
 
     def __init__(self, sec: str):
         self.words = sec.split()
-        b = np.frombuffer(sec.encode("utf-8"), np.uint8)
-        sp = _WS[b]
-        del b
-        prev = np.empty_like(sp)
-        prev[0] = True
-        prev[1:] = sp[:-1]
-        starts = np.flatnonzero(~sp & prev)
-        nxt = np.empty_like(sp)
-        nxt[-1:] = True
-        nxt[:-1] = sp[1:]
-        ends = np.flatnonzero(~sp & nxt) + 1
-        del sp, prev, nxt
-        self.ok = len(starts) == len(self.words)  # False with non-ASCII whitespace
+        raw = np.frombuffer(sec.encode("utf-8"), np.uint8)
+        ns = np.zeros(len(raw) + 2, np.int8)  # 1 on token bytes, padded with 0 at both ends
+        ns[1:-1] = ~_WS[raw]
+        d = np.diff(ns)
+        del ns
+        starts = np.flatnonzero(d == 1)
+        ends = np.flatnonzero(d == -1)
+        del d
+        self.ok = len(starts) == len(self.words) == len(ends)  # False: non-ASCII whitespace
         if not self.ok:
             return
-        raw = sec.encode("utf-8")
-        self.first = np.frombuffer(raw, np.uint8)[starts] if len(starts) else \
-            np.zeros(0, np.uint8)
+        self.first = raw[starts]
         self.length = (ends - starts).astype(np.int32)
-        del starts, ends
+        del starts, ends, raw
+        self._arr = None
         semi = self.mask(";")
         self.semi = np.flatnonzero(semi)
         self.n_open_text = sec.count("(")
@@ -630,7 +627,8 @@ class _Words:
         if len(self.semi) != sec.count(";") or (n and not semi[-1]):
             self.ok = False
             return
-        self.begin = np.concatenate([[0], self.semi[:-1] + 1]).astype(np.int64)
+        self.begin = np.concatenate([[0], self.semi[:-1] + 1]).astype(np.int64) \
+            if len(self.semi) else np.zeros(0, np.int64)
         if len(self.begin) and not self.mask("-")[self.begin].all():
             self.ok = False
 
@@ -639,7 +637,10 @@ class _Words:
         return (self.length == 1) & (self.first == ord(ch))
 
     def get(self, idx) -> list[str]:
-        return list(map(self.words.__getitem__, np.asarray(idx).tolist()))
+        """The tokens at ``idx`` (a gather in C through an object array built once)."""
+        if self._arr is None:
+            self._arr = np.array(self.words, dtype=object)
+        return self._arr[np.asarray(idx, dtype=np.intp)].tolist()
 
 
 class _Def:
@@ -1151,9 +1152,11 @@ class _Def:
         pc, pp = (list(c) for c in zip(*pairs)) if pairs else ([], [])
         self._nets_done(names, net_of, pc, pp, weight, start, end)
 
-    def _nets_done(self, names, net_of, pc, pp, weight, start, end) -> None:
+    def _nets_done(self, names, net_of, pc, pp, weight, start, end, keep=None) -> None:
         m = len(names)
-        keep = np.fromiter(map("MUSTJOIN".__ne__, names), bool, m) if m else np.zeros(0, bool)
+        if keep is None:
+            keep = np.fromiter(map("MUSTJOIN".__ne__, names), bool, m) if m else \
+                np.zeros(0, bool)
         self.nets = dict(names=names, net_of=net_of, pc=pc, pp=pp, weight=weight, keep=keep,
                          start=start, end=end)
         if not keep.all():
@@ -1200,7 +1203,12 @@ class _Def:
                 except ValueError:
                     self.fail(f"net {names[i]!r}: bad number {v!r} for WEIGHT",
                               self._find(start, end, names[i]))
-        self._nets_done(names, net_of, wd.get(po + 1), wd.get(po + 2), weight, start, end)
+        keep = np.ones(m, bool)
+        mj = np.flatnonzero((wd.length[begin + 1] == 8) & (wd.first[begin + 1] == ord("M")))
+        if len(mj):
+            keep[mj[np.array([t == "MUSTJOIN" for t in wd.get(begin[mj] + 1)], bool)]] = False
+        self._nets_done(names, net_of, wd.get(po + 1), wd.get(po + 2), weight, start, end,
+                        keep)
         return True
 
     # --- BLOCKAGES ---------------------------------------------------------------------------
