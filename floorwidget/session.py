@@ -456,7 +456,11 @@ class Session:
         old = self._fp
         idx = _changed(old, new)
         new = _freeze(new)
-        if len(idx) or old.info != new.info:
+        if not len(idx) and old.info != new.info:
+            # only the facts in .info changed (e.g. a placer run that moved nothing): take
+            # them, but make no undo step that would look like it did nothing
+            self._fp = new
+        elif len(idx):
             nid = self._next_id
             self._next_id += 1
             step = _Step(action, idx,
@@ -762,7 +766,7 @@ class Session:
         start = b.start_fp
         cur = self._fp
         idx = _changed(start, cur)
-        if len(idx) or start.info != cur.info:
+        if len(idx):
             self._undo.append(_Step(
                 label, idx,
                 (start.x[idx].copy(), start.y[idx].copy(), start.orient[idx].copy(),
@@ -778,8 +782,8 @@ class Session:
     def _check_label(self, label) -> str:
         if not isinstance(label, str) or not label.strip():
             raise DesignError(f"an alternative needs a non-empty text label, got {label!r}")
-        if label == "current":
-            raise DesignError("'current' is reserved for the current floorplan")
+        if label in ("current", "initial"):
+            raise DesignError(f"{label!r} is reserved (it names the {label} floorplan)")
         if label in self._alts:
             raise DesignError(f"there is already an alternative labelled {label!r}")
         return label

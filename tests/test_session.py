@@ -534,3 +534,35 @@ def test_local_orientation_maps_agree_with_placer_orient():
             assert (r if r != code else None) == (lr if lr != code else None)
             assert (f if f != code else None) == (lf if lf != code else None)
             assert _next_orientation("rotate", code, mask) == (r if r != code else None)
+
+
+def test_no_op_makes_no_step_but_tells_observers(s, names):
+    m = names["full"][0]
+    x, y = s.move(m, 400, 400)
+    events = []
+    s.on_change(events.append)
+    s.move(m, x + 0.2, y)  # snaps back to the same grid point
+    s.pin(m)
+    s.pin(m)  # already pinned
+    assert s.history == ["move", "pin"]
+    assert [e.action for e in events] == ["move", "pin", "pin"]
+    for bad in ("current", "initial", ""):
+        with pytest.raises(DesignError):
+            s.snapshot(bad)
+
+
+def test_design_without_source_saves_and_loads_with_design(tmp_path, demo_design, names):
+    d = fw.Design("nofile", demo_design.die, demo_design.names, demo_design.kind,
+                  demo_design.width, demo_design.height, demo_design.net_start,
+                  demo_design.pin_block, demo_design.pin_dx, demo_design.pin_dy, validate=False)
+    s = Session(d)
+    s.move(names["full"][0], 321.0, 123.0)
+    s.save(tmp_path / "s.json")
+    with pytest.raises(DesignError, match="names no design file"):
+        Session.load(tmp_path / "s.json")
+    t = Session.load(tmp_path / "s.json", design=d)
+    assert t.floorplan.identical(s.floorplan)
+    with pytest.raises(DesignError, match="blocks"):
+        Session.load(tmp_path / "s.json", design=fw.Design(
+            "tiny", (0, 0, 10, 10), ["a", "b"], [0, 0], [1, 1], [1, 1], [0, 2], [0, 1],
+            [0, 0], [0, 0]))
