@@ -189,7 +189,7 @@ def _seg(gnet: np.ndarray) -> np.ndarray:
 
 
 def choose_orientations(design: Design, fp: Floorplan, macros: Iterable | None = None, *,
-                        passes: int = 8, swap: bool = True, weighted: bool = True) -> Floorplan:
+                        passes: int = 50, swap: bool = True, weighted: bool = True) -> Floorplan:
     """Choose each movable macro's orientation to minimise the HPWL of its nets.
 
     Parameters
@@ -200,7 +200,8 @@ def choose_orientations(design: Design, fp: Floorplan, macros: Iterable | None =
     macros : names, indices or mask, optional
         Only these (movable macros among them) may change; default all movable macros.
     passes : int
-        Maximum number of evaluate-and-apply rounds (it stops earlier when nothing improves).
+        Maximum number of evaluate-and-apply rounds; it stops as soon as no macro improves
+        (a local optimum: no single macro gains by changing its orientation alone).
     swap : bool
         Allow orientations that swap width and height (E, W, FE, FW of a non-square macro);
         set False after legalisation to keep every footprint where it is.
@@ -255,18 +256,30 @@ def choose_orientations(design: Design, fp: Floorplan, macros: Iterable | None =
             improve = gain > 1e-9 * np.maximum(1.0, np.where(np.isfinite(cur), np.abs(cur), 0))
             if not improve.any():
                 break
-            # independent set: a macro moves only if it has the best gain on each of its nets
-            rank = np.full(len(cidx), np.inf)
-            ordr = np.lexsort((np.arange(len(cidx)), -gain))
-            rank[ordr] = np.arange(len(cidx))
-            rank[~improve] = np.inf
-            grank = np.full(len(gnet), np.inf)
-            grank[gcand] = rank[ci[gb[gcand]]]
-            netmin = np.minimum.reduceat(grank, _seg(gnet))[np.cumsum(
-                np.r_[True, gnet[1:] != gnet[:-1]]) - 1]
-            clash = gcand & np.isfinite(grank) & (grank != netmin)
-            nclash = np.bincount(ci[gb[clash]], minlength=len(cidx))
-            accept = improve & (nclash == 0)
+            # independent set (no two share a net), greedy by gain in Luby-style rounds: a
+            # macro is taken when it has the best gain on each of its nets among those still
+            # available; the nets of the taken ones then block their neighbours
+            nc = len(cidx)
+            order = np.lexsort((np.arange(nc), -gain))
+            rank0 = np.empty(nc)
+            rank0[order] = np.arange(nc)
+            seg = _seg(gnet)
+            seg_of = np.cumsum(np.r_[True, gnet[1:] != gnet[:-1]]) - 1
+            gc = np.flatnonzero(gcand)
+            gci = ci[gb[gc]]
+            avail = improve.copy()
+            accept = np.zeros(nc, bool)
+            used = np.zeros(len(seg), bool)
+            while avail.any():
+                grank = np.full(len(gnet), np.inf)
+                grank[gc] = np.where(avail[gci], rank0[gci], np.inf)
+                netmin = np.minimum.reduceat(grank, seg)[seg_of]
+                clash = np.isfinite(grank[gc]) & (grank[gc] != netmin[gc])
+                new = avail & (np.bincount(gci[clash], minlength=nc) == 0)
+                accept |= new
+                used[seg_of[gc[new[gci]]]] = True
+                blocked = np.bincount(gci[used[seg_of[gc]]], minlength=nc) > 0
+                avail &= ~blocked & ~accept
             blocks = cidx[accept]
             cx, cy = out.centres()
             new = best[accept].astype(np.int8)
