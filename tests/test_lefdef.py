@@ -238,6 +238,10 @@ def test_nets_and_pin_names(kestrel):
     assert [d.names[b] for b in d.pin_block[s:e]] == ["u_ram3", "u_ram4", "u_ram5", "u_ram6",
                                                       "u_ram7", "u_pad"]
     assert d.pin_names[s:e] == ["A", "Q", "A", "A", "Q", "PAD"]
+    # no per-pin strings kept: equal LEF pin names are one shared object
+    comp_pins = [p for p, b in zip(d.pin_names, d.pin_block) if d.kind[b] != TERMINAL
+                 or d.block_type[b]]
+    assert len({id(p) for p in comp_pins}) == len(set(comp_pins))
     assert d.num_nets == 4 and d.num_pins == 15
 
 
@@ -319,7 +323,7 @@ def test_pinned_status_survives(kestrel, tmp_path):
     out = tmp_path / "pinned.def"
     fw.save(kestrel, fp, out)
     text = out.read_text()
-    assert "- u_ram2 ram_k1 + FIXED ( 321500 260250 ) FE + PROPERTY FW_STATUS PINNED ;" in text
+    assert '- u_ram2 ram_k1 + FIXED ( 321500 260250 ) FE + PROPERTY FW_STATUS "PINNED" ;' in text
     fp2 = read_def(out, lef=LEFS).initial
     assert fp2.identical(fp)
     assert fp2.status[i] == PINNED and fp2.status[kestrel.block("u_ram0")] == FIXED

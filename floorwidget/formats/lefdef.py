@@ -16,9 +16,21 @@ DEF (:func:`read_def`)
     ``DIEAREA`` (a rectangle, or a rectilinear polygon whose notches become placement
     blockages), ``ROW``, ``COMPONENTS`` (``PLACED``/``FIXED``/``COVER``/``UNPLACED``, ``HALO``,
     and our own ``FW_STATUS`` property), ``PINS`` (first ``LAYER`` shape and placement),
-    ``NETS`` (component and ``PIN`` connections, ``WEIGHT``) and placement ``BLOCKAGES``.
-    Skipped and counted: ``TRACKS``, ``GCELLGRID``, ``VIAS``, ``SPECIALNETS``, ``REGIONS``,
-    ``GROUPS``, routing blockages, routing in ``NETS`` and the other sections.
+    ``NETS`` (component and ``PIN`` connections, ``WEIGHT``) and placement ``BLOCKAGES``
+    (``RECT`` and ``POLYGON``).  Skipped and counted: ``TRACKS``, ``GCELLGRID``, ``VIAS``,
+    ``SPECIALNETS``, ``REGIONS``, ``GROUPS``, ``PROPERTYDEFINITIONS``, routing blockages,
+    routing and other options in ``NETS``, ``MUSTJOIN`` entries and ``( * pin )`` global
+    connections, nets left without pins, and any statement not listed here.  A warning
+    summarises the counts when something of floorplan interest (an unknown statement,
+    ``REGIONS``, ``GROUPS``, ...) was dropped; pure routing and technology content is skipped
+    quietly.
+
+Speed
+-----
+Big sections (``COMPONENTS``, ``NETS``) are split on whitespace in one ``str.split`` and the
+structural tokens found by numpy over the bytes; the common statement forms are then read with
+array gathers.  Statements in other forms go through a per-statement reader, and a section with
+``;`` glued to a word falls back to a regular-expression reader (slower, same results).
 
 Mapping to the floorwidget model
 --------------------------------
@@ -1806,6 +1818,7 @@ def _def_text(design: Design, fp: Floorplan, path) -> str:
     names = d.names
     tnames = [names[i][len(_TERMINAL_PREFIX):] if names[i].startswith(_TERMINAL_PREFIX)
               else names[i] for i in term]
+    _check_names([d.name], "design name", path)
     _check_names((names[i] for i in comp), "block", path)
     _check_names(tnames, "terminal", path)
     _check_names(d.net_names, "net", path)
@@ -1837,7 +1850,7 @@ def _def_text(design: Design, fp: Floorplan, path) -> str:
         if halo[i].any():
             line += f" + HALO {halo[i, 0]} {halo[i, 1]} {halo[i, 2]} {halo[i, 3]}"
         if s == PINNED:
-            line += f" + PROPERTY {STATUS_PROPERTY} PINNED"
+            line += f' + PROPERTY {STATUS_PROPERTY} "PINNED"'
         out.append(line + " ;")
     out.append("END COMPONENTS")
     out.append("")
