@@ -346,3 +346,23 @@ def test_unknown_option_is_a_type_error():
     d = _design((0, 0, 100, 100), [10.0], [10.0])
     with pytest.raises(TypeError, match="bogus"):
         legalize_macros(d, d.initial, bogus=1)
+
+
+def test_keep_decides_which_of_two_overlapping_macros_moves():
+    # same geometry as the closed-form case (overlap 7 µm along x): with keep=[m1] the
+    # other one, m0, slides 7 µm left; with keep=[m0], m1 slides 7 µm right
+    d = _design((0, 0, 1000, 1000), [100.0, 60.0], [50.0, 50.0], x=[100.0, 193.0],
+                y=[100.0, 100.0])
+    a = legalize_macros(d, d.initial, keep=["m1"])
+    assert a.x[1] == 193.0 and a.x[0] == pytest.approx(93.0, abs=1e-9)
+    b = legalize_macros(d, d.initial, keep=["m0"])
+    assert b.x[0] == 100.0 and b.x[1] == pytest.approx(200.0, abs=1e-9)
+    assert not is_legal(d, d.initial) and is_legal(d, a) and is_legal(d, b)
+
+
+def test_progress_is_reported():
+    d, fp = _random_instance(5, 20, 1, 1, 0.3)
+    seen = []
+    legalize_macros(d, fp, progress=lambda stage, frac, info: seen.append((stage, frac)))
+    assert seen and seen[-1] == ("legalize", 1.0)
+    assert all(0.0 <= f <= 1.0 for _, f in seen)

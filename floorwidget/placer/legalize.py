@@ -17,36 +17,39 @@ those rectangles (e.g. shapely's intersection area) sees exactly zero overlap.
 
 Method
 ------
-1. *Checks.*  Pinned/fixed macros overlapping each other, a macro that does not fit in the core
-   in its orientation, and more macro area than free core area raise :class:`PlacementError`
-   before anything is computed; the input floorplan is never written to.
+1. *Checks.*  Pinned/fixed macros overlapping each other raise :class:`PlacementError` at once;
+   a macro that does not fit in the core in its orientation, and more macro area than free core
+   area, raise before a full pass.  The input floorplan is never written to.
 2. *Early exit.*  An already-legal placement is returned unchanged (bit-exact).
 3. *Local repair* (the common case after a hand move).  The macros in conflict are reduced to a
    small set that must move (every macro with a violation of its own, plus a greedy vertex cover
-   of the overlap graph preferring small macros and avoiding ``keep``); only those are moved, each
-   to its nearest free grid spot with all others held still.
+   of the overlap graph avoiding ``keep`` and preferring small macros); only those are moved,
+   each to its nearest free grid spot with all others held still.
 4. *Full legalisation.*  An ordered nearest-free-spot search: macros by decreasing halo area,
    each moved to the grid point nearest (Euclidean) to its global-placement position that is free
    of everything placed before it, of pinned/fixed macros and of blockages.  The candidate
-   spots are the Cartesian product of the snapped target and the grid-snapped edges of the
-   obstacles' configuration-space rectangles, which provably contains the nearest free point;
-   the search runs over a window that doubles until the nearest candidate found lies inside it.
-   This is the greedy, largest-first, obstacle-aware scheme long used for mixed-size
-   legalisation, e.g. Hill, US patent 6,370,673 (2002, "Tetris"), and Cong, Xie, ICCAD 2006
-   (from memory).
+   spots are the Cartesian product of the snapped target, the bounds and the grid lines just
+   clear of each obstacle (the edges of its configuration-space rectangle), which contains the
+   nearest free point (moving a coordinate towards the target is blocked only by an obstacle
+   edge or a bound); the search runs over a window that grows until the nearest free candidate
+   lies inside it.  Largest-first greedy legalisation in the spirit of Hill's "Tetris"
+   legaliser (D. Hill, US patent 6,370,673, 2002, from memory), with the exact nearest free spot
+   in place of a row scan.
 5. *LP improvement.*  Keeping the relative order found (for every pair of macros that could
    meet within a trust region, the horizontal or vertical separation they already satisfy,
    choosing the one least binding at the targets), minimise the total L1 displacement from the
    global placement with ``scipy.optimize.linprog(method="highs")``: two independent LPs over the
-   horizontal and vertical constraint graphs -- the constraint-graph formulation of minimum
-   perturbation / white-space redistribution, e.g. Tang, Tian, Wong, ASP-DAC 2005, and Chen,
-   Chang, Hsu, ICCAD 2006 (both from memory).  The variables are *grid indices*: every
-   separation and bound is rounded to an integer number of pitches in the safe direction and the
-   targets are rounded to the grid, so the LP is the dual of a min-cost flow with integral data
-   and its vertex optima are integral; the solution is rounded anyway, checked exactly and any
-   remaining conflict goes through the local repair.  A round is accepted only when it lowers
-   the displacement; pairs farther apart than twice the trust radius cannot meet, so the trust
-   region makes the per-round constraint set sparse and exact.
+   horizontal and vertical constraint graphs, as in constraint-graph layout compaction (Liao,
+   Wong, IEEE TCAD 2(2), 1983) and the white-space redistribution LP of Tang, Tian, Wong,
+   ASP-DAC 2005 (both from memory).  The variables are *grid indices*: every separation and
+   bound is rounded to a whole number of pitches in the safe direction and the targets to the
+   grid, so the data are integral (an L1 problem over difference constraints, the dual of a
+   min-cost flow, has integral optima); the solution is rounded anyway and checked exactly.
+   Where two halo boxes end up abutting exactly, floating point can leave an overlap of a few
+   ulps; such a macro is moved by those few ulps (it stays on the grid within far less than the
+   1e-6 µm grid tolerance) and anything else left goes through the local repair.  A round is
+   accepted only when it lowers the displacement.  Pairs farther apart than twice the trust
+   radius cannot meet, so the trust region keeps each round's constraint set sparse and exact.
 
 Notes
 -----
@@ -626,12 +629,15 @@ def legalize_macros(design: Design, fp: Floorplan, *, macros: Iterable | None = 
     fp : Floorplan
         Input (e.g. global-placement) positions and orientations; never modified.
     macros : names, indices or mask, optional
-        Legalise only these (movable macros among them); every other macro is an obstacle.
+        Legalise only these (movable macros among them; pinned or fixed ones in the list are
+        ignored).  Every other macro is an obstacle; obstacles that are movable are not checked
+        against each other.
     keep : names, indices or mask, optional
         Macros to move only when nothing else resolves a conflict (e.g. the one just dragged).
     local : bool, optional
         Force (True) or forbid (False) the local repair; by default it is tried when the macros
-        that must move are at most a quarter of them (and at least 3 are allowed).
+        that must move are at most a quarter of them (or at most 3).  When it finds no spot for
+        one of them, the full pass runs.
     lp : bool
         Improve the greedy result with the minimum-displacement LP.
     lp_rounds : int
@@ -671,10 +677,10 @@ def legalize_macros(design: Design, fp: Floorplan, *, macros: Iterable | None = 
 
     References
     ----------
-    Hill, US patent 6,370,673, 2002 (greedy "Tetris" legalisation, from memory).
-    Cong, Xie, ICCAD 2006 (obstacle-aware macro legalisation, from memory).
-    Tang, Tian, Wong, ASP-DAC 2005; Chen, Chang, Hsu, ICCAD 2006 (constraint-graph LPs for
-    minimum-perturbation placement, from memory).
+    D. Hill, US patent 6,370,673, 2002 (greedy "Tetris" legalisation, from memory).
+    Y.-Z. Liao, C.-K. Wong, IEEE TCAD 2(2), 1983 (constraint-graph compaction, from memory).
+    X. Tang, R. Tian, M. D. F. Wong, ASP-DAC 2005 (constraint-graph LP for white-space
+    redistribution, from memory).
     """
     unknown = set(options) - {"seed", "target_density"}
     if unknown:

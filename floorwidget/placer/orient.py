@@ -12,10 +12,12 @@ E = R270, FN = MY, FS = MX, FW = MX90, FE = MY90).  The eight form the dihedral 
 minimises the (weighted) HPWL of its nets with everything else where it is, keeping the
 footprint centre.  All macros and all eight orientations are evaluated at once with the
 "exclusive bounding box" of each net (the box of its pins without the macro's own, from the
-two smallest / largest per-block extremes), then an independent set of improving macros (no two
-share a net, chosen by gain) is applied, so each pass lowers the total exactly by the sum of the
-accepted gains -- a vectorised form of the per-macro orientation optimisation of e.g.
-Adya, Markov, ISPD 2002, and Chen, Chang, Hsu, ICCAD 2006 (both from memory).
+two smallest / largest per-block extremes), then a maximal independent set of improving macros
+(no two share a net; greedy by gain, built in the parallel rounds of Luby, SIAM J. Comput.
+15(4), 1986) is applied, so each pass lowers the total exactly by the sum of the accepted
+gains, and passes repeat until no single macro gains.  Trying every allowed orientation of
+each macro against its nets is common practice in mixed-size placement flows; the vectorised
+exclusive-box evaluation and the independent-set update are how it is done here.
 """
 
 from __future__ import annotations
@@ -225,8 +227,8 @@ def choose_orientations(design: Design, fp: Floorplan, macros: Iterable | None =
 
     References
     ----------
-    Adya, Markov, ISPD 2002; Chen, Chang, Hsu, ICCAD 2006 (macro orientation by wirelength,
-    from memory).
+    M. Luby, "A simple parallel algorithm for the maximal independent set problem",
+    SIAM J. Comput. 15(4), 1986.
     """
     out = fp.copy()
     cand = _subset(design, fp, macros)
