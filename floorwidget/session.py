@@ -772,7 +772,12 @@ class Session:
             return
         start = b.start_fp
         cur = self._fp
-        idx = _changed(start, cur)
+        if b.blocks is None:
+            idx = _changed(start, cur)
+        else:  # only hand edits inside: diff the blocks they touched
+            t = np.array(sorted(b.blocks), dtype=np.int64)
+            idx = t[_bits_differ(start.x[t], cur.x[t]) | _bits_differ(start.y[t], cur.y[t])
+                    | (start.orient[t] != cur.orient[t]) | (start.status[t] != cur.status[t])]
         if len(idx):
             self._undo.append(_Step(
                 label, idx,

@@ -18,6 +18,8 @@ Session file layout (JSON, version 1)::
     }
 
     FLOORPLAN = {"x": [..], "y": [..], "orient": [codes], "status": [codes], "info": {..}}
+    (an array longer than 20,000 entries is {"dtype": "<f8" | "|i1", "base64": ".."} instead:
+    the raw little-endian bytes, exact and a tenth of the time to write and read)
     STEP = {"action": .., "idx": [..], "old": FLOORPLAN-of-idx, "new": FLOORPLAN-of-idx}
 
 Floats are written by :mod:`json` with ``repr``, which round-trips float64 exactly.  Orientation
@@ -26,6 +28,8 @@ and status are the integer codes listed under ``"codes"``.
 
 from __future__ import annotations
 
+import base64
+import binascii
 import hashlib
 import json
 import math
@@ -89,13 +93,22 @@ def _info_doc(info: dict) -> dict:
     return out
 
 
-def _fp_doc(fp: Floorplan, idx=None) -> dict:
-    if idx is None:
-        x, y, o, s = fp.x, fp.y, fp.orient, fp.status
-    else:
-        x, y, o, s = fp
-    return {"x": np.asarray(x).tolist(), "y": np.asarray(y).tolist(),
-            "orient": np.asarray(o).tolist(), "status": np.asarray(s).tolist()}
+LIST_LIMIT = 20_000  # arrays longer than this are stored as base64 of little-endian bytes
+
+
+def _arr(a: np.ndarray, dtype: str):
+    a = np.asarray(a)
+    if len(a) <= LIST_LIMIT:
+        return a.tolist()
+    return {"dtype": dtype, "base64": base64.b64encode(
+        np.ascontiguousarray(a, dtype=dtype).tobytes()).decode("ascii")}
+
+
+def _fp_doc(fp, idx=None) -> dict:
+    """Arrays of a floorplan (or, with ``idx``, a tuple ``x, y, orient, status``)."""
+    x, y, o, s = (fp.x, fp.y, fp.orient, fp.status) if idx is None else fp
+    return {"x": _arr(x, "<f8"), "y": _arr(y, "<f8"), "orient": _arr(o, "|i1"),
+            "status": _arr(s, "|i1")}
 
 
 def _step_doc(step) -> dict:
@@ -197,7 +210,26 @@ class _Doc:
             self.fail(where, f"expected text, got {type(v).__name__}")
         return v
 
+    def packed(self, v, dtype: str, where: str) -> np.ndarray:
+        if v.get("dtype") != dtype or not isinstance(v.get("base64"), str):
+            self.fail(where, f"expected a list or {{\"dtype\": \"{dtype}\", \"base64\": ..}}")
+        try:
+            raw = base64.b64decode(v["base64"], validate=True)
+        except (binascii.Error, ValueError):
+            self.fail(where, "damaged base64 data")
+        size = np.dtype(dtype).itemsize
+        if len(raw) % size:
+            self.fail(where, f"base64 data is not a whole number of {size}-byte values")
+        return np.frombuffer(raw, dtype=dtype).astype(np.dtype(dtype).newbyteorder("="))
+
     def floats(self, v, n: int | None, where: str) -> np.ndarray:
+        if isinstance(v, dict):
+            a = self.packed(v, "<f8", where)
+            if n is not None and len(a) != n:
+                self.fail(where, f"expected {n} numbers, got {len(a)}")
+            if not np.isfinite(a).all():
+                self.fail(f"{where}[{int(np.flatnonzero(~np.isfinite(a))[0])}]", "not finite")
+            return a
         v = self.lst(v, where)
         if n is not None and len(v) != n:
             self.fail(where, f"expected {n} numbers, got {len(v)}")
@@ -211,6 +243,15 @@ class _Doc:
         return a
 
     def codes(self, v, n: int | None, hi: int, where: str) -> np.ndarray:
+        if isinstance(v, dict):
+            a = self.packed(v, "|i1", where)
+            if n is not None and len(a) != n:
+                self.fail(where, f"expected {n} codes, got {len(a)}")
+            bad = (a < 0) | (a >= hi)
+            if bad.any():
+                k = int(np.flatnonzero(bad)[0])
+                self.fail(f"{where}[{k}]", f"expected a code 0..{hi - 1}, got {int(a[k])}")
+            return a.astype(np.int8)
         v = self.lst(v, where)
         if n is not None and len(v) != n:
             self.fail(where, f"expected {n} codes, got {len(v)}")

@@ -459,3 +459,32 @@ def test_load_finds_design_beside_the_session(tmp_path):
     t = Session.load(moved / "s.json")  # absolute source gone; the relative one is found
     assert np.array_equal(t.floorplan.x, s.floorplan.x)
     assert Path(t.design.source).resolve() == (moved / "chip.json").resolve()
+
+
+def test_large_arrays_packed_exactly(tmp_path, monkeypatch):
+    """Arrays above the list limit are written as raw bytes in base64 and read back exactly."""
+    import floorwidget.session_io as sio
+
+    monkeypatch.setattr(sio, "LIST_LIMIT", 10)
+    s = _busy_session(False)
+    fp = _DESIGN.initial.copy()
+    fp.x[:] = np.random.default_rng(3).uniform(0, 2000, fp.x.shape)
+    s.add_alternative("rnd", fp)
+    s.restore("rnd")
+    p = tmp_path / "packed.json"
+    s.save(p)
+    doc = json.loads(p.read_text())
+    assert set(doc["current"]["x"]) == {"dtype", "base64"}
+    t = Session.load(p)
+    assert np.array_equal(t.floorplan.x.view(np.uint64), s.floorplan.x.view(np.uint64))
+    assert t.floorplan.identical(s.floorplan) and t.history == s.history
+    for a, b in zip(s.alternatives, t.alternatives):
+        assert a.floorplan.identical(b.floorplan)
+    while s.can_undo:
+        s.undo()
+        t.undo()
+        assert same_bits(state(s.floorplan), state(t.floorplan))
+    doc["current"]["orient"]["base64"] = doc["current"]["orient"]["base64"][:-8] + "!!!!!!!!"
+    p.write_text(json.dumps(doc))
+    with pytest.raises(DesignError, match=r"current\.orient: damaged base64"):
+        Session.load(p)
