@@ -20,6 +20,8 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from shapely.geometry import Polygon, box
 from shapely.ops import unary_union
 
@@ -458,8 +460,57 @@ def test_global_and_mustjoin_connections_skipped(tmp_path, kestrel):
     assert d.net_names == kestrel.net_names and np.array_equal(d.pin_block, kestrel.pin_block)
 
 
+def test_validation_problems_name_the_file(tmp_path):
+    p = _broken(tmp_path, "- n1 ( u_inv0 A )", "- n2 ( u_inv0 A )")  # duplicate net name
+    with pytest.raises(DesignError, match="duplicate net names") as e:
+        read_def(p, lef=LEFS)
+    assert e.value.file == str(p) and str(e.value).startswith(f"{p}: ")
+
+
 def test_unknown_def_statement_warns(tmp_path):
     p = _broken(tmp_path, "DIEAREA", "REGIONS 1 ;\n- rg ( 0 0 ) ( 10 10 ) ;\nEND REGIONS\nDIEAREA")
     with pytest.warns(LefDefWarning, match="REGIONS x1"):
         d = read_def(p, lef=LEFS)
     assert d.num_blocks == 14
+
+
+# ---------------------------------------------------------------------------------------------
+# robustness: whatever is spliced into a valid file, the reader returns a design or raises
+# DesignError (never another exception)
+
+_JUNK = st.lists(st.sampled_from(["-", "+", ";", "(", ")", "END", "NETS", "COMPONENTS", "PINS",
+                                  "PLACED", "FIXED", "N", "FS", "x1", "12", "-3", "1e9", "#",
+                                  "\n", "u_ram0", "ram_k1", "PIN", "LAYER", "WEIGHT", '"q"']),
+                 min_size=1, max_size=12)
+
+
+@settings(max_examples=50, deadline=None)
+@given(junk=_JUNK, where=st.integers(0, 10**6))
+def test_def_reader_never_crashes(tmp_path_factory, junk, where):
+    lines = DEF.read_text().splitlines(keepends=True)
+    k = where % (len(lines) + 1)
+    text = "".join(lines[:k]) + " ".join(junk) + "\n" + "".join(lines[k:])
+    p = tmp_path_factory.mktemp("fuzz") / "f.def"
+    p.write_text(text)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        try:
+            read_def(p, lef=LEFS)
+        except DesignError as e:
+            assert e.file == str(p)
+
+
+@settings(max_examples=40, deadline=None)
+@given(junk=_JUNK, where=st.integers(0, 10**6))
+def test_lef_reader_never_crashes(tmp_path_factory, junk, where):
+    lines = LEFS[1].read_text().splitlines(keepends=True)
+    k = where % (len(lines) + 1)
+    text = "".join(lines[:k]) + " ".join(junk) + "\n" + "".join(lines[k:])
+    p = tmp_path_factory.mktemp("fuzz") / "f.lef"
+    p.write_text(text)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        try:
+            read_lef(p)
+        except DesignError as e:
+            assert e.file == str(p) and e.line is not None

@@ -1464,18 +1464,23 @@ class _Def:
         block_type = list(map(canon.__getitem__, c["models"])) + [""] * nt_
         if self.skipped:
             _warn_skipped(self.path, self.skipped)
-        return Design(
-            self.name, die, names,
-            np.concatenate([kind, np.full(nt_, TERMINAL, np.int8)]),
-            np.concatenate([width, t_w]), np.concatenate([height, t_h]),
-            net_start, ci[pin_keep], dx[pin_keep], dy[pin_keep],
-            halo=halo, orient_allowed=np.concatenate([allowed, np.ones(nt_, np.uint8)]),
-            net_names=net_names, net_weight=nt["weight"][net_keep], pin_names=pin_names,
-            rows=rows if self.rows else None, blockages=blockages, block_type=block_type,
-            x=np.concatenate([x, t_x]), y=np.concatenate([y, t_y]),
-            orient=np.concatenate([orient, np.array(t_o, np.int8)]),
-            status=np.concatenate([status, np.array(t_s, np.int8)]),
-            dbu=int(dbu), source=self.path)
+        try:
+            design = Design(
+                self.name, die, names,
+                np.concatenate([kind, np.full(nt_, TERMINAL, np.int8)]),
+                np.concatenate([width, t_w]), np.concatenate([height, t_h]),
+                net_start, ci[pin_keep], dx[pin_keep], dy[pin_keep],
+                halo=halo, orient_allowed=np.concatenate([allowed, np.ones(nt_, np.uint8)]),
+                net_names=net_names, net_weight=nt["weight"][net_keep], pin_names=pin_names,
+                rows=rows if self.rows else None, blockages=blockages, block_type=block_type,
+                x=np.concatenate([x, t_x]), y=np.concatenate([y, t_y]),
+                orient=np.concatenate([orient, np.array(t_o, np.int8)]),
+                status=np.concatenate([status, np.array(t_s, np.int8)]),
+                dbu=int(dbu))
+        except DesignError as e:  # validation of the assembled design: name the file
+            raise DesignError(e.message, file=self.path, problems=e.problems) from None
+        design.source = self.path
+        return design
 
 
 def _polygon_rects(pts: np.ndarray, inside: bool) -> np.ndarray:
