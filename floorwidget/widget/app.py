@@ -107,7 +107,8 @@ class FloorplanWidget(W.VBox):
         self._refresh_alternatives()
         side = W.VBox([self.controls, self.progress, self.message, self.readout, self.legend,
                        self.details], layout=W.Layout(width="360px", margin="0 0 0 10px"))
-        super().__init__([W.HBox([self.canvas.figure, side]), self.alt_box])
+        top = W.HBox([self.canvas.figure, side], layout=W.Layout(flex_flow="row wrap"))
+        super().__init__([top, self.alt_box])
 
     # --- controls -------------------------------------------------------------------------------
     def _button(self, label: str, fn: Callable, tip: str = "", width: str = "112px"):
@@ -140,15 +141,23 @@ class FloorplanWidget(W.VBox):
 
         heat = [toggle("Density", False, "Bin utilisation heat layer"),
                 toggle("Congestion", False, "RUDY routing-demand heat layer"),
-                toggle("Box select", False, "Drag a box to select several macros")]
+                self._button("Whole die", self.canvas.reset_view, "Zoom out to the die")]
         opts = [toggle("Live refine", live, "Refine after every drop"),
                 toggle("Pin on drop", pin_on_drop, "Pin a macro where it is dropped"),
-                self._button("Whole die", self.canvas.reset_view, "Zoom out to the die")]
+                self._button("Zoom in", lambda: self.canvas.zoom(0.5), "Halve the view")]
+        # what a mouse drag on the canvas does: bqplot's interaction layer lies over the marks,
+        # so moving macros and panning cannot share one mode
+        self.mode = W.ToggleButtons(options=["Move macros", "Pan / zoom", "Box select"],
+                                    value="Move macros", style={"button_width": "110px"},
+                                    tooltips=["Drag a macro's handle to move it",
+                                              "Drag to pan, wheel to zoom",
+                                              "Drag a box to select several macros"])
+        self.mode.observe(self._mode_changed, "value")
         self.toggles["Density"].observe(lambda ch: self._heat_toggled("density", ch), "value")
         self.toggles["Congestion"].observe(lambda ch: self._heat_toggled("congestion", ch),
                                            "value")
-        self.toggles["Box select"].observe(self._box_toggled, "value")
-        self.controls = W.VBox([W.HBox(r) for r in rows] + [W.HBox(heat), W.HBox(opts)])
+        self.controls = W.VBox([self.mode] + [W.HBox(r) for r in rows]
+                               + [W.HBox(heat), W.HBox(opts)])
         self.progress = W.FloatProgress(value=0.0, min=0.0, max=1.0, description="",
                                         layout=W.Layout(width="340px", visibility="hidden"))
         self.message = W.HTML("")
@@ -183,32 +192,41 @@ class FloorplanWidget(W.VBox):
     def _legend_html(self) -> str:
         st = status_style()
         ui = ui_colors()
-        dash = {"solid": "", "dashed": "6,3", "dotted": "1.5,2.5", "dash_dotted": "6,2,1.5,2"}
+
+        def swatch(body: str, w: int = 26) -> str:
+            return f'<svg width="{w}" height="16">{body}</svg>'
+
+        def dash(d: str) -> str:
+            return "" if d in ("", "none") else f' stroke-dasharray="{d}"'
+
         parts = []
         for key in ("movable", "pinned", "fixed", "illegal"):
             s = st[key]
-            parts.append(
-                f'<span style="margin-right:8px;white-space:nowrap">'
-                f'<svg width="26" height="16"><rect x="2" y="2" width="22" height="12" '
-                f'fill="{s["fill"]}" fill-opacity="{s["opacity"]}" stroke="{s["stroke"]}" '
-                f'stroke-width="{s["width"]}" stroke-dasharray="{dash[s["dash"]]}"/></svg>'
-                f" {key}</span>")
-        extra = [
-            f'<svg width="26" height="16"><rect x="2" y="2" width="22" height="12" fill="none" '
-            f'stroke="{ui["halo"]}" stroke-dasharray="6,3"/></svg> halo',
-            f'<svg width="26" height="16"><rect x="2" y="2" width="22" height="12" '
-            f'fill="{ui["blockage"]}" fill-opacity="0.35" stroke="{ui["blockage"]}" '
-            f'stroke-dasharray="1.5,2.5"/></svg> blockage',
-            f'<svg width="16" height="16"><rect x="4" y="4" width="8" height="8" '
-            f'fill="{ui["terminal"]}"/></svg> I/O pin',
-            f'<svg width="26" height="16"><polygon points="2,14 10,14 2,6" '
-            f'fill="{ui["outline"]}"/></svg> pin-1 corner',
-            f'<svg width="26" height="16"><line x1="2" y1="8" x2="24" y2="8" '
-            f'stroke="{ui["flyline"]}" stroke-width="4"/></svg> nets (width ~ count)',
+            parts.append((swatch(
+                f'<rect x="2" y="2" width="22" height="12" fill="{s["fill"]}" '
+                f'fill-opacity="{s["opacity"]}" stroke="{s["stroke"]}" '
+                f'stroke-width="{s["width"]}"{dash(s["dasharray"])}/>'), key))
+        parts += [
+            (swatch(f'<rect x="2" y="2" width="22" height="12" fill="none" '
+                    f'stroke="{ui["halo"]}" stroke-dasharray="3,2"/>'), "halo"),
+            (swatch(f'<rect x="2" y="2" width="22" height="12" fill="{ui["blockage_fill"]}" '
+                    f'fill-opacity="{ui["blockage_opacity"]}" stroke="{ui["blockage"]}"/>'),
+             "blockage"),
+            (swatch(f'<rect x="4" y="4" width="8" height="8" fill="{ui["terminal"]}"/>', 16),
+             "I/O pin"),
+            (swatch(f'<polygon points="2,14 10,14 2,6" fill="{ui["outline"]}"/>'),
+             "pin-1 corner"),
+            (swatch(f'<line x1="2" y1="8" x2="24" y2="8" stroke="{ui["flyline"]}" '
+                    f'stroke-opacity="0.45" stroke-width="4"/>'), "nets (width ~ count)"),
+            (swatch(f'<rect x="3" y="3" width="20" height="10" fill="none" '
+                    f'stroke="{ui["selection_under"]}" stroke-width="4"/><rect x="3" y="3" '
+                    f'width="20" height="10" fill="none" stroke="{ui["selection"]}" '
+                    f'stroke-width="2"/>'), "selected"),
         ]
-        parts += [f'<span style="margin-right:8px;white-space:nowrap">{e}</span>' for e in extra]
-        return ('<div style="font-size:12px;line-height:20px">' + "".join(parts)
-                + "<br/>Grey: soft clusters and cells per bin.</div>")
+        items = "".join(f'<span style="margin-right:8px;white-space:nowrap">{sv} {html.escape(t)}'
+                        f"</span>" for sv, t in parts)
+        return (f'<div style="font-size:12px;line-height:20px">{items}'
+                "<br/>Shaded background: soft clusters and cells per bin.</div>")
 
     def _ui(self, fn: Callable) -> None:
         """Run a button action and show its failure in the panel instead of raising."""
@@ -231,9 +249,9 @@ class FloorplanWidget(W.VBox):
         elif self.canvas.heat == name:
             self.canvas.show_heat(None)
 
-    def _box_toggled(self, change) -> None:
-        fig = self.canvas.figure
-        fig.interaction = self.brush if change["new"] else self.canvas.panzoom
+    def _mode_changed(self, change) -> None:
+        self.canvas.figure.interaction = {"Move macros": None, "Pan / zoom": self.canvas.panzoom,
+                                          "Box select": self.brush}[change["new"]]
 
     # --- selection --------------------------------------------------------------------------------
     @property
@@ -424,8 +442,9 @@ class FloorplanWidget(W.VBox):
         self._prev_hpwl = prev.get("hpwl") if prev else None
         self._refresh_readouts()
         self._refresh_details()
-        if ev.action == "restore":
-            self._refresh_alternatives()
+        self.alt_table.value = self.alternatives_html()
+        if "current" in (self.alt_a.value, self.alt_b.value) or ev.action == "restore":
+            self._refresh_thumbs()
 
     def _refresh_readouts(self, drag_delta: float | None = None) -> None:
         r = self._last_report

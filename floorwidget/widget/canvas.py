@@ -22,7 +22,7 @@ from ._style import heat_colors, status_style, ui_colors
 __all__ = ["Canvas", "illegal_blocks", "thumbnail"]
 
 _HEAT_BINS = 64          # bins along the longer core side for the heat images
-_LABEL_PX_PER_CHAR = 6.5  # approximate width of one label character at 11 px
+_LABEL_PX_PER_CHAR = 6.0  # approximate width of one label character at 10 px (bold)
 
 
 def illegal_blocks(design: Design, fp: Floorplan) -> np.ndarray:
@@ -107,10 +107,10 @@ class Canvas:
                                  scales={**sc, "color": cs}, visible=(name == "cells"))
         die_x, die_y = geo.rect_rows(design.die[None, :])
         m["die"] = bq.Lines(x=die_x[0], y=die_y[0], scales=sc, colors=[self.ui["die"]],
-                            stroke_width=2.0)
+                            stroke_width=self.ui["die_width"])
         core_x, core_y = geo.rect_rows(design.core[None, :])
         m["core"] = bq.Lines(x=core_x[0], y=core_y[0], scales=sc, colors=[self.ui["core"]],
-                             stroke_width=1.0, line_style="dashed")
+                             stroke_width=self.ui["core_width"], line_style=self.ui["core_dash"])
         px, py = _placeholder()
         m["rows"] = bq.Lines(x=px, y=py, scales=sc, colors=[self.ui["rows"]], stroke_width=0.5,
                              opacities=[0.5], visible=False)
@@ -118,11 +118,12 @@ class Canvas:
             bx, by = geo.rect_rows(design.blockages)
             m["blockages"] = bq.Lines(x=bx, y=by, scales=sc, fill="inside",
                                       colors=[self.ui["blockage"]],
-                                      fill_colors=[self.ui["blockage"]] * len(bx),
-                                      fill_opacities=[0.35] * len(bx), stroke_width=1.0,
-                                      line_style="dotted")
-        m["halos"] = bq.Lines(x=px, y=py, scales=sc, colors=[self.ui["halo"]], stroke_width=1.0,
-                              line_style="dashed", opacities=[0.8], visible=False)
+                                      fill_colors=[self.ui["blockage_fill"]] * len(bx),
+                                      fill_opacities=[self.ui["blockage_opacity"]] * len(bx),
+                                      stroke_width=1.0)
+        m["halos"] = bq.Lines(x=px, y=py, scales=sc, colors=[self.ui["halo"]],
+                              stroke_width=self.ui["halo_width"], line_style=self.ui["halo_dash"],
+                              visible=False)
         m["macros"] = bq.Lines(x=px, y=py, scales=sc, fill="inside", stroke_width=1.0,
                                close_path=True)
         # status outlines: bqplot draws one dash style per mark, so one mark per outline style
@@ -135,6 +136,10 @@ class Canvas:
                                 colors=[self.ui["outline"]], visible=False)
         m["flylines"] = bq.Lines(x=px, y=py, scales=sc, fill="inside", stroke_width=0.0,
                                  colors=[self.ui["flyline"]], visible=False)
+        # selection: a light outline over a dark one, visible on any fill and in greyscale
+        m["selection_under"] = bq.Lines(x=px, y=py, scales=sc,
+                                        colors=[self.ui["selection_under"]], stroke_width=6.0,
+                                        visible=False)
         m["selection"] = bq.Lines(x=px, y=py, scales=sc, colors=[self.ui["selection"]],
                                   stroke_width=3.0, visible=False)
         tx, ty = geo.terminal_xy(design, floorplan)
@@ -142,7 +147,7 @@ class Canvas:
                                     default_size=10 if interactive else 4,
                                     colors=[self.ui["terminal"]], stroke=None)
         if interactive:
-            m["labels"] = bq.Label(x=[0.0], y=[0.0], text=[""], scales=sc, default_size=11,
+            m["labels"] = bq.Label(x=[0.0], y=[0.0], text=[""], scales=sc, default_size=10,
                                    font_unit="px", align="middle", colors=[self.ui["label"]],
                                    visible=False)
             cx, cy = floorplan.centres()
@@ -164,9 +169,10 @@ class Canvas:
         self.figure = bq.Figure(**fig_kw)
         self.figure.layout.width = f"{self.size}px"
         self.figure.layout.height = f"{self.size}px"
+        self.figure.layout.min_width = f"{self.size}px"
+        self.figure.layout.flex = "0 0 auto"
         if interactive:
             self.panzoom = bq.interacts.PanZoom(scales={"x": [self.x_scale], "y": [self.y_scale]})
-            self.figure.interaction = self.panzoom
             self.x_scale.observe(self._on_view, names=["min", "max"])
         self.update(floorplan)
 
@@ -183,6 +189,16 @@ class Canvas:
         with self.figure.hold_sync():
             self.x_scale.min, self.x_scale.max = xmin, xmax
             self.y_scale.min, self.y_scale.max = ymin, ymax
+        self._on_view()
+
+    def zoom(self, factor: float) -> None:
+        """Scale the visible span by ``factor`` about its centre (0.5 halves it)."""
+        xs, ys = self.x_scale, self.y_scale
+        cx, cy = (xs.min + xs.max) / 2, (ys.min + ys.max) / 2
+        hx, hy = (xs.max - xs.min) * factor / 2, (ys.max - ys.min) * factor / 2
+        with self.figure.hold_sync():
+            xs.min, xs.max = cx - hx, cx + hx
+            ys.min, ys.max = cy - hy, cy + hy
         self._on_view()
 
     def _on_view(self, *_):
@@ -226,7 +242,7 @@ class Canvas:
         xs, ys = self.x_scale, self.y_scale
         inview = ((cx[idx] > xs.min) & (cx[idx] < xs.max) & (cy[idx] > ys.min)
                   & (cy[idx] < ys.max))
-        legible = (w[idx] * ppu > nchar * _LABEL_PX_PER_CHAR + 4) & (h[idx] * ppu > 28) & inview
+        legible = (w[idx] * ppu > nchar * _LABEL_PX_PER_CHAR + 2) & (h[idx] * ppu > 26) & inview
         sel = np.flatnonzero(legible)[:600]
         if sel.size == 0:
             mk.visible = False
@@ -325,9 +341,12 @@ class Canvas:
         v = self.heat_values(name)
         mk = self.marks[name]
         hi = float(v.max()) if v.size else 1.0
+        hi = hi if hi > 0 else 1.0
+        if name == "cells":  # a quiet background: only the lighter part of the ramp
+            hi *= 2.0
         with mk.hold_sync():
             mk.color = v.T
-            mk.scales["color"].max = hi if hi > 0 else 1.0
+            mk.scales["color"].max = hi
 
     def _draw_cells(self):
         """Refresh whichever heat image is showing."""
@@ -352,9 +371,9 @@ class Canvas:
             mk.x, mk.y = mx, my
         if self.selected.size:
             sx, sy = geo.rect_rows(fp.rects()[self.selected])
-            sel = self.marks["selection"]
-            with sel.hold_sync():
-                sel.x, sel.y = sx, sy
+            for sel in (self.marks["selection_under"], self.marks["selection"]):
+                with sel.hold_sync():
+                    sel.x, sel.y = sx, sy
 
     # --- selection and flylines ---------------------------------------------------------------
     def select(self, blocks) -> None:
@@ -364,14 +383,16 @@ class Canvas:
         self._draw_flylines()
 
     def _draw_selection(self):
-        mk = self.marks["selection"]
+        marks = (self.marks["selection_under"], self.marks["selection"])
         if self.selected.size == 0:
-            mk.visible = False
+            for mk in marks:
+                mk.visible = False
             return
         x, y = geo.rect_rows(self.fp.rects()[self.selected])
-        with mk.hold_sync():
-            mk.x, mk.y = x, y
-            mk.visible = True
+        for mk in marks:
+            with mk.hold_sync():
+                mk.x, mk.y = x, y
+                mk.visible = True
 
     def flyline_data(self):
         """``(neighbours, counts)`` of the current selection (see :func:`flyline_bundles`)."""
@@ -395,7 +416,7 @@ class Canvas:
         with mk.hold_sync():
             mk.x, mk.y = xs, ys
             mk.fill_colors = [self.ui["flyline"]] * len(nb)
-            mk.fill_opacities = [0.55] * len(nb)
+            mk.fill_opacities = [0.45] * len(nb)
             mk.visible = True
 
     def element_counts(self) -> dict[str, int]:

@@ -1,0 +1,97 @@
+"""Write ``drag_widget.ipynb``, the notebook the browser test opens (run this after editing).
+
+The notebook loads the demo design from its own folder, shows a :class:`FloorplanWidget`, and
+writes the session's state to ``state.json`` beside it on every change (a Session observer), so
+the test can check from the kernel side what a drag in the browser did.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import nbformat
+
+HERE = Path(__file__).resolve().parent
+
+SETUP = '''\
+import json
+from pathlib import Path
+
+import numpy as np
+
+import floorwidget as fw
+
+HERE = Path.cwd()
+design = fw.load(HERE / "heron_dsp.json")
+w = fw.FloorplanWidget(design, size=600)
+# Start from a placed floorplan when the placer can; else spread the macros on shelves so
+# that each drag handle sits alone.
+setup = "place"
+try:
+    w.place()
+    w.legalize()
+except Exception as e:  # the notebook must run whatever the placer does
+    setup = f"shelves ({e})"
+    s, fp = w.session, w.session.floorplan
+    core = design.core
+    with s.batch("spread"):
+        x, y, row_h = core[0] + 20, core[1] + 20, 0.0
+        for name in design.macros:
+            i = design.block(name)
+            mw, mh = design.width[i], design.height[i]
+            if x + mw > core[2] - 20:
+                x, y, row_h = core[0] + 20, y + row_h + 30, 0.0
+            s.move(name, x, y)
+            x += mw + 30
+            row_h = max(row_h, mh)
+print("setup:", setup)
+'''
+
+STATE = '''\
+STATE = HERE / "state.json"
+changes = []
+
+def write_state(ev=None):
+    fp = w.session.floorplan
+    changes.append("ready" if ev is None else ev.action)
+    cx, cy = fp.centres()
+    idx = w.macro_idx
+    st = {
+        "changes": changes,
+        "macros": design.macros,
+        "positions": {n: list(fp.position(n)) for n in design.macros},
+        "status": {n: fp.status_of(n) for n in design.macros},
+        "centres": np.stack([cx[idx], cy[idx]], axis=1).tolist(),
+        "report": w.session.report,
+        "readout": w.readout.value,
+        "x_scale": [w.canvas.x_scale.min, w.canvas.x_scale.max],
+        "y_scale": [w.canvas.y_scale.min, w.canvas.y_scale.max],
+        "pitch": design.grid_pitch.tolist(),
+        "undo": w.session.history,
+    }
+    tmp = STATE.with_suffix(".tmp")
+    tmp.write_text(json.dumps(st, default=float))
+    tmp.replace(STATE)
+
+w.session.on_change(write_state)
+'''
+
+SHOW = '''\
+w
+'''
+
+READY = '''\
+write_state()
+'''
+
+
+def build() -> nbformat.NotebookNode:
+    nb = nbformat.v4.new_notebook()
+    nb.metadata["kernelspec"] = {"name": "python3", "display_name": "Python 3",
+                                 "language": "python"}
+    nb.cells = [nbformat.v4.new_code_cell(c) for c in (SETUP, STATE, SHOW, READY)]
+    return nb
+
+
+if __name__ == "__main__":
+    nbformat.write(build(), HERE / "drag_widget.ipynb")
