@@ -66,8 +66,7 @@ from ._io import atomic_write, read_text
 __all__ = ["read_aux", "read_pl", "write_aux", "write_pl"]
 
 _COMMENT = re.compile(rb"#[^\n]*")
-_FNV_OFFSET = np.uint64(0xCBF29CE484222325)
-_FNV_PRIME = np.uint64(0x100000001B3)
+_MASKS = np.array([(1 << (8 * k)) - 1 for k in range(9)], dtype=np.uint64)
 _MAX_NUMBER_LEN = 64
 _POW10 = 10 ** np.arange(19, dtype=np.int64)
 _POW10F = np.array([float(10**k) for k in range(23)])  # exact
@@ -102,9 +101,14 @@ class _Tokens:
                 arr[pos:end] = b" " * (end - pos)
                 pos = data.find(b"#", end)
             data = bytes(arr)
+        ends_nl = data.endswith(b"\n")
+        data += b" " * 8  # padding so that an 8-byte word can be read at any token start
         self.data = data
         buf = np.frombuffer(data, np.uint8)
         self.buf = buf
+        # every 8-byte little-endian word of the file, one per byte offset (a strided view)
+        self.words = np.ndarray(shape=(len(buf) - 7,), dtype="<u8", buffer=data, offset=0,
+                                strides=(1,))
         itype = np.int32 if len(buf) < 2**31 - 2 else np.int64
         colon = buf == 58
         tc = buf > 32
@@ -121,7 +125,7 @@ class _Tokens:
         self.length = (np.flatnonzero(en).astype(itype) + 1 - self.start).astype(itype)
         del en, tc
         nl = np.flatnonzero(buf == 10)
-        self.num_lines = len(nl) + (0 if data.endswith(b"\n") else 1)
+        self.num_lines = len(nl) + (0 if ends_nl else 1)
         ntok = len(self.start)
         # the first token after each newline starts a line; its line is one past the last
         # newline before it (a run of blank lines maps to one token)
@@ -153,7 +157,7 @@ class _Tokens:
     def fail(self, line, msg: str):
         raise DesignError(msg, file=self.path, line=None if line is None else int(line))
 
-    def words(self) -> list[str]:
+    def all_text(self) -> list[str]:
         """Every token as a str (for the small files read line by line)."""
         return self.names(np.arange(len(self.start)))
 
@@ -169,14 +173,16 @@ class _Tokens:
 
     # --- vectorised token tests --------------------------------------------------------------
     def eq(self, idx, word: bytes) -> np.ndarray:
-        """Mask of tokens ``idx`` equal to ``word``."""
+        """Mask of tokens ``idx`` equal to ``word`` (compared eight bytes at a time)."""
         idx = np.asarray(idx)
         res = self.length[idx] == len(word)
         sel = np.flatnonzero(res)
         s = self.start[idx[sel]]
         ok = np.ones(len(sel), bool)
-        for j, c in enumerate(word):
-            ok &= self.buf[s + j] == c
+        for c in range(0, len(word), 8):
+            chunk = word[c:c + 8]
+            ok &= (self.words[s + c] & _MASKS[len(chunk)]) == np.uint64(
+                int.from_bytes(chunk, "little"))
         res[sel] = ok
         return res
 
@@ -313,22 +319,33 @@ class _Tokens:
         out[ar + rep] = self.buf[ar + np.repeat(self.start[idx].astype(np.int64) - excl, L)]
         return out[:-1].tobytes().decode("utf-8", "replace").split("\n")
 
-    def hash(self, idx) -> np.ndarray:
-        """64-bit FNV-1a hash of tokens ``idx`` (vectorised, byte column by byte column)."""
+    def keys(self, idx) -> np.ndarray:
+        """A uint64 key per token: its bytes themselves when at most 8 long (exact, as tokens
+        hold no NUL), else a mix of its 8-byte words (equal keys then need :func:`_same`)."""
         idx = np.asarray(idx)
         L = self.length[idx]
-        k = len(idx)
-        h = np.full(k, _FNV_OFFSET, np.uint64)
-        if k == 0:
-            return h
-        order, cnt = _by_length(L, int(L.max()))
-        s = self.start[idx][order].astype(np.int64)
-        for j, c in enumerate(cnt.tolist()):  # columns over the tokens at least j+1 long
-            h[:c] ^= self.buf[s[:c] + j]
-            h[:c] *= _FNV_PRIME
-        out = np.empty(k, np.uint64)
-        out[order] = (h ^ L[order].astype(np.uint64)) * _FNV_PRIME
-        return out
+        s = self.start[idx]
+        key = self.words[s] & _MASKS[np.minimum(L, 8)]
+        long = np.flatnonzero(L > 8)
+        if len(long):
+            h = key[long]
+            sl, ll = s[long], L[long]
+            act = np.arange(len(long))
+            c = 8
+            while len(act):
+                w = self.words[sl[act] + c] & _MASKS[np.clip(ll[act] - c, 0, 8)]
+                h[act] = _mix(h[act]) ^ w
+                c += 8
+                act = act[ll[act] > c]
+            key[long] = _mix(h ^ ll.astype(np.uint64))
+        return key
+
+
+def _mix(h: np.ndarray) -> np.ndarray:
+    """The splitmix64 finaliser (Steele, Lea, Flood, OOPSLA 2014): scrambles all 64 bits."""
+    h = (h ^ (h >> np.uint64(30))) * np.uint64(0xBF58476D1CE4E5B9)
+    h = (h ^ (h >> np.uint64(27))) * np.uint64(0x94D049BB133111EB)
+    return h ^ (h >> np.uint64(31))
 
 
 def _by_length(L: np.ndarray, W: int) -> tuple[np.ndarray, np.ndarray]:
@@ -358,26 +375,51 @@ def _same(ta: _Tokens, ia, tb: _Tokens, ib) -> np.ndarray:
 
 
 class _NameTable:
-    """Exact name -> index lookup over tokens of one file, built from hashes."""
+    """Exact name -> index lookup over tokens of one file.
+
+    Keys (:meth:`_Tokens.keys`) go into an open-addressing hash table with linear probing,
+    built and probed with whole-array steps (one step per probe round, not per name).  Names
+    longer than eight bytes are confirmed byte by byte after a key match.
+    """
 
     def __init__(self, tok: _Tokens, idx: np.ndarray, what: str):
         self.tok, self.idx = tok, np.asarray(idx)
-        h = tok.hash(self.idx)
-        order = np.argsort(h, kind="stable")
-        hs = h[order]
-        self.order, self.hs = order, hs
+        n = len(self.idx)
+        keys = tok.keys(self.idx)
+        L = tok.length[self.idx]
+        order = np.argsort(keys)
+        ks = keys[order]
         self.fallback: dict[str, int] | None = None
-        dup = np.flatnonzero(hs[1:] == hs[:-1])
+        dup = np.flatnonzero(ks[1:] == ks[:-1])
         if len(dup):
             a, b = order[dup], order[dup + 1]
-            same = _same(tok, self.idx[a], tok, self.idx[b])
+            same = (L[a] == L[b]) & ((L[a] <= 8) | _same(tok, self.idx[a], tok, self.idx[b]))
             if same.any():
-                later = np.maximum(a, b)[same]
-                k = int(later.min())
+                k = int(np.maximum(a, b)[same].min())
                 i = self.idx[k]
                 tok.fail(tok.line_of(i), f"duplicate {what} name {tok.text(i)!r}")
-            # a true 64-bit hash collision: exact dictionary instead (practically never)
+            # two long names with one key: an exact dictionary instead (practically never)
             self.fallback = {nm: i for i, nm in enumerate(tok.names(self.idx))}
+            return
+        size = 16
+        while size < 2 * n:
+            size *= 2
+        self.mask = np.int64(size - 1)
+        self.tab = np.full(size, -1, np.int64)
+        self.tkey = np.zeros(size, np.uint64)
+        slot = (_mix(keys) & np.uint64(size - 1)).astype(np.int64)
+        pending = np.arange(n)
+        while len(pending):
+            sp = slot[pending]
+            free = np.flatnonzero(self.tab[sp] < 0)
+            uniq, first = np.unique(sp[free], return_index=True)
+            win = pending[free[first]]
+            self.tab[uniq] = win
+            self.tkey[uniq] = keys[win]
+            lose = np.ones(len(pending), bool)
+            lose[free[first]] = False
+            pending = pending[lose]
+            slot[pending] = (slot[pending] + 1) & self.mask
 
     def lookup(self, tok: _Tokens, idx) -> np.ndarray:
         """Index of every token ``idx`` of ``tok`` in the table, -1 where unknown."""
@@ -385,15 +427,25 @@ class _NameTable:
         if self.fallback is not None:
             fb = self.fallback
             return np.array([fb.get(nm, -1) for nm in tok.names(idx)], dtype=np.int64)
-        h = tok.hash(idx)
-        if len(self.hs) == 0:
-            return np.full(len(idx), -1, np.int64)
-        pos = np.minimum(np.searchsorted(self.hs, h), len(self.hs) - 1)
-        hit = self.hs[pos] == h
-        res = np.where(hit, self.order[pos], -1).astype(np.int64)
-        sel = np.flatnonzero(hit)
-        ok = _same(tok, idx[sel], self.tok, self.idx[res[sel]])
-        res[sel[~ok]] = -1
+        q = tok.keys(idx)
+        res = np.full(len(idx), -1, np.int64)
+        slot = (_mix(q) & np.uint64(self.mask)).astype(np.int64)
+        act = np.arange(len(idx))
+        while len(act):
+            sa = slot[act]
+            v = self.tab[sa]
+            hit = (v >= 0) & (self.tkey[sa] == q[act])
+            res[act[hit]] = v[hit]
+            act = act[(v >= 0) & ~hit]
+            slot[act] = (slot[act] + 1) & self.mask
+        found = np.flatnonzero(res >= 0)
+        ql = tok.length[idx[found]]
+        ok = ql == self.tok.length[self.idx[res[found]]]
+        lng = np.flatnonzero(ok & (ql > 8))
+        if len(lng):
+            f = found[lng]
+            ok[lng] = _same(tok, idx[f], self.tok, self.idx[res[f]])
+        res[found[~ok]] = -1
         return res
 
 
@@ -628,7 +680,7 @@ def _read_scl(path) -> dict:
             t.fail(ln, f"{key} must be positive, got {tok}")
         return v
 
-    words = t.words()
+    words = t.all_text()
     for ls_, lc_, ln in zip(t.ls.tolist(), t.lc.tolist(), t.lline.tolist()):
         toks = words[ls_:ls_ + lc_]
         head = toks[0].lower()
@@ -684,8 +736,8 @@ def _read_scl(path) -> dict:
                     t.fail(ln, f"row starting on line {start_line} has no {need.title()}")
             x0 = num(pairs["subroworigin"], ln, "SubrowOrigin")
             ns = num(pairs["numsites"], ln, "NumSites", positive=True)
-            if ns != int(ns):
-                t.fail(ln, "NumSites must be a whole number")
+            if ns != int(ns) or ns > 2**31:
+                t.fail(ln, "NumSites must be a whole number below 2**31")
             sw = cur.get("sitespacing", cur.get("sitewidth", 1.0))
             rows["x"].append(x0)
             rows["y"].append(cur["coordinate"])
