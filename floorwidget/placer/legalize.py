@@ -83,7 +83,10 @@ _EVAL_CELLS = 1 << 18  # candidate x obstacle comparisons per numpy chunk
 
 
 def _pairs(a: np.ndarray, b: np.ndarray | None = None) -> tuple[np.ndarray, np.ndarray]:
-    """Index pairs of rectangles with positive-area overlap (``i < j`` when ``b`` is None)."""
+    """Index pairs of rectangles with positive-area overlap (``i < j`` when ``b`` is None).
+
+    Sort-and-sweep along x: rows are taken in chunks in order of ``xlo``; a chunk is compared
+    only with the columns whose ``xlo`` lies in ``(min xlo - widest column, max xhi)``."""
     same = b is None
     if same:
         b = a
@@ -91,21 +94,24 @@ def _pairs(a: np.ndarray, b: np.ndarray | None = None) -> tuple[np.ndarray, np.n
     if n == 0 or m == 0:
         return np.zeros(0, np.intp), np.zeros(0, np.intp)
     out_i, out_j = [], []
-    step = max(1, _EVAL_CELLS // max(m, 1))
-    # sort-and-prune along x: only columns whose xlo is below the chunk's largest xhi matter
-    order = np.argsort(b[:, 0], kind="stable")
-    bs = b[order]
+    order_b = np.argsort(b[:, 0], kind="stable")
+    bs = b[order_b]
+    widest = float((b[:, 2] - b[:, 0]).max())
+    order_a = np.argsort(a[:, 0], kind="stable")
+    as_ = a[order_a]
+    step = 256
     for s in range(0, n, step):
-        aa = a[s:s + step]
+        aa = as_[s:s + step]
+        lo = np.searchsorted(bs[:, 0], aa[0, 0] - widest, side="left")
         hi = np.searchsorted(bs[:, 0], aa[:, 2].max(), side="left")
-        cols = bs[:hi]
-        if not len(cols):
+        if hi <= lo:
             continue
+        cols = bs[lo:hi]
         m_ = ((aa[:, None, 0] < cols[None, :, 2]) & (cols[None, :, 0] < aa[:, None, 2])
               & (aa[:, None, 1] < cols[None, :, 3]) & (cols[None, :, 1] < aa[:, None, 3]))
         i, j = np.nonzero(m_)
-        i = i + s
-        j = order[j]
+        i = order_a[i + s]
+        j = order_b[j + lo]
         if same:
             keep = i < j
             i, j = i[keep], j[keep]
@@ -113,7 +119,9 @@ def _pairs(a: np.ndarray, b: np.ndarray | None = None) -> tuple[np.ndarray, np.n
         out_j.append(j)
     if not out_i:
         return np.zeros(0, np.intp), np.zeros(0, np.intp)
-    return np.concatenate(out_i), np.concatenate(out_j)
+    i, j = np.concatenate(out_i), np.concatenate(out_j)
+    o = np.lexsort((j, i))  # deterministic order, independent of the sweep
+    return i[o], j[o]
 
 
 def _union_area(rects: np.ndarray, clip: np.ndarray) -> float:
@@ -252,18 +260,12 @@ class _Problem:
         full = np.hypot(max(abs(tx - xlo), abs(tx - xhi)), max(abs(ty - ylo), abs(ty - yhi)))
         full = full * 1.0001 + self.px + self.py
         rad = max(d0 + 0.25 * max(w, h), self.px + self.py)
-        # candidate grid lines: the snapped target, the bounds, and for every obstacle the
-        # nearest grid line just clear of it on each side (exact float fix-ups: the box
-        # expressions x - left and (x + w) + right decide, as everywhere else)
+        # candidate grid lines: the snapped target, the bounds, and for every obstacle in the
+        # window the nearest grid line just clear of it on each side (exact float fix-ups: the
+        # box expressions x - left and (x + w) + right decide, as everywhere else)
         org = np.array([self.ox, self.oy])
         pitch = np.array([self.px, self.py])
         size = np.array([w, h])
-        padlo = np.stack([lp, bp], 1)
-        padhi = np.stack([rp, tp], 1)
-        kr = np.ceil((obs[:, 2:] + padlo - org) / pitch - _EPS)
-        kr += (org + kr * pitch) - padlo < obs[:, 2:]
-        kl = np.floor((obs[:, :2] - size - padhi - org) / pitch + _EPS)
-        kl -= ((org + kl * pitch) + size) + padhi > obs[:, :2]
         kt = (np.array([tx, ty]) - org) / pitch
         bx = np.array([np.floor(kt[0]), np.ceil(kt[0]), kx0, kx1])
         by = np.array([np.floor(kt[1]), np.ceil(kt[1]), ky0, ky1])
@@ -275,8 +277,14 @@ class _Problem:
             sel = np.flatnonzero((fx1 > tx - rad - tol) & (fx0 < tx + rad + tol)
                                  & (fy1 > ty - rad - tol) & (fy0 < ty + rad + tol))
             o = obs[sel]
-            xs = np.concatenate([bx, kr[sel, 0], kl[sel, 0]])
-            ys = np.concatenate([by, kr[sel, 1], kl[sel, 1]])
+            padlo = np.stack([lp[sel], bp[sel]], 1)
+            padhi = np.stack([rp[sel], tp[sel]], 1)
+            kr = np.ceil((o[:, 2:] + padlo - org) / pitch - _EPS)
+            kr += (org + kr * pitch) - padlo < o[:, 2:]
+            kl = np.floor((o[:, :2] - size - padhi - org) / pitch + _EPS)
+            kl -= ((org + kl * pitch) + size) + padhi > o[:, :2]
+            xs = np.concatenate([bx, kr[:, 0], kl[:, 0]])
+            ys = np.concatenate([by, kr[:, 1], kl[:, 1]])
             xs = xs[(xs >= kx0) & (xs <= kx1) & (np.abs(self.gx(xs) - tx) <= rad)]
             ys = ys[(ys >= ky0) & (ys <= ky1) & (np.abs(self.gy(ys) - ty) <= rad)]
             best = None
