@@ -68,7 +68,9 @@ __all__ = ["read_aux", "read_pl", "write_aux", "write_pl"]
 _COMMENT = re.compile(rb"#[^\n]*")
 _MASKS = np.array([(1 << (8 * k)) - 1 for k in range(9)], dtype=np.uint64)
 _MAX_NUMBER_LEN = 64
-_POW10 = 10 ** np.arange(19, dtype=np.int64)
+_CLASS = np.full(256, 13, np.int64)  # byte -> digit value, 10 '.', 11 '-', 12 '+', 13 other
+_CLASS[48:58] = np.arange(10)
+_CLASS[46], _CLASS[45], _CLASS[43] = 10, 11, 12
 _POW10F = np.array([float(10**k) for k in range(23)])  # exact
 
 
@@ -230,30 +232,30 @@ class _Tokens:
         order, cnt = _by_length(L, int(L.max()))
         s = self.start[idx][order]
         m = np.zeros(k, np.int64)
-        nd = np.zeros(k, np.int16)
-        frac = np.zeros(k, np.int16)
-        ndot = np.zeros(k, np.int16)
-        seen = np.zeros(k, bool)
+        ndot = np.zeros(k, np.int8)
+        dotpos = np.full(k, -1, np.int16)
         bad = np.zeros(k, bool)
+        sign = np.zeros(k, bool)
         neg = np.zeros(k, bool)
         for j, c in enumerate(cnt.tolist()):
-            by = self.buf[s[:c] + j]
-            d = by - np.uint8(48)
+            d = _CLASS[self.buf[s[:c] + j]]     # digit value, 10 '.', 11 '-', 12 '+', 13 other
             isd = d < 10
-            isdot = by == 46
+            isdot = d == 10
             if j == 0:
-                neg = by == 45
-                bad |= ~(isd | isdot | neg | (by == 43))
+                neg = d == 11
+                sign = neg | (d == 12)
+                bad |= d == 13
             else:
-                bad[:c] |= ~(isd | isdot)
+                bad[:c] |= d > 10
             mc = m[:c]
             np.copyto(mc, mc * 10 + d, where=isd)
-            nd[:c] += isd
-            frac[:c] += isd & seen[:c]
-            seen[:c] |= isdot
             ndot[:c] += isdot
+            np.copyto(dotpos[:c], np.int16(j), where=isdot)
+        Ls = L[order].astype(np.int16)
+        nd = Ls - ndot - sign
+        frac = np.where(dotpos >= 0, Ls - 1 - dotpos, 0)
         fast = ~bad & (ndot <= 1) & (nd >= 1) & (nd <= 15)
-        v = m / _POW10F[np.minimum(frac, 22)]
+        v = m / _POW10F[np.clip(frac, 0, 22)]
         v[neg] *= -1.0
         out = np.empty(k)
         out[order] = v
