@@ -1616,18 +1616,21 @@ def _abstracts(design: Design) -> _Abstracts:
     bt = d.block_type
     key_of: dict[tuple, int] = {}
     keys: list[tuple] = []
-    bm = np.full(n, -1, np.int64)
-    for i in range(n):
-        k = int(d.kind[i])
-        if k == TERMINAL and not (bt is not None and bt[i]):
+    bm_l = [-1] * n
+    kl, wl, hl, al = d.kind.tolist(), wd.tolist(), hd.tolist(), d.orient_allowed.tolist()
+    for i in range(n):  # per block, in plain Python values (writing is per line anyway)
+        k = kl[i]
+        typed = bt is not None and bt[i]
+        if k == TERMINAL and not typed:
             continue  # an I/O pin (DEF PINS); typed terminals are pads (DEF COMPONENTS)
-        t = bt[i] if bt is not None and bt[i] else f"{KIND_NAMES[k]}_{wd[i]}x{hd[i]}"
-        key = (t, k, int(wd[i]), int(hd[i]), int(d.orient_allowed[i]))
+        t = bt[i] if typed else f"{KIND_NAMES[k]}_{wl[i]}x{hl[i]}"
+        key = (t, k, wl[i], hl[i], al[i])
         j = key_of.get(key)
         if j is None:
             j = key_of[key] = len(keys)
             keys.append(key)
-        bm[i] = j
+        bm_l[i] = j
+    bm = np.array(bm_l, np.int64)
     per_type = Counter(k[0] for k in keys)
     names, used = [], set()
     for t, _k, w, h, _a in keys:
@@ -1644,20 +1647,27 @@ def _abstracts(design: Design) -> _Abstracts:
     is_t = pm < 0
     pin_name = [""] * d.num_pins
     master_pins: list[dict] = [dict() for _ in range(m)]
+    sel = np.flatnonzero(~is_t)
     ok = d.pin_names is not None
-    if ok:
-        pn = d.pin_names
-        for j in np.flatnonzero(~is_t):
-            nm, mm = pn[j], int(pm[j])
-            if not nm:
+    if ok and len(sel):
+        # the design's own pin names, if every (master, name) has one offset (to 1/2 dbu)
+        pn_sel = np.array(d.pin_names, dtype=object)[sel].tolist()
+        if "" in pn_sel:
+            ok = False
+        else:
+            ids = {nm: k for k, nm in enumerate(dict.fromkeys(pn_sel))}
+            nid = np.fromiter(map(ids.__getitem__, pn_sel), np.int64, len(pn_sel))
+            key = pm[sel] * (int(nid.max()) + 1) + nid
+            _, first, inv = np.unique(key, return_index=True, return_inverse=True)
+            inv = inv.reshape(-1)
+            dx, dy = d.pin_dx[sel], d.pin_dy[sel]
+            if (np.abs(dx - dx[first][inv]) * dbu > 0.5).any() or \
+                    (np.abs(dy - dy[first][inv]) * dbu > 0.5).any():
                 ok = False
-                break
-            off = (d.pin_dx[j], d.pin_dy[j])
-            prev = master_pins[mm].setdefault(nm, off)
-            if abs(prev[0] - off[0]) * dbu > 0.5 or abs(prev[1] - off[1]) * dbu > 0.5:
-                ok = False
-                break
-            pin_name[j] = nm
+            else:
+                for f in first.tolist():
+                    master_pins[int(pm[sel[f]])][pn_sel[f]] = (float(dx[f]), float(dy[f]))
+                pin_name = list(d.pin_names)
     if not ok:
         master_pins = [dict() for _ in range(m)]
         pin_name = [""] * d.num_pins
@@ -1844,16 +1854,21 @@ def _def_text(design: Design, fp: Floorplan, path) -> str:
                    f"{ORIENTATIONS[int(d.row_orient[r])]} DO {int(d.row_num_sites[r])} BY 1 "
                    f"STEP {rs[r]} 0 ;")
     out.append("")
-    xs, ys = I(fp.x), I(fp.y)
-    halo = I(d.halo)
+    xs_a, ys_a = I(fp.x), I(fp.y)
+    xs, ys = xs_a.tolist(), ys_a.tolist()
+    halo_a = I(d.halo)
+    has_halo = halo_a.any(axis=1).tolist()
+    halo = halo_a.tolist()
+    stl, orl, bml = fp.status.tolist(), fp.orient.tolist(), ab.block_master.tolist()
     out.append(f"COMPONENTS {len(comp)} ;")
     st_word = {MOVABLE: "PLACED", PINNED: "FIXED", FIXED: "FIXED"}
     for i in comp.tolist():
-        s = int(fp.status[i])
-        line = (f"- {names[i]} {ab.names[ab.block_master[i]]} + {st_word[s]} "
-                f"( {xs[i]} {ys[i]} ) {ORIENTATIONS[int(fp.orient[i])]}")
-        if halo[i].any():
-            line += f" + HALO {halo[i, 0]} {halo[i, 1]} {halo[i, 2]} {halo[i, 3]}"
+        s = stl[i]
+        line = (f"- {names[i]} {ab.names[bml[i]]} + {st_word[s]} "
+                f"( {xs[i]} {ys[i]} ) {ORIENTATIONS[orl[i]]}")
+        if has_halo[i]:
+            h = halo[i]
+            line += f" + HALO {h[0]} {h[1]} {h[2]} {h[3]}"
         if s == PINNED:
             line += f' + PROPERTY {STATUS_PROPERTY} "PINNED"'
         out.append(line + " ;")
@@ -1896,7 +1911,7 @@ def _def_text(design: Design, fp: Floorplan, path) -> str:
     out.append(f"NETS {d.num_nets} ;")
     term_name = {int(i): tnames[k] for k, i in enumerate(term.tolist())}
     pb = d.pin_block.tolist()
-    refs = [f"( PIN {term_name[b]} )" if ab.block_master[b] < 0 else f"( {names[b]} {p} )"
+    refs = [f"( PIN {term_name[b]} )" if bml[b] < 0 else f"( {names[b]} {p} )"
             for b, p in zip(pb, ab.pin_name)]
     st = d.net_start.tolist()
     wt = d.net_weight
