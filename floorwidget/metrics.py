@@ -10,7 +10,7 @@ Conventions
   orientation applied (:meth:`Floorplan.pin_positions`), in µm.
 * **Bins** (:class:`BinGrid`) tile the core exactly (``nx * bw == core width``).  The default
   bin side is four standard-cell row heights (a common-practice choice), enlarged so that the
-  grid never has more than :data:`MAX_BINS` bins along either side.
+  grid never has more than :data:`MAX_BINS` (128) bins along either side.
 * **Density**: *movable area* is the footprint area of movable blocks (macros, clusters and
   cells -- never terminals); *fixed area* that of pinned or fixed blocks (again not terminals);
   both are clipped to the core.  *Free area* of a bin is its area inside the core minus the
@@ -70,8 +70,10 @@ __all__ = [
     "rudy_map",
 ]
 
-#: Upper bound on the number of bins along either side of the default grid.
-MAX_BINS = 256
+#: Upper bound on the number of bins along either side of the default grid.  128 keeps a map
+#: near 100 kB, so the report after every drop in the notebook stays at a few milliseconds
+#: (large full-grid temporaries cost more in fresh memory pages than in arithmetic).
+MAX_BINS = 128
 #: Default bin side in standard-cell row heights (common practice: a few rows).
 ROWS_PER_BIN = 4
 #: Bins along the longer core side when the design has no rows.
@@ -258,7 +260,7 @@ def bin_grid(design: Design, bin_size: float | tuple[float, float] | None = None
     bin_size : float or (float, float), optional
         Wanted bin side(s), µm.  The grid rounds it so that whole bins tile the core.  Default:
         ``ROWS_PER_BIN`` (4) row heights, or the longer core side / 128 without rows; either way
-        grown so that no side has more than :data:`MAX_BINS` (256) bins.  An explicit
+        grown so that no side has more than :data:`MAX_BINS` (128) bins.  An explicit
         ``bin_size`` is honoured up to 4096 bins a side.
 
     Returns
@@ -341,19 +343,25 @@ def rect_area_map(grid: BinGrid, rects: np.ndarray, weights=None) -> np.ndarray:
     sg = np.concatenate([wt, -wt, -wt, wt])
     i, fx = _split(cx, grid.xlo, grid.bw, nx)
     j, fy = _split(cy, grid.ylo, grid.bh, ny)
-    stride = ny + 1
-    size = (nx + 1) * stride
+    size = nx * ny
 
     def scatter(ii, jj, val):
-        return np.bincount(ii * stride + jj, weights=val, minlength=size).reshape(nx + 1, ny + 1)
+        # corners one past the last bin only feed running sums beyond the grid: drop them
+        ok = (ii < nx) & (jj < ny)
+        return np.bincount(np.where(ok, ii * ny + jj, 0), weights=np.where(ok, val, 0.0),
+                           minlength=size).reshape(nx, ny)
 
-    # out = D + C0(SX) + C1(SY) + C0(C1(SXY)), with Ck a running sum along axis k
-    sxy = np.cumsum(scatter(i + 1, j + 1, sg * grid.bin_area), axis=1)
-    sxy += scatter(i + 1, j, sg * grid.bw * fy)
-    out = np.cumsum(sxy, axis=0)
-    out += np.cumsum(scatter(i, j + 1, sg * fx * grid.bh), axis=1)
+    # out = D + C0(SX) + C1(SY) + C0(C1(SXY)), with Ck a running sum along axis k; in place,
+    # since fresh full-grid temporaries cost more than the arithmetic here
+    out = scatter(i + 1, j + 1, sg * grid.bin_area)
+    np.cumsum(out, axis=1, out=out)
+    out += scatter(i + 1, j, sg * grid.bw * fy)
+    np.cumsum(out, axis=0, out=out)
+    sy = scatter(i, j + 1, sg * fx * grid.bh)
+    np.cumsum(sy, axis=1, out=sy)
+    out += sy
     out += scatter(i, j, sg * fx * fy)
-    return out[:nx, :ny]
+    return out
 
 
 def _union_rects(rects: np.ndarray, max_edges: int = 2000) -> np.ndarray:
@@ -422,15 +430,18 @@ class DensityMap:
         Bins outside the core read 0.
         """
         used = self.movable + self.fixed
-        out = np.zeros_like(used)
-        np.divide(used, self.core, out=out, where=self.core > 1e-12 * self.grid.bin_area)
-        return out
+        np.divide(used, self.core, out=used, where=self.core > 1e-12 * self.grid.bin_area)
+        used[self.core <= 1e-12 * self.grid.bin_area] = 0.0
+        return used
 
     def overflow(self, target_density: float = 0.8) -> float:
         """Overflow ratio at ``target_density`` (see :func:`density_overflow`)."""
         if self.total_movable <= 0:
             return 0.0
-        excess = np.maximum(0.0, self.movable + self.fixed - target_density * self.free)
+        excess = np.multiply(self.free, -float(target_density))
+        excess += self.movable
+        excess += self.fixed
+        np.maximum(excess, 0.0, out=excess)
         return float((excess.sum() + self.movable_outside) / self.total_movable)
 
 
@@ -465,7 +476,8 @@ def density_map(design: Design, fp: Floorplan, grid: BinGrid | None = None) -> D
         bl = bl[(bl[:, 2] > bl[:, 0]) & (bl[:, 3] > bl[:, 1])]
     blockage = _nonneg(rect_area_map(grid, _union_rects(bl))) if len(bl) \
         else np.zeros(grid.shape)
-    free = _nonneg(core_area - blockage)
+    free = np.subtract(core_area, blockage)
+    _nonneg(free)
     w, h = design.width[mov], design.height[mov]
     total = float(np.dot(w, h))
     outside = max(0.0, total - float(movable.sum()))

@@ -113,7 +113,7 @@ def test_bin_grid_rule(demo_design):
     c = demo_design.core
     assert g.nx <= M.MAX_BINS and g.ny <= M.MAX_BINS
     assert g.xhi == pytest.approx(c[2]) and g.yhi == pytest.approx(c[3])
-    # the 4-row default (7.2 µm) would give more than 256 bins over 2360 µm: bounded
+    # the 4-row default (7.2 µm) would give more than MAX_BINS bins over 2360 µm: bounded
     assert g.bw >= (c[2] - c[0]) / M.MAX_BINS - 1e-9
     small = M.bin_grid(demo_design, 100.0)
     assert small.nx == round((c[2] - c[0]) / 100.0)
