@@ -366,3 +366,18 @@ def test_netlist_matches_networkx_graph(tmp_path):
     bip = sp.bmat([[None, inc], [inc.T, None]]).tocsr()
     ncomp, _ = connected_components(bip, directed=False)
     assert ncomp == nx.number_connected_components(G)
+
+
+def test_read_pl_keeps_unlisted_blocks_and_fixes_flagged_ones(tiny, tmp_path):
+    d = read_aux(tiny)
+    pl = tmp_path / "part.pl"
+    pl.write_text("UCLA pl 1.0\nb 3.5 4 : FN /FIXED\n")
+    fp = read_pl(d, pl)
+    assert fp.position("b") == (3.5, 4.0) and fp.orientation("b") == "FN"
+    assert fp.status_of("b") == "fixed"
+    assert fp.position("a") == d.initial.position("a")
+    assert fp.status_of("p1") == "fixed" and fp.status_of("a") == "movable"
+    pl.write_text("UCLA pl 1.0\nb 3.5 4 : FN\nzz 1 1 : N\n")
+    with pytest.raises(DesignError) as info:
+        read_pl(d, pl)
+    assert info.value.line == 3 and "zz" in str(info.value)
