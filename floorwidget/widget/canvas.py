@@ -155,7 +155,7 @@ class Canvas:
                 x=cx[self.macro_idx], y=cy[self.macro_idx], scales=sc, enable_move=True,
                 update_on_move=False, marker="circle", default_size=36,
                 colors=[self.ui["handle"]], stroke=self.ui["outline"], stroke_width=1.0,
-                default_opacities=[0.85], selected_style={"stroke": self.ui["selection"],
+                opacities=[0.9], selected_style={"stroke": self.ui["selection"],
                                                           "stroke-width": 3},
                 unselected_style={})
         self.marks = m
