@@ -13,8 +13,9 @@ Shipping the design
 -------------------
 The design is pickled **once** per sweep (without its name-index cache, see
 :func:`dumps_design`).  The default process pool receives it once per worker through the pool
-initializer; other executors receive the bytes with each task, and every worker process
-unpickles them only once (a per-process cache keyed by a token of the sweep).  Results travel
+initializer; other executors (a Dask ``Client.get_executor()`` among them) receive the bytes
+with each task, and every worker process unpickles them only once (a per-process cache keyed
+by a token of the sweep).  Results travel
 back as bare arrays (x, y, orientation, status, info) and are rebuilt into
 :class:`~floorwidget.design.Floorplan` objects on the caller's own design, so a result never
 drags a copy of the design back.
@@ -40,7 +41,7 @@ from typing import Any, TextIO
 
 import numpy as np
 
-from .design import MACRO, PINNED, Design, DesignError, Floorplan
+from .design import FIXED, MACRO, PINNED, Design, DesignError, Floorplan
 
 __all__ = [
     "SerialExecutor",
@@ -267,7 +268,35 @@ class _DesignRef:
         return r
 
     def __reduce__(self):
-        return _resolve_design, (self.token, self.payload if self.ship else None)
+        return _Shipped, (self.token, self.payload if self.ship else None)
+
+    def __dask_tokenize__(self):
+        return ("floorwidget-design", self.token)
+
+
+class _Shipped:
+    """What a :class:`_DesignRef` becomes once pickled: the token and the bytes, still opaque.
+
+    It resolves to a :class:`Design` only when the task runs (:meth:`get`, cached per
+    process).  Staying opaque matters on Dask, whose scheduler unpickles and re-pickles task
+    arguments on the way to a worker: a Design resolved there would reach the worker as a
+    fresh full pickle with every task.
+    """
+
+    __slots__ = ("token", "payload")
+
+    def __init__(self, token: str, payload: bytes | None):
+        self.token = token
+        self.payload = payload
+
+    def __reduce__(self):
+        return _Shipped, (self.token, self.payload)
+
+    def __dask_tokenize__(self):
+        return ("floorwidget-design", self.token)
+
+    def get(self) -> Design:
+        return _resolve_design(self.token, self.payload)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -367,7 +396,7 @@ def _pin_names(design: Design, fp: Floorplan, names) -> None:
             raise ValueError(f"pinned: {nm!r} is not a macro")
         idx.append(i)
     idx = np.asarray(idx, dtype=np.intp)
-    keep_fixed = fp.status[idx] == 2
+    keep_fixed = fp.status[idx] == FIXED
     fp.status[idx[~keep_fixed]] = PINNED
 
 
@@ -390,7 +419,12 @@ def _run_one(design_ref, base: tuple, params: dict, fixed: dict) -> dict:
     """
     t0 = time.perf_counter()
     try:
-        design = design_ref.design if isinstance(design_ref, _DesignRef) else design_ref
+        if isinstance(design_ref, _DesignRef):  # in-process executor: the caller's design
+            design = design_ref.design
+        elif isinstance(design_ref, _Shipped):
+            design = design_ref.get()
+        else:
+            design = design_ref
         from .metrics import evaluate
         from .placer import place
 

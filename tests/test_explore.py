@@ -76,6 +76,12 @@ def test_default_process_pool_matches_serial(demo_design, serial):
     assert sorted(i for _, _, i in seen) == [0, 1, 2, 3]
 
 
+def _worker_designs():
+    from floorwidget import explore
+
+    return sorted(explore._WORKER_DESIGNS)
+
+
 def test_dask_local_cluster_matches_serial(demo_design, serial):
     distributed = pytest.importorskip("distributed")
     with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
@@ -83,9 +89,11 @@ def test_dask_local_cluster_matches_serial(demo_design, serial):
             distributed.Client(cluster) as client:
         ex = client.get_executor()
         on_dask = sweep(demo_design, GRID, executor=ex, **FAST)
-        # the runs really went to the two worker processes
-        who = client.run(lambda: __import__("os").getpid())
-    assert len(who) == 2
+        # two worker processes; each unpickled the design at most once for all its runs
+        cached = client.run(_worker_designs)
+    assert len(cached) == 2
+    assert all(len(v) <= 1 for v in cached.values()), cached
+    assert len({t for v in cached.values() for t in v}) == 1
     assert_same(on_dask, serial)
 
 
