@@ -517,6 +517,10 @@ def sweep(design: Design, grid: Mapping[str, Sequence] | Sequence[Mapping[str, A
     >>> res = fw.explore.sweep(d, {"target_density": [0.7, 0.9], "seed": [0, 1]})  # doctest: +SKIP
     >>> [round(r.report["hpwl"]) for r in res]                            # doctest: +SKIP
 
+    The default pool starts its workers with the ``spawn`` method, which re-imports the main
+    module: in a script, call :func:`sweep` under ``if __name__ == "__main__":`` (notebooks
+    and the command line need nothing).
+
     On a Dask cluster::
 
         from distributed import Client

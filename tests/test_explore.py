@@ -11,6 +11,8 @@ import concurrent.futures as cf
 import io
 import itertools
 import pickle
+import subprocess
+import sys
 import threading
 
 import numpy as np
@@ -266,3 +268,12 @@ def test_text_progress_and_to_session(demo_design, serial):
         assert alts[lab].floorplan.identical(r.floorplan)
     s.restore(labels[2])
     assert s.floorplan.identical(serial[2].floorplan)
+
+
+def test_core_module_imports_no_widget_or_cluster_library():
+    code = ("import sys, floorwidget.explore; "
+            "bad = [m for m in ('ipywidgets', 'bqplot', 'distributed', 'dask') "
+            "if m in sys.modules]; "
+            "print(bad); sys.exit(1 if bad else 0)")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
+    assert out.returncode == 0, out.stdout + out.stderr
