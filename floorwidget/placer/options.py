@@ -64,7 +64,7 @@ class PlacerOptions:
     initial_iterations : int
         Wirelength-only Bound2Bound iterations before spreading starts.  Default 6.
     refine_iterations : int
-        Spreading iterations of :func:`~floorwidget.placer.refine`.  Default 4.
+        Spreading iterations of :func:`~floorwidget.placer.refine`.  Default 2.
     stall_iterations : int
         Stop when the overflow has not improved by 2 % (relative) over this many iterations.
     cg_tol : float
@@ -92,7 +92,7 @@ class PlacerOptions:
     overflow_target: float = 0.10
     max_iterations: int = 80
     initial_iterations: int = 6
-    refine_iterations: int = 4
+    refine_iterations: int = 2
     stall_iterations: int = 10
     cg_tol: float = 1e-4
     cg_maxiter: int = 150

@@ -132,19 +132,60 @@ def _prefix(cap):
     return S
 
 
-def lookahead(grid: Grid, cap: np.ndarray, cx, cy, w, h):
+def _cum_capacity(S, grid: Grid, x, y):
+    """Integrated capacity over ``[xlo, x] × [ylo, y]``: bilinear in the corner prefix sums,
+    which is exact because capacity is uniform inside a bin."""
+    fx = np.clip((x - grid.xlo) / grid.bw, 0.0, grid.nx)
+    fy = np.clip((y - grid.ylo) / grid.bh, 0.0, grid.ny)
+    i = np.minimum(fx.astype(np.int64), grid.nx - 1)
+    j = np.minimum(fy.astype(np.int64), grid.ny - 1)
+    u = fx - i
+    v = fy - j
+    return (S[i, j] * (1 - u) * (1 - v) + S[i + 1, j] * u * (1 - v)
+            + S[i, j + 1] * (1 - u) * v + S[i + 1, j + 1] * u * v)
+
+
+def _box_capacity(S, grid: Grid, x0, x1, y0, y1):
+    k = len(x0)
+    f = _cum_capacity(S, grid, np.concatenate([x1, x0, x1, x0]), np.concatenate([y1, y1, y0, y0]))
+    return f[:k] - f[k:2 * k] - f[2 * k:3 * k] + f[3 * k:]
+
+
+def _clamp_into(c, size, lo, hi):
+    """Centre ``c`` moved the least so that ``[c - size/2, c + size/2]`` lies in ``[lo, hi]``
+    (the middle when it does not fit)."""
+    fits = hi - lo >= size
+    return np.where(fits, np.clip(c, lo + size / 2, np.maximum(hi - size / 2, lo + size / 2)),
+                    (lo + hi) / 2)
+
+
+def lookahead(grid: Grid, cap: np.ndarray, cx, cy, w, h, *, leaf: float = 1.0,
+              max_levels: int = 64):
     """Density-feasible look-ahead centres for objects now centred at ``cx, cy``.
+
+    Recursive bisection of the core: every region is cut in the middle across its longer
+    side, its objects are ordered along the cut and split where their cumulative area reaches
+    the free-capacity share of the first half (capacity from ``cap``, uniform inside a bin), and
+    the recursion goes on down to regions of one bin (``leaf``) of uniform capacity.  An
+    object alone in its region follows its own side of each cut while that side has room.  An
+    object longer than the next region along the cut (a macro) stops at the level where it
+    still fits, keeps its position clamped into its region, and its footprint is taken out of
+    the capacity below.
 
     Parameters
     ----------
     grid, cap : the bin grid and its free capacity (:func:`capacity_map`).
     cx, cy, w, h : (N,) centres and footprints of the movable objects.
+    leaf : float
+        Regions no larger than ``leaf`` bins along both sides are not cut further; their
+        objects keep their positions clamped into the region (``leaf`` < 1 spreads further,
+        down to single objects).
+    max_levels : int
+        Guard on the recursion depth (objects still shared then are clamped into their region).
 
     Returns
     -------
-    tx, ty : (N,) look-ahead centres.  Inside each final bin an object keeps its position when it
-    lies in the bin and is clamped into it otherwise; objects frozen at a coarser level (larger
-    than the next region) keep their position clamped into their region.
+    tx, ty : (N,) look-ahead centres; the relative order of objects along every cut is kept.
     """
     n = len(cx)
     tx = np.array(cx, np.float64)
@@ -153,103 +194,115 @@ def lookahead(grid: Grid, cap: np.ndarray, cx, cy, w, h):
         return tx, ty
     cap = cap.copy()
     S = _prefix(cap)
+    dmax = float(cap.max()) / grid.bin_area
     area = np.asarray(w * h, np.float64)
-    # regions as bin index ranges [i0, i1) x [j0, j1)
-    reg_box = np.array([[0, grid.nx, 0, grid.ny]], np.int64)
+    x_span = grid.nx * grid.bw
+    y_span = grid.ny * grid.bh
+    # regions as float boxes x0, x1, y0, y1
+    boxes = np.array([[grid.xlo, grid.xlo + x_span, grid.ylo, grid.ylo + y_span]])
     reg = np.zeros(n, np.int64)
-    active = np.arange(n)  # objects still being partitioned
-    bw, bh = grid.bw, grid.bh
-    done_box = np.zeros((n, 4), np.int64)  # final region of every object
-    frozen = np.zeros(n, bool)
-    while len(active):
-        boxes = reg_box
-        ni = boxes[:, 1] - boxes[:, 0]
-        nj = boxes[:, 3] - boxes[:, 2]
-        leaf = (ni <= 1) & (nj <= 1)
+    active = np.arange(n)
+
+    def settle(idx):
+        b = boxes[reg[idx]]
+        tx[idx] = _clamp_into(cx[idx], w[idx], b[:, 0], b[:, 1])
+        ty[idx] = _clamp_into(cy[idx], h[idx], b[:, 2], b[:, 3])
+
+    for _level in range(max_levels):
+        nreg = len(boxes)
         r_of = reg[active]
-        is_leaf = leaf[r_of]
-        if is_leaf.any():
-            fin = active[is_leaf]
-            done_box[fin] = boxes[r_of[is_leaf]]
-            active = active[~is_leaf]
-            r_of = r_of[~is_leaf]
-        if not len(active):
-            break
-        cutx = (ni * bw >= nj * bh) & (ni > 1) | (nj <= 1)
-        mid = np.where(cutx, (boxes[:, 0] + boxes[:, 1]) // 2, (boxes[:, 2] + boxes[:, 3]) // 2)
-        # child extents along the cut (µm)
-        lo_len = np.where(cutx, (mid - boxes[:, 0]) * bw, (mid - boxes[:, 2]) * bh)
-        hi_len = np.where(cutx, (boxes[:, 1] - mid) * bw, (boxes[:, 3] - mid) * bh)
+        # a region no larger than a leaf (a bin by default) is not cut further, unless part
+        # of it has less capacity than the rest (an obstacle edge runs through it)
+        small = ((boxes[:, 1] - boxes[:, 0]) <= leaf * grid.bw * (1 + 1e-9)) & \
+                ((boxes[:, 3] - boxes[:, 2]) <= leaf * grid.bh * (1 + 1e-9))
+        if small.any():
+            bs = boxes[small]
+            rc = _box_capacity(S, grid, bs[:, 0], bs[:, 1], bs[:, 2], bs[:, 3])
+            full = rc >= 0.999 * dmax * (bs[:, 1] - bs[:, 0]) * (bs[:, 3] - bs[:, 2])
+            small[np.flatnonzero(small)[~full]] = False
+        done = small[r_of]
+        if done.any():
+            settle(active[done])
+            active = active[~done]
+            r_of = r_of[~done]
+            if not len(active):
+                break
+        bw_ = boxes[:, 1] - boxes[:, 0]
+        bh_ = boxes[:, 3] - boxes[:, 2]
+        cutx = bw_ >= bh_
+        # cut on a bin line while the region spans several bins (regions stay bin-aligned, so
+        # a leaf is exactly one bin), in the middle below that
+        length = np.where(cutx, bw_, bh_)
+        pitch = np.where(cutx, grid.bw, grid.bh)
+        nb = np.round(length / pitch).astype(np.int64)
+        lo_edge = np.where(cutx, boxes[:, 0], boxes[:, 2])
+        mid = np.where(nb >= 2, lo_edge + (nb // 2) * pitch, lo_edge + length / 2)
+        half = np.minimum(mid - lo_edge, lo_edge + length - mid)
         ext = np.where(cutx[r_of], w[active], h[active])
-        big = ext > np.minimum(lo_len, hi_len)[r_of]
+        big = ext > half[r_of]
         if big.any():
             fz = active[big]
-            bx = boxes[reg[fz]]
-            x0 = grid.xlo + bx[:, 0] * bw
-            x1 = grid.xlo + bx[:, 1] * bw
-            y0 = grid.ylo + bx[:, 2] * bh
-            y1 = grid.ylo + bx[:, 3] * bh
-            tx[fz] = np.where(x1 - x0 >= w[fz], np.clip(cx[fz], x0 + w[fz] / 2, x1 - w[fz] / 2),
-                              (x0 + x1) / 2)
-            ty[fz] = np.where(y1 - y0 >= h[fz], np.clip(cy[fz], y0 + h[fz] / 2, y1 - h[fz] / 2),
-                              (y0 + y1) / 2)
-            frozen[fz] = True
-            used = rasterize(grid, tx[fz] - w[fz] / 2, ty[fz] - h[fz] / 2,
-                             tx[fz] + w[fz] / 2, ty[fz] + h[fz] / 2)
-            cap = np.maximum(cap - used, 0.0)
-            S = _prefix(cap)
+            settle(fz)
+            # objects larger than a bin take their footprint out of the capacity below; smaller
+            # ones stop inside a single bin's worth of region, where capacity is uniform anyway
+            fz = fz[(w[fz] > grid.bw) | (h[fz] > grid.bh)]
+            if len(fz):
+                used = rasterize(grid, tx[fz] - w[fz] / 2, ty[fz] - h[fz] / 2,
+                                 tx[fz] + w[fz] / 2, ty[fz] + h[fz] / 2)
+                cap = np.maximum(cap - used, 0.0)
+                S = _prefix(cap)
             active = active[~big]
             r_of = r_of[~big]
             if not len(active):
                 break
-        # split every region's objects by cumulative area along the cut
-        rb = boxes
-        mx = np.where(cutx, mid, rb[:, 1])  # x-limit of child A
-        my = np.where(cutx, rb[:, 3], mid)  # y-limit of child A
-        bx0 = np.where(cutx, mid, rb[:, 0])
-        by0 = np.where(cutx, rb[:, 2], mid)
-        capA = _rect_sum(S, rb[:, 0], mx, rb[:, 2], my)
-        capB = _rect_sum(S, bx0, rb[:, 1], by0, rb[:, 3])
-        capA = np.maximum(capA, 0.0)
-        capB = np.maximum(capB, 0.0)
+        # children: A below/left of the cut, B above/right
+        A = boxes.copy()
+        B = boxes.copy()
+        A[:, 1] = np.where(cutx, mid, boxes[:, 1])
+        A[:, 3] = np.where(cutx, boxes[:, 3], mid)
+        B[:, 0] = np.where(cutx, mid, boxes[:, 0])
+        B[:, 2] = np.where(cutx, boxes[:, 2], mid)
+        AB = np.concatenate([A, B])
+        capAB = np.maximum(_box_capacity(S, grid, AB[:, 0], AB[:, 1], AB[:, 2], AB[:, 3]), 0.0)
+        capA, capB = capAB[:nreg], capAB[nreg:]
         tot = capA + capB
-        geo = lo_len / np.maximum(lo_len + hi_len, 1e-300)
-        frac = np.where(tot > 1e-12 * grid.bin_area, capA / np.where(tot > 0, tot, 1.0), geo)
-        key = np.where(cutx[r_of], cx[active], cy[active])
-        order = np.lexsort((active, key, r_of))
+        frac = np.where(tot > 1e-12 * grid.bin_area, capA / np.where(tot > 0, tot, 1.0), 0.5)
+        # one argsort on region id + coordinate scaled into [0, 1): by region, then along the
+        # cut (deterministic, cheaper than a multi-key lexsort)
+        kx = (cx[active] - grid.xlo) / x_span
+        ky = (cy[active] - grid.ylo) / y_span
+        key = np.clip(np.where(cutx[r_of], kx, ky), 0.0, 1.0 - 1e-9)
+        order = np.argsort(r_of + key, kind="stable")
         act_s = active[order]
         r_s = r_of[order]
         a_s = area[act_s]
         csum = np.cumsum(a_s)
-        nreg = len(boxes)
         reg_area = np.bincount(r_s, weights=a_s, minlength=nreg)
         reg_first = np.concatenate([[0.0], np.cumsum(reg_area)[:-1]])
         before = csum - a_s - reg_first[r_s]
         goes_a = (before + a_s / 2) < frac[r_s] * reg_area[r_s]
-        # new regions: child A = 2r, child B = 2r + 1
-        childA = rb.copy()
-        childB = rb.copy()
-        childA[:, 1] = np.where(cutx, mid, rb[:, 1])
-        childA[:, 3] = np.where(cutx, rb[:, 3], mid)
-        childB[:, 0] = np.where(cutx, mid, rb[:, 0])
-        childB[:, 2] = np.where(cutx, rb[:, 2], mid)
+        # an object alone in its region goes on down on its own side while that side has room
+        alone = np.bincount(r_s, minlength=nreg)[r_s] == 1
+        if alone.any():
+            i_al = act_s[alone]
+            r_al = r_s[alone]
+            c_al = np.where(cutx[r_al], cx[i_al], cy[i_al])
+            pref_a = c_al < mid[r_al]
+            a_al = area[i_al]
+            ok_a = capA[r_al] >= a_al
+            ok_b = capB[r_al] >= a_al
+            neither = ~ok_a & ~ok_b
+            goes_a[alone] = np.where(pref_a, ok_a | (neither & (capA[r_al] >= capB[r_al])),
+                                     ~(ok_b | (neither & (capB[r_al] >= capA[r_al]))))
         new_reg = 2 * r_s + (~goes_a).astype(np.int64)
-        boxes2 = np.empty((2 * nreg, 4), np.int64)
-        boxes2[0::2] = childA
-        boxes2[1::2] = childB
-        # compact to the regions in use
-        used_ids, inv = np.unique(new_reg, return_inverse=True)
-        reg_box = boxes2[used_ids]
-        reg[act_s] = inv
+        boxes2 = np.empty((2 * nreg, 4))
+        boxes2[0::2] = A
+        boxes2[1::2] = B
+        used_r = np.bincount(new_reg, minlength=2 * nreg) > 0
+        remap = np.cumsum(used_r) - 1
+        boxes = boxes2[used_r]
+        reg[act_s] = remap[new_reg]
         active = act_s
-    # place the finished objects inside their final bins
-    fin = ~frozen
-    bx = done_box[fin]
-    x0 = grid.xlo + bx[:, 0] * bw
-    x1 = grid.xlo + bx[:, 1] * bw
-    y0 = grid.ylo + bx[:, 2] * bh
-    y1 = grid.ylo + bx[:, 3] * bh
-    wf, hf = w[fin], h[fin]
-    tx[fin] = np.where(x1 - x0 >= wf, np.clip(tx[fin], x0 + wf / 2, x1 - wf / 2), (x0 + x1) / 2)
-    ty[fin] = np.where(y1 - y0 >= hf, np.clip(ty[fin], y0 + hf / 2, y1 - hf / 2), (y0 + y1) / 2)
+    if len(active):
+        settle(active)
     return tx, ty
