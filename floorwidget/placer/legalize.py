@@ -725,8 +725,16 @@ def legalize_macros(design: Design, fp: Floorplan, *, macros: Iterable | None = 
                     report("legalize", 0.6, {"stage": "lp"})
                     nx_, ny_, rounds = prob.lp_improve(nx_, ny_, lp_rounds, trust)
                     info["legalize_lp_rounds"] = rounds
-            bad, i, _ = prob.violations(nx_, ny_)
-            if bad.any() or len(i):  # cannot happen by construction; never return illegal
+            bad, i, j = prob.violations(nx_, ny_)
+            if bad.any() or len(i):  # not expected by construction: one more repair, then fail
+                nx_, ny_ = prob.nudge(nx_, ny_)
+                bad, i, j = prob.violations(nx_, ny_)
+                if bad.any() or len(i):
+                    rx, ry = prob.repair(nx_, ny_, bad, i, j, keep_m)
+                    if rx is not None:
+                        nx_, ny_ = rx, ry
+                        bad, i, j = prob.violations(nx_, ny_)
+            if bad.any() or len(i):  # never return an illegal placement
                 k = int(np.flatnonzero(bad)[0]) if bad.any() else int(i[0])
                 raise PlacementError(f"macro {design.names[prob.idx[k]]!r} could not be "
                                      "legalised (internal check failed)")
