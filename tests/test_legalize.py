@@ -366,3 +366,16 @@ def test_progress_is_reported():
     legalize_macros(d, fp, progress=lambda stage, frac, info: seen.append((stage, frac)))
     assert seen and seen[-1] == ("legalize", 1.0)
     assert all(0.0 <= f <= 1.0 for _, f in seen)
+
+
+def test_agrees_with_the_metrics_legality_report(demo_design):
+    # cross-check with the project's report (written independently of the legaliser)
+    from floorwidget.metrics import legality
+
+    d = demo_design
+    before = legality(d, d.initial)
+    assert before["macro_overlaps"] > 0  # the demo starts with its macros stacked
+    rep = legality(d, legalize_macros(d, d.initial))
+    assert rep["macro_overlaps"] == 0 and rep["macro_overlap_area"] == 0.0
+    assert not len(rep["out_of_core"]) and not len(rep["on_blockage"])
+    assert not len(rep["off_grid"])
