@@ -161,7 +161,7 @@ def _unchanged(fp, snap):
 # ---------------------------------------------------------------------------------------------
 
 
-@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@settings(max_examples=30, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(seed=st.integers(0, 2**32 - 1), n_mov=st.integers(5, 40), n_pin=st.integers(0, 4),
        n_blk=st.integers(0, 3), util=st.floats(0.05, 0.5))
 def test_random_feasible_instances_become_legal(seed, n_mov, n_pin, n_blk, util):
