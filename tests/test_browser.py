@@ -207,12 +207,23 @@ def _drag_check(page, lab, artifacts):
     span = st0["x_scale"][1] - st0["x_scale"][0]
     assert abs((st0["y_scale"][1] - st0["y_scale"][0]) - span) < 1e-6
 
-    # a handle with no other handle near it, not too close to the die edge
+    # a handle with no other handle near it, dragged towards the middle of the core so
+    # that the move is not clamped at the core edge
+    core = np.array(st0["core"], dtype=float)
+    mid = (core[:2] + core[2:]) / 2
+    ll = np.array([st0["positions"][m] for m in st0["macros"]], dtype=float)
+    half = c - ll
     dist = np.hypot(px[:, None, 0] - px[None, :, 0], px[:, None, 1] - px[None, :, 1])
     np.fill_diagonal(dist, np.inf)
-    k = int(np.argmax(dist.min(axis=1)))
+    sign = np.where(c < mid, 1.0, -1.0)
+    step = np.array([60.0, 45.0])  # pixels
+    dest = c + sign * step / np.array([abs(sx), abs(sy)])
+    fits = ((dest - half >= core[:2] + 5) & (dest + half <= core[2:] - 5)).all(axis=1)
+    score = np.where(fits, dist.min(axis=1), -np.inf)
+    k = int(np.argmax(score))
+    assert np.isfinite(score[k])
     name = st0["macros"][k]
-    dx_px, dy_px = 60.0, -45.0
+    dx_px, dy_px = sign[k, 0] * step[0], -sign[k, 1] * step[1]  # screen y points down
     x0, y0 = px[k]
     page.mouse.move(x0, y0)
     page.mouse.down()
@@ -238,6 +249,8 @@ def _drag_check(page, lab, artifacts):
     assert st1["status"][name] == "pinned"
     assert st1["readout"] != st0["readout"]
     assert st1["report"]["hpwl"] != st0["report"]["hpwl"]
+    for button in page.query_selector_all(".jp-Notification-Toast button:has-text('No')"):
+        button.click()
     page.wait_for_timeout(800)
     shot = artifacts / "browser_drag.png"
     page.screenshot(path=str(shot), full_page=False)

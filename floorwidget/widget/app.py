@@ -472,7 +472,8 @@ class FloorplanWidget(W.VBox):
                        f"<td style='text-align:right' class='fw-{k.split()[0].lower()}'>{v}</td>"
                        f"</tr>" for k, v in rows)
         self.readout.value = (f"<table style='font-size:12px'>{body}</table>"
-                              f"<div style='font-size:11px;color:#555'>{CAUTION}</div>")
+                              "<div style='font-size:11px;line-height:1.3;color:#555;"
+                              f"max-width:330px'>{CAUTION}</div>")
 
     # --- alternatives ---------------------------------------------------------------------------
     def keep(self, label: str) -> None:

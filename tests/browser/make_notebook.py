@@ -67,6 +67,7 @@ def write_state(ev=None):
         "x_scale": [w.canvas.x_scale.min, w.canvas.x_scale.max],
         "y_scale": [w.canvas.y_scale.min, w.canvas.y_scale.max],
         "pitch": design.grid_pitch.tolist(),
+        "core": design.core.tolist(),
         "undo": w.session.history,
     }
     tmp = STATE.with_suffix(".tmp")
