@@ -133,9 +133,10 @@ def test_b2b_edges_no_cliques():
 
 
 def test_cg_matches_direct_solve():
-    """The Jacobi-preconditioned CG solution equals scipy.sparse.linalg.spsolve (a direct LU
-    solve, SuperLU) on random connected instances, and it zeroes the gradient of the quadratic
-    energy Σ w (x_a + o_a − x_b − o_b)² computed here edge by edge."""
+    """The Jacobi-preconditioned CG solution (ours and scipy.sparse.linalg.cg) equals
+    scipy.sparse.linalg.spsolve (a direct LU solve, SuperLU) on random connected instances, and
+    it zeroes the gradient of the quadratic energy Σ w (x_a + o_a − x_b − o_b)² computed here
+    edge by edge."""
     rng = np.random.default_rng(5)
     for _trial in range(4):
         d = random_design(rng, n_mov=60, n_fix=6, n_nets=120)
@@ -148,9 +149,13 @@ def test_cg_matches_direct_solve():
         A, diag, rhs = assemble_axis(pos, ox, qs.pin_var, qs.nv, qs.topo, qs.eps)
         A = (A + sp.diags_array(diag)).tocsc()
         ref = spsolve(A, rhs)
-        x, info = solve_spd(A, rhs, cx[qs.blocks], rtol=1e-12, maxiter=10000, direct_max=0)
-        assert info == 0
-        np.testing.assert_allclose(x, ref, rtol=1e-7, atol=1e-7)
+        for method in ("pcg", "scipy"):
+            x, info = solve_spd(A, rhs, cx[qs.blocks], rtol=1e-12, maxiter=10000, direct_max=0,
+                                method=method)
+            assert info == 0
+            np.testing.assert_allclose(x, ref, rtol=1e-7, atol=1e-7)
+        x, info = solve_spd(A, rhs)  # small: direct path
+        np.testing.assert_allclose(x, ref, rtol=1e-9, atol=1e-9)
         # gradient of the energy at the solution, from the edge list directly
         a, b, w = b2b_edges(pos, qs.topo, qs.eps)
         xs = cx.copy()
