@@ -79,9 +79,34 @@ def test_status_styles_differ_in_outline_not_only_colour():
     assert len(outlines) == len(st)  # readable in greyscale: every status has its own outline
 
 
+def test_illegal_macros_are_drawn_differently(widget, demo_design):
+    """Two pinned macros on top of each other break the no-overlap rule (and stay so)."""
+    d, c = demo_design, widget.canvas
+    a, b = d.macros[22], d.macros[23]
+    xa, ya = widget.floorplan.position(a)
+    widget.move(b, xa + 10.0, ya)
+    widget.pin([a, b])
+    st = c.status_style
+    ia, ib = (int(np.searchsorted(widget.macro_idx, d.block(n))) for n in (a, b))
+    fills = c.marks["macros"].fill_colors
+    assert fills[ia] == fills[ib] == st["illegal"]["fill"]
+    assert widget.report["macro_overlaps"] >= 1
+    hatch = c.marks["hatch"]
+    assert hatch.visible and np.asarray(hatch.x).reshape(-1, 4).shape[0] >= 2
+    # the illegal outline mark holds exactly the illegal rows
+    k = c.outline_keys.index((st["illegal"]["dash"], st["illegal"]["width"]))
+    rows = np.asarray(c.marks[f"outline{k}"].x).reshape(-1, 5)
+    n_illegal = sum(f == st["illegal"]["fill"] for f in fills)
+    assert rows.shape[0] == n_illegal
+    widget.undo()
+    widget.undo()
+    assert c.marks["macros"].fill_colors[ib] != st["illegal"]["fill"] or \
+        widget.report["macro_overlaps"] > 0
+
+
 def test_notch_follows_the_orientation(demo_design, placed):
     """Pin-1 corner (lower-left in N) under the LEF/DEF orientations (reference, from memory)."""
-    w = FloorplanWidget(demo_design, placed)
+    w = FloorplanWidget(demo_design)  # the input floorplan: every macro in N
     d = demo_design
     name = d.macros[0]
     i = d.block(name)
@@ -144,9 +169,11 @@ def test_pinned_macros_stay_bit_exact_through_refine(widget, demo_design):
     ref_x = _bits(s.floorplan.x[idx]).copy()
     ref_y = _bits(s.floorplan.y[idx]).copy()
     k = 12  # a different macro is dropped, which refines around the pinned ones
+    widget.toggles["Pin on drop"].value = False  # it stays movable: refine may legalise it
     i = int(widget.macro_idx[k])
     cx, cy = s.floorplan.centres()
-    widget.drop(k, cx[i] + 40.0, cy[i] + 40.0)
+    out = widget.drop(k, cx[i] + 40.0, cy[i] + 40.0)
+    assert out["refined"], out["message"]
     widget.refine()
     np.testing.assert_array_equal(_bits(s.floorplan.x[idx]), ref_x)
     np.testing.assert_array_equal(_bits(s.floorplan.y[idx]), ref_y)
@@ -210,18 +237,24 @@ def test_flylines_bundle_per_neighbour(widget, demo_design):
 def test_box_selection_moves_together(widget, demo_design):
     d, s = demo_design, widget.session
     h = widget.canvas.marks["handles"]
-    h.selected = [4, 6]  # what the BrushSelector does in the browser
-    a, b = int(widget.macro_idx[4]), int(widget.macro_idx[6])
+    # two macros far enough from the core edge that a 60 µm move is never clamped
+    r = s.floorplan.rects()[widget.macro_idx]
+    inner = np.flatnonzero((r[:, 0] > d.core[0] + 60) & (r[:, 1] > d.core[1] + 60)
+                           & (r[:, 2] < d.core[2] - 60) & (r[:, 3] < d.core[3] - 60))
+    ka, kb = int(inner[0]), int(inner[1])
+    h.selected = [ka, kb]  # what the BrushSelector does in the browser
+    a, b = int(widget.macro_idx[ka]), int(widget.macro_idx[kb])
     assert set(widget.selection) == {d.names[a], d.names[b]}
     fp = s.floorplan
     cx, cy = fp.centres()
     widget.toggles["Live refine"].value = False
-    widget.drop(4, cx[a] + 50.0, cy[a] + 30.0)
+    dx, dy = 50.0, -30.0
+    widget.drop(ka, cx[a] + dx, cy[a] + dy)
     new = s.floorplan
     (ox, oy), (px, py) = d.grid_origin, d.grid_pitch
     for j in (a, b):
-        assert new.x[j] == snap(fp.x[j] + 50.0, ox, px)
-        assert new.y[j] == snap(fp.y[j] + 30.0, oy, py)
+        assert new.x[j] == snap(fp.x[j] + dx, ox, px)
+        assert new.y[j] == snap(fp.y[j] + dy, oy, py)
         assert new.status[j] == PINNED
     widget.undo()
     assert s.floorplan.identical(fp)

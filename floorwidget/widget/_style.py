@@ -22,7 +22,7 @@ def status_style() -> dict[str, dict]:
         s = _st.status_style(key)
         out[key] = {"fill": s["fill"], "opacity": float(s["fill_opacity"]),
                     "stroke": s["stroke"], "dash": s["dash"], "width": float(s["stroke_width"]),
-                    "dasharray": s["dasharray"], "label": s["label"]}
+                    "dasharray": s["dasharray"], "hatch": s["hatch"], "label": s["label"]}
     return out
 
 

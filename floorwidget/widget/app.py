@@ -202,10 +202,17 @@ class FloorplanWidget(W.VBox):
         parts = []
         for key in ("movable", "pinned", "fixed", "illegal"):
             s = st[key]
+            hatch = ""
+            if "x" in s.get("hatch", ""):
+                hatch = ('<path d="M2,14 L24,2 M2,2 L24,14" stroke="black" stroke-width="1" '
+                         'stroke-opacity="0.8"/>')
+            elif s.get("hatch"):
+                hatch = ('<path d="M2,14 L24,2" stroke="black" stroke-width="1" '
+                         'stroke-opacity="0.8"/>')
             parts.append((swatch(
                 f'<rect x="2" y="2" width="22" height="12" fill="{s["fill"]}" '
                 f'fill-opacity="{s["opacity"]}" stroke="{s["stroke"]}" '
-                f'stroke-width="{s["width"]}"{dash(s["dasharray"])}/>'), key))
+                f'stroke-width="{s["width"]}"{dash(s["dasharray"])}/>{hatch}'), key))
         parts += [
             (swatch(f'<rect x="2" y="2" width="22" height="12" fill="none" '
                     f'stroke="{ui["halo"]}" stroke-dasharray="3,2"/>'), "halo"),

@@ -132,6 +132,10 @@ class Canvas:
         for k, (dash, width) in enumerate(self.outline_keys):
             m[f"outline{k}"] = bq.Lines(x=px, y=py, scales=sc, colors=[self.ui["outline"]],
                                         stroke_width=width, line_style=dash, visible=False)
+        # hatching that the status style asks for ("xx" crosses, other patterns a diagonal):
+        # a third cue besides colour and outline, for greyscale prints
+        m["hatch"] = bq.Lines(x=px, y=py, scales=sc, colors=[self.ui["outline"]],
+                              stroke_width=1.2, opacities=[0.8], visible=False)
         m["notches"] = bq.Lines(x=px, y=py, scales=sc, fill="inside", stroke_width=0.5,
                                 colors=[self.ui["outline"]], visible=False)
         m["flylines"] = bq.Lines(x=px, y=py, scales=sc, fill="inside", stroke_width=0.0,
@@ -288,6 +292,7 @@ class Canvas:
                             om.visible = True
                     else:
                         om.visible = False
+                self._draw_hatch(rects[idx], keys)
                 hl = d.halo[idx]
                 has = (hl > 0).any(axis=1)
                 if has.any():
@@ -309,6 +314,24 @@ class Canvas:
                 self._draw_labels()
                 self._draw_flylines()
                 self._draw_selection()
+
+    def _draw_hatch(self, rects: np.ndarray, keys: np.ndarray) -> None:
+        st = self.status_style
+        hatch = np.array([st[k].get("hatch", "") for k in keys], dtype=object)
+        cross = np.array(["x" in h for h in hatch], bool)
+        diag = np.array([bool(h) for h in hatch], bool) & ~cross
+        mk = self.marks["hatch"]
+        if not (cross.any() or diag.any()):
+            mk.visible = False
+            return
+        r = rects
+        # crosses: lower-left -> upper-right -> lower-right -> upper-left (both diagonals);
+        # diagonals: lower-left -> upper-right, the end repeated to keep four points a row
+        xs = np.concatenate([r[cross][:, [0, 2, 2, 0]], r[diag][:, [0, 2, 2, 2]]])
+        ys = np.concatenate([r[cross][:, [1, 3, 1, 3]], r[diag][:, [1, 3, 3, 3]]])
+        with mk.hold_sync():
+            mk.x, mk.y = xs, ys
+            mk.visible = True
 
     def heat_values(self, name: str, fp: Floorplan | None = None) -> np.ndarray:
         """The ``(nx, ny)`` map of heat layer ``name`` on the display grid.

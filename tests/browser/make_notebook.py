@@ -44,7 +44,13 @@ except Exception as e:  # the notebook must run whatever the placer does
             s.move(name, x, y)
             x += mw + 30
             row_h = max(row_h, mh)
-print("setup:", setup)
+# two small macros pinned on top of each other, so the picture shows a rule broken
+a, b = design.macros[-6], design.macros[-5]
+xa, ya = w.floorplan.position(a)
+with w.session.batch("overlap for the picture"):
+    w.session.move(b, xa + 0.5 * design.width[design.block(a)], ya)
+    w.session.pin([a, b])
+print("setup:", setup, "| illegal pair:", a, b)
 '''
 
 STATE = '''\
