@@ -5,8 +5,9 @@
 Eight runs (``target_density`` x ``seed``) of the real placer on ``demo_data/heron_dsp.json``:
 
 * ``serial``        -- :class:`floorwidget.explore.SerialExecutor`, in this process;
-* ``process pool``  -- ``sweep(executor=None)``: a fresh spawn-context pool of ``os.cpu_count()``
-  workers per sweep, so worker start-up and the one-off design shipping are included;
+* ``process pool (fresh)`` -- ``sweep(executor=None)``: a new pool of ``os.cpu_count()``
+  workers per sweep (forkserver context, :func:`floorwidget.explore.pool_context`), so worker
+  start-up and the one-off design shipping are included;
 * ``warm pool``     -- one :func:`floorwidget.explore.process_pool` kept across repeats (the
   design then travels with every task and is unpickled once per worker);
 * ``dask 2 workers``-- ``distributed.LocalCluster(n_workers=2, threads_per_worker=1)`` started
