@@ -610,6 +610,12 @@ _WS = np.zeros(256, bool)
 _WS[[9, 10, 11, 12, 13, 28, 29, 30, 31, 32]] = True  # what str.split() splits on (ASCII)
 
 
+def _pack(word: str) -> np.uint64:
+    """``word`` (ASCII, at most eight bytes) packed as :meth:`_Words.packed` does."""
+    b = word.encode("ascii").ljust(8, b"\0")
+    return np.uint64(int.from_bytes(b, "big"))
+
+
 class _Words:
     """A section split on whitespace (``str.split``, in C), with every token's first byte and
     length from one vectorised pass over the bytes, so structural tokens (``;`` ``(`` ``)``
@@ -630,7 +636,8 @@ class _Words:
             return
         self.first = raw[starts]
         self.length = (ends - starts).astype(np.int32)
-        del starts, ends, raw
+        self.raw, self.starts = raw, starts
+        del ends
         self._arr = None
         semi = self.mask(";")
         self.semi = np.flatnonzero(semi)
@@ -647,6 +654,44 @@ class _Words:
     def mask(self, ch: str) -> np.ndarray:
         """Tokens that are exactly the one ASCII character ``ch``."""
         return (self.length == 1) & (self.first == ord(ch))
+
+    def packed(self, idx) -> np.ndarray | None:
+        """Tokens at ``idx`` packed big-endian into uint64 (``None`` when one is longer than
+        eight bytes): exact keys for comparing short words without Python strings."""
+        idx = np.asarray(idx, dtype=np.intp)
+        ln = self.length[idx]
+        if len(idx) and ln.max() > 8:
+            return None
+        key = np.zeros(len(idx), np.uint64)
+        st = self.starts[idx]
+        top = len(self.raw) - 1
+        for k in range(8):
+            b = self.raw[np.minimum(st + k, top)].astype(np.uint64)
+            key = (key << np.uint64(8)) | np.where(ln > k, b, np.uint64(0))
+        return key
+
+    def integers(self, idx) -> np.ndarray | None:
+        """Tokens at ``idx`` read as integers by arithmetic on their bytes (``None`` unless
+        every one is an optional ``-`` and 1 to 15 digits)."""
+        idx = np.asarray(idx, dtype=np.intp)
+        if not len(idx):
+            return np.zeros(0)
+        ln = self.length[idx].astype(np.int64)
+        st = self.starts[idx]
+        neg = self.first[idx] == ord("-")
+        st = st + neg
+        ln = ln - neg
+        if ln.min() < 1 or ln.max() > 15:
+            return None
+        val = np.zeros(len(idx), np.int64)
+        top = len(self.raw) - 1
+        for k in range(int(ln.max())):
+            on = ln > k
+            dg = self.raw[np.minimum(st + k, top)].astype(np.int64) - 48
+            if ((dg < 0) | (dg > 9))[on].any():
+                return None
+            val = np.where(on, val * 10 + dg, val)
+        return np.where(neg, -val, val).astype(np.float64)
 
     def get(self, idx) -> list[str]:
         """The tokens at ``idx`` (a gather in C through an object array built once)."""
@@ -963,14 +1008,26 @@ class _Def:
         # "- name model + PLACED ( x y ) O ;": ten tokens before the ';'
         a = np.flatnonzero((ln == 10) & at(plus, 3) & at(opn, 5) & at(cls, 8))
         st_map = {"PLACED": MOVABLE, "FIXED": FIXED, "COVER": FIXED}
-        st = np.fromiter(map(st_map.get, w.get(begin[a] + 4), repeat(-2)), np.int8, len(a))
-        oc = np.fromiter(map(ORIENT_CODE.get, w.get(begin[a] + 9), repeat(-1)), np.int8,
-                         len(a))
+        kst, kor = w.packed(begin[a] + 4), w.packed(begin[a] + 9)
+        if kst is not None and kor is not None:  # exact words compared as packed bytes
+            st = np.full(len(a), -2, np.int8)
+            for word, code in st_map.items():
+                st[kst == _pack(word)] = code
+            oc = np.full(len(a), -1, np.int8)
+            for word, code in ORIENT_CODE.items():
+                oc[kor == _pack(word)] = code
+        else:
+            st = np.fromiter(map(st_map.get, w.get(begin[a] + 4), repeat(-2)), np.int8, len(a))
+            oc = np.fromiter(map(ORIENT_CODE.get, w.get(begin[a] + 9), repeat(-1)), np.int8,
+                             len(a))
         good = (st >= 0) & (oc >= 0)
         a_ok = a[good]
+        vx, vy = w.integers(begin[a_ok] + 6), w.integers(begin[a_ok] + 7)
         try:
-            x[a_ok] = np.fromiter(map(float, w.get(begin[a_ok] + 6)), np.float64, len(a_ok))
-            y[a_ok] = np.fromiter(map(float, w.get(begin[a_ok] + 7)), np.float64, len(a_ok))
+            x[a_ok] = vx if vx is not None else \
+                np.fromiter(map(float, w.get(begin[a_ok] + 6)), np.float64, len(a_ok))
+            y[a_ok] = vy if vy is not None else \
+                np.fromiter(map(float, w.get(begin[a_ok] + 7)), np.float64, len(a_ok))
         except ValueError:  # the slow path below finds the offender and names its line
             good[:] = False
             a_ok = a[good]
