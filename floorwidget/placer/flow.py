@@ -98,7 +98,8 @@ class _Stage:
         fixed = np.ones(design.num_blocks, bool)
         fixed[self.vars] = False
         self.grid: Grid = make_grid(design.core, self.w, self.h, opts.bin_size)
-        self.cap = capacity_map(self.grid, target, _obstacles(design, fp, fixed))
+        self.obstacles = _obstacles(design, fp, fixed)
+        self.cap = capacity_map(self.grid, target, self.obstacles)
         self.area = float(np.sum(self.w * self.h))
         c = design.core
         self.lo_x = c[0] + self.w / 2

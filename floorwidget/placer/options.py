@@ -60,7 +60,7 @@ class PlacerOptions:
         Stop spreading once the density overflow (Σ excess area ÷ movable area, on the placer's
         own bin grid) is at most this.  Default 0.10.
     max_iterations : int
-        Cap on spreading iterations per stage.  Default 80.
+        Cap on spreading iterations per stage.  Default 60.
     initial_iterations : int
         Wirelength-only Bound2Bound iterations before spreading starts.  Default 6.
     refine_iterations : int
@@ -82,7 +82,8 @@ class PlacerOptions:
     net_weight_scale : float, mapping or array, optional
         Multiplier on net weights.  A float scales every net (wirelength against spreading), a
         mapping ``{block name or fnmatch pattern: factor}`` scales the nets touching those blocks
-        (the largest factor among a net's blocks wins), an array gives one factor per net.
+        (a net takes the largest factor above 1 among its blocks, else the smallest), an array
+        gives one factor per net.
     orient : bool
         Choose orientations of movable macros before legalising them.  Default True.
     legalize_macros : bool
@@ -90,13 +91,13 @@ class PlacerOptions:
     """
 
     overflow_target: float = 0.10
-    max_iterations: int = 80
+    max_iterations: int = 60
     initial_iterations: int = 6
     refine_iterations: int = 2
-    stall_iterations: int = 10
+    stall_iterations: int = 6
     cg_tol: float = 1e-4
     cg_maxiter: int = 150
-    anchor_weight: float = 0.02
+    anchor_weight: float = 0.1
     anchor_growth: float = 1.0
     bin_size: float | None = None
     net_weight_scale: Any = None
