@@ -514,3 +514,16 @@ def test_lef_reader_never_crashes(tmp_path_factory, junk, where):
             read_lef(p)
         except DesignError as e:
             assert e.file == str(p) and e.line is not None
+
+
+def test_pin_named_like_a_component(tmp_path):
+    text = DEF.read_text().replace("- d_out + NET dq", "- u_pll + NET dq").replace(
+        "( PIN d_out )", "( PIN u_pll )")
+    p = tmp_path / "clash.def"
+    p.write_text(text)
+    d = read_def(p, lef=LEFS)
+    assert "PIN/u_pll" in d.names and d.kind[d.block("PIN/u_pll")] == TERMINAL
+    out = tmp_path / "clash_out.def"
+    write_def(d, d.initial, out)
+    assert "- u_pll + NET dq" in out.read_text()  # the prefix is ours, not written
+    assert read_def(out, lef=LEFS).initial.identical(d.initial)
