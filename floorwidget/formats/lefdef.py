@@ -70,6 +70,18 @@ default beside the DEF.  The convention for the pair is ``y.lef`` beside ``y.def
 (:func:`lef_path_for`), which :func:`read_def` also picks up when no ``lef=`` is given, so
 ``fw.save(design, fp, "y.def")`` followed by ``fw.load("y.def")`` works for any design.
 
+Designs read from DEF carry ``design.lef_files`` (the LEF paths used); :func:`write_def` then
+refers to those masters and writes no LEF.  Pads (terminals with a LEF master) go back out as
+``COMPONENTS``, I/O pins as ``PINS``.
+
+Limits
+------
+Not round-tripped through DEF: the snap grid (read back as site width by row height), names of
+several site types (one name per site size is written), net-pin offsets on I/O terminals
+(connections are at the pin shape's centre), the distinction pinned/fixed for terminals.  A
+``;`` inside a quoted property value, or parentheses inside names (``BUSBITCHARS "()"``), are
+not supported in ``COMPONENTS`` and ``NETS``.
+
 References
 ----------
 LEF/DEF Language Reference, version 5.8 (the open standard's public manual): syntax of the
