@@ -104,6 +104,14 @@ def browser():
             b.close()
 
 
+def _dismiss_news(page) -> None:
+    """Answer JupyterLab's news question (a toast that would sit over the screenshot)."""
+    try:
+        page.get_by_role("button", name="No", exact=True).click(timeout=2_000)
+    except Exception:  # noqa: BLE001 - not asked (yet)
+        pass
+
+
 def _read_state(path: Path) -> dict | None:
     try:
         return json.loads(path.read_text())
@@ -165,11 +173,7 @@ def _drag_check(page, lab, artifacts):
         pass
     page.wait_for_selector(".jp-Notebook-ExecutionIndicator[data-status='idle']",
                            timeout=60_000)
-    # the news question is a toast that would sit over the screenshot: answer it
-    try:
-        page.click(".jp-Notification-Toast button:has-text('No')", timeout=2_000)
-    except Exception:  # noqa: BLE001 - not asked this time
-        pass
+    _dismiss_news(page)
     page.click("li.lm-MenuBar-item:has-text('Run')")
     page.click("li.lm-Menu-item:has-text('Run All Cells')")
     st0 = _wait_state(state_path, lambda s: "ready" in s["changes"], 60, "the notebook")
@@ -247,10 +251,11 @@ def _drag_check(page, lab, artifacts):
     assert abs((x_after - x_before) - want_dx) <= tol_x, (x_after - x_before, want_dx, tol_x)
     assert abs((y_after - y_before) - want_dy) <= tol_y, (y_after - y_before, want_dy, tol_y)
     assert st1["status"][name] == "pinned"
+    assert st1["undo"][-1] == f"drag {name}"  # move, pin and refine as one undoable step
+    assert "Refine skipped" not in st1["message"], st1["message"]
     assert st1["readout"] != st0["readout"]
     assert st1["report"]["hpwl"] != st0["report"]["hpwl"]
-    for button in page.query_selector_all(".jp-Notification-Toast button:has-text('No')"):
-        button.click()
+    _dismiss_news(page)
     page.wait_for_timeout(800)
     shot = artifacts / "browser_drag.png"
     page.screenshot(path=str(shot), full_page=False)
