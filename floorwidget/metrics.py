@@ -40,6 +40,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .design import (
+    CLUSTER,
     FIXED,
     MACRO,
     MOVABLE,
@@ -259,9 +260,13 @@ def bin_grid(design: Design, bin_size: float | tuple[float, float] | None = None
     design : Design
     bin_size : float or (float, float), optional
         Wanted bin side(s), µm.  The grid rounds it so that whole bins tile the core.  Default:
-        ``ROWS_PER_BIN`` (4) row heights, or the longer core side / 128 without rows; either way
-        grown so that no side has more than :data:`MAX_BINS` (128) bins.  An explicit
-        ``bin_size`` is honoured up to 4096 bins a side.
+        ``ROWS_PER_BIN`` (4) row heights, or the longer core side / 128 without rows; at least
+        twice the median side of the soft clusters, if the design has any (a soft cluster
+        stands for many standard cells whose area spreads over a region; a bin smaller than
+        the cluster would count it as a solid block of density 1 and report overflow no
+        placement could remove); either way grown so that no side has more than
+        :data:`MAX_BINS` (128) bins.  An explicit ``bin_size`` is honoured up to 4096 bins a
+        side.
 
     Returns
     -------
@@ -274,6 +279,10 @@ def bin_grid(design: Design, bin_size: float | tuple[float, float] | None = None
             side = ROWS_PER_BIN * float(np.median(design.row_height))
         else:
             side = max(cw, ch) / BINS_WITHOUT_ROWS
+        soft = design.kind == CLUSTER
+        if soft.any():
+            side = max(side, 2.0 * float(np.median(np.sqrt(design.width[soft]
+                                                            * design.height[soft]))))
         side = max(side, max(cw, ch) / MAX_BINS)
         want = (side, side)
         cap = MAX_BINS

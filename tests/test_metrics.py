@@ -366,3 +366,18 @@ def test_overlap_broad_phase_matches_all_pairs():
     ea, eb = np.nonzero(hit)
     assert set(zip(a.tolist(), b.tolist())) == set(zip(ea.tolist(), eb.tolist()))
     np.testing.assert_allclose(np.sort(area), np.sort((ox * oy)[hit]))
+
+
+def test_default_bins_are_not_smaller_than_the_soft_clusters(demo_design):
+    # A soft cluster stands for many standard cells whose area spreads over a region; on bins
+    # smaller than the cluster it would count as a solid block of density 1 > target, an
+    # overflow no placement can remove (common practice: bins of a few cluster/cell sizes).
+    import numpy as np
+
+    from floorwidget.design import CLUSTER
+    from floorwidget.metrics import bin_grid
+
+    g = bin_grid(demo_design)
+    soft = demo_design.kind == CLUSTER
+    median_side = np.median(np.sqrt(demo_design.width[soft] * demo_design.height[soft]))
+    assert min(g.bw, g.bh) >= 1.9 * median_side
