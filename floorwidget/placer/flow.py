@@ -234,8 +234,12 @@ def place(design: Design, floorplan: Floorplan | None = None, *, target_density:
     -------
     Floorplan
         New floorplan; ``info`` holds ``iterations`` (total), ``stage_iterations``,
-        ``overflow`` (final, placer's bins), ``seconds`` (total), ``stage_seconds``,
-        ``bins``, ``legalized`` (whether macros were legalised).
+        ``overflow`` (final), ``seconds`` (total), ``stage_seconds``, ``bins``, ``legalized``
+        (whether macros were legalised).  ``overflow`` is measured on the placer's own bins
+        (``bins``; a side of about two objects) with placed macros counted as obstacles, so it
+        reads lower than :func:`floorwidget.metrics.density_overflow` on its default grid of a
+        few row heights, where any hard block larger than a bin overfills it at a target below
+        1.
 
     Raises
     ------
