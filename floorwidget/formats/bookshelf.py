@@ -386,7 +386,6 @@ class _NameTable:
 
     def __init__(self, tok: _Tokens, idx: np.ndarray, what: str):
         self.tok, self.idx = tok, np.asarray(idx)
-        n = len(self.idx)
         keys = tok.keys(self.idx)
         L = tok.length[self.idx]
         order = np.argsort(keys)
@@ -403,6 +402,11 @@ class _NameTable:
             # two long names with one key: an exact dictionary instead (practically never)
             self.fallback = {nm: i for i, nm in enumerate(tok.names(self.idx))}
             return
+        self._keys = keys
+        self.tab = None  # built on the first lookup
+
+    def _build(self) -> None:
+        keys, n = self._keys, len(self._keys)
         size = 16
         while size < 2 * n:
             size *= 2
@@ -429,6 +433,8 @@ class _NameTable:
         if self.fallback is not None:
             fb = self.fallback
             return np.array([fb.get(nm, -1) for nm in tok.names(idx)], dtype=np.int64)
+        if self.tab is None:
+            self._build()
         q = tok.keys(idx)
         res = np.full(len(idx), -1, np.int64)
         slot = (_mix(q) & np.uint64(self.mask)).astype(np.int64)
@@ -975,8 +981,9 @@ def write_aux(design: Design, fp: Floorplan | None, target) -> Path:
     nets = (f"UCLA nets 1.0\n# written by floorwidget\n\nNumNets : {m}\nNumPins : {p}\n"
             + "\n".join(lines.tolist()) + ("\n" if m else ""))
 
-    wts = "UCLA wts 1.0\n# written by floorwidget\n\n" + "".join(
-        f"{nm} {w}\n" for nm, w in zip(d.net_names, _r(d.net_weight)))
+    heavy = np.flatnonzero(d.net_weight != 1.0)  # nets not listed weigh 1
+    wts = "UCLA wts 1.0\n# written by floorwidget; nets not listed weigh 1\n\n" + "".join(
+        f"{d.net_names[j]} {w}\n" for j, w in zip(heavy.tolist(), _r(d.net_weight[heavy])))
 
     scl = [f"UCLA scl 1.0\n# written by floorwidget\n\nNumRows : {len(d.row_x)}\n\n"]
     for i in range(len(d.row_x)):  # rows, not cells
