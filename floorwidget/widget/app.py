@@ -414,6 +414,8 @@ class FloorplanWidget(W.VBox):
         names = [d.names[j] for j in grp]
         label = f"drag {names[0]}" if len(names) == 1 else f"drag {len(names)} macros"
         msg = ""
+        # the dropped macros become the selection; the change event below draws it once
+        self.canvas.selected = np.unique(grp)
         try:
             with s.batch(label):
                 for j, nm in zip(grp, names):
@@ -431,10 +433,8 @@ class FloorplanWidget(W.VBox):
         except (DesignError, KeyError) as e:
             msg = str(e)
             self.canvas.update(s.floorplan)
-        if out["refined"] is False and not msg:
-            self._refresh_readouts()
+            self._refresh_details()
         self.notify(msg, error=bool(msg))
-        self.select(grp)
         out.update(moved=names, message=msg, seconds=time.perf_counter() - t0)
         return out
 

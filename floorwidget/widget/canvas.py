@@ -43,6 +43,12 @@ def illegal_blocks(design: Design, fp: Floorplan) -> np.ndarray:
     return bad
 
 
+def _set_list(mark, name: str, values: list) -> None:
+    """Assign a per-row list trait only when it changes (each element is validated)."""
+    if list(getattr(mark, name)) != values:
+        setattr(mark, name, values)
+
+
 def _placeholder():
     # bqplot's Lines needs at least one row; an invisible zero-size row stands in for "none"
     return np.zeros((1, 2)), np.zeros((1, 2))
@@ -278,9 +284,9 @@ class Canvas:
                 mk = m["macros"]
                 with mk.hold_sync():
                     mk.x, mk.y = x, y
-                    mk.fill_colors = [st[k]["fill"] for k in keys]
-                    mk.fill_opacities = [float(st[k]["opacity"]) for k in keys]
-                    mk.colors = [st[k]["stroke"] for k in keys]
+                    _set_list(mk, "fill_colors", [st[k]["fill"] for k in keys])
+                    _set_list(mk, "fill_opacities", [float(st[k]["opacity"]) for k in keys])
+                    _set_list(mk, "colors", [st[k]["stroke"] for k in keys])
                 for k, key in enumerate(self.outline_keys):
                     rowsel = np.array([(st[s]["dash"], float(st[s]["width"])) == key
                                        and st[s].get("outline", True) for s in keys], bool)
@@ -288,7 +294,7 @@ class Canvas:
                     if rowsel.any():
                         with om.hold_sync():
                             om.x, om.y = x[rowsel], y[rowsel]
-                            om.colors = [st[s]["stroke"] for s in keys[rowsel]]
+                            _set_list(om, "colors", [st[s]["stroke"] for s in keys[rowsel]])
                             om.visible = True
                     else:
                         om.visible = False
@@ -303,7 +309,7 @@ class Canvas:
                 nx_, ny_ = geo.notch_rows(d, fp, idx)
                 with m["notches"].hold_sync():
                     m["notches"].x, m["notches"].y = nx_, ny_
-                    m["notches"].fill_colors = [self.ui["outline"]] * len(idx)
+                    _set_list(m["notches"], "fill_colors", [self.ui["outline"]] * len(idx))
                     m["notches"].visible = True
                 if "handles" in m:
                     cx, cy = fp.centres()
@@ -418,8 +424,15 @@ class Canvas:
                 mk.visible = True
 
     def flyline_data(self):
-        """``(neighbours, counts)`` of the current selection (see :func:`flyline_bundles`)."""
-        return geo.flyline_bundles(self.design, self.fp, self.selected)
+        """``(neighbours, counts)`` of the current selection (see :func:`flyline_bundles`).
+
+        The bundles depend on the netlist only, not on positions, so they are kept per selection.
+        """
+        key = tuple(self.selected.tolist())
+        if getattr(self, "_fly_key", None) != key:
+            self._fly_key = key
+            self._fly = geo.flyline_bundles(self.design, self.fp, self.selected)
+        return self._fly
 
     def _draw_flylines(self):
         mk = self.marks["flylines"]
@@ -438,8 +451,9 @@ class Canvas:
         xs, ys = geo.bundle_rows(x0, y0, cx[nb], cy[nb], width_px / self.px_per_um)
         with mk.hold_sync():
             mk.x, mk.y = xs, ys
-            mk.fill_colors = [self.ui["flyline"]] * len(nb)
-            mk.fill_opacities = [0.45] * len(nb)
+            if len(mk.fill_colors) != len(nb):  # per-row lists validate slowly: set on change
+                mk.fill_colors = [self.ui["flyline"]] * len(nb)
+                mk.fill_opacities = [0.45] * len(nb)
             mk.visible = True
 
     def element_counts(self) -> dict[str, int]:
