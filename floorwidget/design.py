@@ -178,6 +178,9 @@ class Design:
         Initial placement from the input; :attr:`initial` holds it as a :class:`Floorplan`.
     dbu : int
         Database units per µm remembered for DEF export.
+    lef_files : list of str
+        The LEF libraries a DEF design was read with (empty otherwise); DEF export refers to
+        them instead of writing abstracts of its own.
     validate : bool
         Run :meth:`validate` (raising :class:`DesignError` listing every problem).
     """
@@ -192,6 +195,7 @@ class Design:
                  validate: bool = True, source: str | None = None):
         self.name = str(name)
         self.source = source
+        self.lef_files: list[str] = []
         self.dbu = int(dbu)
         self.die = _f64(die, (4,))
         self.names = list(names)

@@ -58,8 +58,8 @@ def save(design: Design, floorplan: Floorplan | None, path) -> None:
     """Write ``floorplan`` (default: the design's initial one) by extension, atomically.
 
     ``.aux`` writes a whole Bookshelf set beside it.  ``.def`` also writes LEF abstracts to
-    ``y.lef`` beside ``y.def`` when the design did not come from a DEF (so there is no LEF
-    library of its own to refer to), so that the pair reads back with ``load("y.def")``.
+    ``y.lef`` beside ``y.def`` when the design was not read with LEF libraries
+    (``design.lef_files`` empty), so that the pair reads back with ``load("y.def")``.
     """
     p = Path(path)
     fp = design.initial if floorplan is None else floorplan
@@ -77,10 +77,7 @@ def save(design: Design, floorplan: Floorplan | None, path) -> None:
         from .bookshelf import write_pl
         return write_pl(design, fp, p)
     if suffix == ".def":
-        from .lefdef import write_def, write_def_pair
-        if str(design.source or "").lower().endswith(".def"):
-            return write_def(design, fp, p)
-        write_def_pair(design, fp, p)
-        return None
+        from .lefdef import write_def
+        return write_def(design, fp, p)
     raise DesignError(f"unknown output format {suffix or '(no suffix)'!r}; "
                       f"expected one of {', '.join(WRITE_SUFFIXES)}", file=str(p))

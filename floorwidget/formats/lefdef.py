@@ -1880,7 +1880,7 @@ def write_def(design: Design, fp: Floorplan, path: str | Path, *,
     >>> write_def(design, fp, "blk_placed.def")                # doctest: +SKIP
     """
     if lef is None:
-        lef = not getattr(design, "lef_files", None)
+        lef = not design.lef_files
     lef_path = None if lef is False else (lef_path_for(path) if lef is True else Path(lef))
     lef_text = _lef_text(design, lef_path) if lef_path is not None else None
     text = _def_text(design, fp, path)
