@@ -29,7 +29,7 @@ from .netmodel import NetTopology, b2b_edges
 __all__ = ["QuadraticSystem", "assemble_axis", "solve_spd"]
 
 PULL = 1e-3  # weak pull of floating groups, relative to their mean diagonal
-DIRECT_MAX = 600  # systems up to this many variables are solved directly (SuperLU)
+DIRECT_MAX = 0  # systems up to this many variables are solved directly (SuperLU); 0: never
 
 
 def _pcg(A, b, x0, dinv, rtol: float, maxiter: int):
@@ -73,9 +73,8 @@ def solve_spd(A, b, x0=None, *, rtol: float = 1e-6, maxiter: int = 500, direct_m
     Jacobi-preconditioned conjugate gradients warm-started at ``x0``: ``method="pcg"`` (default)
     runs the iteration with elementwise numpy (see :func:`_pcg`), ``method="scipy"`` calls
     ``scipy.sparse.linalg.cg`` with ``M`` = the inverse diagonal.  Systems of at most
-    ``direct_max`` (default :data:`DIRECT_MAX`) unknowns are solved by a sparse LU factorisation
-    instead (``scipy.sparse.linalg.spsolve``): on a few hundred unknowns that is exact and
-    faster than the iteration's per-step overhead.
+    ``direct_max`` (default :data:`DIRECT_MAX`, i.e. never) unknowns are solved by a sparse LU
+    factorisation instead (``scipy.sparse.linalg.spsolve``).
 
     Returns
     -------
