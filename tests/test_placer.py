@@ -356,6 +356,10 @@ def test_options_are_validated():
         place(macro_chain_design(), bogus=1)
     with pytest.raises(ValueError, match="target_density"):
         place(macro_chain_design(), target_density=0.0)
+    with pytest.raises(ValueError, match="no block matches 'nothing\\*'"):
+        place(macro_chain_design(), net_weight_scale={"nothing*": 2.0})
+    with pytest.raises(ValueError, match="unknown placer option 'speed'"):
+        refine(macro_chain_design(), macro_chain_design().initial, speed=3)
 
 
 def test_net_weight_scale_pulls_blocks_together():
