@@ -44,6 +44,7 @@ The format as used by the ISPD placement contests: Nam, Alpert, Villarrubia, Win
 from __future__ import annotations
 
 import re
+from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
 
 import numpy as np
@@ -523,8 +524,8 @@ def _read_nodes(path):
     return t, first, w, h, term, table
 
 
-def _read_nets(path, node_table: _NameTable):
-    t = _Tokens(path)
+def _read_nets(path, node_table: _NameTable, t: _Tokens | None = None):
+    t = _Tokens(path) if t is None else t
     lines = np.arange(len(t.ls))
     hdr, counts = _header_counts(t, lines, {b"NumNets": "NumNets", b"NumPins": "NumPins"})
     first_all = t.ls[lines]
@@ -593,8 +594,8 @@ def _read_nets(path, node_table: _NameTable):
     return t, net_start, block, dx, dy, net_names, table, named
 
 
-def _read_pl(path, node_table: _NameTable, n: int):
-    t = _Tokens(path)
+def _read_pl(path, node_table: _NameTable, n: int, t: _Tokens | None = None):
+    t = _Tokens(path) if t is None else t
     lines = np.arange(len(t.ls))
     first = t.ls[lines]
     lc = t.lc[lines]
@@ -812,14 +813,27 @@ def read_aux(path) -> Design:
     """
     aux = Path(path)
     files = _aux_files(aux)
-    rows = _read_scl(files[".scl"][0]) if ".scl" in files else None
-    tn, first, w, h, term, node_table = _read_nodes(files[".nodes"][0])
-    n = len(first)
-    names = tn.names(first)
-    _, net_start, pin_block, pin_dx, pin_dy, net_names, net_table, named = _read_nets(
-        files[".nets"][0], node_table)
+    # tokenise the large .nets (and .pl) in a second thread while the nodes are read: numpy
+    # releases the GIL over whole arrays, and errors are still raised in file order below
+    with ThreadPoolExecutor(max_workers=1) as pool:
+        fut_nets = pool.submit(_Tokens, files[".nets"][0])
+        fut_pl = pool.submit(_Tokens, files[".pl"][0]) if ".pl" in files else None
+        try:
+            rows = _read_scl(files[".scl"][0]) if ".scl" in files else None
+            tn, first, w, h, term, node_table = _read_nodes(files[".nodes"][0])
+        except BaseException:
+            fut_nets.cancel()
+            if fut_pl is not None:
+                fut_pl.cancel()
+            raise
+        n = len(first)
+        names = tn.names(first)
+        del tn
+        _, net_start, pin_block, pin_dx, pin_dy, net_names, net_table, named = _read_nets(
+            files[".nets"][0], node_table, fut_nets.result())
+        tpl = fut_pl.result() if fut_pl is not None else None
     if ".pl" in files:
-        x, y, orient, pl_fixed, _ = _read_pl(files[".pl"][0], node_table, n)
+        x, y, orient, pl_fixed, _ = _read_pl(files[".pl"][0], node_table, n, tpl)
     else:
         x, y = np.zeros(n), np.zeros(n)
         orient, pl_fixed = np.zeros(n, np.int8), np.zeros(n, bool)
