@@ -154,7 +154,7 @@ def test_cg_matches_direct_solve():
                                 method=method)
             assert info == 0
             np.testing.assert_allclose(x, ref, rtol=1e-7, atol=1e-7)
-        x, info = solve_spd(A, rhs)  # small: direct path
+        x, info = solve_spd(A, rhs, direct_max=10**6)  # the direct (LU) path
         np.testing.assert_allclose(x, ref, rtol=1e-9, atol=1e-9)
         # gradient of the energy at the solution, from the edge list directly
         a, b, w = b2b_edges(pos, qs.topo, qs.eps)
