@@ -48,6 +48,7 @@ __all__ = [
     "SweepResult",
     "dumps_design",
     "expand_grid",
+    "format_params",
     "loads_design",
     "net_weight_factors",
     "pareto_front",
