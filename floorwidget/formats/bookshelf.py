@@ -179,6 +179,9 @@ class _Tokens:
         """Mask of tokens ``idx`` equal to ``word`` (compared eight bytes at a time)."""
         idx = np.asarray(idx)
         res = self.length[idx] == len(word)
+        if len(word) == 1:  # a colon, say: one byte each
+            res &= self.buf[self.start[idx]] == word[0]
+            return res
         sel = np.flatnonzero(res)
         s = self.start[idx[sel]]
         ok = np.ones(len(sel), bool)
