@@ -5,9 +5,12 @@ Reading
 :func:`read_aux` reads a full set; :func:`read_pl` reads a placement for an already loaded design.
 The readers never keep a Python object per pin or per token: a file is read whole, split into
 tokens by numpy over its bytes (colons are tokens of their own, ``#`` starts a comment), the
-line structure is found over the token arrays, numeric columns are converted in bulk and node
-names are matched by a vectorised 64-bit hash that is then verified byte by byte.  Line numbers
-are kept per token, so every error names the file and the line.
+line structure is found over the token arrays, numeric columns are converted in bulk (an exact
+integer fast path for plain decimals), and node names are matched through an open-addressing
+hash table keyed by each name's bytes (names over eight bytes are confirmed byte by byte).  The
+first token of every line knows its line number, so every error names the file and the line;
+a token's line is looked up only when an error is reported.  A node name may not contain ``:``
+(it always ends a token).
 
 How Bookshelf nodes become floorwidget blocks (our choices, documented here and in DEVELOPERS):
 
