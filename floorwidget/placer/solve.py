@@ -29,18 +29,34 @@ from .netmodel import NetTopology, b2b_edges
 __all__ = ["QuadraticSystem", "assemble_axis", "solve_spd"]
 
 PULL = 1e-3  # weak pull of floating groups, relative to their mean diagonal
+THREADED_MIN = 20000  # systems from this many variables solve x and y in two threads
+_POOL = None
+
+
+def _executor():
+    global _POOL
+    if _POOL is None:
+        from concurrent.futures import ThreadPoolExecutor
+
+        _POOL = ThreadPoolExecutor(max_workers=2, thread_name_prefix="floorwidget-solve")
+    return _POOL
+
+
 DIRECT_MAX = 0  # systems up to this many variables are solved directly (SuperLU); 0: never
 
 
-def _pcg(A, b, x0, dinv, rtol: float, maxiter: int):
+def _pcg(A, b, x0, dinv, rtol: float, maxiter: int, diag=None):
     """Jacobi-preconditioned conjugate gradients (Hestenes, Stiefel 1952), elementwise numpy.
 
     Same iteration as ``scipy.sparse.linalg.cg`` with a diagonal ``M``; the inner products are
     plain ``(a * b).sum()`` so that a multi-threaded BLAS does not oversubscribe a busy machine
     (vector dot products of a few thousand entries gain nothing from threads).
     """
+    def mv(v):
+        return A @ v if diag is None else A @ v + diag * v
+
     x = np.array(x0, dtype=np.float64) if x0 is not None else np.zeros_like(b)
-    r = b - A @ x
+    r = b - mv(x)
     bnorm = float(np.sqrt((b * b).sum()))
     if bnorm == 0.0:
         return np.zeros_like(b), 0
@@ -51,7 +67,7 @@ def _pcg(A, b, x0, dinv, rtol: float, maxiter: int):
     for _k in range(maxiter):
         if float((r * r).sum()) <= tol2:
             return x, 0
-        q = A @ p
+        q = mv(p)
         pq = float((p * q).sum())
         if pq <= 0.0:
             break
@@ -67,7 +83,7 @@ def _pcg(A, b, x0, dinv, rtol: float, maxiter: int):
 
 
 def solve_spd(A, b, x0=None, *, rtol: float = 1e-6, maxiter: int = 500, direct_max=None,
-              method: str = "pcg"):
+              method: str = "pcg", diag=None):
     """Solve ``A x = b`` for a symmetric positive definite sparse ``A``.
 
     Jacobi-preconditioned conjugate gradients warm-started at ``x0``: ``method="pcg"`` (default)
@@ -76,6 +92,9 @@ def solve_spd(A, b, x0=None, *, rtol: float = 1e-6, maxiter: int = 500, direct_m
     ``direct_max`` (default :data:`DIRECT_MAX`, i.e. never) unknowns are solved by a sparse LU
     factorisation instead (``scipy.sparse.linalg.spsolve``).
 
+    When ``diag`` is given, ``A`` holds only the off-diagonal part and the matrix is
+    ``A + diag(diag)`` (the iteration then never forms the sum).
+
     Returns
     -------
     x : ndarray
@@ -83,6 +102,12 @@ def solve_spd(A, b, x0=None, *, rtol: float = 1e-6, maxiter: int = 500, direct_m
         0 when converged to ``rtol`` (or solved directly), the iteration cap otherwise.
     """
     n = A.shape[0]
+    if method == "pcg" and diag is not None and n > (DIRECT_MAX if direct_max is None
+                                                     else direct_max):
+        dinv = 1.0 / np.where(diag > 0, diag, 1.0)
+        return _pcg(A, b, x0, dinv, rtol, maxiter, diag=diag)
+    if diag is not None:
+        A = A + sp.diags_array(diag)
     if n <= (DIRECT_MAX if direct_max is None else direct_max):
         return spsolve(sp.csc_array(A), b), 0
     d = A.diagonal()
@@ -130,8 +155,9 @@ def assemble_axis(pos, off, pin_var, nv: int, topo: NetTopology, eps: float):
                             w[mf] * (pos[b[mf]] - off[a[mf]]),
                             w[fm] * (pos[a[fm]] - off[b[fm]])])
     rhs = np.bincount(idx, weights=rhs_w, minlength=nv)
-    rows = np.concatenate([iam, ibm])
-    cols = np.concatenate([ibm, iam])
+    it = np.int32 if nv < 2**31 - 1 else np.int64
+    rows = np.concatenate([iam, ibm]).astype(it)
+    cols = np.concatenate([ibm, iam]).astype(it)
     A = sp.csr_array((np.concatenate([-wmm, -wmm]), (rows, cols)), shape=(nv, nv))
     return A, diag, rhs
 
@@ -204,29 +230,34 @@ class QuadraticSystem:
         if self.nv == 0:
             return np.zeros(0), np.zeros(0), (0, 0)
         ox, oy = self.pin_offsets(orient)
+        jobs = [(0, cx, ox), (1, cy, oy)]
+        if self.nv >= THREADED_MIN:
+            # the two axes are independent: solve them side by side (numpy and scipy.sparse
+            # release the GIL in their kernels); results do not depend on the threading
+            res = list(_executor().map(lambda j: self._solve_axis(*j, anchor, rtol, maxiter),
+                                       jobs))
+        else:
+            res = [self._solve_axis(*j, anchor, rtol, maxiter) for j in jobs]
+        return res[0][0], res[1][0], (res[0][1], res[1][1])
+
+    def _solve_axis(self, axis, c, off, anchor, rtol, maxiter):
+        """Assemble and solve one axis; returns ``(x, info)``."""
         b = self.topo.block
-        out = []
-        infos = []
-        for axis, (c, off) in enumerate(((cx, ox), (cy, oy))):
-            pos = c[b] + off
-            A, diag, rhs = assemble_axis(pos, off, self.pin_var, self.nv, self.topo, self.eps)
-            if anchor is not None:
-                t, wa = anchor[axis], anchor[2 + axis]
-                diag = diag + wa
-                rhs = rhs + wa * t
-            if self.floating.any():
-                fl = self.floating
-                base = diag[fl].mean() if (diag[fl] > 0).any() else 1.0
-                pull = PULL * np.where(diag[fl] > 0, diag[fl], base)
-                diag[fl] += pull
-                rhs[fl] += pull * self.core_centre[axis]
-            low = diag <= 0  # only isolated variables without anchor: keep them where they are
-            if low.any():
-                diag[low] = 1.0
-                rhs[low] = c[self.blocks][low]
-            A = A + sp.diags_array(diag)
-            x0 = c[self.blocks]
-            x, info = solve_spd(A, rhs, x0, rtol=rtol, maxiter=maxiter)
-            out.append(x)
-            infos.append(info)
-        return out[0], out[1], tuple(infos)
+        pos = c[b] + off
+        A, diag, rhs = assemble_axis(pos, off, self.pin_var, self.nv, self.topo, self.eps)
+        if anchor is not None:
+            t, wa = anchor[axis], anchor[2 + axis]
+            diag = diag + wa
+            rhs = rhs + wa * t
+        if self.floating.any():
+            fl = self.floating
+            base = diag[fl].mean() if (diag[fl] > 0).any() else 1.0
+            pull = PULL * np.where(diag[fl] > 0, diag[fl], base)
+            diag[fl] += pull
+            rhs[fl] += pull * self.core_centre[axis]
+        low = diag <= 0  # only isolated variables without anchor: keep them where they are
+        if low.any():
+            diag[low] = 1.0
+            rhs[low] = c[self.blocks][low]
+        x0 = c[self.blocks]
+        return solve_spd(A, rhs, x0, rtol=rtol, maxiter=maxiter, diag=diag)
