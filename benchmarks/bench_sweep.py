@@ -68,7 +68,8 @@ def main(argv=None) -> int:
     t_load, _, _ = timed(lambda: loads_design(blob), 7)
     t_plain, _, plain = timed(lambda: pickle.dumps(design, protocol=pickle.HIGHEST_PROTOCOL), 7)
     print(f"design {design.name}: {design.num_blocks} blocks, {design.num_nets} nets; "
-          f"{n_runs} runs per sweep, {repeats} repeat(s), {os.cpu_count()} CPUs")
+          f"{n_runs} runs per sweep, {repeats} repeat(s), {os.cpu_count()} CPUs, "
+          f"load average {os.getloadavg()[0]:.1f} at start")
     print(f"shipping: dumps_design {len(blob) / 1e3:.0f} kB in {t_dump * 1e3:.1f} ms "
           f"(load {t_load * 1e3:.1f} ms); pickle.dumps {len(plain) / 1e3:.0f} kB in "
           f"{t_plain * 1e3:.1f} ms\n")
@@ -120,6 +121,7 @@ def main(argv=None) -> int:
     if dask_start is not None:
         print(f"dask cluster start-up (not in the table): {dask_start:.2f} s")
     print(f"all executors gave bit-identical floorplans: {same}")
+    print(f"load average {os.getloadavg()[0]:.1f} at the end (a speed-up needs idle cores)")
     return 0 if same else 1
 
 
