@@ -255,6 +255,11 @@ class Design:
                 i = int(np.flatnonzero(bad)[0])
                 raise DesignError(f"block {self.names[i]!r}: position is not finite")
 
+    def __getstate__(self) -> dict:
+        state = self.__dict__.copy()
+        state["_index"] = None  # a cache, rebuilt on first use
+        return state
+
     # --- sizes and lookups -------------------------------------------------------------------
     @property
     def num_blocks(self) -> int:

@@ -148,3 +148,13 @@ def test_design_lookup_errors_name_the_block():
         d.initial.position("nope")
     assert d.macros == ["a"]
     assert d.nets_of([1]).tolist() == [0]
+
+
+def test_pickling_drops_the_name_index_cache():
+    import pickle
+
+    d = tiny()
+    assert d.block("b") == 1  # builds the cache
+    e = pickle.loads(pickle.dumps(d))
+    assert e._index is None and e.block("b") == 1
+    assert e.initial.identical(d.initial)
