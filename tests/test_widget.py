@@ -136,7 +136,10 @@ def test_drop_moves_snaps_pins_and_refines(widget, demo_design):
     i = int(widget.macro_idx[k])
     name = d.names[i]
     cx, cy = before.centres()
-    dx, dy = 123.4, -56.7
+    # a drag towards the core middle, so the move is not clamped at the core edge
+    core = d.core
+    dx = 123.4 if cx[i] < (core[0] + core[2]) / 2 else -123.4
+    dy = 56.7 if cy[i] < (core[1] + core[3]) / 2 else -56.7
     out = widget.drop(k, cx[i] + dx, cy[i] + dy)
     fp = s.floorplan
     assert out["moved"] == [name] and out["refined"]

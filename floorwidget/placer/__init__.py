@@ -9,6 +9,8 @@ flow's timing, power and physical checks.
 
 from __future__ import annotations
 
+from . import legalize as _legalize_module  # noqa: F401  (import the submodules first, so
+from . import orient as _orient_module  # noqa: F401  their names never shadow the functions)
 from .errors import PlacementError
 from .flow import legalize, place, refine
 from .options import PlacerOptions, make_options
