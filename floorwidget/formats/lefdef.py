@@ -806,6 +806,8 @@ class _Def:
 
     # --- top level ---------------------------------------------------------------------------
     def parse(self) -> None:
+        sections = {"COMPONENTS": self.components, "PINS": self.io_pins,
+                    "NETS": self.net_section, "BLOCKAGES": self.blockage_section}
         while True:
             t, p = self.tok()
             if t is None:
@@ -845,25 +847,10 @@ class _Def:
             elif T == "PROPERTYDEFINITIONS":
                 _, e = self.section_end(T, p)
                 self.pos = e
-            elif T == "COMPONENTS":
+            elif T in sections:
                 n = self.header_count(T, p)
                 s, e = self.section_end(T, p)
-                self.components(self.pos, s, n, p)
-                self.pos = e
-            elif T == "PINS":
-                n = self.header_count(T, p)
-                s, e = self.section_end(T, p)
-                self.io_pins(self.pos, s, n, p)
-                self.pos = e
-            elif T == "NETS":
-                n = self.header_count(T, p)
-                s, e = self.section_end(T, p)
-                self.net_section(self.pos, s, n, p)
-                self.pos = e
-            elif T == "BLOCKAGES":
-                n = self.header_count(T, p)
-                s, e = self.section_end(T, p)
-                self.blockage_section(self.pos, s, n, p)
+                sections[T](self.pos, s, n, p)
                 self.pos = e
             elif T in _DEF_SECTIONS_SKIP:
                 _, e = self.section_end(T, p)

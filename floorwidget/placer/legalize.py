@@ -69,6 +69,7 @@ from scipy import sparse
 from scipy.optimize import linprog
 
 from ..design import MACRO, MOVABLE, Design, Floorplan, off_grid
+from ._select import movable_macros
 from .errors import PlacementError
 
 __all__ = ["legalize_macros", "is_legal"]
@@ -553,19 +554,6 @@ def _solve_axis(n, lo_i, hi_i, sep, tgt, lo, hi):
 # public API
 
 
-def _subset_mask(design: Design, fp: Floorplan, macros) -> np.ndarray:
-    base = (design.kind == MACRO) & (fp.status == MOVABLE)
-    if macros is None:
-        return base
-    sel = np.zeros(design.num_blocks, bool)
-    arr = np.asarray(list(macros) if not isinstance(macros, np.ndarray) else macros)
-    if arr.dtype == bool:
-        sel[:] = arr.reshape(design.num_blocks)
-    elif arr.dtype.kind in "iu":
-        sel[arr.astype(np.intp)] = True
-    else:
-        sel[[design.block(str(nm)) for nm in arr]] = True
-    return base & sel
 
 
 def _check_obstacles(design: Design, fp: Floorplan) -> None:
@@ -618,7 +606,7 @@ def is_legal(design: Design, fp: Floorplan, macros=None) -> bool:
     """Whether the movable macros (or the subset ``macros``) of ``fp`` are legal in the sense
     of this module (halo boxes disjoint, footprint in core, halo in die, off blockages, on grid).
     """
-    move = _subset_mask(design, fp, macros)
+    move = movable_macros(design, fp, macros)
     prob = _Problem(design, fp, move)
     bad, i, _ = prob.violations(prob.x0, prob.y0)
     return not bad.any() and not len(i)
@@ -695,13 +683,13 @@ def legalize_macros(design: Design, fp: Floorplan, *, macros: Iterable | None = 
         raise TypeError(f"legalize_macros() got unexpected option(s): {', '.join(sorted(unknown))}")
     t0 = time.perf_counter()
     report = progress or (lambda *a: None)
-    move = _subset_mask(design, fp, macros)
+    move = movable_macros(design, fp, macros)
     _check_obstacles(design, fp)
     prob = _Problem(design, fp, move)
     n = len(prob.idx)
     keep_m = None
     if keep is not None:
-        keep_m = _subset_mask(design, fp, keep)[prob.idx]
+        keep_m = movable_macros(design, fp, keep)[prob.idx]
     out = fp.copy()
     info = {"legalize_mode": "unchanged", "legalize_moved": 0, "legalize_displacement": 0.0,
             "legalize_max_displacement": 0.0, "legalize_lp_rounds": 0}

@@ -26,7 +26,8 @@ from collections.abc import Iterable
 
 import numpy as np
 
-from ..design import ALL_ORIENTS, MACRO, MOVABLE, Design, Floorplan, orient_offsets, orient_size
+from ..design import ALL_ORIENTS, Design, Floorplan, orient_offsets, orient_size
+from ._select import movable_macros
 
 __all__ = ["choose_orientations", "flipped", "rotated", "orient_matrix"]
 
@@ -97,19 +98,6 @@ def flipped(code: int, allowed: int = ALL_ORIENTS) -> int:
 # ---------------------------------------------------------------------------------------------
 
 
-def _subset(design: Design, fp: Floorplan, macros) -> np.ndarray:
-    base = (design.kind == MACRO) & (fp.status == MOVABLE)
-    if macros is None:
-        return base
-    sel = np.zeros(design.num_blocks, bool)
-    arr = np.asarray(list(macros) if not isinstance(macros, np.ndarray) else macros)
-    if arr.dtype == bool:
-        sel[:] = arr.reshape(design.num_blocks)
-    elif arr.dtype.kind in "iu":
-        sel[arr.astype(np.intp)] = True
-    else:
-        sel[[design.block(str(nm)) for nm in arr]] = True
-    return base & sel
 
 
 def _exclusive(vals: np.ndarray, nstart: np.ndarray, gnet: np.ndarray, big: bool) -> np.ndarray:
@@ -231,7 +219,7 @@ def choose_orientations(design: Design, fp: Floorplan, macros: Iterable | None =
     SIAM J. Comput. 15(4), 1986.
     """
     out = fp.copy()
-    cand = _subset(design, fp, macros)
+    cand = movable_macros(design, fp, macros)
     info = {"orient_changed": 0, "orient_passes": 0, "orient_gain": 0.0}
     if cand.any():
         cidx = np.flatnonzero(cand)
