@@ -40,7 +40,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from .design import ORIENTATIONS, STATUS_NAMES, Design, DesignError, Floorplan
-from .formats._io import atomic_write, read_text
+from .formats._io import atomic_write, read_json_file
 
 if TYPE_CHECKING:  # pragma: no cover
     from .session import Session
@@ -331,12 +331,7 @@ def load_session(cls, path, design: Design | None = None) -> Session:
     and the JSON path (or line, for a syntax error) when anything is wrong."""
     from .session import Alternative, _freeze, _Step  # noqa: PLC0415
     p = Path(path)
-    text = read_text(p)
-    try:
-        root = json.loads(text)
-    except json.JSONDecodeError as e:
-        raise DesignError(f"not valid JSON: {e.msg} (column {e.colno})", file=str(p),
-                          line=e.lineno) from None
+    root = read_json_file(p)
     doc = _Doc(p)
     doc.obj(root, "(top)")
     fmt = doc.get(root, "format", "(top)")

@@ -386,7 +386,7 @@ def test_damaged_session_file_names_file_and_place(tmp_path):
     text = good.read_text()
     bad = tmp_path / "bad.json"
     bad.write_text(text[: len(text) // 2])
-    with pytest.raises(DesignError, match=r"bad\.json:\d+: not valid JSON"):
+    with pytest.raises(DesignError, match=r"bad\.json:\d+: invalid JSON"):
         Session.load(bad)
     doc = json.loads(text)
     doc["current"]["x"] = doc["current"]["x"][:-1]

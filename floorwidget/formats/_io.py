@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import contextlib
+import json
 import os
 import tempfile
 from pathlib import Path
@@ -54,3 +55,13 @@ def read_text(path) -> str:
     except UnicodeDecodeError as e:
         line = data[: e.start].count(b"\n") + 1
         raise DesignError("not UTF-8 text", file=str(path), line=line) from None
+
+
+def read_json_file(path):
+    """Decode a JSON file; syntax errors become a :class:`DesignError` with the line."""
+    path = Path(path)
+    try:
+        return json.loads(read_text(path))
+    except json.JSONDecodeError as e:
+        raise DesignError(f"invalid JSON: {e.msg} (column {e.colno})", file=str(path),
+                          line=e.lineno) from None

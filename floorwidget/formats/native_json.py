@@ -40,7 +40,7 @@ from ..design import (
     DesignError,
     Floorplan,
 )
-from ._io import atomic_write, read_text
+from ._io import atomic_write, read_json_file
 
 FORMAT = "floorwidget-design"
 VERSION = 1
@@ -232,13 +232,7 @@ def parse_json(doc: dict, path) -> Design:
 def read_json(path) -> Design:
     """Read a native ``.json`` design.  Errors name the file and the JSON path of the field."""
     path = Path(path)
-    text = read_text(path)
-    try:
-        doc = json.loads(text)
-    except json.JSONDecodeError as e:
-        raise DesignError(f"invalid JSON: {e.msg} (column {e.colno})", file=str(path),
-                          line=e.lineno) from None
-    return parse_json(doc, path)
+    return parse_json(read_json_file(path), path)
 
 
 def _clean(v: float):
