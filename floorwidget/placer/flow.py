@@ -323,16 +323,7 @@ def place(design: Design, floorplan: Floorplan | None = None, *, target_density:
             info["bins"] = res2["bins"]
         info["stage_seconds"]["cells"] = time.perf_counter() - t0
         _report(progress, "cells", 1.0, {"overflow": final_ov})
-    out = Floorplan(design, out.x, out.y, out.orient, src.status)
-    _restore_fixed(out, src)
-    info["legalized"] = legalized
-    info["overflow"] = final_ov
-    info["iterations"] = int(sum(info["stage_iterations"].values()))
-    info["seconds"] = time.perf_counter() - t_all
-    info["target_density"] = target
-    info["seed"] = int(seed)
-    out.info = info
-    return out
+    return _finish(design, out, src, info, legalized, final_ov, t_all, target, seed)
 
 
 def refine(design: Design, floorplan: Floorplan, *, target_density: float = 0.8, seed: int = 0,
@@ -393,17 +384,23 @@ def refine(design: Design, floorplan: Floorplan, *, target_density: float = 0.8,
         info["bins"] = res["bins"]
     info["stage_seconds"]["cells"] = time.perf_counter() - t0
     _report(progress, "cells", 1.0, {"overflow": ov})
+    return _finish(design, out, src, info, legalized, ov, t_all, target, seed)
+
+
+
+def _finish(design: Design, out: Floorplan, src: Floorplan, info: dict, legalized: bool,
+            overflow: float, t_all: float, target: float, seed: int) -> Floorplan:
+    """The result: input statuses, non-movable blocks copied back bit-exact, facts in info."""
     out = Floorplan(design, out.x, out.y, out.orient, src.status)
     _restore_fixed(out, src)
     info["legalized"] = legalized
-    info["overflow"] = ov
+    info["overflow"] = overflow
     info["iterations"] = int(sum(info["stage_iterations"].values()))
     info["seconds"] = time.perf_counter() - t_all
     info["target_density"] = target
     info["seed"] = int(seed)
     out.info = info
     return out
-
 
 def legalize(design: Design, floorplan: Floorplan, **options: Any) -> Floorplan:
     """Legalise the movable macros only (no orientation change, cells untouched).
