@@ -19,28 +19,15 @@ anchor pseudo-nets).
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-
 import numpy as np
 import scipy.sparse as sp
+
+from ..metrics import BinGrid
 
 __all__ = ["Grid", "make_grid", "rasterize", "capacity_map", "overflow", "lookahead"]
 
 
-@dataclass(frozen=True)
-class Grid:
-    """A regular bin grid over a rectangle (fields match ``metrics.BinGrid``)."""
-
-    xlo: float
-    ylo: float
-    nx: int
-    ny: int
-    bw: float
-    bh: float
-
-    @property
-    def bin_area(self) -> float:
-        return self.bw * self.bh
+Grid = BinGrid  # the placer bins on its own grid, with the metrics grid type
 
 
 def make_grid(core, widths, heights, bin_size=None, max_bins: int = 1024) -> Grid:
