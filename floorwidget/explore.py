@@ -402,11 +402,9 @@ def net_weight_factors(design: Design, weight_scale: Mapping[str, float]) -> np.
         if not sel.any():
             raise ValueError(f"weight_scale: no block name starts with {key!r}")
         block_f[sel] = float(f)
-    pin_f = block_f[design.pin_block]
-    starts = design.net_start[:-1]
-    hi = np.maximum.reduceat(pin_f, starts)
-    lo = np.minimum.reduceat(pin_f, starts)
-    return np.where(hi > 1.0, hi, lo)
+    from .placer.options import net_factors  # noqa: PLC0415
+
+    return net_factors(design, block_f)
 
 
 def _pin_names(design: Design, fp: Floorplan, names) -> None:

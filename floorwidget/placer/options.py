@@ -171,6 +171,18 @@ def make_options(options: Mapping[str, Any] | PlacerOptions | None = None,
     return PlacerOptions(**base)
 
 
+def net_factors(design, block_factor: np.ndarray) -> np.ndarray:
+    """Per-net multipliers from per-block ones: a net takes the largest factor above 1 among
+    its blocks (boosting wins), else the smallest."""
+    if design.num_nets == 0:
+        return np.ones(0)
+    pin_f = block_factor[design.pin_block]
+    starts = design.net_start[:-1]
+    hi = np.maximum.reduceat(pin_f, starts)
+    lo = np.minimum.reduceat(pin_f, starts)
+    return np.where(hi > 1.0, hi, lo)
+
+
 def net_multipliers(design, scale) -> np.ndarray | float:
     """Per-net weight multipliers for ``net_weight_scale`` (see :class:`PlacerOptions`).
 
@@ -192,12 +204,7 @@ def net_multipliers(design, scale) -> np.ndarray | float:
             if not hits:
                 raise ValueError(f"option 'net_weight_scale': no block matches {pat!r}")
             block_f[hits] = float(f)
-        pin_f = block_f[design.pin_block]
-        # the factor furthest from 1 among a net's blocks wins (largest when boosting)
-        starts = design.net_start[:-1]
-        hi = np.maximum.reduceat(pin_f, starts)
-        lo = np.minimum.reduceat(pin_f, starts)
-        return np.where(hi > 1.0, hi, lo)
+        return net_factors(design, block_f)
     a = np.asarray(scale, dtype=np.float64)
     if a.shape != (design.num_nets,):
         raise ValueError(f"option 'net_weight_scale': array has {a.shape[0]} factors, the design "
