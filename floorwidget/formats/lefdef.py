@@ -963,25 +963,18 @@ class _Def:
                     except ValueError:
                         self.fail(f"component {names[i]!r}: bad number {v!r}",
                                   self._find(start, end, names[i]))
-        halo = None
-        pinned: list[int] = []
         rest = cols[6]
         slow = np.flatnonzero(np.fromiter(map(bool, map(str.strip, rest)), bool, n)) if n else \
             np.zeros(0, np.intp)
-        for i in slow:  # options beyond a leading placement: few components in practice
-            opts = rest[i]
+
+        def option_text(i):
             if fast[i]:
-                opts = f"+ {cols[2][i]} ( {cols[3][i]} {cols[4][i]} ) {cols[5][i]} {opts}"
-            r = self._comp_options(names[i], opts, start, end)
-            status[i], x[i], y[i], orient[i] = r[0], r[1], r[2], r[3]
-            if r[4] is not None:
-                if halo is None:
-                    halo = np.zeros((n, 4))
-                halo[i] = r[4]
-            if r[5]:
-                pinned.append(int(i))
-        self.comps = dict(names=names, models=models, status=status, x=x, y=y, orient=orient,
-                          halo=halo, pinned=pinned, start=start, end=end)
+                return f"+ {cols[2][i]} ( {cols[3][i]} {cols[4][i]} ) {cols[5][i]} {rest[i]}"
+            return rest[i]
+
+        # options beyond a leading placement: few components in practice
+        self._finish_components(names, models, status, x, y, orient,
+                                ((i, option_text(i)) for i in slow), start, end)
 
     def _components_split(self, w: _Words, start: int, end: int, count: int,
                           hpos: int) -> None:
@@ -1038,10 +1031,19 @@ class _Def:
         u = np.flatnonzero((ln == 5) & at(plus, 3))
         slow[u[np.array([t == "UNPLACED" for t in w.get(begin[u] + 4)], bool)]] = False
         toks = w.words
+        # options beyond the plain forms: few components in practice
+        self._finish_components(names, models, status, x, y, orient,
+                                ((i, " ".join(toks[begin[i] + 3:semi[i]]))
+                                 for i in np.flatnonzero(slow).tolist()), start, end)
+
+    def _finish_components(self, names, models, status, x, y, orient, options, start: int,
+                           end: int) -> None:
+        """Apply the ``(index, option text)`` pairs of the components that have options beyond
+        a plain placement, and keep the section's arrays."""
+        n = len(names)
         halo = None
         pinned: list[int] = []
-        for i in np.flatnonzero(slow).tolist():  # options beyond the plain forms: few
-            opts = " ".join(toks[begin[i] + 3:semi[i]])
+        for i, opts in options:
             r = self._comp_options(names[i], opts, start, end)
             status[i], x[i], y[i], orient[i] = r[0], r[1], r[2], r[3]
             if r[4] is not None:
