@@ -26,18 +26,6 @@ from floorwidget.placer.solve import QuadraticSystem, assemble_axis, solve_spd
 from floorwidget.placer.spread import capacity_map, lookahead, make_grid, rasterize
 
 
-def _has_legaliser() -> bool:
-    try:
-        from floorwidget.placer.legalize import legalize_macros  # noqa: F401
-    except ImportError:
-        return False
-    return True
-
-
-needs_legaliser = pytest.mark.skipif(not _has_legaliser(),
-                                     reason="macro legaliser (placer/legalize.py) not available")
-
-
 def make_design(widths, heights, kinds, nets, die=(0.0, 0.0, 100.0, 100.0), x=None, y=None,
                 status=None, weights=None, halo=0.0, blockages=None):
     """A design from plain lists; ``nets`` is a list of lists of ``(block, dx, dy)``."""
@@ -280,8 +268,6 @@ def test_place_demo_overflow_and_legal(demo_design, demo_placed):
     assert fp.info["overflow"] <= 0.10
     assert fp.info["iterations"] > 0
     assert set(fp.info["stage_seconds"]) >= {"global"}
-    if not _has_legaliser():
-        pytest.skip("macro legaliser not available: legality not checked")
     assert fp.info["legalized"]
     assert metrics.evaluate(demo_design, fp)["legal"]
 
@@ -299,9 +285,7 @@ def test_pinned_and_fixed_never_move(demo_design, demo_placed):
     # pinned macros sit where the first placement put them: now push a movable macro on one
     keep = (fp.status != MOVABLE) | (demo_design.kind == TERMINAL)
     snap = (fp.x.copy(), fp.y.copy(), fp.orient.copy())
-    outs = [place(demo_design, fp, seed=0), refine(demo_design, fp)]
-    if _has_legaliser():
-        outs.append(legalize(demo_design, fp))
+    outs = [place(demo_design, fp, seed=0), refine(demo_design, fp), legalize(demo_design, fp)]
     for out in outs:
         assert np.array_equal(out.x[keep], snap[0][keep])
         assert np.array_equal(out.y[keep], snap[1][keep])
@@ -318,7 +302,6 @@ def test_input_floorplan_unchanged(demo_design, demo_placed):
     assert demo_design.initial.status.sum() > 0  # terminals are fixed in the demo input
 
 
-@needs_legaliser
 def test_refine_after_macro_move_moves_little(demo_design, demo_placed):
     fp = demo_placed
     mac = np.flatnonzero((demo_design.kind == MACRO) & (fp.status == MOVABLE))

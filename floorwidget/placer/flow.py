@@ -31,7 +31,9 @@ import numpy as np
 
 from ..design import CELL, CLUSTER, MACRO, MOVABLE, TERMINAL, Design, Floorplan
 from .errors import PlacementError
+from .legalize import legalize_macros
 from .options import PlacerOptions, check_range, make_options, net_multipliers
+from .orient import choose_orientations
 from .solve import QuadraticSystem
 from .spread import Grid, capacity_map, lookahead, make_grid, overflow
 
@@ -54,19 +56,6 @@ def _check_inputs(design: Design, floorplan: Floorplan | None) -> Floorplan:
         raise ValueError(f"floorplan has {len(fp.x)} blocks, design {design.name!r} has "
                          f"{design.num_blocks}")
     return fp
-
-
-def _legaliser():
-    """The macro legaliser and orientation chooser, or ``None`` while they are not available."""
-    try:
-        from .legalize import legalize_macros
-    except ImportError:
-        legalize_macros = None
-    try:
-        from .orient import choose_orientations
-    except ImportError:
-        choose_orientations = None
-    return legalize_macros, choose_orientations
 
 
 def _obstacles(design: Design, fp: Floorplan, fixed_mask: np.ndarray) -> np.ndarray:
@@ -290,19 +279,18 @@ def place(design: Design, floorplan: Floorplan | None = None, *, target_density:
     _report(progress, "global", 1.0, {"overflow": res["overflow"]})
 
     macros = _movable_macros(design, src)
-    legal_fn, orient_fn = _legaliser()
     legalized = False
     final_ov = res["overflow"]
-    if len(macros) and opts.legalize_macros and legal_fn is not None:
+    if len(macros) and opts.legalize_macros:
         # --- orientation of movable macros ----------------------------------------------------
         t0 = time.perf_counter()
-        if opts.orient and orient_fn is not None:
-            out = orient_fn(design, out, macros=macros)
+        if opts.orient:
+            out = choose_orientations(design, out, macros=macros)
         info["stage_seconds"]["orient"] = time.perf_counter() - t0
         _report(progress, "orient", 1.0, {})
         # --- macro legalisation ---------------------------------------------------------------
         t0 = time.perf_counter()
-        out = legal_fn(design, out, macros=macros)
+        out = legalize_macros(design, out, macros=macros)
         legalized = True
         info["stage_seconds"]["legalize"] = time.perf_counter() - t0
         _report(progress, "legalize", 1.0, {})
@@ -359,11 +347,10 @@ def refine(design: Design, floorplan: Floorplan, *, target_density: float = 0.8,
     out = src.copy()
     info: dict[str, Any] = {"stage_seconds": {}, "stage_iterations": {}}
     macros = _movable_macros(design, src)
-    legal_fn, _ = _legaliser()
     legalized = False
-    if len(macros) and opts.legalize_macros and legal_fn is not None:
+    if len(macros) and opts.legalize_macros:
         t0 = time.perf_counter()
-        out = legal_fn(design, out, macros=macros)
+        out = legalize_macros(design, out, macros=macros)
         legalized = True
         info["stage_seconds"]["legalize"] = time.perf_counter() - t0
         _report(progress, "legalize", 1.0, {})
@@ -419,17 +406,12 @@ def legalize(design: Design, floorplan: Floorplan, **options: Any) -> Floorplan:
     ------
     PlacementError
         When the macros cannot be legalised; the input is untouched.
-    NotImplementedError
-        When the macro legaliser is not installed in this build.
     """
     t0 = time.perf_counter()
     src = _check_inputs(design, floorplan)
     make_options(options)
-    legal_fn, _ = _legaliser()
-    if legal_fn is None:
-        raise NotImplementedError("macro legalisation is not available in this build")
     macros = _movable_macros(design, src)
-    out = legal_fn(design, src.copy(), macros=macros) if len(macros) else src.copy()
+    out = legalize_macros(design, src.copy(), macros=macros) if len(macros) else src.copy()
     out = Floorplan(design, out.x, out.y, out.orient, src.status)
     _restore_fixed(out, src)
     out.info = {"legalized": True, "seconds": time.perf_counter() - t0, "iterations": 0}
