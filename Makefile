@@ -23,8 +23,11 @@ test: $(STAMP_T)
 	$(BIN)/ruff check floorwidget tests benchmarks
 	$(BIN)/python -m pytest -q
 
+# JupyterLab refuses to start as root unless told; containers and CI machines often are root.
+ROOT_FLAG := $(if $(filter 0,$(shell id -u)),--allow-root,)
+
 demo: $(STAMP_D)
-	$(BIN)/jupyter lab notebooks/01-quickstart.ipynb
+	$(BIN)/jupyter lab $(ROOT_FLAG) notebooks/01-quickstart.ipynb
 
 bench: $(STAMP_T)
 	$(BIN)/python benchmarks/run.py
