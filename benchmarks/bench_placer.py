@@ -129,35 +129,36 @@ def main(argv: list[str]) -> int:
     ko_sizes = [1024] if a.quick else [10_000, 100_000]
     moves = 5 if a.quick else 20
     status = 0
+    def table(kind, sizes, header, row):
+        nonlocal status
+        print(header)
+        print("|" + "|".join("---:" if c.strip() not in ("legal", "iterations") else "---"
+                             for c in header.strip("|").split("|")) + "|")
+        for n in sizes:
+            r = _run(kind, n, 0)
+            if "error" in r:
+                print(f"| {n} | error: {r['error']} |")
+                status = 1
+                continue
+            print(row(n, r), flush=True)
+
     if "rent" in only:
-        print("| cells | macros | generate s | place s | place CPU s | global s | cells s "
-              "| peak MB | HPWL µm | overflow | legal | iterations |")
-        print("|---:|---:|---:|---:|---:|---:|---:|---:|---:|---:|---|---|")
-        for n in rent_sizes:
-            r = _run("rent", n, 0)
-            if "error" in r:
-                print(f"| {n} | error: {r['error']} |")
-                status = 1
-                continue
-            st = r["stage_s"]
-            print(f"| {n} | {r['macros']} | {r['gen_s']:.1f} | {r['place_s']:.1f} | "
-                  f"{r['cpu_s']:.1f} | {st.get('global', 0):.1f} | {st.get('cells', 0):.1f} | "
-                  f"{r['peak_mb']:.0f} | "
-                  f"{r['hpwl']:.4g} | {r['overflow']:.3f} | {r['legal']} | "
-                  f"{r['iterations']} |", flush=True)
+        table("rent", rent_sizes,
+              "| cells | macros | generate s | place s | place CPU s | global s | cells s "
+              "| peak MB | HPWL µm | overflow | legal | iterations |",
+              lambda n, r: f"| {n} | {r['macros']} | {r['gen_s']:.1f} | {r['place_s']:.1f} | "
+                           f"{r['cpu_s']:.1f} | {r['stage_s'].get('global', 0):.1f} | "
+                           f"{r['stage_s'].get('cells', 0):.1f} | {r['peak_mb']:.0f} | "
+                           f"{r['hpwl']:.4g} | {r['overflow']:.3f} | {r['legal']} | "
+                           f"{r['iterations']} |")
     if "ko" in only:
-        print("\n| known-optimum cells | place s | place CPU s | HPWL ÷ optimum | overflow | "
-              "peak MB | iterations |")
-        print("|---:|---:|---:|---:|---:|---:|---|")
-        for n in ko_sizes:
-            r = _run("ko", n, 0)
-            if "error" in r:
-                print(f"| {n} | error: {r['error']} |")
-                status = 1
-                continue
-            print(f"| {n} | {r['place_s']:.1f} | {r['cpu_s']:.1f} | {r['ratio']:.3f} | "
-                  f"{r['overflow']:.3f} | "
-                  f"{r['peak_mb']:.0f} | {r['iterations']} |", flush=True)
+        print()
+        table("ko", ko_sizes,
+              "| known-optimum cells | place s | place CPU s | HPWL ÷ optimum | overflow "
+              "| peak MB | iterations |",
+              lambda n, r: f"| {n} | {r['place_s']:.1f} | {r['cpu_s']:.1f} | "
+                           f"{r['ratio']:.3f} | {r['overflow']:.3f} | {r['peak_mb']:.0f} | "
+                           f"{r['iterations']} |")
     if "refine" in only:
         r = _run("refine", 0, moves)
         print(f"\n| refine after one macro move (demo, {moves} moves) | median ms | p95 ms | "

@@ -289,11 +289,8 @@ def place(design: Design, floorplan: Floorplan | None = None, *, target_density:
         info["stage_seconds"]["orient"] = time.perf_counter() - t0
         _report(progress, "orient", 1.0, {})
         # --- macro legalisation ---------------------------------------------------------------
-        t0 = time.perf_counter()
-        out = legalize_macros(design, out, macros=macros)
+        out = _legalize_stage(design, out, macros, info, progress)
         legalized = True
-        info["stage_seconds"]["legalize"] = time.perf_counter() - t0
-        _report(progress, "legalize", 1.0, {})
         # --- cells and clusters around the placed macros --------------------------------------
         t0 = time.perf_counter()
         soft = _soft_mask(design, src)
@@ -349,11 +346,8 @@ def refine(design: Design, floorplan: Floorplan, *, target_density: float = 0.8,
     macros = _movable_macros(design, src)
     legalized = False
     if len(macros) and opts.legalize_macros:
-        t0 = time.perf_counter()
-        out = legalize_macros(design, out, macros=macros)
+        out = _legalize_stage(design, out, macros, info, progress)
         legalized = True
-        info["stage_seconds"]["legalize"] = time.perf_counter() - t0
-        _report(progress, "legalize", 1.0, {})
     t0 = time.perf_counter()
     soft = _soft_mask(design, src)
     ov = 0.0
@@ -373,6 +367,16 @@ def refine(design: Design, floorplan: Floorplan, *, target_density: float = 0.8,
     _report(progress, "cells", 1.0, {"overflow": ov})
     return _finish(design, out, src, info, legalized, ov, t_all, target, seed)
 
+
+
+def _legalize_stage(design: Design, fp: Floorplan, macros, info: dict,
+                    progress: Progress) -> Floorplan:
+    """Macro legalisation as a timed, reported stage of place and refine."""
+    t0 = time.perf_counter()
+    out = legalize_macros(design, fp, macros=macros)
+    info["stage_seconds"]["legalize"] = time.perf_counter() - t0
+    _report(progress, "legalize", 1.0, {})
+    return out
 
 
 def _finish(design: Design, out: Floorplan, src: Floorplan, info: dict, legalized: bool,
