@@ -220,23 +220,6 @@ def _next_orientation(kind: str, code: int, allowed: int) -> int | None:
     return None if c is None or c == code else c
 
 
-def _placer_function(name: str) -> Callable:
-    """``floorwidget.placer.<name>``, imported on first use.
-
-    Guards against the package attribute being shadowed by a submodule of the same name
-    (importing ``floorwidget.placer.legalize`` rebinds ``floorwidget.placer.legalize``).
-    """
-    import importlib  # noqa: PLC0415
-    import types  # noqa: PLC0415
-
-    pkg = importlib.import_module(".placer", __package__)
-    fn = getattr(pkg, name, None)
-    if isinstance(fn, types.ModuleType) or fn is None:
-        flow = importlib.import_module(".placer.flow", __package__)
-        fn = getattr(flow, name)
-    return fn
-
-
 def _locked(method):
     """Run ``method`` holding the session's re-entrant lock (one change at a time)."""
     import functools  # noqa: PLC0415
@@ -683,7 +666,7 @@ class Session:
         PlacementError
             Infeasible; the floorplan and history are unchanged.
         """
-        _place = _placer_function("place")
+        from .placer import place as _place  # noqa: PLC0415
         opts = {"target_density": self.target_density if target_density is None
                 else _finite(target_density, "target_density"), "seed": int(seed), **options}
         self._run_placer("place", _place, opts, progress or self.progress)
@@ -691,7 +674,7 @@ class Session:
     def refine(self, *, target_density: float | None = None, seed: int = 0,
                progress: Callable | None = None, **options) -> None:
         """Improve the current floorplan incrementally (see :meth:`place` for parameters)."""
-        _refine = _placer_function("refine")
+        from .placer import refine as _refine  # noqa: PLC0415
         opts = {"target_density": self.target_density if target_density is None
                 else _finite(target_density, "target_density"), "seed": int(seed), **options}
         self._run_placer("refine", _refine, opts, progress or self.progress)
@@ -702,33 +685,31 @@ class Session:
         Raises :class:`~floorwidget.placer.errors.PlacementError` when infeasible, leaving the
         floorplan and history unchanged.
         """
-        _legalize = _placer_function("legalize")
+        from .placer import legalize as _legalize  # noqa: PLC0415
         self._run_placer("legalize", _legalize, dict(options), None)
 
     # --- undo / redo ---------------------------------------------------------------------------
     @_locked
     def undo(self) -> None:
         """Undo the last step (a batch counts as one).  ``DesignError`` when there is none."""
-        self._no_batch("undo")
-        if not self._undo:
-            raise DesignError("nothing to undo")
-        step = self._undo.pop()
-        self._apply(step, forward=False)
-        self._redo.append(step)
-        self._record("undo")
-        self._emit("undo", step.idx)
+        self._step(forward=False)
 
     @_locked
     def redo(self) -> None:
         """Redo the last undone step.  ``DesignError`` when there is none."""
-        self._no_batch("redo")
-        if not self._redo:
-            raise DesignError("nothing to redo")
-        step = self._redo.pop()
-        self._apply(step, forward=True)
-        self._undo.append(step)
-        self._record("redo")
-        self._emit("redo", step.idx)
+        self._step(forward=True)
+
+    def _step(self, forward: bool) -> None:
+        action = "redo" if forward else "undo"
+        self._no_batch(action)
+        src, dst = (self._redo, self._undo) if forward else (self._undo, self._redo)
+        if not src:
+            raise DesignError(f"nothing to {action}")
+        step = src.pop()
+        self._apply(step, forward=forward)
+        dst.append(step)
+        self._record(action)
+        self._emit(action, step.idx)
 
     # --- batches -------------------------------------------------------------------------------
     @contextlib.contextmanager
