@@ -247,10 +247,7 @@ def place(design: Design, floorplan: Floorplan | None = None, *, target_density:
     True
     """
     t_all = time.perf_counter()
-    src = _check_inputs(design, floorplan)
-    target = check_range("target_density", target_density, 0.0, 1.0, lo_open=True)
-    opts = make_options(options)
-    mult = net_multipliers(design, opts.net_weight_scale)
+    src, target, opts, mult = _start(design, floorplan, target_density, options)
     out = src.copy()
     info: dict[str, Any] = {"stage_seconds": {}, "stage_iterations": {}}
     movable = (src.status == MOVABLE) & (design.kind != TERMINAL)
@@ -337,10 +334,7 @@ def refine(design: Design, floorplan: Floorplan, *, target_density: float = 0.8,
         When the macros cannot be legalised or the cells do not fit; the input is untouched.
     """
     t_all = time.perf_counter()
-    src = _check_inputs(design, floorplan)
-    target = check_range("target_density", target_density, 0.0, 1.0, lo_open=True)
-    opts = make_options(options)
-    mult = net_multipliers(design, opts.net_weight_scale)
+    src, target, opts, mult = _start(design, floorplan, target_density, options)
     out = src.copy()
     info: dict[str, Any] = {"stage_seconds": {}, "stage_iterations": {}}
     macros = _movable_macros(design, src)
@@ -367,6 +361,15 @@ def refine(design: Design, floorplan: Floorplan, *, target_density: float = 0.8,
     _report(progress, "cells", 1.0, {"overflow": ov})
     return _finish(design, out, src, info, legalized, ov, t_all, target, seed)
 
+
+
+def _start(design: Design, floorplan: Floorplan | None, target_density: float,
+           options: dict) -> tuple[Floorplan, float, Any, Any]:
+    """Checked inputs of place and refine: floorplan, target density, options, net factors."""
+    src = _check_inputs(design, floorplan)
+    target = check_range("target_density", target_density, 0.0, 1.0, lo_open=True)
+    opts = make_options(options)
+    return src, target, opts, net_multipliers(design, opts.net_weight_scale)
 
 
 def _legalize_stage(design: Design, fp: Floorplan, macros, info: dict,
