@@ -8,6 +8,12 @@ suffix     format                                module
 ``.pl``    Bookshelf placement (write only)      :mod:`floorwidget.formats.bookshelf`
 ``.def``   DEF (+ LEF libraries)                 :mod:`floorwidget.formats.lefdef`
 =========  ====================================  ==========================================
+
+Every input may be compressed: ``x.def.gz``, ``x.json.bz2``, an ``.aux`` naming ``.nodes.gz``
+and so on (the suffix before ``.gz``/``.bz2`` decides the format; decompression streams into
+memory, no temporary copy).  ``.json``, ``.pl`` and ``.def`` outputs are compressed when OUT
+ends in ``.gz`` or ``.bz2``.  Writers are all or nothing, also for sets of files
+(:func:`floorwidget.formats._io.write_files`).
 """
 
 from __future__ import annotations
@@ -16,6 +22,7 @@ from collections.abc import Sequence
 from pathlib import Path
 
 from ..design import Design, DesignError, Floorplan
+from ._io import COMPRESSED, format_suffix
 
 __all__ = ["load", "save", "READ_SUFFIXES", "WRITE_SUFFIXES"]
 
@@ -34,13 +41,23 @@ def _lefs(lef) -> list[str]:
 def load(path, lef: str | Sequence[str] | None = None) -> Design:
     """Read a design: ``.json`` native, ``.aux`` Bookshelf, ``.def`` (with ``lef=`` libraries).
 
+    Parameters
+    ----------
+    path : path
+        The design file, optionally compressed (``.gz``, ``.bz2``).
+    lef : path or list of paths, optional
+        LEF libraries for a ``.def`` (technology LEF first), each optionally compressed.
+
     Raises
     ------
     DesignError
         Naming the file and line of the first bad statement (or every validation problem).
     """
     p = Path(path)
-    suffix = p.suffix.lower()
+    suffix = format_suffix(p)
+    if lef is not None and _lefs(lef) and suffix != ".def":
+        raise DesignError(f"lef= applies to .def designs only, not {suffix or 'this file'}",
+                          file=str(p))
     if suffix == ".json":
         from .native_json import read_json
         return read_json(p)
@@ -65,7 +82,10 @@ def save(design: Design, floorplan: Floorplan | None, path) -> None:
     fp = design.initial if floorplan is None else floorplan
     if fp.design is not design:
         raise DesignError("the floorplan belongs to another design", file=str(p))
-    suffix = p.suffix.lower()
+    suffix = format_suffix(p)
+    if suffix == ".aux" and p.suffix.lower() in COMPRESSED:
+        raise DesignError("a Bookshelf set is written uncompressed; name the .aux without "
+                          f"{p.suffix}", file=str(p))
     if suffix == ".json":
         from .native_json import write_json
         return write_json(design, fp, p)

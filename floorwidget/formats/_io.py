@@ -1,14 +1,340 @@
-"""Shared reader/writer plumbing: atomic writes and file-and-line errors."""
+"""Shared reader/writer plumbing: compressed input, all-or-nothing writes, file-and-line errors.
+
+Reading
+-------
+:func:`read_text` and :func:`read_json_file` read plain, ``.gz`` and ``.bz2`` files alike
+(decompressed in memory, in chunks, never through a temporary copy on disk), strip a UTF-8
+byte-order mark, and turn every way a file can be unreadable into a :class:`DesignError` naming
+it.  :func:`format_suffix` gives the suffix that decides the format (``x.def.gz`` -> ``.def``).
+
+Writing
+-------
+:func:`atomic_write` writes one file, :func:`write_files` a set of files (a Bookshelf set, a
+DEF with its LEF) all or nothing:
+
+1. every file is written to a temporary beside its target (``.<name>.fw-<pid>-<tag>.tmp``)
+   and flushed to disk;
+2. a commit record (``.<name>.fw-<pid>-<tag>.commit``, listing the renames) is written
+   atomically: from now on the new set is the truth;
+3. the temporaries are renamed over their targets, then the record is removed.
+
+A writer killed before step 2 leaves only temporaries, which no reader ever opens (their names
+start with a dot and end in ``.tmp``); a writer killed during step 3 leaves the record.
+:func:`recover` (called by every load and every write in that folder) finishes the renames of
+records whose writer process is gone, and deletes that process's stray temporaries, so a reader
+sees the old set or the new set, never a mix.
+"""
 
 from __future__ import annotations
 
+import bz2
 import contextlib
+import gzip
+import io
 import json
 import os
-import tempfile
+import re
+import secrets
+import zlib
+from collections.abc import Callable, Sequence
 from pathlib import Path
 
 from ..design import DesignError
+
+__all__ = ["COMPRESSED", "MAX_INPUT_BYTES", "atomic_write", "format_suffix",
+           "read_json_file", "read_text", "recover", "write_files"]
+
+COMPRESSED = (".gz", ".bz2")
+MAX_INPUT_BYTES = 1 << 33   # 8 GiB of text: a decompression bomb stops here
+MAX_JSON_DEPTH = 200        # nesting deeper than any document of ours
+_CHUNK = 1 << 22
+_BOM = "\ufeff"
+_TEMP = re.compile(r"^\.(?P<name>.+)\.fw-(?P<pid>\d+)-(?P<tag>[0-9a-f]+)\.(?P<ext>tmp|commit)$")
+
+
+# ---------------------------------------------------------------------------------------------
+# reading
+
+
+def format_suffix(path) -> str:
+    """The lower-case suffix that decides the format: ``a.def.gz`` -> ``.def``."""
+    p = Path(path)
+    s = p.suffix.lower()
+    if s in COMPRESSED:
+        s = Path(p.stem).suffix.lower()
+    return s
+
+
+def _read_bytes(path: Path) -> bytes:
+    s = path.suffix.lower()
+    try:
+        if s not in COMPRESSED:
+            size = path.stat().st_size
+            if size > MAX_INPUT_BYTES:
+                raise DesignError(f"file of {size} bytes is larger than the "
+                                  f"{MAX_INPUT_BYTES} bytes floorwidget reads", file=str(path))
+            return path.read_bytes()
+        opener = gzip.open if s == ".gz" else bz2.open
+        buf = io.BytesIO()
+        with opener(path, "rb") as f:
+            while True:
+                chunk = f.read(_CHUNK)
+                if not chunk:
+                    break
+                buf.write(chunk)
+                if buf.tell() > MAX_INPUT_BYTES:
+                    raise DesignError(f"decompresses to more than {MAX_INPUT_BYTES} bytes",
+                                      file=str(path))
+        return buf.getvalue()
+    except FileNotFoundError:
+        raise DesignError("file not found", file=str(path)) from None
+    except IsADirectoryError:
+        raise DesignError("is a directory, not a file", file=str(path)) from None
+    except (EOFError, zlib.error, gzip.BadGzipFile) as e:
+        raise DesignError(f"damaged {s[1:]} data ({e or 'cut short'})", file=str(path)) from None
+    except OSError as e:
+        if e.strerror is None:  # bz2 and gzip report bad data as a bare OSError
+            raise DesignError(f"damaged {s[1:]} data ({e})", file=str(path)) from None
+        raise DesignError(f"cannot read: {e.strerror}", file=str(path)) from None
+
+
+def read_text(path) -> str:
+    """Read a text file (plain, ``.gz`` or ``.bz2``); a missing, unreadable or binary file is a
+    :class:`DesignError`.  A leading UTF-8 byte-order mark is dropped."""
+    path = Path(path)
+    recover(path)
+    data = _read_bytes(path)
+    if b"\x00" in data:
+        line = data[: data.index(b"\x00")].count(b"\n") + 1
+        raise DesignError("binary data (NUL byte) in a text file", file=str(path), line=line)
+    try:
+        text = data.decode("utf-8")
+    except UnicodeDecodeError as e:
+        line = data[: e.start].count(b"\n") + 1
+        raise DesignError("not UTF-8 text", file=str(path), line=line) from None
+    return text[1:] if text.startswith(_BOM) else text
+
+
+def _parse_int(s: str):
+    # Python refuses int() of more than 4300 digits; a number that long is never a count or a
+    # coordinate of ours, so it reads as a float (inf beyond 1e308) and the field check names it
+    return int(s) if len(s) <= 30 else float(s)
+
+
+def _too_deep(text: str) -> int | None:
+    """Line of the first bracket nested deeper than :data:`MAX_JSON_DEPTH`, or None.
+
+    Brackets inside strings count too, which only makes the check stricter on odd documents;
+    it runs only when the document has that many opening brackets at all.
+    """
+    depth, line = 0, 1
+    for m in re.finditer(r'"(?:[^"\\\n]|\\.)*"|[\[\]{}\n]', text):
+        c = m.group()
+        if c in "[{":
+            depth += 1
+            if depth > MAX_JSON_DEPTH:
+                return line
+        elif c in "]}":
+            depth -= 1
+        elif c == "\n":
+            line += 1
+    return None
+
+
+def read_json_file(path):
+    """Decode a JSON file; syntax errors become a :class:`DesignError` with the line.
+
+    Nesting deeper than :data:`MAX_JSON_DEPTH` and numbers beyond float range are refused with
+    the file and line, instead of Python's recursion and integer-size limits.
+    """
+    path = Path(path)
+    text = read_text(path)
+    if text.count("[") + text.count("{") > MAX_JSON_DEPTH:
+        line = _too_deep(text)
+        if line is not None:
+            raise DesignError(f"JSON nested more than {MAX_JSON_DEPTH} levels deep",
+                              file=str(path), line=line)
+    try:
+        return json.loads(text, parse_int=_parse_int)
+    except json.JSONDecodeError as e:
+        raise DesignError(f"invalid JSON: {e.msg} (column {e.colno})", file=str(path),
+                          line=e.lineno) from None
+    except (RecursionError, ValueError, OverflowError) as e:  # pragma: no cover - guarded above
+        raise DesignError(f"invalid JSON: {e}", file=str(path)) from None
+
+
+# ---------------------------------------------------------------------------------------------
+# writing
+
+
+def _pid_alive(pid: int) -> bool:
+    if pid == os.getpid():
+        return True
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return True
+    return True
+
+
+def recover(path) -> None:
+    """Finish or clear what a killed writer left in the folder of ``path``.
+
+    A commit record whose writer is gone has its renames completed (the new set was complete
+    when the record was written); temporaries of a gone writer without a record are deleted.
+    Records and temporaries of a live process are left alone.  Problems (a read-only folder)
+    are ignored: the data files themselves are then still the old, complete set.
+    """
+    directory = Path(path).parent
+    try:
+        names = [n for n in os.listdir(directory or ".") if n.startswith(".") and ".fw-" in n]
+    except OSError:
+        return
+    if not names:
+        return
+    dead = [(n, m) for n in names if (m := _TEMP.match(n)) and not _pid_alive(int(m["pid"]))]
+    for n, m in dead:  # records first: they name temporaries that must survive until renamed
+        if m["ext"] == "commit":
+            with contextlib.suppress(OSError, ValueError, TypeError):
+                pairs = json.loads((directory / n).read_text("utf-8"))
+                for tmp, final in pairs:
+                    if (directory / tmp).exists():
+                        os.replace(directory / tmp, directory / final)
+                os.unlink(directory / n)
+    for n, m in dead:
+        if m["ext"] == "tmp":
+            with contextlib.suppress(OSError):
+                os.unlink(directory / n)
+
+
+def _check_dir(path: Path) -> Path:
+    directory = path.parent if str(path.parent) else Path(".")
+    if not directory.is_dir():
+        raise DesignError(f"cannot write: folder {directory} does not exist", file=str(path))
+    return directory
+
+
+def _temp_name(path: Path, tag: str, ext: str = "tmp") -> Path:
+    return path.parent / f".{path.name}.fw-{os.getpid()}-{tag}.{ext}"
+
+
+def _fsync_dir(directory: Path) -> None:
+    with contextlib.suppress(OSError):
+        fd = os.open(directory, os.O_RDONLY)
+        try:
+            os.fsync(fd)
+        finally:
+            os.close(fd)
+
+
+class _Output:
+    """The file object handed to a writer over the binary file ``raw`` of ``path``: compressed
+    by the path's suffix, text unless ``mode`` has ``b``.  :meth:`finish` completes it without
+    closing ``raw``."""
+
+    def __init__(self, raw, path: Path, mode: str, encoding: str | None):
+        s = path.suffix.lower()
+        self.comp = None
+        if s == ".gz":
+            self.comp = gzip.GzipFile(filename=Path(path.stem).name, mode="wb", fileobj=raw,
+                                      mtime=0)
+        elif s == ".bz2":
+            self.comp = bz2.BZ2File(raw, "wb")
+        base = self.comp if self.comp is not None else raw
+        self.text = None if "b" in mode else io.TextIOWrapper(
+            base, encoding=encoding or "utf-8", newline="")
+        self.file = self.text if self.text is not None else base
+
+    def finish(self) -> None:
+        if self.text is not None:
+            self.text.flush()
+            self.text.detach()
+        if self.comp is not None:
+            self.comp.close()  # writes the trailer; a file object given to it stays open
+
+
+def _write_error(path: Path, e: OSError) -> DesignError:
+    return DesignError(f"cannot write: {e.strerror or e}", file=str(path))
+
+
+def write_files(items: Sequence[tuple[Path | str, Callable]], mode: str = "w",
+                encoding: str | None = "utf-8") -> None:
+    """Write a set of files all or nothing (see the module docstring for the protocol).
+
+    Parameters
+    ----------
+    items : sequence of (path, write)
+        ``write(f)`` writes the content of ``path`` to the open file ``f`` (text unless ``mode``
+        has ``b``; compressed when the path ends in ``.gz`` or ``.bz2``).
+    mode, encoding
+        As for :func:`open`.
+
+    Raises
+    ------
+    DesignError
+        Naming the target (never a temporary) when its folder is missing or unwritable, or the
+        disk refuses the data; no target is changed then and no temporary is left.
+    """
+    paths = [Path(p) for p, _ in items]
+    for p in paths:
+        _check_dir(p)
+        recover(p)
+    tag = secrets.token_hex(4)
+    temps: list[Path] = []
+    record: Path | None = None
+    try:
+        for p, (_, write) in zip(paths, items):
+            tmp = _temp_name(p, tag)
+            try:
+                fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666)
+            except OSError as e:
+                raise _write_error(p, e) from None
+            temps.append(tmp)
+            try:
+                with os.fdopen(fd, "wb") as raw:
+                    out = _Output(raw, p, mode, encoding)
+                    write(out.file)
+                    out.finish()
+                    raw.flush()
+                    os.fsync(raw.fileno())
+            except OSError as e:
+                raise _write_error(p, e) from None
+        if len(paths) > 1:
+            record = _temp_name(paths[0], tag, "commit")
+            rec_tmp = _temp_name(paths[0], tag + "0")
+            temps.append(rec_tmp)
+            pairs = [[t.name, p.name] for t, p in zip(temps, paths)]
+            try:
+                with open(rec_tmp, "w", encoding="utf-8") as f:
+                    json.dump(pairs, f)
+                    f.flush()
+                    os.fsync(f.fileno())
+                os.replace(rec_tmp, record)
+            except OSError as e:
+                raise _write_error(paths[0], e) from None
+            temps.pop()
+            _fsync_dir(paths[0].parent)
+        for t, p in zip(list(temps), paths):
+            try:
+                os.replace(t, p)
+            except OSError as e:
+                if record is None:
+                    raise _write_error(p, e) from None
+                raise  # pragma: no cover - the record lets recover() finish the set
+            temps.remove(t)
+        if record is not None:
+            os.unlink(record)
+            record = None
+        for d in {p.parent for p in paths}:
+            _fsync_dir(d)
+    except BaseException:
+        if record is None:
+            for t in temps:
+                with contextlib.suppress(OSError):
+                    os.unlink(t)
+        raise
 
 
 @contextlib.contextmanager
@@ -16,52 +342,30 @@ def atomic_write(path, mode: str = "w", encoding: str | None = "utf-8"):
     """Open a temporary file beside ``path``; on success rename it over ``path``.
 
     Nothing is left behind on failure: either ``path`` is the complete new file or it is
-    untouched (POSIX ``rename`` is atomic within one file system).
+    untouched (POSIX ``rename`` is atomic within one file system).  A path ending in ``.gz`` or
+    ``.bz2`` is written compressed.  Errors name ``path``, never the temporary.
     """
     path = Path(path)
-    directory = path.parent if str(path.parent) else Path(".")
-    if not directory.is_dir():
-        raise DesignError(f"cannot write {path}: directory {directory} does not exist")
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=directory)
-    umask = os.umask(0)
-    os.umask(umask)
-    os.chmod(tmp, 0o666 & ~umask)
+    _check_dir(path)
+    recover(path)
+    tmp = _temp_name(path, secrets.token_hex(4))
     try:
-        with os.fdopen(fd, mode, encoding=None if "b" in mode else encoding) as f:
-            yield f
-            f.flush()
-            os.fsync(f.fileno())
+        fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666)
+    except OSError as e:
+        raise _write_error(path, e) from None
+    try:
+        with os.fdopen(fd, "wb") as raw:
+            out = _Output(raw, path, mode, encoding)
+            yield out.file
+            out.finish()
+            raw.flush()
+            os.fsync(raw.fileno())
         os.replace(tmp, path)
+    except OSError as e:
+        with contextlib.suppress(OSError):
+            os.unlink(tmp)
+        raise _write_error(path, e) from None
     except BaseException:
         with contextlib.suppress(OSError):
             os.unlink(tmp)
         raise
-
-
-def read_text(path) -> str:
-    """Read a text file; a missing, unreadable or binary file is a :class:`DesignError`."""
-    path = Path(path)
-    try:
-        data = path.read_bytes()
-    except FileNotFoundError:
-        raise DesignError("file not found", file=str(path)) from None
-    except OSError as e:
-        raise DesignError(f"cannot read: {e.strerror}", file=str(path)) from None
-    if b"\x00" in data:
-        line = data[: data.index(b"\x00")].count(b"\n") + 1
-        raise DesignError("binary data (NUL byte) in a text file", file=str(path), line=line)
-    try:
-        return data.decode("utf-8")
-    except UnicodeDecodeError as e:
-        line = data[: e.start].count(b"\n") + 1
-        raise DesignError("not UTF-8 text", file=str(path), line=line) from None
-
-
-def read_json_file(path):
-    """Decode a JSON file; syntax errors become a :class:`DesignError` with the line."""
-    path = Path(path)
-    try:
-        return json.loads(read_text(path))
-    except json.JSONDecodeError as e:
-        raise DesignError(f"invalid JSON: {e.msg} (column {e.colno})", file=str(path),
-                          line=e.lineno) from None

@@ -32,11 +32,12 @@ How Bookshelf nodes become floorwidget blocks (our choices, documented here and 
 
 Writing
 -------
-:func:`write_pl` writes a placement; :func:`write_aux` a complete set for a design.  Each file is
-written atomically.  What Bookshelf cannot say is lost on a round trip: halos, allowed
-orientations, blockages, a die larger than the rows and fixed objects, pin names, block kinds
-other than those the rules above give back (soft clusters come back as cells or macros), and the
-difference between pinned and fixed (both are written ``/FIXED``).
+:func:`write_pl` writes a placement atomically; :func:`write_aux` a complete set for a design, all
+or nothing (a failure or a kill never leaves old and new files mixed).  What Bookshelf cannot say
+is lost on a round trip: halos, allowed orientations, blockages, a die larger than the rows and
+fixed objects, pin names, block kinds other than those the rules above give back (soft clusters
+come back as cells or macros), and the difference between pinned and fixed (both are written
+``/FIXED``).
 
 References
 ----------
@@ -65,7 +66,7 @@ from ..design import (
     DesignError,
     Floorplan,
 )
-from ._io import atomic_write, read_text
+from ._io import atomic_write, format_suffix, read_text, write_files
 
 __all__ = ["read_aux", "read_pl", "write_aux", "write_pl"]
 
@@ -781,7 +782,7 @@ def _aux_files(aux: Path) -> dict[str, tuple[Path, int]]:
         if len(toks) < 3 or toks[1] != ":":
             t.fail(ln, "expected '<placement kind> : file.nodes file.nets ...'")
         for name in toks[2:]:
-            suffix = Path(name).suffix.lower()
+            suffix = format_suffix(name)
             if suffix in (".nodes", ".nets", ".wts", ".pl", ".scl"):
                 if suffix in files:
                     t.fail(ln, f"two {suffix} files named")
@@ -963,8 +964,9 @@ def write_aux(design: Design, fp: Floorplan | None, target) -> Path:
     Returns
     -------
     Path
-        The ``.aux`` written.  Every file is written atomically, and nothing is written when a
-        name cannot be expressed in Bookshelf.
+        The ``.aux`` written.  The set is written all or nothing (every file to a temporary
+        first, then all renamed; see :func:`floorwidget.formats._io.write_files`), and nothing
+        is written when a name cannot be expressed in Bookshelf.
     """
     d = design
     fp = d.initial if fp is None else fp
@@ -974,7 +976,7 @@ def write_aux(design: Design, fp: Floorplan | None, target) -> Path:
     else:
         directory, stem = target, d.name
     if not directory.is_dir():
-        raise DesignError(f"cannot write {target}: directory {directory} does not exist")
+        raise DesignError(f"cannot write: folder {directory} does not exist", file=str(target))
     _check_names([stem], "design", target)
     _check_names(d.names, "block", target)
     _check_names(d.net_names, "net", target)
@@ -1018,7 +1020,6 @@ def write_aux(design: Design, fp: Floorplan | None, target) -> Path:
            f"{stem}.scl\n")
     texts = {".nodes": "".join(nodes), ".nets": nets, ".wts": wts, ".pl": pl,
              ".scl": "".join(scl), ".aux": aux}
-    for suffix, text in texts.items():  # the .aux last: it appears only once the rest exist
-        with atomic_write(directory / f"{stem}{suffix}") as f:
-            f.write(text)
+    write_files([(directory / f"{stem}{suffix}", lambda f, t=text: f.write(t))
+                 for suffix, text in texts.items()])  # all or nothing
     return directory / f"{stem}.aux"

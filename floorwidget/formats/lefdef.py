@@ -118,7 +118,7 @@ from ..design import (
     orient_offsets,
     orient_size,
 )
-from ._io import atomic_write, read_text
+from ._io import COMPRESSED, atomic_write, read_text, write_files
 
 __all__ = [
     "LefDefWarning",
@@ -1585,8 +1585,11 @@ def _polygon_rects(pts: np.ndarray, inside: bool) -> np.ndarray:
 
 
 def lef_path_for(def_path: str | Path) -> Path:
-    """The LEF that goes with a DEF we write: ``y.lef`` beside ``y.def``."""
-    return Path(def_path).with_suffix(".lef")
+    """The LEF that goes with a DEF we write: ``y.lef`` beside ``y.def`` (and ``y.def.gz``)."""
+    p = Path(def_path)
+    if p.suffix.lower() in COMPRESSED:
+        p = p.with_suffix("")
+    return p.with_suffix(".lef")
 
 
 def read_def(path: str | Path, lef: str | Path | Sequence[str | Path] | None = None) -> Design:
@@ -1847,7 +1850,9 @@ def write_def(design: Design, fp: Floorplan, path: str | Path, *,
     Bookshelf) has no library to go with the DEF, so by default its LEF abstracts are written
     too, to ``y.lef`` beside ``y.def`` (:func:`lef_path_for`); ``lef=False`` never writes one,
     ``lef=True`` always does, and a path names the LEF.  Both texts are built and checked
-    before either file is touched.
+    before either file is touched, and the pair is written all or nothing
+    (:func:`floorwidget.formats._io.write_files`).  A ``path`` ending in ``.gz`` or ``.bz2``
+    is written compressed (its LEF stays plain text).
 
     Components: every macro, cell and soft cluster (``+ FIXED`` when fixed or pinned, pinned
     ones with ``+ PROPERTY FW_STATUS PINNED``; ``+ PLACED`` otherwise; ``+ HALO`` when set);
@@ -1873,11 +1878,10 @@ def write_def(design: Design, fp: Floorplan, path: str | Path, *,
     lef_path = None if lef is False else (lef_path_for(path) if lef is True else Path(lef))
     lef_text = _lef_text(design, lef_path) if lef_path is not None else None
     text = _def_text(design, fp, path)
-    if lef_path is not None:
-        with atomic_write(lef_path) as f:
-            f.write(lef_text)
-    with atomic_write(path) as f:
-        f.write(text)
+    items = [(path, lambda f: f.write(text))]
+    if lef_path is not None:  # the pair is written all or nothing
+        items.insert(0, (lef_path, lambda f: f.write(lef_text)))
+    write_files(items)
 
 
 def _def_text(design: Design, fp: Floorplan, path) -> str:
@@ -1989,8 +1993,8 @@ def write_def_pair(design: Design, fp: Floorplan, def_path: str | Path,
                    lef_path: str | Path | None = None) -> tuple[Path, Path]:
     """Write ``def_path`` and its LEF abstracts (default ``y.lef`` beside ``y.def``).
 
-    Both texts are built and checked first, then the LEF and the DEF are written, each
-    atomically.  :func:`read_def` on ``def_path`` with no ``lef=`` finds the LEF by the same
+    Both texts are built and checked first, then the LEF and the DEF are written together,
+    all or nothing.  :func:`read_def` on ``def_path`` with no ``lef=`` finds the LEF by the same
     convention.
 
     Returns
