@@ -9,6 +9,9 @@ suffix     format                                module
 ``.def``   DEF (+ LEF libraries)                 :mod:`floorwidget.formats.lefdef`
 =========  ====================================  ==========================================
 
+GSRC floorplanning sets are read from their ``.blocks`` or ``.hardblocks`` file (with ``.nets``
+and ``.pl`` beside it): :mod:`floorwidget.formats.gsrc`.
+
 Every input may be compressed: ``x.def.gz``, ``x.json.bz2``, an ``.aux`` naming ``.nodes.gz``
 and so on (the suffix before ``.gz``/``.bz2`` decides the format; decompression streams into
 memory, no temporary copy).  ``.json``, ``.pl`` and ``.def`` outputs are compressed when OUT
@@ -26,7 +29,7 @@ from ._io import COMPRESSED, format_suffix
 
 __all__ = ["load", "save", "READ_SUFFIXES", "WRITE_SUFFIXES"]
 
-READ_SUFFIXES = (".json", ".aux", ".def")
+READ_SUFFIXES = (".json", ".aux", ".def", ".blocks", ".hardblocks")
 WRITE_SUFFIXES = (".json", ".aux", ".pl", ".def")
 
 
@@ -38,8 +41,11 @@ def _lefs(lef) -> list[str]:
     return [str(p) for p in lef]
 
 
-def load(path, lef: str | Sequence[str] | None = None) -> Design:
-    """Read a design: ``.json`` native, ``.aux`` Bookshelf, ``.def`` (with ``lef=`` libraries).
+def load(path, lef: str | Sequence[str] | None = None, *, whitespace: float | None = None,
+         aspect: float | None = None) -> Design:
+    """Read a design: ``.json`` native, ``.aux`` Bookshelf, ``.def`` (with ``lef=`` libraries),
+    ``.blocks``/``.hardblocks`` GSRC (``whitespace`` and ``aspect`` derive its outline; see
+    :mod:`floorwidget.formats.gsrc`).
 
     Parameters
     ----------
@@ -47,6 +53,9 @@ def load(path, lef: str | Sequence[str] | None = None) -> Design:
         The design file, optionally compressed (``.gz``, ``.bz2``).
     lef : path or list of paths, optional
         LEF libraries for a ``.def`` (technology LEF first), each optionally compressed.
+    whitespace, aspect : float, optional
+        GSRC sets only: derive the outline from the block area (see
+        :func:`floorwidget.formats.gsrc.read_gsrc`).
 
     Raises
     ------
@@ -57,6 +66,12 @@ def load(path, lef: str | Sequence[str] | None = None) -> Design:
     suffix = format_suffix(p)
     if lef is not None and _lefs(lef) and suffix != ".def":
         raise DesignError(f"lef= applies to .def designs only, not {suffix or 'this file'}",
+                          file=str(p))
+    if suffix in (".blocks", ".hardblocks"):
+        from .gsrc import read_gsrc
+        return read_gsrc(p, whitespace=whitespace, aspect=aspect)
+    if whitespace is not None or aspect is not None:
+        raise DesignError("whitespace and aspect apply only to GSRC .blocks/.hardblocks sets",
                           file=str(p))
     if suffix == ".json":
         from .native_json import read_json
