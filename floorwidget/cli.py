@@ -7,14 +7,22 @@
     floorwidget convert IN OUT [--lef L ...]
     floorwidget render  FILE -o OUT.png|OUT.svg [--lef L ...] [--heat density|congestion]
 
-Exit status 0 on success, 2 on bad input (one line on stderr naming the file and line, never a
-traceback); an output file is written atomically or not at all.
+``--lef`` takes one or more files and may repeat (``--lef tech.lef cells.lef --lef ram.lef``);
+put it after FILE.  Inputs may be compressed (``x.def.gz``, ``x.aux`` naming ``.nodes.gz`` ...);
+an OUT ending in ``.gz`` or ``.bz2`` is written compressed.
+
+Exit status 0 on success, 2 on bad input or bad options (one line on stderr naming the file and
+line, or the option; never a traceback); an output (or set of outputs, such as a Bookshelf set
+or a DEF with its LEF) is written completely or not at all.  ``--json`` prints strict JSON:
+a value that is not a finite number (which a degenerate design can give) is printed as
+``null``.
 """
 
 from __future__ import annotations
 
 import argparse
 import json
+import math
 import sys
 import time
 
@@ -50,28 +58,68 @@ class _Parser(argparse.ArgumentParser):
         raise _Bad(f"{self.prog}: {message}")
 
 
+_SEED_MAX = 2**32 - 1  # what numpy's seeding takes
+
+
+def _density(text: str) -> float:
+    try:
+        v = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"not a number: {text!r}") from None
+    if not (math.isfinite(v) and 0.0 < v <= 1.0):
+        raise argparse.ArgumentTypeError(f"must be a number in (0, 1], got {text!r}")
+    return v
+
+
+def _seed(text: str) -> int:
+    try:
+        v = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"not a whole number: {text!r}") from None
+    if not 0 <= v <= _SEED_MAX:
+        raise argparse.ArgumentTypeError(f"must be a whole number in [0, {_SEED_MAX}], "
+                                         f"got {text!r}")
+    return v
+
+
+def _strict(v):
+    """JSON-safe copy of a report: non-finite floats become None (printed as null)."""
+    if isinstance(v, float):
+        return v if math.isfinite(v) else None
+    if isinstance(v, dict):
+        return {k: _strict(x) for k, x in v.items()}
+    if isinstance(v, (list, tuple)):
+        return [_strict(x) for x in v]
+    return v
+
+
 def _parser() -> argparse.ArgumentParser:
     p = _Parser(prog="floorwidget", description="Macro floorplanning from the command line. "
                 "Figures are " + CAUTION + ".")
     sub = p.add_subparsers(dest="command", required=True, parser_class=_Parser)
 
     def common(sp):
-        sp.add_argument("--lef", action="append", default=[], metavar="L",
-                        help="LEF library for a .def input (repeatable)")
+        sp.add_argument("--lef", nargs="+", action="extend", default=[], metavar="L",
+                        help="LEF libraries for a .def input, technology LEF first (one or "
+                             "more; may repeat)")
 
     r = sub.add_parser("report", help="print the figures of a design as placed in the file")
     r.add_argument("file")
     common(r)
-    r.add_argument("--json", action="store_true", help="print the report as JSON")
+    r.add_argument("--json", action="store_true",
+                   help="print the report as JSON (non-finite values as null)")
 
     pl = sub.add_parser("place", help="place the design and write the result")
     pl.add_argument("file")
     common(pl)
     pl.add_argument("-o", "--output", required=True, metavar="OUT",
                     help="output file: .json, .pl or .def")
-    pl.add_argument("--target-density", type=float, default=0.8, metavar="D")
-    pl.add_argument("--seed", type=int, default=0, metavar="S")
-    pl.add_argument("--json", action="store_true", help="print the report as JSON")
+    pl.add_argument("--target-density", type=_density, default=0.8, metavar="D",
+                    help="target bin utilisation, 0 < D <= 1 (default 0.8)")
+    pl.add_argument("--seed", type=_seed, default=0, metavar="S",
+                    help=f"random seed, 0 <= S <= {_SEED_MAX} (default 0)")
+    pl.add_argument("--json", action="store_true",
+                    help="print the report as JSON (non-finite values as null)")
 
     c = sub.add_parser("convert", help="convert between .json, .aux/.pl and .def")
     c.add_argument("input")
@@ -88,13 +136,15 @@ def _parser() -> argparse.ArgumentParser:
 
 def _print_report(rep: dict, as_json: bool, out=sys.stdout) -> None:
     if as_json:
-        json.dump(rep, out, indent=2)
+        json.dump(_strict(dict(rep)), out, indent=2, allow_nan=False)
         out.write("\n")
         return
     width = max(len(label) for _, label in _LABELS)
     for key, label in _LABELS:
         v = rep[key]
-        if isinstance(v, bool):
+        if isinstance(v, float) and not math.isfinite(v):
+            text = "n/a"
+        elif isinstance(v, bool):
             text = "yes" if v else "no"
         elif isinstance(v, float):
             text = f"{v:,.4g}" if abs(v) < 1e4 else f"{v:,.0f}"
@@ -164,7 +214,7 @@ def main(argv: list[str] | None = None) -> int:
     try:
         args = _parser().parse_args(argv)
         return _run(args)
-    except (_Bad, DesignError) as e:
+    except (_Bad, DesignError, ValueError) as e:  # a library ValueError names a bad option
         msg = " ".join(str(e).split())  # exactly one line
         sys.stderr.write(f"floorwidget: error: {msg}\n")
         return 2

@@ -36,6 +36,8 @@ __all__ = [
     "STATUS_NAMES",
     "TERMINAL",
     "ALL_ORIENTS",
+    "COORD_LIMIT",
+    "MAX_SITES",
     "Design",
     "DesignError",
     "Floorplan",
@@ -58,6 +60,9 @@ STATUS_NAMES = ("movable", "pinned", "fixed")
 ORIENTATIONS = ("N", "S", "E", "W", "FN", "FS", "FE", "FW")
 ORIENT_CODE = {o: i for i, o in enumerate(ORIENTATIONS)}
 ALL_ORIENTS = 0xFF  # bitmask with every orientation allowed
+
+COORD_LIMIT = 1e9  # µm (a kilometre): larger coordinates, sizes and weights are refused
+MAX_SITES = 2**31 - 1  # sites in one row
 
 # 2x2 matrices acting on centre offsets, indexed by orientation code (see module docstring).
 _ORIENT_MAT = np.array(
@@ -87,13 +92,18 @@ class DesignError(ValueError):
         Where; ``str(err)`` then reads ``file:line: message``.
     problems : list of str, optional
         Every problem found, when validation collected several.
+    where : str, optional
+        The object at fault when there is no line to name (a JSON path such as
+        ``blocks[3].width``, ``block 'ram0'``, ``row 2``); validation sets it to the object of
+        the first problem.  It is part of ``message`` already.
     """
 
     def __init__(self, message: str, file: str | None = None, line: int | None = None,
-                 problems: Sequence[str] | None = None):
+                 problems: Sequence[str] | None = None, where: str | None = None):
         self.message = message
         self.file = None if file is None else str(file)
         self.line = line
+        self.where = where
         self.problems = list(problems) if problems else [message]
         where = ""
         if self.file is not None:
@@ -250,10 +260,29 @@ class Design:
         init_y = np.zeros(n) if y is None else y
         self.initial = Floorplan(self, init_x, init_y, orient, st)
         if validate:
-            bad = ~(np.isfinite(self.initial.x) & np.isfinite(self.initial.y))
+            ini = self.initial
+            with np.errstate(invalid="ignore"):
+                bad = ~((np.abs(ini.x) <= COORD_LIMIT) & (np.abs(ini.y) <= COORD_LIMIT))
             if bad.any():
                 i = int(np.flatnonzero(bad)[0])
-                raise DesignError(f"block {self.names[i]!r}: position is not finite")
+                raise DesignError(f"block {self.names[i]!r}: position ({ini.x[i]:g}, "
+                                  f"{ini.y[i]:g}) is not finite or beyond ±{COORD_LIMIT:g} µm",
+                                  file=self.source, where=f"block {self.names[i]!r}")
+            bad = (ini.orient < 0) | (ini.orient >= len(ORIENTATIONS)) \
+                | (ini.status < 0) | (ini.status > FIXED)
+            if bad.any():
+                i = int(np.flatnonzero(bad)[0])
+                raise DesignError(f"block {self.names[i]!r}: orientation or status code out of "
+                                  "range", file=self.source, where=f"block {self.names[i]!r}")
+            bad = ((self.orient_allowed >> ini.orient.astype(np.uint8)) & 1) == 0
+            bad &= self.kind == MACRO  # cells and terminals take the orientation of their row
+            if bad.any():
+                i = int(np.flatnonzero(bad)[0])
+                raise DesignError(
+                    f"macro {self.names[i]!r}: initial orientation "
+                    f"{ORIENTATIONS[int(ini.orient[i])]} is not one of its allowed orientations "
+                    f"({', '.join(self.allowed_orientations(self.names[i]))})",
+                    file=self.source, where=f"block {self.names[i]!r}")
 
     def __getstate__(self) -> dict:
         state = self.__dict__.copy()
@@ -337,27 +366,46 @@ class Design:
         self.net_weight = self.net_weight[keep_net]
 
     def problems(self) -> list[str]:
-        """Every problem with this design, as one-line strings (empty when valid)."""
-        out: list[str] = []
-        n, m = self.num_blocks, self.num_nets
+        """Every problem with this design, as one-line strings (empty when valid).
 
-        def some(mask, what, names=self.names, limit=3):
+        Each names the object at fault (a block, net, row, blockage, the die or the grid).
+        """
+        return [msg for _, msg in self._problems()]
+
+    def _problems(self) -> list[tuple[str, str]]:
+        """``(object, message)`` of every problem; the message starts with the object."""
+        out: list[tuple[str, str]] = []
+        n, m = self.num_blocks, self.num_nets
+        lim = COORD_LIMIT
+
+        def add(where: str, msg: str) -> None:
+            out.append((where, msg))
+
+        def some(mask, what, names=self.names, limit=3, noun="block"):
             idx = np.flatnonzero(mask)
             if len(idx):
                 shown = ", ".join(repr(names[i]) for i in idx[:limit])
                 more = f" and {len(idx) - limit} more" if len(idx) > limit else ""
-                out.append(f"{what}: {shown}{more}")
+                add(f"{noun} {names[idx[0]]!r}", f"{what}: {shown}{more}")
+
+        def big(a) -> np.ndarray:
+            """Rows of ``a`` with a value that is not finite or beyond the coordinate limit."""
+            a = np.asarray(a, dtype=np.float64)
+            with np.errstate(invalid="ignore"):
+                bad = ~(np.abs(a) <= lim)
+            return bad.any(axis=1) if a.ndim == 2 else bad
 
         d = self.die
-        if not (np.isfinite(d).all() and d[2] > d[0] and d[3] > d[1]):
-            out.append(f"die {d.tolist()} is not a finite rectangle of positive size")
+        if big(d).any() or not (d[2] > d[0] and d[3] > d[1]):
+            add("die", f"die {d.tolist()} is not a rectangle of positive size within "
+                       f"±{lim:g} µm")
         if len(set(self.names)) != n:
             dup = [k for k, c in Counter(self.names).items() if c > 1]
-            out.append(f"duplicate block names: {', '.join(map(repr, dup[:3]))}"
-                       + (f" and {len(dup) - 3} more" if len(dup) > 3 else ""))
+            add(f"block {dup[0]!r}", f"duplicate block names: {', '.join(map(repr, dup[:3]))}"
+                + (f" and {len(dup) - 3} more" if len(dup) > 3 else ""))
         if len(set(self.net_names)) != m:
             dup = [k for k, c in Counter(self.net_names).items() if c > 1]
-            out.append(f"duplicate net names: {', '.join(map(repr, dup[:3]))}")
+            add(f"net {dup[0]!r}", f"duplicate net names: {', '.join(map(repr, dup[:3]))}")
         if ((self.kind < 0) | (self.kind > TERMINAL)).any():
             some((self.kind < 0) | (self.kind > TERMINAL), "unknown block kind")
         sized = self.kind != TERMINAL
@@ -365,8 +413,8 @@ class Design:
         bad_size |= sized & ((self.width <= 0) | (self.height <= 0))
         bad_size |= (self.width < 0) | (self.height < 0)
         some(bad_size, "non-positive or non-finite size")
-        some(~np.isfinite(self.halo).all(axis=1) | (self.halo < 0).any(axis=1),
-             "negative or non-finite halo")
+        some(~bad_size & (big(self.width) | big(self.height)), f"size beyond {lim:g} µm")
+        some(big(self.halo) | (self.halo < 0).any(axis=1), "negative or non-finite halo")
         some(self.orient_allowed == 0, "no allowed orientation")
         # a macro larger than the die in every allowed orientation
         dw, dh = d[2] - d[0], d[3] - d[1]
@@ -377,54 +425,75 @@ class Design:
         # nets
         ns = self.net_start
         if len(ns) == 0 or ns[0] != 0 or ns[-1] != self.num_pins or (np.diff(ns) < 0).any():
-            out.append("net_start is not a valid CSR index over the pins")
+            add("nets", "net_start is not a valid CSR index over the pins")
             return out
         if len(self.pin_dx) != self.num_pins or len(self.pin_dy) != self.num_pins:
-            out.append("pin offset arrays do not match the number of pins")
+            add("nets", "pin offset arrays do not match the number of pins")
             return out
-        some(self.net_degree == 0, "empty net", names=self.net_names)
-        some(~np.isfinite(self.net_weight) | (self.net_weight < 0),
-             "negative or non-finite net weight", names=self.net_names)
+        some(self.net_degree == 0, "empty net", names=self.net_names, noun="net")
+        some(~np.isfinite(self.net_weight) | (self.net_weight < 0) | (self.net_weight > lim),
+             "negative, non-finite or huge net weight", names=self.net_names, noun="net")
         unknown = (self.pin_block < 0) | (self.pin_block >= n)
         if unknown.any():
             some(np.isin(np.arange(m), self.pin_net[unknown]), "pins on unknown blocks",
-                 names=self.net_names)
+                 names=self.net_names, noun="net")
         else:
             b = self.pin_block
             tol = 1e-6 + 1e-9 * np.maximum(self.width[b], self.height[b])
-            outside = ~(np.isfinite(self.pin_dx) & np.isfinite(self.pin_dy))
-            outside |= (np.abs(self.pin_dx) > self.width[b] / 2 + tol) | \
-                       (np.abs(self.pin_dy) > self.height[b] / 2 + tol)
-            outside &= self.kind[b] != TERMINAL
+            outside = big(self.pin_dx) | big(self.pin_dy)
+            with np.errstate(invalid="ignore"):
+                outside |= (self.kind[b] != TERMINAL) & (
+                    (np.abs(self.pin_dx) > self.width[b] / 2 + tol)
+                    | (np.abs(self.pin_dy) > self.height[b] / 2 + tol))
             if outside.any():
                 blocks = np.zeros(n, bool)
                 blocks[b[outside]] = True
                 some(blocks, "pin outside its block")
         # rows and grid
         if len(self.row_x):
-            if not (np.isfinite(self.row_x).all() and np.isfinite(self.row_y).all()):
-                out.append("row origin is not finite")
-            if (self.row_height <= 0).any() or (self.row_site_width <= 0).any() \
-                    or (self.row_num_sites <= 0).any():
-                out.append("row with non-positive height, site width or site count")
-            c = self.core
-            if c[0] < d[0] - 1e-6 or c[1] < d[1] - 1e-6 or c[2] > d[2] + 1e-6 or c[3] > d[3] + 1e-6:
-                out.append(f"rows reach outside the die (core {c.tolist()}, die {d.tolist()})")
-        if not (np.isfinite(self.grid_pitch).all() and (self.grid_pitch > 0).all()):
-            out.append(f"grid pitch {self.grid_pitch.tolist()} must be positive")
+            bad = big(self.row_x) | big(self.row_y) | big(self.row_height) \
+                | big(self.row_site_width) | (self.row_height <= 0) | (self.row_site_width <= 0) \
+                | (self.row_num_sites <= 0) | (self.row_num_sites > MAX_SITES)
+            if bad.any():
+                r = int(np.flatnonzero(bad)[0])
+                add(f"row {r}", f"row {r} (and {int(bad.sum()) - 1} more): origin or height, "
+                                f"site width or site count (1..{MAX_SITES}) out of range")
+            else:
+                c = self.core
+                xhi = self.row_x + self.row_site_width * self.row_num_sites
+                yhi = self.row_y + self.row_height
+                e = 1e-6
+                out_die = (self.row_x < d[0] - e) | (self.row_y < d[1] - e) | (xhi > d[2] + e) \
+                    | (yhi > d[3] + e)
+                if out_die.any():
+                    r = int(np.flatnonzero(out_die)[0])
+                    add(f"row {r}", f"row {r} (and {int(out_die.sum()) - 1} more) reaches "
+                                    f"outside the die (core {c.tolist()}, die {d.tolist()})")
+        if big(self.grid_pitch).any() or not (self.grid_pitch > 0).all() \
+                or big(self.grid_origin).any():
+            add("grid", f"grid pitch {self.grid_pitch.tolist()} must be positive and origin "
+                        f"{self.grid_origin.tolist()} finite")
         bl = self.blockages
-        if len(bl) and not (np.isfinite(bl).all() and (bl[:, 2] > bl[:, 0]).all()
-                            and (bl[:, 3] > bl[:, 1]).all()):
-            out.append("placement blockage that is not a finite rectangle of positive size")
+        if len(bl):
+            bad = big(bl) | ~((bl[:, 2] > bl[:, 0]) & (bl[:, 3] > bl[:, 1]))
+            if bad.any():
+                k = int(np.flatnonzero(bad)[0])
+                add(f"blockage {k}", f"placement blockage {k} {bl[k].tolist()} is not a "
+                                     "finite rectangle of positive size")
         return out
 
     def validate(self) -> None:
-        """Raise :class:`DesignError` listing every problem at once (message on one line)."""
-        probs = self.problems()
+        """Raise :class:`DesignError` listing every problem at once (message on one line).
+
+        The error's ``file`` is the design's source and ``where`` the object of the first
+        problem.
+        """
+        probs = self._problems()
         if probs:
-            head = f"design {self.name!r}" + (f" from {self.source}" if self.source else "")
-            raise DesignError(f"{head}: {len(probs)} problem(s): " + "; ".join(probs),
-                              problems=probs)
+            head = f"design {self.name!r}"
+            msgs = [msg for _, msg in probs]
+            raise DesignError(f"{head}: {len(msgs)} problem(s): " + "; ".join(msgs),
+                              file=self.source, problems=msgs, where=probs[0][0])
 
 
 class Floorplan:

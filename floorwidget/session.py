@@ -244,6 +244,14 @@ def _finite(v, what: str) -> float:
     return f
 
 
+def _density(v) -> float:
+    """A target density: a number in (0, 1] (what the placer and the report take)."""
+    f = _finite(v, "target_density")
+    if not 0.0 < f <= 1.0:
+        raise DesignError(f"target_density must lie in (0, 1], got {v!r}")
+    return f
+
+
 def _clamp_to_grid(v: float, size: float, lo: float, hi: float, origin: float,
                    pitch: float) -> float:
     """Nearest grid point ``origin + k*pitch`` to ``v`` with ``[p, p+size]`` inside ``[lo, hi]``.
@@ -321,7 +329,7 @@ class Session:
             raise DesignError("the floorplan belongs to another design "
                               f"({fp.design.name!r}, not {design.name!r})")
         self.design = design
-        self.target_density = _finite(target_density, "target_density")
+        self.target_density = _density(target_density)
         self.progress: Callable | None = None
         self._initial = _freeze(fp.copy())
         self._fp = self._initial
@@ -335,6 +343,7 @@ class Session:
         self._reports: OrderedDict[int, dict] = OrderedDict()
         self._batches: list[_Batch] = []
         self._source = os.path.abspath(design.source) if design.source else None
+        self._lef = [os.path.abspath(p) for p in getattr(design, "lef_files", [])]
         self._lock = threading.RLock()
 
     # --- state ---------------------------------------------------------------------------------
@@ -668,7 +677,7 @@ class Session:
         """
         from .placer import place as _place  # noqa: PLC0415
         opts = {"target_density": self.target_density if target_density is None
-                else _finite(target_density, "target_density"), "seed": int(seed), **options}
+                else _density(target_density), "seed": int(seed), **options}
         self._run_placer("place", _place, opts, progress or self.progress)
 
     def refine(self, *, target_density: float | None = None, seed: int = 0,
@@ -676,7 +685,7 @@ class Session:
         """Improve the current floorplan incrementally (see :meth:`place` for parameters)."""
         from .placer import refine as _refine  # noqa: PLC0415
         opts = {"target_density": self.target_density if target_density is None
-                else _finite(target_density, "target_density"), "seed": int(seed), **options}
+                else _density(target_density), "seed": int(seed), **options}
         self._run_placer("refine", _refine, opts, progress or self.progress)
 
     def legalize(self, **options) -> None:

@@ -185,7 +185,7 @@ class _Doc:
         self.path = str(path)
 
     def fail(self, where: str, msg: str):
-        raise DesignError(f"{where}: {msg}", file=self.path)
+        raise DesignError(f"{where}: {msg}", file=self.path, where=where)
 
     def obj(self, v, where: str) -> dict:
         if not isinstance(v, dict):
@@ -255,12 +255,11 @@ class _Doc:
         v = self.lst(v, where)
         if n is not None and len(v) != n:
             self.fail(where, f"expected {n} codes, got {len(v)}")
-        ok = set(map(type, v)) <= {int}
-        a = np.array(v, dtype=np.int64) if ok else None
-        if a is None or ((a < 0) | (a >= hi)).any():
-            k = next(i for i, e in enumerate(v) if type(e) is not int or not 0 <= e < hi)
+        # checked as Python ints first: a code like 2**63 must not reach numpy
+        k = next((i for i, e in enumerate(v) if type(e) is not int or not 0 <= e < hi), None)
+        if k is not None:
             self.fail(f"{where}[{k}]", f"expected a code 0..{hi - 1}, got {v[k]!r}")
-        return a.astype(np.int8)
+        return np.array(v, dtype=np.int8)
 
     def fp_arrays(self, v, n: int | None, where: str):
         self.obj(v, where)

@@ -431,7 +431,7 @@ def test_failed_save_keeps_previous_file(tmp_path, monkeypatch):
         raise OSError("disk full")
 
     monkeypatch.setattr(io_mod.os, "fsync", boom)
-    with pytest.raises(OSError, match="disk full"):
+    with pytest.raises(DesignError, match=r"keep\.json: cannot write: disk full"):  # names OUT
         s.save(p)
     monkeypatch.undo()
     assert p.read_bytes() == before

@@ -1520,6 +1520,10 @@ class _Def:
         if c["halo"] is not None:
             halo[:nc] = c["halo"] / dbu
         block_type = list(map(canon.__getitem__, c["models"])) + [""] * nt_
+        # the input's orientation of a fixed component or an I/O pin is a fact, not a choice
+        fixed = status == FIXED
+        allowed[fixed] |= (np.uint8(1) << orient[fixed].astype(np.uint8)).astype(np.uint8)
+        t_allowed = (np.uint8(1) << np.array(t_o, np.uint8)).astype(np.uint8)
         if self.skipped:
             _warn_skipped(self.path, self.skipped)
         try:
@@ -1528,7 +1532,7 @@ class _Def:
                 np.concatenate([kind, np.full(nt_, TERMINAL, np.int8)]),
                 np.concatenate([width, t_w]), np.concatenate([height, t_h]),
                 net_start, ci[pin_keep], dx[pin_keep], dy[pin_keep],
-                halo=halo, orient_allowed=np.concatenate([allowed, np.ones(nt_, np.uint8)]),
+                halo=halo, orient_allowed=np.concatenate([allowed, t_allowed]),
                 net_names=net_names, net_weight=nt["weight"][net_keep], pin_names=pin_names,
                 rows=rows if self.rows else None, blockages=blockages, block_type=block_type,
                 x=np.concatenate([x, t_x]), y=np.concatenate([y, t_y]),
@@ -1536,7 +1540,8 @@ class _Def:
                 status=np.concatenate([status, np.array(t_s, np.int8)]),
                 dbu=int(dbu))
         except DesignError as e:  # validation of the assembled design: name the file
-            raise DesignError(e.message, file=self.path, problems=e.problems) from None
+            raise DesignError(e.message, file=self.path, problems=e.problems,
+                              where=e.where) from None
         design.source = self.path
         return design
 

@@ -33,6 +33,7 @@ from ..design import (
     ALL_ORIENTS,
     KIND_NAMES,
     MACRO,
+    MAX_SITES,
     ORIENT_CODE,
     ORIENTATIONS,
     STATUS_NAMES,
@@ -42,6 +43,7 @@ from ..design import (
 )
 from ._io import atomic_write, read_json_file
 
+MAX_DBU = 10**6  # database units per µm (DEF files use 100 to 20,000)
 FORMAT = "floorwidget-design"
 VERSION = 1
 _KIND = {k: i for i, k in enumerate(KIND_NAMES)}
@@ -53,7 +55,7 @@ class _Reader:
         self.path = str(path)
 
     def fail(self, where: str, msg: str):
-        raise DesignError(f"{where}: {msg}", file=self.path)
+        raise DesignError(f"{where}: {msg}", file=self.path, where=where)
 
     def get(self, obj: dict, key: str, where: str, default=KeyError):
         if not isinstance(obj, dict):
@@ -124,8 +126,8 @@ def parse_json(doc: dict, path) -> Design:
         rows["site_width"].append(r.num(r.get(row, "site_width", w), f"{w}.site_width",
                                         positive=True))
         ns = r.get(row, "num_sites", w)
-        if isinstance(ns, bool) or not isinstance(ns, int) or ns <= 0:
-            r.fail(f"{w}.num_sites", "expected a positive whole number")
+        if isinstance(ns, bool) or not isinstance(ns, int) or not 0 < ns <= MAX_SITES:
+            r.fail(f"{w}.num_sites", f"expected a whole number in 1..{MAX_SITES}")
         rows["num_sites"].append(ns)
         rows["orient"].append(r.choice(row.get("orient", "N"), ORIENT_CODE, f"{w}.orient"))
     rows["site_name"] = doc.get("site", "core")
@@ -218,8 +220,8 @@ def parse_json(doc: dict, path) -> Design:
         starts.append(len(pin_block))
 
     dbu = doc.get("dbu", 1000)
-    if isinstance(dbu, bool) or not isinstance(dbu, int) or dbu <= 0:
-        r.fail("dbu", "expected a positive whole number")
+    if isinstance(dbu, bool) or not isinstance(dbu, int) or not 0 < dbu <= MAX_DBU:
+        r.fail("dbu", f"expected a whole number in 1..{MAX_DBU}")
     return Design(
         name, die, names, kind, width, height, starts, pin_block, pin_dx, pin_dy,
         halo=halo, orient_allowed=allowed, net_names=net_names, net_weight=weights,
