@@ -23,9 +23,11 @@ Conventions
   HPWL in total.  A box thinner than one bin in x (or y) is widened, about its centre, to one bin
   width (height) while the net's total demand stays ``w + h``.  The map is *wire length per unit
   area*, µm / µm² (= 1/µm), per bin; multiply by a bin's area for µm of wire in it.
-* **Legality** uses the placed footprints; macro-to-macro overlaps compare the footprints
-  *inflated by their halos* (so two macros must stand apart by at least the sum of the facing
-  halos), fixed macros included.
+* **Legality** uses the placed footprints.  The halo rule (common practice): a halo is a
+  keep-out around one macro -- no standard cell and no *other macro's footprint* inside it --
+  and halos may overlap each other.  Two macros conflict when the footprint of one overlaps the
+  halo box of the other (fixed macros included); facing footprints must stand apart by the
+  larger of the two facing halos.
 
 References
 ----------
@@ -595,8 +597,14 @@ def congestion_stats(rudy: np.ndarray) -> tuple[float, float]:
 # legality
 
 
-def _overlap_pairs(r: np.ndarray, tol: float = TOL) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def _overlap_pairs(r: np.ndarray, tol: float = TOL, foot: np.ndarray | None = None
+                   ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Pairs ``(a, b)`` (a < b) of rectangles overlapping by more than ``tol`` in x and y.
+
+    With ``foot`` (footprints inside the boxes ``r``, one per box) the halo rule applies
+    instead: a pair conflicts when the footprint of one overlaps the box of the other by more
+    than ``tol`` in x and y, and its area is that of the union of the two footprint-box
+    intersections, ``|f_a & r_b| + |f_b & r_a| - |f_a & f_b|``.
 
     Sort-based broad phase: with rectangles sorted by left edge, the candidates of each one are
     the following rectangles whose left edge is left of its right edge (``searchsorted``); they
@@ -620,9 +628,20 @@ def _overlap_pairs(r: np.ndarray, tol: float = TOL) -> tuple[np.ndarray, np.ndar
     oy = np.minimum(rs[a, 3], rs[b, 3]) - np.maximum(rs[a, 1], rs[b, 1])
     hit = (ox > tol) & (oy > tol)
     ia, ib = order[a[hit]], order[b[hit]]
+    area = ox[hit] * oy[hit]
+    if foot is not None:  # candidates: the boxes overlap; keep footprint-against-box hits
+        def inter(p, q):
+            wx = np.minimum(p[:, 2], q[:, 2]) - np.maximum(p[:, 0], q[:, 0])
+            wy = np.minimum(p[:, 3], q[:, 3]) - np.maximum(p[:, 1], q[:, 1])
+            return wx, wy, np.maximum(wx, 0) * np.maximum(wy, 0)
+        ax, ay, a_in_b = inter(foot[ia], r[ib])
+        bx, by, b_in_a = inter(foot[ib], r[ia])
+        keep = ((ax > tol) & (ay > tol)) | ((bx > tol) & (by > tol))
+        area = (a_in_b + b_in_a - inter(foot[ia], foot[ib])[2])[keep]
+        ia, ib = ia[keep], ib[keep]
     lo, hi = np.minimum(ia, ib), np.maximum(ia, ib)
     srt = np.lexsort((hi, lo))
-    return lo[srt], hi[srt], (ox[hit] * oy[hit])[srt]
+    return lo[srt], hi[srt], area[srt]
 
 
 def legality(design: Design, fp: Floorplan) -> dict:
@@ -636,10 +655,12 @@ def legality(design: Design, fp: Floorplan) -> dict:
     Returns
     -------
     dict
-        ``overlap_pairs`` ((k, 2) int array of macro indices, halos included, fixed macros
-        included), ``overlap_areas`` (k,), ``macro_overlaps`` (k), ``macro_overlap_area``
-        (µm², area of the halo-inflated intersections), ``out_of_die`` (indices of blocks whose
-        footprint leaves the die), ``out_of_core`` (macros whose footprint leaves the core),
+        ``overlap_pairs`` ((k, 2) int array of macro pairs in conflict under the halo rule:
+        a footprint overlapping the other's halo box; fixed macros included),
+        ``overlap_areas`` (k,), ``macro_overlaps`` (k), ``macro_overlap_area`` (µm², per pair
+        the area of the union of its footprint-against-halo-box intersections),
+        ``out_of_die`` (indices of blocks whose footprint leaves the die), ``out_of_core``
+        (macros whose footprint leaves the core),
         ``on_blockage`` (macros whose footprint overlaps a placement blockage),
         ``off_grid`` (movable or pinned macros whose lower-left corner is off the snap grid;
         fixed macros come from the input and are exempt) and ``legal`` (none of these).
@@ -647,7 +668,7 @@ def legality(design: Design, fp: Floorplan) -> dict:
     mac = np.flatnonzero(design.kind == MACRO)
     rects = fp.rects()
     halo_r = fp.rects(halo=True)[mac]
-    a, b, area = _overlap_pairs(halo_r)
+    a, b, area = _overlap_pairs(halo_r, foot=rects[mac])
     pairs = np.stack([mac[a], mac[b]], axis=1) if len(a) else np.zeros((0, 2), np.intp)
     d, c = design.die, design.core
     out_die = ((rects[:, 0] < d[0] - TOL) | (rects[:, 1] < d[1] - TOL)

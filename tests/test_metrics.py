@@ -293,14 +293,20 @@ def test_macro_overlaps_match_shapely():
     fp = Floorplan(d, rng.uniform(0, 150, n), rng.uniform(0, 150, n), None,
                    rng.choice([MOVABLE, PINNED, FIXED], n))
     leg = M.legality(d, fp)
-    r = fp.rects(halo=True)
-    boxes = shapely.box(*r.T)
+    # the halo rule (common practice): a footprint may not enter another macro's halo box;
+    # halo boxes may overlap each other.  Per pair, the area of the union of the two
+    # footprint-against-halo-box intersections (shapely/GEOS).
+    boxes = shapely.box(*fp.rects(halo=True).T)
+    feet = shapely.box(*fp.rects().T)
     expect = {}
     for a in range(n):
         for b in range(a + 1, n):
-            inter = shapely.intersection(boxes[a], boxes[b])
+            inter = shapely.union(shapely.intersection(feet[a], boxes[b]),
+                                  shapely.intersection(feet[b], boxes[a]))
             if inter.area > 0:
                 expect[(a, b)] = inter.area
+    assert any(shapely.area(shapely.intersection(boxes[a], boxes[b])) > 0
+               for a in range(n) for b in range(a + 1, n) if (a, b) not in expect)
     got = {tuple(p): ar for p, ar in zip(leg["overlap_pairs"].tolist(), leg["overlap_areas"])}
     assert set(got) == set(expect)
     for k in expect:
@@ -324,11 +330,15 @@ def test_legality_rules():
     assert leg["on_blockage"].tolist() == [3]
     assert leg["out_of_die"].tolist() == [4]
     assert not leg["legal"]
-    # halos count: 1.5 apart is an overlap of the inflated footprints (0.5 x 12)
+    # halos may overlap each other: 1.5 apart, the halo boxes overlap but no footprint is
+    # inside the other's halo box
     fp.x[:] = [10, 21.5, 40, 60, 50]
+    assert M.legality(d, fp)["macro_overlaps"] == 0
+    # 0.5 apart: each footprint is 0.5 deep in the other's 1 µm halo (0.5 x 10 each way)
+    fp.x[:] = [10, 20.5, 40, 60, 50]
     leg = M.legality(d, fp)
     assert leg["overlap_pairs"].tolist() == [[0, 1]]
-    assert leg["macro_overlap_area"] == pytest.approx(0.5 * 12)
+    assert leg["macro_overlap_area"] == pytest.approx(2 * 0.5 * 10)
     # a fixed macro off the grid is the input's business; overlaps with it still count
     fp.x[:] = [10, 25, 40.5, 60, 50]
     fp.status[2] = FIXED
@@ -336,6 +346,27 @@ def test_legality_rules():
     assert leg["legal"]
     fp.x[1] = 35.0
     assert M.legality(d, fp)["overlap_pairs"].tolist() == [[1, 2]]
+
+
+def test_halo_rule_hand_worked_areas():
+    # the halo rule (common practice): no other macro's footprint inside a halo box
+    d = make_design([10, 10], [10, 10], [MACRO, MACRO], [[(0, 0, 0), (1, 0, 0)]],
+                    halo=np.array([[0.0, 0.0, 5.0, 0.0], [0.0, 0.0, 0.0, 0.0]]))
+    # m1 2 µm right of m0, whose right halo is 5: m1's footprint x 22..32, y 12..22 meets
+    # m0's halo box x 10..25, y 10..20 in 3 x 8 = 24 µm²
+    fp = Floorplan(d, [10.0, 22.0], [10.0, 12.0])
+    leg = M.legality(d, fp)
+    assert leg["overlap_pairs"].tolist() == [[0, 1]] and not leg["legal"]
+    assert leg["macro_overlap_area"] == pytest.approx(24.0)
+    # mirrored (m1 left of m0, facing m0's halo-free left side) at the same gap: legal
+    fp = Floorplan(d, [22.0, 10.0], [10.0, 12.0])
+    assert M.legality(d, fp)["macro_overlaps"] == 0
+    # overlapping footprints with 1 µm halos all round: m0 at 10..20, m1 at 15..25 (y 10..20);
+    # the union of the two footprint-in-halo regions is x 14..21 by y 10..20 = 70 µm², the
+    # footprints' own overlap (50 µm²) counted once
+    d = make_design([10, 10], [10, 10], [MACRO, MACRO], [[(0, 0, 0), (1, 0, 0)]], halo=1.0)
+    leg = M.legality(d, Floorplan(d, [10.0, 15.0], [10.0, 10.0]))
+    assert leg["macro_overlap_area"] == pytest.approx(70.0)
 
 
 def test_evaluate_report_keys(demo_design):

@@ -125,6 +125,26 @@ def _pairs(a: np.ndarray, b: np.ndarray | None = None) -> tuple[np.ndarray, np.n
     return i[o], j[o]
 
 
+def _grow(boxes: np.ndarray, halo: np.ndarray) -> np.ndarray:
+    """Halo boxes: ``boxes`` grown by ``halo`` (left, bottom, right, top), as Floorplan.rects."""
+    return np.stack([boxes[:, 0] - halo[:, 0], boxes[:, 1] - halo[:, 1],
+                     boxes[:, 2] + halo[:, 2], boxes[:, 3] + halo[:, 3]], axis=1)
+
+
+def _conflicts(foot: np.ndarray, halo_box: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Pairs ``i < j`` in conflict under the halo rule: the footprint of one overlaps the halo
+    box of the other (halo boxes may overlap each other)."""
+    i, j = _pairs(foot, halo_box)
+    keep = i != j
+    i, j = i[keep], j[keep]
+    lo, hi = np.minimum(i, j), np.maximum(i, j)
+    if not len(lo):
+        return lo, hi
+    m = int(hi.max()) + 1
+    key = np.unique(lo * m + hi)
+    return key // m, key % m
+
+
 def _union_area(rects: np.ndarray, clip: np.ndarray) -> float:
     """Area of the union of ``rects`` clipped to ``clip`` (coordinate compression).
 
@@ -176,10 +196,10 @@ class _Problem:
         self.die = design.die
         self.ox, self.oy = (float(v) for v in design.grid_origin)
         self.px, self.py = (float(v) for v in design.grid_pitch)
-        rects = fp.rects(halo=True)
         obst = (design.kind == MACRO) & ~move
         self.obst_idx = np.flatnonzero(obst)
-        self.obst = rects[obst]  # halo boxes of macros that stay
+        self.obst = fp.rects()[obst]  # footprints of the macros that stay
+        self.obst_halo = hl[obst].copy()  # and their halos (left, bottom, right, top)
         self.blk = np.asarray(design.blockages, dtype=np.float64).reshape(-1, 4)
         self.area = (self.w + self.l + self.r) * (self.h + self.b + self.t)
         self._bounds()
@@ -210,6 +230,12 @@ class _Problem:
             ky1 = ky1 - ((y + h > c[3]) | ((y + h) + t > d[3]))
         self.kx0, self.kx1, self.ky0, self.ky1 = kx0, kx1, ky0, ky1
 
+    def pads(self, i, halo: np.ndarray, nb) -> tuple[np.ndarray, ...]:
+        """Gaps ``(left, bottom, right, top)`` macro(s) ``i`` keep from footprints with halos
+        ``halo``: the larger of the two facing halos (zero where ``nb`` is False)."""
+        return (np.maximum(self.l[i], halo[:, 2]) * nb, np.maximum(self.b[i], halo[:, 3]) * nb,
+                np.maximum(self.r[i], halo[:, 0]) * nb, np.maximum(self.t[i], halo[:, 1]) * nb)
+
     # --- boxes ---------------------------------------------------------------------------
     def halo_boxes(self, x, y, sel=slice(None)):
         w, h = self.w[sel], self.h[sel]
@@ -219,35 +245,51 @@ class _Problem:
     def foot_boxes(self, x, y, sel=slice(None)):
         return np.stack([x, y, x + self.w[sel], y + self.h[sel]], axis=1)
 
+    def obstacles(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """``(boxes, halos, is_blockage)`` of everything the macros of M must avoid:
+        footprints of the macros that stay (with their halos), then blockages (no halo)."""
+        boxes = np.concatenate([self.obst, self.blk])
+        halos = np.concatenate([self.obst_halo, np.zeros((len(self.blk), 4))])
+        is_blk = np.arange(len(boxes)) >= len(self.obst)
+        return boxes, halos, is_blk
+
     def violations(self, x, y) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """``(bad_self, I, J)``: per-macro violations (bounds, grid, blockage, obstacle) and
-        the overlapping pairs within M (positions indices into M)."""
+        the conflicting pairs within M (positions indices into M, ``I < J``) under the halo
+        rule: a footprint may not overlap another macro's halo box."""
         c, d = self.core, self.die
         w, h = self.w, self.h
         bad = (x < c[0]) | (y < c[1]) | (x + w > c[2]) | (y + h > c[3])
         hb = self.halo_boxes(x, y)
+        fb = self.foot_boxes(x, y)
         bad |= (hb[:, 0] < d[0]) | (hb[:, 1] < d[1]) | (hb[:, 2] > d[2]) | (hb[:, 3] > d[3])
         bad |= off_grid(x, self.ox, self.px, _GRID_TOL) | off_grid(y, self.oy, self.py, _GRID_TOL)
         if len(self.blk):
-            i, _ = _pairs(self.foot_boxes(x, y), self.blk)
+            i, _ = _pairs(fb, self.blk)
             bad[i] = True
         if len(self.obst):
+            i, _ = _pairs(fb, _grow(self.obst, self.obst_halo))
+            bad[i] = True
             i, _ = _pairs(hb, self.obst)
             bad[i] = True
-        i, j = _pairs(hb)
+        i, j = _conflicts(fb, hb)
         return bad, i, j
 
     # --- nearest free spot ---------------------------------------------------------------
-    def nearest_spot(self, i: int, tx: float, ty: float, obs: np.ndarray, obs_blk: np.ndarray):
+    def nearest_spot(self, i: int, tx: float, ty: float, obs: np.ndarray, obs_halo: np.ndarray,
+                     obs_blk: np.ndarray):
         """Grid indices ``(kx, ky)`` of the free spot nearest to ``(tx, ty)`` for macro ``i``
-        among obstacles ``obs`` (halo boxes; ``obs_blk`` marks blockages, which only the
-        footprint must avoid), or None when there is none."""
+        among obstacles ``obs`` (footprints with halos ``obs_halo``; ``obs_blk`` marks
+        blockages, which only the footprint must avoid), or None when there is none.
+
+        Facing sides stand apart by the larger of the two facing halos (the halo rule, made
+        rectangular: a pair clear along x or along y by that gap is legal)."""
         kx0, kx1, ky0, ky1 = self.kx0[i], self.kx1[i], self.ky0[i], self.ky1[i]
         if kx0 > kx1 or ky0 > ky1:
             return None
         w, h = self.w[i], self.h[i]
         nb = ~obs_blk
-        lp, bp, rp, tp = (v * nb for v in (self.l[i], self.b[i], self.r[i], self.t[i]))
+        lp, bp, rp, tp = self.pads(i, obs_halo, nb)
         # configuration-space forbidden (open) rectangles of the lower-left corner
         fx0 = obs[:, 0] - w - rp
         fx1 = obs[:, 2] + lp
@@ -332,24 +374,27 @@ class _Problem:
         ``(tx, ty)``, avoiding blockages, obstacles, the macros marked ``still`` (kept at x, y)
         and those placed before.  Returns ``(x, y, failed_index_or_None)`` (new arrays)."""
         x, y = x.copy(), y.copy()
-        n_fixed = len(self.obst) + len(self.blk)
+        boxes, halos, is_blk = self.obstacles()
+        n_fixed = len(boxes)
         still_idx = np.flatnonzero(still)
         cap = n_fixed + len(still_idx) + len(order)
         obs = np.empty((cap, 4))
+        oh = np.zeros((cap, 4))
         blk = np.zeros(cap, bool)
-        obs[:len(self.obst)] = self.obst
-        obs[len(self.obst):n_fixed] = self.blk
-        blk[len(self.obst):n_fixed] = True
+        obs[:n_fixed], oh[:n_fixed], blk[:n_fixed] = boxes, halos, is_blk
         k = n_fixed
+        hl = np.stack([self.l, self.b, self.r, self.t], axis=1)
         if len(still_idx):
-            obs[k:k + len(still_idx)] = self.halo_boxes(x[still_idx], y[still_idx], still_idx)
+            obs[k:k + len(still_idx)] = self.foot_boxes(x[still_idx], y[still_idx], still_idx)
+            oh[k:k + len(still_idx)] = hl[still_idx]
             k += len(still_idx)
         for i in order:
-            spot = self.nearest_spot(i, tx[i], ty[i], obs[:k], blk[:k])
+            spot = self.nearest_spot(i, tx[i], ty[i], obs[:k], oh[:k], blk[:k])
             if spot is None:
                 return x, y, int(i)
             x[i], y[i] = self.gx(spot[0]), self.gy(spot[1])
-            obs[k] = self.halo_boxes(x[i:i + 1], y[i:i + 1], slice(i, i + 1))[0]
+            obs[k] = self.foot_boxes(x[i:i + 1], y[i:i + 1], slice(i, i + 1))[0]
+            oh[k] = hl[i]
             k += 1
         return x, y, None
 
@@ -391,11 +436,14 @@ class _Problem:
         x, y = x.copy(), y.copy()
         for _ in range(rounds):
             hb = self.halo_boxes(x, y)
-            i, j = _pairs(hb)
+            fb = self.foot_boxes(x, y)
+            i, j = _pairs(fb, hb)  # footprint i against halo box j
+            keep = i != j
+            i, j = i[keep], j[keep]
             if not len(i):
                 break
-            ox = np.minimum(hb[i, 2], hb[j, 2]) - np.maximum(hb[i, 0], hb[j, 0])
-            oy = np.minimum(hb[i, 3], hb[j, 3]) - np.maximum(hb[i, 1], hb[j, 1])
+            ox = np.minimum(fb[i, 2], hb[j, 2]) - np.maximum(fb[i, 0], hb[j, 0])
+            oy = np.minimum(fb[i, 3], hb[j, 3]) - np.maximum(fb[i, 1], hb[j, 1])
             tiny = np.minimum(ox, oy) <= 1e-7
             if not tiny.any():
                 break
@@ -405,7 +453,7 @@ class _Problem:
                 if not axis.any():
                     continue
                 a, b = i[axis], j[axis]
-                upper = np.where(hb[a, lo] + hb[a, hi] >= hb[b, lo] + hb[b, hi], a, b)
+                upper = np.where(fb[a, lo] + fb[a, hi] >= fb[b, lo] + fb[b, hi], a, b)
                 step = np.zeros(len(v))
                 np.maximum.at(step, upper, 2 * ov[axis] + 4 * np.spacing(np.abs(v[upper]) + 1))
                 v += step
@@ -432,11 +480,11 @@ class _Problem:
         # --- macro pairs that could meet: choose one satisfied separation per pair
         i, j = _pairs(hb + grow)
         if len(i):
-            sep = np.stack([
-                np.ceil((w[i] + r[i] + lf[j]) / px - _EPS),  # i left of j
-                np.ceil((w[j] + r[j] + lf[i]) / px - _EPS),  # j left of i
-                np.ceil((h[i] + t[i] + b[j]) / py - _EPS),  # i below j
-                np.ceil((h[j] + t[j] + b[i]) / py - _EPS),  # j below i
+            sep = np.stack([  # bodies apart by the larger facing halo (the halo rule)
+                np.ceil((w[i] + np.maximum(r[i], lf[j])) / px - _EPS),  # i left of j
+                np.ceil((w[j] + np.maximum(r[j], lf[i])) / px - _EPS),  # j left of i
+                np.ceil((h[i] + np.maximum(t[i], b[j])) / py - _EPS),  # i below j
+                np.ceil((h[j] + np.maximum(t[j], b[i])) / py - _EPS),  # j below i
             ], axis=1)
             cur = np.stack([kx[j] - kx[i], kx[i] - kx[j], ky[j] - ky[i], ky[i] - ky[j]], axis=1)
             tgt = np.stack([tx[j] - tx[i], tx[i] - tx[j], ty[j] - ty[i], ty[i] - ty[j]], axis=1)
@@ -454,15 +502,14 @@ class _Problem:
             csep = np.zeros(0)
             on_x = np.zeros(0, bool)
         # --- macro-obstacle and macro-blockage pairs become bounds
-        for obs, is_blk in ((self.obst, False), (self.blk, True)):
-            if not len(obs):
-                continue
-            box = self.foot_boxes(x, y) if is_blk else hb
-            a, o = _pairs(box + grow, obs)
-            if not len(a):
-                continue
-            pl, pb, pr, pt = ((0.0, 0.0, 0.0, 0.0) if is_blk else (lf[a], b[a], r[a], t[a]))
-            oo = obs[o]
+        boxes, halos, is_blk = self.obstacles()
+        if len(boxes):
+            a, o = _pairs(hb + grow, _grow(boxes, halos))
+        else:
+            a = o = np.zeros(0, np.intp)
+        if len(a):
+            pl, pb, pr, pt = self.pads(a, halos[o], ~is_blk[o])
+            oo = boxes[o]
             # largest k left of / below the obstacle, smallest k right of / above it
             kl = np.floor((oo[:, 0] - w[a] - pr - ox) / px + _EPS)
             kl -= ((ox + kl * px) + w[a]) + pr > oo[:, 0]
@@ -560,14 +607,15 @@ def _check_obstacles(design: Design, fp: Floorplan) -> None:
     stay = np.flatnonzero((design.kind == MACRO) & (fp.status != MOVABLE))
     if len(stay) < 2:
         return
-    i, j = _pairs(fp.rects(halo=True)[stay])
+    i, j = _conflicts(fp.rects()[stay], fp.rects(halo=True)[stay])
     if len(i):
         a, b = stay[i[0]], stay[j[0]]
         st = ("movable", "pinned", "fixed")
         more = f" (and {len(i) - 1} more pair(s))" if len(i) > 1 else ""
         raise PlacementError(
             f"{st[fp.status[a]]} macro {design.names[a]!r} and {st[fp.status[b]]} macro "
-            f"{design.names[b]!r} overlap (halos included){more}; move or unpin one of them")
+            f"{design.names[b]!r} overlap (a footprint inside the other's halo box){more}; "
+            "move or unpin one of them")
 
 
 def _check_capacity(prob: _Problem) -> None:
@@ -580,26 +628,13 @@ def _check_capacity(prob: _Problem) -> None:
             f"does not fit inside the core {prob.core.tolist()} on the placement grid")
     c = prob.core
     core_area = (c[2] - c[0]) * (c[3] - c[1])
-    blocked = np.concatenate([prob.blk, prob.obst]) if len(prob.obst) else prob.blk
+    blocked = np.concatenate([prob.blk, _grow(prob.obst, prob.obst_halo)])
     free = core_area - _union_area(blocked, c)
     need = float((prob.w * prob.h).sum())
     if need > free * (1 + 1e-12):
         raise PlacementError(
-            f"movable macros need {need:.6g} µm² but only {free:.6g} µm² of the core is free "
-            "of blockages and other macros")
-    # halo boxes live in the core grown by the largest halo, within the die
-    g = float(max(prob.l.max(initial=0), prob.b.max(initial=0), prob.r.max(initial=0),
-                  prob.t.max(initial=0)))
-    d = prob.die
-    region = np.array([max(c[0] - g, d[0]), max(c[1] - g, d[1]), min(c[2] + g, d[2]),
-                       min(c[3] + g, d[3])])
-    reg_area = (region[2] - region[0]) * (region[3] - region[1])
-    free_h = reg_area - _union_area(prob.obst, region) if len(prob.obst) else reg_area
-    need_h = float(prob.area.sum())
-    if need_h > free_h * (1 + 1e-12):
-        raise PlacementError(
-            f"movable macros need {need_h:.6g} µm² with halos but only {free_h:.6g} µm² of the "
-            "core (and its halo margin) is free of other macros")
+            f"impossible by area: movable macros need {need:.6g} µm² but only {free:.6g} µm² "
+            "of the core is free of blockages and of other macros with their halos")
 
 
 def is_legal(design: Design, fp: Floorplan, macros=None) -> bool:
