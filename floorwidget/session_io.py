@@ -5,6 +5,7 @@ Session file layout (JSON, version 1)::
     {
       "format": "floorwidget-session", "version": 1, "saved": "2026-...Z",
       "design": {"name": .., "source": "/abs/path.json", "source_relative": "../x.json",
+                 "lef": ["/abs/tech.lef", ..], "lef_relative": ["../tech.lef", ..],
                  "num_blocks": n, "fingerprint": "sha256 hex"},
       "target_density": 0.8,
       "codes": {"orient": ["N", "S", ...], "status": ["movable", "pinned", "fixed"]},
@@ -117,15 +118,19 @@ def _step_doc(step) -> dict:
             "old_info": _info_doc(step.old_info), "new_info": _info_doc(step.new_info)}
 
 
+def _relative(src: str | None, path: Path | None) -> str | None:
+    if src is None or path is None:
+        return None
+    try:
+        return os.path.relpath(src, os.path.abspath(path.parent if str(path.parent) else "."))
+    except ValueError:  # pragma: no cover - different drives
+        return None
+
+
 def session_document(session: Session, path: Path | None = None) -> dict:
     d = session.design
     src = session._source
-    rel = None
-    if src is not None and path is not None:
-        try:
-            rel = os.path.relpath(src, os.path.abspath(path.parent if str(path.parent) else "."))
-        except ValueError:  # pragma: no cover - different drives
-            rel = None
+    rel = _relative(src, path)
 
     def fp_full(fp: Floorplan) -> dict:
         doc = _fp_doc(fp)
@@ -138,6 +143,8 @@ def session_document(session: Session, path: Path | None = None) -> dict:
         "saved": _now(),
         "note": "figures are early-floorplanning estimates, not sign-off results",
         "design": {"name": d.name, "source": src, "source_relative": rel,
+                   "lef": list(session._lef),
+                   "lef_relative": [_relative(p, path) for p in session._lef],
                    "num_blocks": d.num_blocks, "fingerprint": design_fingerprint(d)},
         "target_density": session.target_density,
         "codes": {"orient": list(ORIENTATIONS), "status": list(STATUS_NAMES)},
@@ -307,6 +314,23 @@ def _check_log(doc: _Doc, design: Design, entries, where: str) -> list:
     return out
 
 
+def _lef_list(doc: _Doc, p: Path, ref: dict) -> list[Path]:
+    """The LEF libraries of the session's design: each absolute path, else its relative one."""
+    lef = doc.lst(ref.get("lef", []), "design.lef")
+    rel = ref.get("lef_relative")
+    rel = doc.lst(rel, "design.lef_relative") if rel is not None else [None] * len(lef)
+    if len(rel) != len(lef):
+        doc.fail("design.lef_relative", "must list as many files as design.lef")
+    out = []
+    for k, (a, r) in enumerate(zip(lef, rel)):
+        a = Path(doc.text(a, f"design.lef[{k}]"))
+        if not a.is_file() and r is not None:
+            b = p.parent / doc.text(r, f"design.lef_relative[{k}]")
+            a = b if b.is_file() else a
+        out.append(a)
+    return out
+
+
 def _find_design(doc: _Doc, p: Path, ref: dict) -> Design:
     from .formats import load  # noqa: PLC0415
     src = ref.get("source")
@@ -316,9 +340,10 @@ def _find_design(doc: _Doc, p: Path, ref: dict) -> Design:
         cands.append(Path(src))
     if isinstance(rel, str):
         cands.append(p.parent / rel)
+    lef = _lef_list(doc, p, ref)
     for c in cands:
         if c.is_file():
-            return load(c)
+            return load(c, lef=lef or None)
     if not cands:
         doc.fail("design.source", "the session names no design file; pass design= to load()")
     doc.fail("design.source", f"design file {src or rel} not found; pass design= to load()")
@@ -452,7 +477,8 @@ def script_text(session: Session) -> str:
         f"# Generated {_now()}; figures are early-floorplanning estimates, not sign-off.",
         "import floorwidget as fw",
         "",
-        f"design = fw.load({session._source!r})",
+        f"design = fw.load({session._source!r}"
+        + (f", lef={session._lef!r})" if session._lef else ")"),
         f"assert design.num_blocks == {d.num_blocks}, 'the design file has changed'",
     ]
     args = ["design"]

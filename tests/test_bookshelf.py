@@ -193,7 +193,6 @@ BAD = {
     "truncated node line": ("nodes", "m1  6 4", "m1  6", 9, "expected"),
     "unknown node in nets": ("nets", "  b I : -1 0", "  zz I : -1 0", 7, "unknown node 'zz'"),
     "unknown node in pl": ("pl", "b   6  2 : N", "q   6  2 : N", 4, "unknown node 'q'"),
-    "unknown name in wts": ("wts", "n3 2", "n9 2", 2, "unknown net or node"),
     "negative size": ("nodes", "b   4 2", "b   -4 2", 7, "negative"),
     "NaN size": ("nodes", "a   2 2", "a   nan 2", 6, "not a finite number"),
     "inf position": ("pl", "c  10  0 : FS", "c  inf  0 : FS", 5, "not a finite number"),
@@ -215,6 +214,8 @@ BAD = {
     "unknown row field": ("scl", "Sitesymmetry : Y", "Colour : Y", 10, "unknown row field"),
     "missing file": ("aux", "tiny.scl", "tiny_rows.scl", 1, "tiny_rows.scl"),
     "no nets file": ("aux", " tiny.nets", "", 1, "no .nets file"),
+    # a .pl cut short must not leave a fixed terminal at (0, 0): the error is at its end
+    "pl cut short": ("pl", "<cut 1>", "", None, "does not place 1 fixed node(s)"),
 }
 
 
@@ -381,3 +382,96 @@ def test_read_pl_keeps_unlisted_blocks_and_fixes_flagged_ones(tiny, tmp_path):
     with pytest.raises(DesignError) as info:
         read_pl(d, pl)
     assert info.value.line == 3 and "zz" in str(info.value)
+
+
+# ---------------------------------------------------------------------------------------------
+# hardening: valid input that was refused, invalid input that was accepted
+
+
+@pytest.mark.filterwarnings("ignore:.*weight line")
+def test_unnamed_net_never_takes_a_given_name(tiny):
+    # the second net is unnamed (numbered net1), the third is named net1 in the file
+    nets = tiny.with_suffix(".nets")
+    _edit(nets, "NetDegree : 3 n2", "NetDegree : 3")
+    _edit(nets, "NetDegree : 3 n3", "NetDegree : 3 net1")
+    d = read_aux(tiny)
+    assert len(set(d.net_names)) == d.num_nets == 4
+    assert d.net_names[2] == "net1" and d.net_names[1] != "net1"
+
+
+def test_byte_order_mark_is_accepted(tiny):
+    for s in (".nodes", ".pl"):
+        p = tiny.with_suffix(s)
+        p.write_bytes(b"\xef\xbb\xbf" + p.read_bytes())
+    assert read_aux(tiny).initial.identical(read_aux(DATA / "tiny.aux").initial)
+
+
+def test_weights_naming_nothing_are_skipped_with_a_warning(tiny):
+    _edit(tiny.with_suffix(".wts"), "n3 2", "n3 2\nn9 5")
+    with pytest.warns(fw.formats.bookshelf.BookshelfWarning, match=r"tiny\.wts:\d+: .*'n9'"):
+        d = read_aux(tiny)
+    assert d.net_weight.tolist() == [1, 1, 2, 1]
+
+
+def test_pl_keeps_terminal_and_terminal_ni_apart(tmp_path):
+    # Bookshelf: terminal = fixed, may not be overlapped; terminal_NI = may be overlapped
+    d = read_aux(DATA / "tiny.aux")
+    write_pl(d, d.initial, tmp_path / "o.pl")
+    lines = {ln.split()[0]: ln for ln in (tmp_path / "o.pl").read_text().splitlines()
+             if ln and ln[0] in "abcmp"}
+    assert lines["p2"].endswith("/FIXED") and lines["p1"].endswith("/FIXED_NI")
+    write_aux(d, d.initial, tmp_path / "set.aux")
+    nodes = (tmp_path / "set.nodes").read_text()
+    assert "p2 0.0 0.0 terminal\n" in nodes and "p1 0.0 0.0 terminal_NI\n" in nodes
+    back = read_aux(tmp_path / "set.aux")
+    assert back.terminal_ni.tolist() == d.terminal_ni.tolist()
+
+
+def test_compressed_set_reads_like_the_plain_one(tiny):
+    import bz2
+    import gzip
+
+    for s, opener in ((".nodes", gzip.open), (".nets", bz2.open)):
+        p = tiny.with_suffix(s)
+        with opener(str(p) + (".gz" if opener is gzip.open else ".bz2"), "wb") as f:
+            f.write(p.read_bytes())
+        p.unlink()
+    aux = tiny.read_text().replace("tiny.nodes", "tiny.nodes.gz").replace("tiny.nets",
+                                                                          "tiny.nets.bz2")
+    tiny.write_text(aux)
+    with gzip.open(str(tiny) + ".gz", "wt") as f:
+        f.write(aux)
+    ref = read_aux(DATA / "tiny.aux")
+    for path in (tiny, str(tiny) + ".gz"):
+        d = fw.load(path)
+        assert d.names == ref.names and d.net_start.tolist() == ref.net_start.tolist()
+        assert d.initial.identical(ref.initial)
+
+
+def test_failed_set_write_leaves_the_old_set(tmp_path, monkeypatch):
+    d = read_aux(DATA / "tiny.aux")
+    write_aux(d, d.initial, tmp_path / "s.aux")
+    before = {p.name: p.read_bytes() for p in tmp_path.iterdir()}
+    moved = d.initial.copy()
+    moved.x[:] += 1.0
+    import floorwidget.formats._io as io_mod
+    real, calls = io_mod.os.fsync, []
+
+    def fail_on_fourth(fd):  # "disk full" part-way through the set
+        calls.append(fd)
+        if len(calls) == 4:
+            raise OSError(28, "No space left on device")
+        return real(fd)
+
+    monkeypatch.setattr(io_mod.os, "fsync", fail_on_fourth)
+    with pytest.raises(DesignError, match=r"s\.\w+: cannot write: No space left"):
+        write_aux(d, moved, tmp_path / "s.aux")
+    monkeypatch.undo()
+    assert {p.name: p.read_bytes() for p in tmp_path.iterdir()} == before  # no temporaries
+    assert read_aux(tmp_path / "s.aux").initial.identical(d.initial)
+
+
+def test_unwritable_folder_is_named_as_the_output(tmp_path):
+    d = read_aux(DATA / "tiny.aux")
+    with pytest.raises(DesignError, match=r"nowhere/s\.aux: cannot write: folder"):
+        write_aux(d, d.initial, tmp_path / "nowhere" / "s.aux")

@@ -26,7 +26,14 @@ How Bookshelf nodes become floorwidget blocks (our choices, documented here and 
 * Pins of ``.nets`` are offsets from the node centre in the N orientation, as in floorwidget; a
   pin line without ``: dx dy`` sits at the centre.  Pin directions are not kept.
 * ``.wts`` lines naming a net set its weight; lines naming a node are ignored (node weights have
-  no use here); other names are an error.
+  no use here); lines naming neither are skipped with a :class:`BookshelfWarning` (weights are
+  advice, not structure).
+* Every ``terminal`` and ``terminal_NI`` node must be placed by the ``.pl`` (a fixed object
+  left out is an error, naming the first one); a movable node left out starts at (0, 0).
+* ``terminal_NI`` nodes are remembered (``design.terminal_ni``) so that writing the design
+  back gives ``terminal_NI`` and ``/FIXED_NI`` exactly for them and ``terminal`` and ``/FIXED``
+  for every other fixed node.  Designs from other formats write their I/O terminals as
+  ``terminal_NI`` (pins may be overlapped).
 * ``.scl`` ``Siteorient`` is kept when it names an orientation (``N``, ``FS``, ...); numeric codes
   read as N.  Vertical rows are refused.
 
@@ -48,6 +55,7 @@ The format as used by the ISPD placement contests: Nam, Alpert, Villarrubia, Win
 from __future__ import annotations
 
 import re
+import warnings
 from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
 
@@ -68,9 +76,14 @@ from ..design import (
 )
 from ._io import atomic_write, format_suffix, read_text, write_files
 
-__all__ = ["read_aux", "read_pl", "write_aux", "write_pl"]
+__all__ = ["BookshelfWarning", "read_aux", "read_pl", "write_aux", "write_pl"]
 
 _COMMENT = re.compile(rb"#[^\n]*")
+
+
+class BookshelfWarning(UserWarning):
+    """Something in a Bookshelf set was skipped (a weight naming nothing in the design)."""
+
 _MASKS = np.array([(1 << (8 * k)) - 1 for k in range(9)], dtype=np.uint64)
 _MAX_NUMBER_LEN = 64
 _CLASS = np.full(256, 13, np.int64)  # byte -> digit value, 10 '.', 11 '-', 12 '+', 13 other
@@ -585,15 +598,25 @@ def _read_nets(path, node_table: _NameTable, t: _Tokens | None = None):
         k = pin_lines[unknown[0]]
         t.fail(t.lline[k], f"unknown node {t.text(t.ls[k])!r}")
     net_start = np.concatenate([[0], np.cumsum(have)]).astype(np.int64)
-    # net names: given ones must be unique; missing ones are numbered
+    # net names: given ones must be unique; missing ones are numbered, around the given ones
     named = np.flatnonzero(lcd == 4)
     net_names = [f"net{j}" for j in range(m)] if len(named) < m else []
     if len(named):
         table = _NameTable(t, fd[named] + 3, "net")
         given = t.names(fd[named] + 3)
         if net_names:
+            taken = set(given)
             for j, nm in zip(named.tolist(), given):
                 net_names[j] = nm
+            is_named = np.zeros(m, bool)
+            is_named[named] = True
+            for j in np.flatnonzero(~is_named).tolist():
+                nm, k = net_names[j], 0
+                while nm in taken:  # an unnamed net never takes a name the file gives
+                    k += 1
+                    nm = f"net{j}_{k}"
+                net_names[j] = nm
+                taken.add(nm)
         else:
             net_names = given
     else:
@@ -665,9 +688,12 @@ def _read_wts(path, net_table: _NameTable | None, node_table: _NameTable, m: int
     if not is_net.all():
         other = np.flatnonzero(~is_net)
         node = node_table.lookup(t, first[other])
-        if (node < 0).any():
-            k = other[np.flatnonzero(node < 0)[0]]
-            t.fail(t.lline[lines[k]], f"unknown net or node {t.text(first[k])!r}")
+        if (node < 0).any():  # weights are advice: lines naming nothing we know are skipped
+            bad = other[node < 0]
+            k = int(bad[0])
+            warnings.warn(f"{t.path}:{int(t.lline[lines[k]])}: ignored {len(bad)} weight "
+                          f"line(s) naming no net or node of the design, e.g. "
+                          f"{t.text(first[k])!r}", BookshelfWarning, stacklevel=3)
     weight[named[net[is_net]]] = w[is_net]
     return weight
 
@@ -840,7 +866,13 @@ def read_aux(path) -> Design:
             files[".nets"][0], node_table, fut_nets.result())
         tpl = fut_pl.result() if fut_pl is not None else None
     if ".pl" in files:
-        x, y, orient, pl_fixed, _ = _read_pl(files[".pl"][0], node_table, n, tpl)
+        x, y, orient, pl_fixed, listed = _read_pl(files[".pl"][0], node_table, n, tpl)
+        missing = np.flatnonzero((term > 0) & ~listed)
+        if len(missing):  # a cut-short .pl must not put fixed objects at (0, 0)
+            raise DesignError(f"does not place {len(missing)} fixed node(s) (terminal or "
+                              f"terminal_NI), e.g. {names[int(missing[0])]!r}; the file may be "
+                              f"cut short", file=str(files[".pl"][0]), line=tpl.num_lines,
+                              where=f"node {names[int(missing[0])]!r}")
     else:
         x, y = np.zeros(n), np.zeros(n)
         orient, pl_fixed = np.zeros(n, np.int8), np.zeros(n, bool)
@@ -885,10 +917,12 @@ def read_aux(path) -> Design:
     if not (die[2] > die[0] and die[3] > die[1]):
         raise DesignError(f"the rows and fixed nodes span no area ({die}); cannot tell the die",
                           file=str(aux))
-    return Design(aux.stem, die, names, kind, w, h, net_start, pin_block, pin_dx, pin_dy,
-                  orient_allowed=allowed, net_names=net_names, net_weight=weight,
-                  rows=rows if rows and rows["x"] else None, x=x, y=y, orient=orient,
-                  status=status, source=str(aux))
+    design = Design(aux.stem, die, names, kind, w, h, net_start, pin_block, pin_dx, pin_dy,
+                    orient_allowed=allowed, net_names=net_names, net_weight=weight,
+                    rows=rows if rows and rows["x"] else None, x=x, y=y, orient=orient,
+                    status=status, source=str(aux))
+    design.terminal_ni = term == 2
+    return design
 
 
 def read_pl(design: Design, path) -> Floorplan:
@@ -927,10 +961,18 @@ def _r(values) -> list[str]:
     return list(map(repr, np.asarray(values, dtype=np.float64).tolist()))
 
 
+def _ni(design: Design) -> np.ndarray:
+    """Mask of the blocks written as ``terminal_NI`` / ``/FIXED_NI`` (see the module notes)."""
+    ni = getattr(design, "terminal_ni", None)
+    if ni is not None and len(ni) == design.num_blocks:
+        return np.asarray(ni, bool)
+    return design.kind == TERMINAL
+
+
 def _pl_text(design: Design, fp: Floorplan) -> str:
     d = design
     fixed = fp.status != MOVABLE
-    flag = np.where(fixed, np.where(d.kind == TERMINAL, " /FIXED_NI", " /FIXED"), "").tolist()
+    flag = np.where(fixed, np.where(_ni(d), " /FIXED_NI", " /FIXED"), "").tolist()
     orn = np.array(ORIENTATIONS, dtype=object)[fp.orient].tolist()
     body = "".join(f"{nm} {x} {y} : {o}{f}\n"
                    for nm, x, y, o, f in zip(d.names, _r(fp.x), _r(fp.y), orn, flag))
@@ -982,7 +1024,9 @@ def write_aux(design: Design, fp: Floorplan | None, target) -> Path:
     _check_names(d.net_names, "net", target)
 
     fixed_macro = (d.kind == MACRO) & (fp.status == FIXED)
-    tflag = np.where(d.kind == TERMINAL, " terminal_NI", np.where(fixed_macro, " terminal", ""))
+    ni = _ni(d)
+    tflag = np.where(ni, " terminal_NI",
+                     np.where(fixed_macro | (d.kind == TERMINAL), " terminal", ""))
     nterm = int((tflag != "").sum())
     nodes = [f"UCLA nodes 1.0\n# written by floorwidget\n\nNumNodes : {d.num_blocks}\n"
              f"NumTerminals : {nterm}\n"]

@@ -104,9 +104,11 @@ import numpy as np
 from ..design import (
     CELL,
     CLUSTER,
+    COORD_LIMIT,
     FIXED,
     KIND_NAMES,
     MACRO,
+    MAX_SITES,
     MOVABLE,
     ORIENT_CODE,
     ORIENTATIONS,
@@ -136,6 +138,8 @@ __all__ = [
 STATUS_PROPERTY = "FW_STATUS"
 PIN_LAYER = "metal1"
 _TERMINAL_PREFIX = "PIN/"
+MAX_DBU = 10**6        # database units per µm (real files use 100 to 20,000)
+MAX_ROWS = 10**6       # rows after expanding ROW ... DO n BY m
 
 
 class LefDefWarning(UserWarning):
@@ -358,9 +362,9 @@ def _read_one_lef(path: str, lib: LefLibrary) -> None:
                 if t == "DATABASE":
                     tk.expect("MICRONS")
                     v = tk.num("DATABASE MICRONS")
-                    if v <= 0 or v != int(v):
-                        tk.fail(f"DATABASE MICRONS must be a positive whole number, got {v:g}",
-                                tk.i - 1)
+                    if not 0 < v <= MAX_DBU or v != int(v):
+                        tk.fail(f"DATABASE MICRONS must be a whole number in 1..{MAX_DBU}, "
+                                f"got {v:g}", tk.i - 1)
                     lib.dbu = int(v)
                     tk.skip_statement()
                 else:
@@ -507,9 +511,12 @@ def _read_pin(tk: _Tokens, start: int):
                         if v.upper() in ("DO", "STEP"):
                             break
                         try:
-                            nums.append(float(v))
+                            f = float(v)
                         except ValueError:
+                            f = np.nan
+                        if not np.isfinite(f):
                             tk.fail(f"PIN {pname}: bad number {v!r} in {S}", i0)
+                        nums.append(f)
                     need = 4 if S == "RECT" else 6
                     if len(nums) < need or len(nums) % 2:
                         tk.fail(f"PIN {pname}: {S} needs {need} coordinates or more", i0)
@@ -591,7 +598,7 @@ def _warn_skipped(where: str, counts: Counter) -> None:
 # DEF: small helpers
 
 _TOK = re.compile(r'\s*("[^"]*"|[();]|[^\s();"]+)')
-_COMMENT = re.compile(r"(?:^|(?<=\s))#[^\n]*", re.M)
+_COMMENT = re.compile(r"(?:^|(?<=[\s;]))#[^\n]*", re.M)
 _DEF_SECTIONS_SKIP = {"VIAS", "STYLES", "NONDEFAULTRULES", "REGIONS", "PINPROPERTIES", "SLOTS",
                       "FILLS", "SPECIALNETS", "SCANCHAINS", "GROUPS"}
 _DEF_QUIET = {"VERSION", "DIVIDERCHAR", "BUSBITCHARS", "NAMESCASESENSITIVE", "TECHNOLOGY",
@@ -724,6 +731,7 @@ class _Def:
         self.dbu: float | None = None
         self.die_pts: list[tuple[float, float]] | None = None
         self.rows: list[tuple] = []
+        self.nrows = 0
         self.comps = None
         self.pins = None
         self.nets = None
@@ -789,7 +797,7 @@ class _Def:
         e = i + 4 + len(kw)
         if i >= 0 and (i == 0 or text[i - 1].isspace()) and (e == len(text) or text[e].isspace()):
             return i, e
-        m = re.compile(r"\bEND\s+" + kw + r"\b").search(self.text, self.pos)
+        m = re.compile(r"\bEND\s+" + kw + r"\b", re.I).search(self.text, self.pos)
         if m is None:
             self.fail(f"{kw} section is not terminated (no END {kw})", start)
         return m.start(), m.end()
@@ -810,8 +818,8 @@ class _Def:
                     "NETS": self.net_section, "BLOCKAGES": self.blockage_section}
         while True:
             t, p = self.tok()
-            if t is None:
-                return
+            if t is None:  # a file cut short must not read as a smaller design
+                self.fail("file ends without END DESIGN (cut short?)", len(self.text))
             T = t.upper()
             if T == "END":
                 t2, _ = self.tok()
@@ -830,9 +838,9 @@ class _Def:
                         or toks[1][0].upper() != "MICRONS":
                     self.fail("expected UNITS DISTANCE MICRONS n ;", p)
                 v = self.number(*toks[2], "UNITS DISTANCE MICRONS")
-                if v <= 0 or v != int(v):
-                    self.fail(f"UNITS DISTANCE MICRONS must be a positive whole number, got "
-                              f"{toks[2][0]!r}", toks[2][1])
+                if not 0 < v <= MAX_DBU or v != int(v):
+                    self.fail(f"UNITS DISTANCE MICRONS must be a whole number in 1..{MAX_DBU}, "
+                              f"got {toks[2][0]!r}", toks[2][1])
                 self.dbu = v
             elif T == "DIEAREA":
                 pts = self.points(self.statement(p), "DIEAREA")
@@ -885,6 +893,9 @@ class _Def:
                 ny = self.number(*toks[k + 3], "ROW BY")
                 if nx < 1 or ny < 1 or nx != int(nx) or ny != int(ny):
                     self.fail("ROW DO nx BY ny needs positive whole numbers", toks[k][1])
+                if nx > MAX_SITES or ny > MAX_ROWS:
+                    self.fail(f"ROW DO {toks[k + 1][0]} BY {toks[k + 3][0]}: at most {MAX_SITES} "
+                              f"sites by {MAX_ROWS} rows", toks[k][1])
                 k += 4
             elif w == "STEP" and k + 2 < len(toks):
                 sx = self.number(*toks[k + 1], "ROW STEP")
@@ -892,6 +903,9 @@ class _Def:
                 k += 3
             else:
                 break  # + PROPERTY and the like
+        self.nrows += int(ny)
+        if self.nrows > MAX_ROWS:
+            self.fail(f"more than {MAX_ROWS} rows", p)
         self.rows.append((site, sp, x, y, ORIENT_CODE[o], int(nx), int(ny), sx, sy))
 
     # --- COMPONENTS --------------------------------------------------------------------------
@@ -1345,14 +1359,14 @@ class _Def:
             sw, sh = lib.sites[site]  # type: ignore[union-attr]
             step_x = sx / dbu if sx else sw
             step_y = sy / dbu if sy else sh
-            for j in range(ny):
-                rows["x"].append(x / dbu)
-                rows["y"].append(y / dbu + j * step_y)
-                rows["height"].append(sh)
-                rows["site_width"].append(step_x if nx > 1 else sw)
-                rows["num_sites"].append(nx)
-                rows["orient"].append(o)
+            rows["x"].append(np.full(ny, x / dbu))
+            rows["y"].append(y / dbu + np.arange(ny) * step_y)
+            rows["height"].append(np.full(ny, sh))
+            rows["site_width"].append(np.full(ny, step_x if nx > 1 else sw))
+            rows["num_sites"].append(np.full(ny, nx, np.int64))
+            rows["orient"].append(np.full(ny, o, np.int8))
         if self.rows:
+            rows = {k: np.concatenate(v) for k, v in rows.items()}
             rows["site_name"] = self.rows[0][0]
             rx = np.array(rows["x"])
             xhi = rx + np.array(rows["site_width"]) * np.array(rows["num_sites"])
@@ -1908,6 +1922,14 @@ def _def_text(design: Design, fp: Floorplan, path) -> str:
 
     def I(v):  # noqa: E743 - short for the many integer conversions below
         return np.round(np.asarray(v, dtype=np.float64) * dbu).astype(np.int64)
+
+    with np.errstate(invalid="ignore"):
+        far = ~((np.abs(fp.x) <= COORD_LIMIT) & (np.abs(fp.y) <= COORD_LIMIT))
+    if far.any():  # beyond it the database-unit integers would wrap
+        i = int(np.flatnonzero(far)[0])
+        raise DesignError(f"block {names[i]!r} at ({fp.x[i]:g}, {fp.y[i]:g}) µm is not finite "
+                          f"or beyond ±{COORD_LIMIT:g} µm: cannot be written to DEF",
+                          file=str(path), where=f"block {names[i]!r}")
 
     out = ["VERSION 5.8 ;", 'DIVIDERCHAR "/" ;', 'BUSBITCHARS "[]" ;', f"DESIGN {d.name} ;",
            f"UNITS DISTANCE MICRONS {dbu} ;", "", "PROPERTYDEFINITIONS",
