@@ -167,9 +167,12 @@ def read_json_file(path):
 # writing
 
 
-def _pid_alive(pid: int) -> bool:
+_ACTIVE: set[str] = set()  # tags of the writes in progress in this process
+
+
+def _owner_alive(pid: int, tag: str) -> bool:
     if pid == os.getpid():
-        return True
+        return tag in _ACTIVE
     try:
         os.kill(pid, 0)
     except ProcessLookupError:
@@ -194,7 +197,8 @@ def recover(path) -> None:
         return
     if not names:
         return
-    dead = [(n, m) for n in names if (m := _TEMP.match(n)) and not _pid_alive(int(m["pid"]))]
+    dead = [(n, m) for n in names
+            if (m := _TEMP.match(n)) and not _owner_alive(int(m["pid"]), m["tag"])]
     for n, m in dead:  # records first: they name temporaries that must survive until renamed
         if m["ext"] == "commit":
             with contextlib.suppress(OSError, ValueError, TypeError):
@@ -284,6 +288,7 @@ def write_files(items: Sequence[tuple[Path | str, Callable]], mode: str = "w",
     tag = secrets.token_hex(4)
     temps: list[Path] = []
     record: Path | None = None
+    _ACTIVE.add(tag)
     try:
         for p, (_, write) in zip(paths, items):
             tmp = _temp_name(p, tag)
@@ -303,7 +308,7 @@ def write_files(items: Sequence[tuple[Path | str, Callable]], mode: str = "w",
                 raise _write_error(p, e) from None
         if len(paths) > 1:
             record = _temp_name(paths[0], tag, "commit")
-            rec_tmp = _temp_name(paths[0], tag + "0")
+            rec_tmp = _temp_name(paths[0].with_name(paths[0].name + ".commit"), tag)
             temps.append(rec_tmp)
             pairs = [[t.name, p.name] for t, p in zip(temps, paths)]
             try:
@@ -319,10 +324,8 @@ def write_files(items: Sequence[tuple[Path | str, Callable]], mode: str = "w",
         for t, p in zip(list(temps), paths):
             try:
                 os.replace(t, p)
-            except OSError as e:
-                if record is None:
-                    raise _write_error(p, e) from None
-                raise  # pragma: no cover - the record lets recover() finish the set
+            except OSError as e:  # after the commit record, the next recover() finishes it
+                raise _write_error(p, e) from None
             temps.remove(t)
         if record is not None:
             os.unlink(record)
@@ -335,6 +338,8 @@ def write_files(items: Sequence[tuple[Path | str, Callable]], mode: str = "w",
                 with contextlib.suppress(OSError):
                     os.unlink(t)
         raise
+    finally:
+        _ACTIVE.discard(tag)
 
 
 @contextlib.contextmanager
@@ -348,24 +353,29 @@ def atomic_write(path, mode: str = "w", encoding: str | None = "utf-8"):
     path = Path(path)
     _check_dir(path)
     recover(path)
-    tmp = _temp_name(path, secrets.token_hex(4))
+    tag = secrets.token_hex(4)
+    tmp = _temp_name(path, tag)
+    _ACTIVE.add(tag)
     try:
-        fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666)
-    except OSError as e:
-        raise _write_error(path, e) from None
-    try:
-        with os.fdopen(fd, "wb") as raw:
-            out = _Output(raw, path, mode, encoding)
-            yield out.file
-            out.finish()
-            raw.flush()
-            os.fsync(raw.fileno())
-        os.replace(tmp, path)
-    except OSError as e:
-        with contextlib.suppress(OSError):
-            os.unlink(tmp)
-        raise _write_error(path, e) from None
-    except BaseException:
-        with contextlib.suppress(OSError):
-            os.unlink(tmp)
-        raise
+        try:
+            fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o666)
+        except OSError as e:
+            raise _write_error(path, e) from None
+        try:
+            with os.fdopen(fd, "wb") as raw:
+                out = _Output(raw, path, mode, encoding)
+                yield out.file
+                out.finish()
+                raw.flush()
+                os.fsync(raw.fileno())
+            os.replace(tmp, path)
+        except OSError as e:
+            with contextlib.suppress(OSError):
+                os.unlink(tmp)
+            raise _write_error(path, e) from None
+        except BaseException:
+            with contextlib.suppress(OSError):
+                os.unlink(tmp)
+            raise
+    finally:
+        _ACTIVE.discard(tag)
