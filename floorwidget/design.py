@@ -370,7 +370,8 @@ class Design:
 
         Each names the object at fault (a block, net, row, blockage, the die or the grid).
         """
-        return [msg for _, msg in self._problems()]
+        with np.errstate(over="ignore", invalid="ignore"):
+            return [msg for _, msg in self._problems()]
 
     def _problems(self) -> list[tuple[str, str]]:
         """``(object, message)`` of every problem; the message starts with the object."""
@@ -488,7 +489,8 @@ class Design:
         The error's ``file`` is the design's source and ``where`` the object of the first
         problem.
         """
-        probs = self._problems()
+        with np.errstate(over="ignore", invalid="ignore"):  # huge values are reported, not warned
+            probs = self._problems()
         if probs:
             head = f"design {self.name!r}"
             msgs = [msg for _, msg in probs]

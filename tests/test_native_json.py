@@ -84,6 +84,13 @@ def _doc(demo_design):
     (("rows", 4, "num_sites"), -3, "rows[4].num_sites"),
     (("die",), [0, 0, 1], "die: expected a list of 4 numbers"),
     (("version",), 99, "version"),
+    # hardening: counts and sizes beyond any real design are refused before numpy sees them
+    (("rows", 0, "num_sites"), 10**30, "rows[0].num_sites: expected a whole number"),
+    (("rows", 0, "num_sites"), 10**20, "rows[0].num_sites: expected a whole number"),
+    (("dbu",), 10**40, "dbu: expected a whole number"),
+    (("blocks", 3, "width"), 10**400, "blocks[3].width: not a finite number"),
+    (("die",), [-1e308, -1e308, 1e308, 1e308], "die [-1e+308"),
+    (("blocks", 1, "x"), 1e300, "position (1e+300"),
 ])
 def test_errors_name_the_json_path(demo_design, tmp_path, path, value, expect):
     doc = _doc(demo_design)
@@ -96,6 +103,7 @@ def test_errors_name_the_json_path(demo_design, tmp_path, path, value, expect):
     with pytest.raises(DesignError) as e:
         fw.load(p)
     assert str(p) in str(e.value) and expect in str(e.value)
+    assert e.value.line is not None or e.value.where  # a line or an object, always
 
 
 def test_syntax_error_names_the_line(tmp_path):
@@ -130,3 +138,50 @@ def test_unknown_suffix_is_a_design_error(demo_design, tmp_path):
         fw.load(tmp_path / "x.txt")
     with pytest.raises(DesignError, match="file not found"):
         fw.load(tmp_path / "missing.json")
+
+
+@pytest.mark.parametrize("text, line", [
+    ("[" * 1000 + "]" * 1000, 1),                       # RecursionError before
+    ('{"format": "floorwidget-design",\n "x": ' + "[" * 300 + "]" * 300 + "}", 2),
+])
+def test_deep_nesting_is_refused_with_its_line(tmp_path, text, line):
+    p = tmp_path / "deep.json"
+    p.write_text(text)
+    with pytest.raises(DesignError, match="nested more than") as e:
+        fw.load(p)
+    assert e.value.file == str(p) and e.value.line == line
+
+
+def test_integer_of_5000_digits_is_a_field_error(demo_design, tmp_path):
+    # Python refuses int() of more than 4300 digits (ValueError before)
+    text = json.dumps(_doc(demo_design)).replace('"width": 1', '"width": 1' + "0" * 5000, 1)
+    p = tmp_path / "long.json"
+    p.write_text(text)
+    with pytest.raises(DesignError, match=r"blocks\[\d+\]\.width: not a finite number"):
+        fw.load(p)
+
+
+def test_byte_order_mark_is_accepted(demo_design, tmp_path):
+    p = tmp_path / "bom.json"
+    p.write_bytes(b"\xef\xbb\xbf" + json.dumps(_doc(demo_design)).encode())
+    assert fw.load(p).initial.identical(demo_design.initial)
+
+
+def test_macro_orientation_outside_its_allowed_set_is_refused(demo_design, tmp_path):
+    doc = _doc(demo_design)
+    k = next(i for i, b in enumerate(doc["blocks"]) if b["kind"] == "macro")
+    doc["blocks"][k]["orientations"] = ["N", "FS"]
+    doc["blocks"][k]["orient"] = "E"
+    p = tmp_path / "o.json"
+    p.write_text(json.dumps(doc))
+    with pytest.raises(DesignError, match="initial orientation E is not one of") as e:
+        fw.load(p)
+    assert e.value.where == f"block {doc['blocks'][k]['name']!r}"
+
+
+@pytest.mark.parametrize("suffix", [".gz", ".bz2"])
+def test_compressed_json_round_trip(demo_design, tmp_path, suffix):
+    p = tmp_path / f"d.json{suffix}"
+    fw.save(demo_design, demo_design.initial, p)
+    assert not p.read_bytes().startswith(b"{")
+    assert fw.load(p).initial.identical(demo_design.initial)
