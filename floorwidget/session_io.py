@@ -380,8 +380,9 @@ def load_session(cls, path, design: Design | None = None) -> Session:
             codes.get("status", list(STATUS_NAMES)) != list(STATUS_NAMES):
         doc.fail("codes", "orientation or status codes differ from this release's")
     td = doc.get(root, "target_density", "(top)", 0.8)
-    if isinstance(td, bool) or not isinstance(td, (int, float)) or not math.isfinite(td):
-        doc.fail("target_density", f"expected a number, got {td!r}")
+    if isinstance(td, bool) or not isinstance(td, (int, float)) or not math.isfinite(td) \
+            or not 0 < td <= 1:
+        doc.fail("target_density", f"expected a number in (0, 1], got {td!r}")
     initial = doc.floorplan(design, doc.get(root, "initial", "(top)"), "initial")
     current = doc.floorplan(design, doc.get(root, "current", "(top)"), "current")
     alts = []

@@ -488,3 +488,80 @@ def test_large_arrays_packed_exactly(tmp_path, monkeypatch):
     p.write_text(json.dumps(doc))
     with pytest.raises(DesignError, match=r"current\.orient: damaged base64"):
         Session.load(p)
+
+
+# ---------------------------------------------------------------------------------------------
+# hardening: DEF designs read with LEF libraries, damaged numbers and densities
+
+
+def _def_with_libraries_elsewhere(tmp_path):
+    """kestrel.def in one folder, its two LEFs under other names in another (so the reader's
+    ``<stem>.lef`` rule cannot find them)."""
+    import shutil
+
+    data = Path(__file__).parent / "data" / "lefdef"
+    (tmp_path / "blk").mkdir()
+    (tmp_path / "lib").mkdir()
+    shutil.copy(data / "kestrel.def", tmp_path / "blk" / "top.def")
+    lefs = [tmp_path / "lib" / "t.lef", tmp_path / "lib" / "c.lef"]
+    shutil.copy(data / "kestrel_tech.lef", lefs[0])
+    shutil.copy(data / "kestrel_cells.lef", lefs[1])
+    return tmp_path / "blk" / "top.def", lefs
+
+
+def test_script_and_session_file_carry_the_lef_list(tmp_path):
+    dpath, lefs = _def_with_libraries_elsewhere(tmp_path)
+    d = fw.load(dpath, lef=lefs)
+    s = Session(d)
+    s.move("u_ram1", 260.0, 150.0)
+    s.pin("u_ram1")
+    code = s.script()
+    assert f"lef={[str(p) for p in lefs]!r}" in code
+    ns: dict = {}
+    exec(compile(code, "<replay>", "exec"), ns)  # the script loads the DEF with its LEFs
+    assert ns["session"].floorplan.identical(s.floorplan)
+    s.save(tmp_path / "blk" / "s.json")
+    back = Session.load(tmp_path / "blk" / "s.json")
+    assert back.floorplan.identical(s.floorplan)
+    assert back.design.lef_files == [str(p) for p in lefs]
+    # moved as a whole: the relative paths still find the libraries
+    import shutil
+
+    shutil.move(str(tmp_path / "blk"), str(tmp_path / "new" / "blk"))
+    shutil.move(str(tmp_path / "lib"), str(tmp_path / "new" / "lib"))
+    again = Session.load(tmp_path / "new" / "blk" / "s.json")
+    assert again.floorplan.identical(s.floorplan)
+
+
+@pytest.mark.parametrize("edit, where", [
+    (lambda doc: doc["current"]["status"].__setitem__(0, 2**63), r"current\.status\[0\]"),
+    (lambda doc: doc["initial"]["orient"].__setitem__(2, -2**70), r"initial\.orient\[2\]"),
+    (lambda doc: doc.__setitem__("target_density", -3), "target_density"),
+    (lambda doc: doc.__setitem__("target_density", 0), "target_density"),
+    (lambda doc: doc.__setitem__("target_density", 1e308), "target_density"),
+])
+def test_bad_numbers_in_session_files_are_refused(tmp_path, edit, where):
+    s = _busy_session(False)
+    good = tmp_path / "good.json"
+    s.save(good)
+    doc = json.loads(good.read_text())
+    edit(doc)
+    bad = tmp_path / "bad.json"
+    bad.write_text(json.dumps(doc))
+    with pytest.raises(DesignError, match=where) as e:
+        Session.load(bad)
+    assert e.value.file == str(bad) and e.value.where
+
+
+def test_deeply_nested_session_file_is_refused(tmp_path):
+    p = tmp_path / "deep.json"
+    p.write_text('{"format": "floorwidget-session",\n"log": ' + "[" * 2000 + "]" * 2000 + "}")
+    with pytest.raises(DesignError, match="nested") as e:
+        Session.load(p)
+    assert e.value.line == 2
+
+
+@pytest.mark.parametrize("td", [-3, 0, 1e308, float("nan"), 1.5])
+def test_session_refuses_a_bad_target_density(td):
+    with pytest.raises(DesignError, match="target_density"):
+        Session(_DESIGN, target_density=td)
