@@ -134,7 +134,8 @@ def _parser() -> argparse.ArgumentParser:
     return p
 
 
-def _print_report(rep: dict, as_json: bool, out=sys.stdout) -> None:
+def _print_report(rep: dict, as_json: bool, out=None) -> None:
+    out = sys.stdout if out is None else out
     if as_json:
         json.dump(_strict(dict(rep)), out, indent=2, allow_nan=False)
         out.write("\n")
