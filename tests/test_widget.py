@@ -373,3 +373,37 @@ def test_proxies_match_the_session(widget, demo_design):
     assert widget.floorplan is s.floorplan
     assert widget.report == s.report
     assert widget.floorplan.status[demo_design.block(name)] != FIXED
+
+
+# --- hardening: argument checks with messages of ours, nothing changed on refusal -------------
+
+
+@pytest.mark.parametrize("index", [-1, "len", 2.0, True, None])
+def test_drop_refuses_an_index_that_names_no_handle(widget, index):
+    before = widget.session.floorplan
+    k = len(widget.macro_idx) if index == "len" else index
+    with pytest.raises((IndexError, TypeError), match="drop: handle index"):
+        widget.drop(k, 100.0, 100.0)
+    assert widget.session.floorplan is before and widget.session.history == []
+
+
+@pytest.mark.parametrize("xy", [(float("nan"), 5.0), (5.0, float("inf"))])
+def test_refused_non_finite_drop_reports_nothing_moved(widget, xy):
+    before = widget.session.floorplan
+    out = widget.drop(0, *xy)
+    assert out["moved"] == [] and "not finite" in out["message"]
+    assert widget.session.floorplan.identical(before)
+
+
+def test_pin_and_select_take_indices_and_refuse_junk(widget, demo_design):
+    i = int(widget.macro_idx[2])
+    widget.pin(i)  # a block index, like select()
+    assert widget.session.floorplan.status[i] == PINNED
+    widget.unpin([demo_design.names[i]])
+    assert widget.session.floorplan.status[i] != PINNED
+    for bad, err in ((float("nan"), TypeError), (10**9, IndexError), (-1, IndexError),
+                     ([1, "no-such-block"], KeyError), (object(), TypeError)):
+        with pytest.raises(err, match="no-such-block|select|pin"):
+            widget.select(bad)
+        with pytest.raises(err, match="no-such-block|select|pin"):
+            widget.pin(bad)

@@ -30,6 +30,30 @@ CAUTION = ("Early-floorplanning estimates for comparing choices; sign-off belong
 _BUSY = "A placement run is still going; this request was refused (wait for it to finish)."
 
 
+def _block_names(design: Design, blocks, what: str) -> list[str]:
+    """Names of ``blocks`` (a name, a block index, or a list of them), checked with messages
+    of ours: an unknown name, an index out of range or anything else is refused before any
+    change."""
+    items = [blocks] if isinstance(blocks, (str, int, np.integer)) else blocks
+    try:
+        items = list(np.atleast_1d(np.asarray(items, dtype=object)))
+    except (TypeError, ValueError):
+        raise TypeError(f"{what}: expected a block name, a block index or a list of them, "
+                        f"got {blocks!r}") from None
+    n = design.num_blocks
+    out = []
+    for b in items:
+        if isinstance(b, str):
+            out.append(design.names[design.block(b)])  # KeyError naming it when unknown
+        elif isinstance(b, (int, np.integer)) and not isinstance(b, (bool, np.bool_)):
+            if not 0 <= int(b) < n:
+                raise IndexError(f"{what}: block index {int(b)} is not in 0..{n - 1}")
+            out.append(design.names[int(b)])
+        else:
+            raise TypeError(f"{what}: expected a block name or index, got {b!r}")
+    return out
+
+
 def _fmt(v: Any, unit: str = "") -> str:
     if v is None:
         return "–"
@@ -269,7 +293,7 @@ class FloorplanWidget(W.VBox):
     def select(self, blocks) -> None:
         """Select blocks (indices or names): highlight them, draw their flylines, show details."""
         d = self.design
-        idx = [d.block(b) if isinstance(b, str) else int(b) for b in np.atleast_1d(blocks)]
+        idx = [d.block(nm) for nm in _block_names(d, blocks, "select")]
         self.canvas.select(idx)
         self._refresh_details()
 
@@ -391,6 +415,21 @@ class FloorplanWidget(W.VBox):
         self._drag = None
         out = {"moved": [], "refined": False, "seconds": 0.0, "message": ""}
         d, s = self.design, self.session
+        nh = len(self.macro_idx)
+        if isinstance(index, (bool, np.bool_)) or not isinstance(index, (int, np.integer)) \
+                or not 0 <= int(index) < nh:  # -1 would silently take the last macro
+            raise IndexError(f"drop: handle index {index!r} is not in 0..{nh - 1} "
+                             f"(one handle per macro)")
+        try:
+            x, y = float(x), float(y)
+        except (TypeError, ValueError):
+            raise TypeError(f"drop: x and y must be numbers, got {x!r}, {y!r}") from None
+        if not (np.isfinite(x) and np.isfinite(y)):
+            msg = f"Drop refused: position ({x}, {y}) is not finite."
+            self.notify(msg, error=True)
+            self.canvas.update(s.floorplan)
+            out["message"] = msg
+            return out
         i = int(self.macro_idx[index])
         fp = s.floorplan
         cx, cy = fp.centres()
@@ -414,6 +453,7 @@ class FloorplanWidget(W.VBox):
         names = [d.names[j] for j in grp]
         label = f"drag {names[0]}" if len(names) == 1 else f"drag {len(names)} macros"
         msg = ""
+        moved = []
         # the dropped macros become the selection; the change event below draws it once
         self.canvas.selected = np.unique(grp)
         try:
@@ -430,12 +470,13 @@ class FloorplanWidget(W.VBox):
                         self.last_solve_s = time.perf_counter() - t1
                     except DesignError as e:  # PlacementError: keep the move, say why
                         msg = f"Refine skipped: {e}"
-        except (DesignError, KeyError) as e:
+            moved = names
+        except (DesignError, KeyError) as e:  # the batch was rolled back: nothing moved
             msg = str(e)
             self.canvas.update(s.floorplan)
             self._refresh_details()
         self.notify(msg, error=bool(msg))
-        out.update(moved=names, message=msg, seconds=time.perf_counter() - t0)
+        out.update(moved=moved, message=msg, seconds=time.perf_counter() - t0)
         return out
 
     # --- session → marks ------------------------------------------------------------------------
@@ -618,12 +659,14 @@ class FloorplanWidget(W.VBox):
         return self.session.move(name, x, y)
 
     def pin(self, names) -> None:
-        """:meth:`Session.pin`."""
+        """:meth:`Session.pin` (names or block indices, like :meth:`select`)."""
+        names = _block_names(self.design, names, "pin")
         self._refuse_if_busy()
         self.session.pin(names)
 
     def unpin(self, names) -> None:
-        """:meth:`Session.unpin`."""
+        """:meth:`Session.unpin` (names or block indices, like :meth:`select`)."""
+        names = _block_names(self.design, names, "unpin")
         self._refuse_if_busy()
         self.session.unpin(names)
 
