@@ -57,7 +57,7 @@ def _illegal_mask(design: Design, fp: Floorplan) -> np.ndarray:
 
 def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str | None = None,
            show_labels: bool = True, ax=None, figsize: tuple[float, float] | None = None,
-           dpi: int = 150, title: str | None = None):
+           dpi: int = 150, title: str | None = None, target_density: float | None = None):
     """Draw a floorplan to scale; write it to ``path`` (PNG or SVG, by suffix) if given.
 
     Layers, bottom to top: a raster of soft-cluster and standard-cell area (or, with ``heat``,
@@ -90,6 +90,9 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
         PNG resolution.
     title : str, optional
         Replaces the first title line (the design name).
+    target_density : float, optional
+        The target of the overflow figure in the title; default the one the floorplan was
+        placed with (``fp.info["target_density"]``), else the report's default.
 
     Returns
     -------
@@ -299,11 +302,14 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
         cb.set_label(raster_label, fontsize=7)
         cb.ax.tick_params(labelsize=6)
 
-    rep = metrics.evaluate(design, fp)
+    if target_density is None:
+        target_density = fp.info.get("target_density")
+    rep = metrics.evaluate(design, fp, target_density=target_density)
     names = np.bincount(status[mac], minlength=3) if len(mac) else np.zeros(3, int)
     counts = ", ".join(f"{int(c)} {STATUS_NAMES[k]}" for k, c in enumerate(names) if c)
     head = title if title is not None else f"{design.name}: {len(mac)} macros ({counts or 'none'})"
-    sub = (f"HPWL {rep['hpwl']:.4g} µm · overflow {rep['density_overflow']:.3f} at 0.8 · "
+    sub = (f"HPWL {rep['hpwl']:.4g} µm · overflow {rep['density_overflow']:.3f} at "
+           f"{rep['target_density']:g} · "
            f"RUDY peak {rep['congestion_peak']:.3g} · "
            f"{'legal' if rep['legal'] else str(rep['macro_overlaps']) + ' macro overlaps'}"
            f"\nearly floorplanning estimates; sign-off belongs to the implementation flow")

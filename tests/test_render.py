@@ -141,3 +141,16 @@ def test_status_style_dicts_for_the_canvas():
     assert style.heat_colors("congestion")[0] == style.CONGESTION_SCALE[0]
     with pytest.raises(ValueError):
         style.heat_scale("warmth")
+
+
+def test_title_gives_overflow_at_the_target_used(demo_design):
+    # the title said "at 0.8" whatever the target; the figure must match evaluate() at that target
+    from floorwidget import metrics
+
+    fp = demo_design.initial.copy()
+    fp.info["target_density"] = 0.65  # as the placer records it
+    for kw, td in (({}, 0.65), ({"target_density": 0.9}, 0.9)):
+        fig = render(demo_design, fp, **kw)
+        title = fig.axes[0].get_title(loc="left")
+        ov = metrics.evaluate(demo_design, fp, target_density=td)["density_overflow"]
+        assert f"overflow {ov:.3f} at {td:g} " in title
