@@ -65,6 +65,7 @@ import time
 from collections.abc import Callable, Iterable
 
 import numpy as np
+from numba import njit
 from scipy import sparse
 from scipy.optimize import linprog
 
@@ -650,6 +651,7 @@ def is_legal(design: Design, fp: Floorplan, macros=None) -> bool:
 def legalize_macros(design: Design, fp: Floorplan, *, macros: Iterable | None = None,
                     keep: Iterable | None = None, local: bool | None = None, lp: bool = True,
                     lp_rounds: int = 3, trust: float | None = None, retries: int = 3,
+                    pack_moves: int | None = None,
                     progress: Callable[[str, float, dict], None] | None = None,
                     **options) -> Floorplan:
     """Legalise the movable macros of ``fp`` with minimum displacement; return a new floorplan.
@@ -677,11 +679,15 @@ def legalize_macros(design: Design, fp: Floorplan, *, macros: Iterable | None = 
         Trust radius in µm for one LP round (default: the median macro side).
     retries : int
         Greedy restarts with a macro that found no spot moved to the front of the order.
+    pack_moves : int, optional
+        Budget of the sequence-pair search that runs when the greedy search fails (default
+        1000 moves per macro, at least 20,000, fewer for very many macros; see
+        ``_pack_budget``).
     progress : callable, optional
         ``progress(stage, fraction, info)``.
     **options
-        ``seed`` and ``target_density`` are accepted and ignored (the method is deterministic
-        and does not use a density target); anything else is a ``TypeError``.
+        ``seed`` seeds the sequence-pair search (the result is deterministic for a seed);
+        ``target_density`` is accepted and ignored; anything else is a ``TypeError``.
 
     Returns
     -------
@@ -742,7 +748,8 @@ def legalize_macros(design: Design, fp: Floorplan, *, macros: Iterable | None = 
                     info["legalize_mode"] = "local"
             if nx_ is None:
                 _check_capacity(prob)  # (a legal or locally repaired placement proves room)
-                nx_, ny_ = _full(prob, retries, report)
+                nx_, ny_ = _full(prob, retries, report, pack_moves,
+                                 int(options.get("seed", 0) or 0))
                 info["legalize_mode"] = "full"
                 if lp:
                     report("legalize", 0.6, {"stage": "lp"})
@@ -773,7 +780,15 @@ def legalize_macros(design: Design, fp: Floorplan, *, macros: Iterable | None = 
     return out
 
 
-def _full(prob: _Problem, retries: int, report) -> tuple[np.ndarray, np.ndarray]:
+def _pack_budget(n: int) -> int:
+    """Default annealing budget: 1000 moves per macro, at least 20,000, and at most about
+    3e10 / n² elementary steps (a move costs O(n²)), so the search stays within about a
+    minute on one core for a few hundred macros."""
+    return int(max(20_000, min(1000 * n, 3e10 / max(n, 1) ** 2)))
+
+
+def _full(prob: _Problem, retries: int, report, pack_moves: int | None,
+          seed: int) -> tuple[np.ndarray, np.ndarray]:
     n = len(prob.idx)
     order = np.lexsort((np.arange(n), -prob.area))
     still = np.zeros(n, bool)
@@ -784,8 +799,305 @@ def _full(prob: _Problem, retries: int, report) -> tuple[np.ndarray, np.ndarray]
         report("legalize", 0.3, {"retry": attempt + 1, "failed": prob.design.names[
             prob.idx[failed]]})
         order = np.concatenate([[failed], order[order != failed]])
-    i = failed
-    raise PlacementError(
-        f"macro {prob.design.names[prob.idx[i]]!r} ({prob.w[i]:g} x {prob.h[i]:g} µm plus halo) "
-        f"finds no free spot in the core after {retries + 1} greedy attempts; free some room "
-        "(unpin macros, shrink halos or blockages) or enlarge the core")
+    # the greedy search is incomplete: pack from a sequence pair instead
+    moves = _pack_budget(n) if pack_moves is None else int(pack_moves)
+    found = _Packer(prob).search(moves, seed, report)
+    if found is None:
+        i = failed
+        raise PlacementError(
+            f"search budget spent: no legal macro placement found in {moves} sequence-pair "
+            f"moves after the greedy search failed on macro {prob.design.names[prob.idx[i]]!r} "
+            f"({prob.w[i]:g} x {prob.h[i]:g} µm plus halo); the macros fit by area, so this is "
+            "not a proof of infeasibility: free some room (unpin macros, shrink halos or "
+            "blockages), enlarge the core, or raise pack_moves")
+    return prob.gx(found[0]), prob.gy(found[1])
+
+
+# ---------------------------------------------------------------------------------------------
+# the complete fallback: fixed-outline packing by sequence pair
+
+
+class _Packer:
+    """Fixed-outline packing of the macros of M from a sequence pair.
+
+    A sequence pair ``(G+, G-)`` over M and the obstacles (footprints of macros that stay, and
+    blockages) fixes one relation per pair: ``a`` before ``b`` in both sequences means ``a``
+    left of ``b``; ``a`` after ``b`` in ``G+`` and before it in ``G-`` means ``a`` below ``b``
+    (Murata, Fujiyoshi, Nakatake, Kajitani, ICCAD 1995).  Positions are grid indices.  The
+    packing puts every macro at its least position along each axis: the longest path in the
+    constraint graph of that axis from the lower bounds (core, die margin for the halo, and
+    the far side of every obstacle the pair puts to its left / below), with separations of
+    the footprint plus the larger facing halo.  Obstacles are not moved: one the pair puts to
+    the right of (above) a macro is an upper bound on it.  Since these are difference
+    constraints, the least solution satisfies every upper bound exactly when some solution
+    does, so a packing is legal iff its *violation* -- the total amount by which macros
+    exceed their upper bounds, in µm -- is zero.
+    """
+
+    def __init__(self, prob: _Problem):
+        self.prob = prob
+        n = len(prob.idx)
+        boxes, halos, is_blk = prob.obstacles()
+        self.n, self.m = n, len(boxes)
+        px, py, ox, oy = prob.px, prob.py, prob.ox, prob.oy
+        w, h, lf, b, r, t = prob.w, prob.h, prob.l, prob.b, prob.r, prob.t
+        # separations between macros (grid steps), row macro before column macro
+        self.sx = np.ceil((w[:, None] + np.maximum(r[:, None], lf[None, :])) / px - _EPS)
+        self.sy = np.ceil((h[:, None] + np.maximum(t[:, None], b[None, :])) / py - _EPS)
+        # obstacle o (rows) against macro a (columns): least k right of / above o, largest k
+        # left of / below o (exact float fix-ups as in the LP bounds)
+        nb = ~is_blk[:, None]
+        pl = np.maximum(lf[None, :], halos[:, 2:3]) * nb
+        pr = np.maximum(r[None, :], halos[:, 0:1]) * nb
+        pb = np.maximum(b[None, :], halos[:, 3:4]) * nb
+        pt = np.maximum(t[None, :], halos[:, 1:2]) * nb
+        o = boxes[:, :, None]
+        lbx = np.ceil((o[:, 2] + pl - ox) / px - _EPS)
+        lbx += (ox + lbx * px) - pl < o[:, 2]
+        ubx = np.floor((o[:, 0] - w - pr - ox) / px + _EPS)
+        ubx -= ((ox + ubx * px) + w) + pr > o[:, 0]
+        lby = np.ceil((o[:, 3] + pb - oy) / py - _EPS)
+        lby += (oy + lby * py) - pb < o[:, 3]
+        uby = np.floor((o[:, 1] - h - pt - oy) / py + _EPS)
+        uby -= ((oy + uby * py) + h) + pt > o[:, 1]
+        self.lbx, self.ubx, self.lby, self.uby = lbx, ubx, lby, uby
+        # the starting pair from the input positions (centres, scaled to the core), obstacles
+        # where they are: G+ by u - v, G- by u + v
+        c = prob.core
+        cx = np.concatenate([prob.x0 + w / 2, (boxes[:, 0] + boxes[:, 2]) / 2])
+        cy = np.concatenate([prob.y0 + h / 2, (boxes[:, 1] + boxes[:, 3]) / 2])
+        u = (cx - c[0]) / max(c[2] - c[0], 1e-300)
+        v = (cy - c[1]) / max(c[3] - c[1], 1e-300)
+        ids = np.arange(n + self.m)
+        self.gp = np.lexsort((ids, u - v))
+        self.gm = np.lexsort((ids, u + v))
+
+    def search(self, moves: int, seed: int, report) -> tuple[np.ndarray, np.ndarray] | None:
+        """Simulated annealing over sequence-pair moves minimising the violation; ``(kx, ky)``
+        of the first legal packing, or None when ``moves`` are spent."""
+        prob = self.prob
+        n = self.n
+        gp, gm = self.gp.copy(), self.gm.copy()
+        kx, ky = np.zeros(n), np.zeros(n)
+        hix, hiy = np.zeros(n), np.zeros(n)
+        args = (n, self.sx, self.sy, self.lbx, self.ubx, self.lby, self.uby, prob.kx0,
+                prob.kx1, prob.ky0, prob.ky1, prob.px, prob.py)
+        cost = _sp_pack(gp, gm, *args, kx, ky, hix, hiy)
+        scale = float(np.median(np.concatenate([prob.w, prob.h])))
+        chunk = 5000
+        state = np.array([cost, 0.05 * scale])
+        for start in range(0, moves, chunk):
+            if state[0] <= 0:
+                break
+            _sp_anneal(gp, gm, *args, kx, ky, hix, hiy, state, start, min(moves, start + chunk),
+                       moves, seed)
+            report("legalize", 0.3 + 0.3 * min(1.0, (start + chunk) / moves),
+                   {"stage": "packing", "violation": float(state[0])})
+        self.gp, self.gm = gp, gm
+        if state[0] > 0:
+            return None
+        return self.spread(kx, ky, hix, hiy)
+
+    def spread(self, kx, ky, hix, hiy) -> tuple[np.ndarray, np.ndarray]:
+        """Minimum L1 displacement from the targets keeping every relation of the pair: one
+        LP per axis over all pair constraints (the white-space distribution of Tang, Tian,
+        Wong, ASP-DAC 2005, from memory); the packed positions stay if HiGHS fails."""
+        prob, n = self.prob, self.n
+        pp = np.empty(len(self.gp), np.intp)
+        pm = np.empty(len(self.gm), np.intp)
+        pp[self.gp] = np.arange(len(pp))
+        pm[self.gm] = np.arange(len(pm))
+        i, j = np.triu_indices(n, 1)
+        bp, bm = pp[i] < pp[j], pm[i] < pm[j]
+        horiz = bp == bm  # i left of j (both before) or right of it (both after)
+        lo_x = np.where(bp, i, j)[horiz]
+        hi_x = np.where(bp, j, i)[horiz]
+        lo_y = np.where(bm, i, j)[~horiz]  # the one below comes first in G-
+        hi_y = np.where(bm, j, i)[~horiz]
+        tx = np.round((prob.x0 - prob.ox) / prob.px)
+        ty = np.round((prob.y0 - prob.oy) / prob.py)
+        # lower bounds: the least positions of a packing whose macros all sit on their bound
+        # are not known apart from the chain, so recompute them from the obstacles alone
+        lox, loy = self.lower_bounds(pp, pm)
+        nx_ = _solve_axis(n, lo_x, hi_x, self.sx[lo_x, hi_x], np.clip(tx, lox, hix), lox, hix)
+        ny_ = _solve_axis(n, lo_y, hi_y, self.sy[lo_y, hi_y], np.clip(ty, loy, hiy), loy, hiy)
+        return (kx if nx_ is None else nx_), (ky if ny_ is None else ny_)
+
+    def lower_bounds(self, pp, pm) -> tuple[np.ndarray, np.ndarray]:
+        """Per-macro lower bounds (grid indices) from the core and the obstacles the pair puts
+        to its left / below."""
+        prob, n = self.prob, self.n
+        lox, loy = prob.kx0.copy(), prob.ky0.copy()
+        if self.m:
+            ap, am = pp[:n], pm[:n]
+            op, om = pp[n:, None], pm[n:, None]
+            lox = np.maximum(lox, np.where((op < ap) & (om < am), self.lbx, -np.inf).max(0))
+            loy = np.maximum(loy, np.where((op > ap) & (om < am), self.lby, -np.inf).max(0))
+        return lox, loy
+
+
+@njit(cache=True)
+def _sp_pack(gp, gm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py,
+             kx, ky, hix, hiy):  # pragma: no cover (compiled)
+    """Pack sequence pair ``(gp, gm)`` into ``kx, ky`` (the least positions, which are also
+    the lower bounds they met) with upper bounds ``hix, hiy``; return the violation in µm.
+    Elements ``< n`` are macros, the others obstacles."""
+    tot = len(gp)
+    m = tot - n
+    pp = np.empty(tot, np.int64)
+    pm = np.empty(tot, np.int64)
+    for q in range(tot):
+        pp[gp[q]] = q
+        pm[gm[q]] = q
+    lox = kx0.copy()
+    loy = ky0.copy()
+    for a in range(n):
+        hx, hy = kx1[a], ky1[a]
+        for o in range(m):
+            bp = pp[n + o] < pp[a]
+            bm = pm[n + o] < pm[a]
+            if bp and bm:  # obstacle left of a
+                lox[a] = max(lox[a], lbx[o, a])
+            elif not bp and not bm:  # right of a
+                hx = min(hx, ubx[o, a])
+            elif bm:  # below a
+                loy[a] = max(loy[a], lby[o, a])
+            else:  # above a
+                hy = min(hy, uby[o, a])
+        hix[a], hiy[a] = hx, hy
+    viol = 0.0
+    for q in range(tot):  # 'left of': topological in G+ order
+        b = gp[q]
+        if b >= n:
+            continue
+        v = lox[b]
+        for q2 in range(q):
+            a = gp[q2]
+            if a < n and pm[a] < pm[b]:
+                v = max(v, kx[a] + sx[a, b])
+        kx[b] = v
+        viol += max(0.0, v - hix[b]) * px
+    for q in range(tot):  # 'below': topological in G- order
+        b = gm[q]
+        if b >= n:
+            continue
+        v = loy[b]
+        for q2 in range(q):
+            a = gm[q2]
+            if a < n and pp[a] > pp[b]:
+                v = max(v, ky[a] + sy[a, b])
+        ky[b] = v
+        viol += max(0.0, v - hiy[b]) * py
+    return viol
+
+
+@njit(cache=True)
+def _move_next_to(seq, a, b, after):  # pragma: no cover (compiled)
+    """Take ``a`` out of ``seq`` and put it just before (``after`` False) or after ``b``."""
+    ia = 0
+    while seq[ia] != a:
+        ia += 1
+    for q in range(ia, len(seq) - 1):
+        seq[q] = seq[q + 1]
+    ib = 0
+    while seq[ib] != b:
+        ib += 1
+    at = ib + 1 if after else ib
+    for q in range(len(seq) - 1, at, -1):
+        seq[q] = seq[q - 1]
+    seq[at] = a
+
+
+@njit(cache=True)
+def _sp_anneal(gp, gm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py,
+               kx, ky, hix, hiy, state, start, stop, total, seed):  # pragma: no cover
+    """Annealing moves ``start .. stop`` of ``total`` on ``(gp, gm)`` in place; ``state`` holds
+    ``(cost, initial temperature)``.  Moves: swap a macro with another element in G+, in G-
+    or in both, or the slack-driven move of Adya and Markov (IEEE TVLSI 2003): a macro that
+    overshoots its bound along the worse axis is stacked next to a macro with the most room
+    across it.  Deterministic for a given ``seed``."""
+    np.random.seed(seed + start)
+    tot = len(gp)
+    cost = state[0]
+    t0 = state[1]
+    tp = gp.copy()
+    tm = gm.copy()
+    nkx = kx.copy()
+    nky = ky.copy()
+    nhx = hix.copy()
+    nhy = hiy.copy()
+    for it in range(start, stop):
+        if cost <= 0.0:
+            break
+        frac = 1.0 - it / total
+        temp = t0 * frac * frac + 1e-9
+        tp[:] = gp
+        tm[:] = gm
+        kind = np.random.randint(0, 4)
+        if kind < 3 or n < 2:
+            a = np.random.randint(0, n)
+            b = np.random.randint(0, tot - 1)
+            if b >= a:
+                b += 1
+            if kind != 1:
+                for q in range(tot):
+                    if tp[q] == a:
+                        tp[q] = b
+                    elif tp[q] == b:
+                        tp[q] = a
+            if kind != 0:
+                for q in range(tot):
+                    if tm[q] == a:
+                        tm[q] = b
+                    elif tm[q] == b:
+                        tm[q] = a
+        else:
+            vx = 0.0
+            vy = 0.0
+            for q in range(n):
+                vx += max(0.0, kx[q] - hix[q]) * px
+                vy += max(0.0, ky[q] - hiy[q]) * py
+            on_x = vx >= vy
+            # a: a random violating macro along that axis
+            cnt = 0
+            for q in range(n):
+                if (kx[q] > hix[q]) if on_x else (ky[q] > hiy[q]):
+                    cnt += 1
+            pick = np.random.randint(0, cnt)
+            a = 0
+            for q in range(n):
+                if (kx[q] > hix[q]) if on_x else (ky[q] > hiy[q]):
+                    if pick == 0:
+                        a = q
+                        break
+                    pick -= 1
+            # b: among the macros with the most room across (best of a few draws)
+            b = -1
+            best = -np.inf
+            for _ in range(8):
+                c = np.random.randint(0, n)
+                if c == a:
+                    continue
+                room = (hiy[c] - ky[c]) if on_x else (hix[c] - kx[c])
+                if room > best:
+                    best, b = room, c
+            if b < 0:
+                continue
+            after = np.random.randint(0, 2) == 1
+            if on_x:  # stack: a below b (after in G+, before in G-) or above (the opposite)
+                _move_next_to(tp, a, b, after)
+                _move_next_to(tm, a, b, not after)
+            else:  # side by side: right of b (after in both) or left (before in both)
+                _move_next_to(tp, a, b, after)
+                _move_next_to(tm, a, b, after)
+        c2 = _sp_pack(tp, tm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py,
+                      nkx, nky, nhx, nhy)
+        if c2 <= cost or np.random.random() < np.exp(-(c2 - cost) / temp):
+            gp[:] = tp
+            gm[:] = tm
+            kx[:] = nkx
+            ky[:] = nky
+            hix[:] = nhx
+            hiy[:] = nhy
+            cost = c2
+    state[0] = cost
