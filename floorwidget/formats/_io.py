@@ -91,10 +91,12 @@ def _read_bytes(path: Path) -> bytes:
     except IsADirectoryError:
         raise DesignError("is a directory, not a file", file=str(path)) from None
     except (EOFError, zlib.error, gzip.BadGzipFile) as e:
-        raise DesignError(f"damaged {s[1:]} data ({e or 'cut short'})", file=str(path)) from None
+        raise DesignError(f"damaged {s[1:]} data ({e or 'cut short'})", file=str(path),
+                          where=f"{s[1:]} stream") from None
     except OSError as e:
         if e.strerror is None:  # bz2 and gzip report bad data as a bare OSError
-            raise DesignError(f"damaged {s[1:]} data ({e})", file=str(path)) from None
+            raise DesignError(f"damaged {s[1:]} data ({e})", file=str(path),
+                              where=f"{s[1:]} stream") from None
         raise DesignError(f"cannot read: {e.strerror}", file=str(path)) from None
 
 

@@ -911,12 +911,14 @@ def read_aux(path) -> Design:
     if not boxes and n:
         boxes.append([x.min(), y.min(), (x + fw_).max(), (y + fh_).max()])
     if not boxes:
-        raise DesignError("no rows and no nodes: cannot tell the die", file=str(aux))
+        raise DesignError("no rows and no nodes: cannot tell the die", file=str(aux),
+                          where="die")
     b = np.array(boxes)
     die = [b[:, 0].min(), b[:, 1].min(), b[:, 2].max(), b[:, 3].max()]
     if not (die[2] > die[0] and die[3] > die[1]):
-        raise DesignError(f"the rows and fixed nodes span no area ({die}); cannot tell the die",
-                          file=str(aux))
+        raise DesignError(f"the rows and fixed nodes span no area "
+                          f"({[float(v) for v in die]}); cannot tell the die", file=str(aux),
+                          where="die")
     design = Design(aux.stem, die, names, kind, w, h, net_start, pin_block, pin_dx, pin_dy,
                     orient_allowed=allowed, net_names=net_names, net_weight=weight,
                     rows=rows if rows and rows["x"] else None, x=x, y=y, orient=orient,

@@ -89,7 +89,7 @@ class _Reader:
         return v
 
     def choice(self, v, table: dict, where: str) -> int:
-        if v not in table:
+        if not isinstance(v, str) or v not in table:  # a list or object is unhashable
             self.fail(where, f"expected one of {', '.join(table)}, got {json.dumps(v)[:40]}")
         return table[v]
 
