@@ -42,6 +42,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from .design import (
+    CELL,
     CLUSTER,
     FIXED,
     MACRO,
@@ -60,6 +61,7 @@ __all__ = [
     "BinGrid",
     "DensityMap",
     "bin_grid",
+    "cell_legality",
     "congestion_stats",
     "density_map",
     "density_overflow",
@@ -69,6 +71,7 @@ __all__ = [
     "net_hpwl",
     "nets_hpwl",
     "peak_density",
+    "row_of",
     "pin_positions",
     "rudy_map",
 ]
@@ -89,7 +92,8 @@ TOL = 1e-6
 REPORT_KEYS = (
     "hpwl", "hpwl_weighted", "density_overflow", "peak_density", "congestion_peak",
     "congestion_p99", "macro_overlaps", "macro_overlap_area", "out_of_die", "off_grid", "legal",
-    "num_blocks", "num_nets",
+    "num_blocks", "num_nets", "target_density", "cell_overlaps", "cells_off_row",
+    "cells_off_site",
 )
 
 
@@ -705,7 +709,73 @@ def legality(design: Design, fp: Floorplan) -> dict:
 # the report
 
 
-def evaluate(design: Design, fp: Floorplan | None = None, target_density: float = 0.8,
+def cell_legality(design: Design, fp: Floorplan) -> dict:
+    """Row legality of the standard cells (soft clusters are not cells and are not checked).
+
+    Parameters
+    ----------
+    design : Design
+    fp : Floorplan
+
+    Returns
+    -------
+    dict
+        ``cells_off_row`` (movable or pinned cells whose bottom is not on the bottom of a row
+        whose span holds the cell), ``cells_off_site`` (cells on a row whose left edge is not on
+        one of its sites), ``cell_overlaps`` (pairs of cells overlapping by a positive area,
+        plus pairs of a cell and a macro's halo box or a placement blockage it overlaps; fixed
+        cells included), and ``cells_legal`` (all three zero).  Cells fixed by the input are
+        exempt from the row and site checks, like fixed macros from the grid check.
+    """
+    cells = np.flatnonzero(design.kind == CELL)
+    res = {"cell_overlaps": 0, "cells_off_row": 0, "cells_off_site": 0, "cells_legal": True}
+    if not len(cells):
+        return res
+    r = fp.rects()
+    chk = cells[fp.status[cells] != FIXED]
+    if len(design.row_y):
+        row, off_site = row_of(design, fp.x[chk], fp.y[chk], r[chk, 2] - r[chk, 0])
+        off_row = row < 0
+    else:
+        off_row, off_site = np.ones(len(chk), bool), np.zeros(len(chk), bool)
+    # obstacles: macro halo boxes and blockages
+    mac = np.flatnonzero(design.kind == MACRO)
+    obs = fp.rects(halo=True)[mac]
+    if len(design.blockages):
+        obs = np.concatenate([obs, design.blockages])
+    allr = np.concatenate([r[cells], obs])
+    a, b, _ = _overlap_pairs(allr)
+    nc = len(cells)
+    bad_pairs = int(np.sum((a < nc) | (b < nc)))  # pairs between two obstacles do not count
+    res.update(cell_overlaps=bad_pairs, cells_off_row=int(off_row.sum()),
+               cells_off_site=int(off_site.sum()))
+    res["cells_legal"] = not (bad_pairs or off_row.any() or off_site.any())
+    return res
+
+
+def row_of(design: Design, x, y, w) -> tuple[np.ndarray, np.ndarray]:
+    """The row holding each cell (lower-left ``x, y``, width ``w``), -1 when none does, and
+    whether a cell on a row is off its sites; vectorised with one sorted key per row (row
+    level, then x)."""
+    order = np.lexsort((design.row_x, design.row_y))
+    ry, rx = design.row_y[order], design.row_x[order]
+    sw, ns = design.row_site_width[order], design.row_num_sites[order]
+    levels = np.unique(ry)
+    big = 4.0 * (float(np.max(np.abs(np.concatenate([rx + sw * ns, np.abs(x) + w])))) + 1.0)
+    lv_row = np.searchsorted(levels, ry)
+    li = np.clip(np.searchsorted(levels, y - TOL), 0, len(levels) - 1)
+    on_level = np.abs(levels[li] - y) <= TOL
+    key_r = lv_row * big + rx
+    k = np.searchsorted(key_r, li * big + x + TOL, side="right") - 1
+    k = np.clip(k, 0, len(ry) - 1)
+    inside = (lv_row[k] == li) & (x >= rx[k] - TOL) & (x + w <= rx[k] + sw[k] * ns[k] + TOL)
+    on_row = on_level & inside
+    f = (x - rx[k]) / sw[k]
+    off_site = on_row & (np.abs(f - np.round(f)) * sw[k] > TOL)
+    return np.where(on_row, order[k], -1), off_site
+
+
+def evaluate(design: Design, fp: Floorplan | None = None, target_density: float | None = None,
              bin_size: float | None = None) -> dict:
     """Every report figure of a floorplan, as plain JSON-serialisable Python values.
 
@@ -717,8 +787,8 @@ def evaluate(design: Design, fp: Floorplan | None = None, target_density: float 
     design : Design
     fp : Floorplan, optional
         Default ``design.initial``.
-    target_density : float
-        For the overflow figure.
+    target_density : float, optional
+        For the overflow figure; default the value the placer used (``fp.info``), else 0.8.
     bin_size : float, optional
         Bin side, µm (default from :func:`bin_grid`).
 
@@ -738,12 +808,15 @@ def evaluate(design: Design, fp: Floorplan | None = None, target_density: float 
     ['congestion_p99', 'congestion_peak', 'density_overflow']
     """
     fp = design.initial if fp is None else fp
+    if target_density is None:
+        target_density = float(fp.info.get("target_density", 0.8))
     grid = bin_grid(design, bin_size)
     box = net_boxes(design, fp)
     per = (box[:, 2] - box[:, 0]) + (box[:, 3] - box[:, 1])
     dm = density_map(design, fp, grid)
     peak, p99 = congestion_stats(_rudy(grid, box))
     leg = legality(design, fp)
+    cl = cell_legality(design, fp)
     return {
         "hpwl": float(per.sum()),
         "hpwl_weighted": float(np.dot(per, design.net_weight)),
@@ -755,7 +828,11 @@ def evaluate(design: Design, fp: Floorplan | None = None, target_density: float 
         "macro_overlap_area": float(leg["macro_overlap_area"]),
         "out_of_die": int(len(leg["out_of_die"])),
         "off_grid": int(len(leg["off_grid"])),
-        "legal": bool(leg["legal"]),
+        "legal": bool(leg["legal"]) and cl["cells_legal"],
         "num_blocks": int(design.num_blocks),
         "num_nets": int(design.num_nets),
+        "target_density": float(target_density),
+        "cell_overlaps": cl["cell_overlaps"],
+        "cells_off_row": cl["cells_off_row"],
+        "cells_off_site": cl["cells_off_site"],
     }

@@ -3,6 +3,8 @@ and the flow's contracts (pinned blocks, determinism, untouched input)."""
 
 from __future__ import annotations
 
+import warnings
+
 import numpy as np
 import pytest
 import scipy.sparse as sp
@@ -20,7 +22,15 @@ from floorwidget.design import (
     Design,
     Floorplan,
 )
-from floorwidget.placer import PlacementError, legalize, make_options, place, refine
+from floorwidget.placer import (
+    PlacementError,
+    PlacementWarning,
+    legalize,
+    make_options,
+    place,
+    refine,
+)
+from floorwidget.placer.flow import TARGET_MARGIN
 from floorwidget.placer.netmodel import NetTopology, b2b_cost, b2b_edges
 from floorwidget.placer.solve import QuadraticSystem, assemble_axis, solve_spd
 from floorwidget.placer.spread import capacity_map, lookahead, make_grid, rasterize
@@ -321,13 +331,30 @@ def test_refine_after_macro_move_moves_little(demo_design, demo_placed):
 
 
 def test_infeasible_area_raises_and_leaves_input():
-    d = make_design([60, 60, 0], [60, 60, 0], [CLUSTER, CLUSTER, TERMINAL],
+    # 2 x 80 x 80 µm² of clusters in a 100 x 100 µm core: 128 % utilisation
+    d = make_design([80, 80, 0], [80, 80, 0], [CLUSTER, CLUSTER, TERMINAL],
                     [[(0, 0, 0), (1, 0, 0), (2, 0, 0)]], x=[0, 0, 0], y=[0, 0, 0],
                     status=[MOVABLE, MOVABLE, FIXED])
     before = d.initial.copy()
-    with pytest.raises(PlacementError, match="exceeds"):
+    with pytest.raises(PlacementError, match="cannot fit even at target density 1.0"):
         place(d, target_density=0.5)
     assert d.initial.identical(before)
+
+
+def test_target_density_below_utilisation_is_raised_with_a_warning():
+    # 2 x 60 x 60 µm² in 100 x 100 µm: utilisation 0.72 (worked by hand); the placer uses
+    # 0.72 + the margin, warns, and the report carries the value used
+    d = make_design([60, 60, 0], [60, 60, 0], [CLUSTER, CLUSTER, TERMINAL],
+                    [[(0, 0, 0), (1, 0, 0), (2, 0, 0)]], x=[0, 0, 0], y=[0, 0, 0],
+                    status=[MOVABLE, MOVABLE, FIXED])
+    with pytest.warns(PlacementWarning, match="utilisation 0.720 exceeds"):
+        fp = place(d, target_density=0.5)
+    used = 0.72 + TARGET_MARGIN
+    assert fp.info["target_density"] == pytest.approx(used)
+    assert metrics.evaluate(d, fp)["target_density"] == pytest.approx(used)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        assert place(d, target_density=0.8).info["target_density"] == 0.8
 
 
 def test_options_are_validated():

@@ -11,8 +11,9 @@ from __future__ import annotations
 
 from . import legalize as _legalize_module  # noqa: F401  (import the submodules first, so
 from . import orient as _orient_module  # noqa: F401  their names never shadow the functions)
-from .errors import PlacementError
+from .errors import PlacementError, PlacementWarning
 from .flow import legalize, place, refine
 from .options import PlacerOptions, make_options
 
-__all__ = ["PlacementError", "PlacerOptions", "legalize", "make_options", "place", "refine"]
+__all__ = ["PlacementError", "PlacementWarning", "PlacerOptions", "legalize", "make_options",
+           "place", "refine"]

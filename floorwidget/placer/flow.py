@@ -24,22 +24,33 @@ anchor pseudo-nets).
 from __future__ import annotations
 
 import time
+import warnings
 from collections.abc import Callable
 from typing import Any
 
 import numpy as np
 
 from ..design import CELL, CLUSTER, MACRO, MOVABLE, TERMINAL, Design, Floorplan
-from .errors import PlacementError
+from .errors import PlacementError, PlacementWarning
 from .legalize import legalize_macros
 from .options import PlacerOptions, check_range, make_options, net_multipliers
 from .orient import choose_orientations
-from .solve import QuadraticSystem
-from .spread import Grid, capacity_map, lookahead, make_grid, overflow
+from .rows import cell_mask, detailed_place, legalize_cells
+from .solve import QuadraticSystem, spectral_coordinates
+from .spread import (
+    Grid,
+    capacity_map,
+    density_weight,
+    lookahead,
+    make_grid,
+    overfilled_regions,
+    overflow,
+)
 
 __all__ = ["place", "refine", "legalize"]
 
 Progress = Callable[[str, float, dict], Any] | None
+STALL_FROM = 0.3  # overflow below which a spreading loop that stops improving is stopped
 
 
 # ---------------------------------------------------------------------------------------------
@@ -89,7 +100,8 @@ class _Stage:
         self.grid: Grid = make_grid(design.core, self.w, self.h, opts.bin_size)
         self.obstacles = _obstacles(design, fp, fixed)
         self.cap = capacity_map(self.grid, target, self.obstacles)
-        self.area = float(np.sum(self.w * self.h))
+        self.wt = density_weight(self.grid, self.w, self.h, target)
+        self.area = float(np.sum(self.w * self.h * self.wt))
         c = design.core
         self.lo_x = c[0] + self.w / 2
         self.hi_x = np.maximum(c[2] - self.w / 2, self.lo_x)
@@ -112,9 +124,17 @@ class _Stage:
         cx[v] = np.clip(cx[v], self.lo_x, self.hi_x)
         cy[v] = np.clip(cy[v], self.lo_y, self.hi_y)
 
+    def lookahead(self, cx, cy):
+        """Look-ahead positions: only the overfilled regions are spread (density-driven)."""
+        v = self.vars
+        regions = overfilled_regions(self.grid, self.cap, cx[v], cy[v], self.w, self.h,
+                                     weight=self.wt)
+        return lookahead(self.grid, self.cap, cx[v], cy[v], self.w, self.h, regions=regions,
+                         weight=self.wt)
+
     def overflow(self, cx, cy) -> float:
         v = self.vars
-        return overflow(self.grid, self.cap, cx[v], cy[v], self.w, self.h)
+        return overflow(self.grid, self.cap, cx[v], cy[v], self.w, self.h, self.wt)
 
     def wirelength(self, cx, cy, orient, opts, iterations, progress, stage):
         for k in range(iterations):
@@ -136,7 +156,7 @@ class _Stage:
         history = [ov]
         tx = ty = None
         while it < max_it and (ov > target_overflow or it < min_it):
-            tx, ty = lookahead(self.grid, self.cap, cx[v], cy[v], self.w, self.h)
+            tx, ty = self.lookahead(cx, cy)
             alpha = opts.anchor_weight * (1.0 + opts.anchor_growth * (k0 + it))
             wx = alpha * self.anchor_scale / np.maximum(np.abs(cx[v] - tx), self.eps_a)
             wy = alpha * self.anchor_scale / np.maximum(np.abs(cy[v] - ty), self.eps_a)
@@ -153,15 +173,15 @@ class _Stage:
             if ov < best * 0.98:
                 best = ov
                 since = 0
-            else:
+            elif ov < STALL_FROM:  # far from spread, a slow start is not a stall
                 since += 1
                 if since >= opts.stall_iterations and it >= min_it:
                     break
         used_lookahead = False
         if ov > target_overflow and tx is not None:
             # not converged: the look-ahead placement is density-feasible, take it if better
-            tx, ty = lookahead(self.grid, self.cap, cx[v], cy[v], self.w, self.h)
-            ov_la = overflow(self.grid, self.cap, tx, ty, self.w, self.h)
+            tx, ty = self.lookahead(cx, cy)
+            ov_la = overflow(self.grid, self.cap, tx, ty, self.w, self.h, self.wt)
             if ov_la < ov:
                 cx[v] = tx
                 cy[v] = ty
@@ -258,13 +278,7 @@ def place(design: Design, floorplan: Floorplan | None = None, *, target_density:
     st = _Stage(design, out, movable, target, opts, mult)
     st.check_capacity(target)
     cx, cy = out.centres()
-    c = design.core
-    rng = np.random.default_rng(seed)
-    span = np.array([c[2] - c[0], c[3] - c[1]])
-    jit = rng.standard_normal((len(mov_idx), 2)) * 1e-3 * span
-    cx[mov_idx] = (c[0] + c[2]) / 2 + jit[:, 0]
-    cy[mov_idx] = (c[1] + c[3]) / 2 + jit[:, 1]
-    st.clamp(cx, cy)
+    _initial_positions(st, cx, cy, mov_idx, seed)
     st.wirelength(cx, cy, out.orient, opts, opts.initial_iterations, progress, "global")
     res = st.spread(cx, cy, out.orient, opts, k0=0, max_it=opts.max_iterations, min_it=0,
                     target_overflow=opts.overflow_target, progress=progress, stage="global")
@@ -295,7 +309,7 @@ def place(design: Design, floorplan: Floorplan | None = None, *, target_density:
             st2 = _Stage(design, out, soft, target, opts, mult)
             st2.check_capacity(target)
             cx, cy = out.centres()
-            k0 = 0.5 * res["iterations"]
+            k0 = 0.0  # weak anchors first: strong ones drag cells to the rough look-ahead spots
             res2 = st2.spread(cx, cy, out.orient, opts, k0=k0, max_it=opts.max_iterations,
                               min_it=2, target_overflow=opts.overflow_target,
                               progress=progress, stage="cells")
@@ -305,7 +319,52 @@ def place(design: Design, floorplan: Floorplan | None = None, *, target_density:
             info["bins"] = res2["bins"]
         info["stage_seconds"]["cells"] = time.perf_counter() - t0
         _report(progress, "cells", 1.0, {"overflow": final_ov})
+    out = _rows_stage(design, out, src, opts, info, progress)
     return _finish(design, out, src, info, legalized, final_ov, t_all, target, seed)
+
+
+def _initial_positions(st: _Stage, cx, cy, mov_idx: np.ndarray, seed: int) -> None:
+    """Start of the global placement: every movable block at the core centre with a small
+    seeded jitter, where fixed pins will pull them apart; blocks whose connected group reaches
+    no fixed pin start from spectral coordinates instead (the eigenvectors of the net
+    Laplacian for its second and third smallest eigenvalues, Hall, Management Science 17(3),
+    1970), scaled to the core, so a design without fixed I/O does not collapse to one point."""
+    c = st.design.core
+    rng = np.random.default_rng(seed)
+    span = np.array([c[2] - c[0], c[3] - c[1]])
+    jit = rng.standard_normal((len(mov_idx), 2)) * 1e-3 * span
+    cx[mov_idx] = (c[0] + c[2]) / 2 + jit[:, 0]
+    cy[mov_idx] = (c[1] + c[3]) / 2 + jit[:, 1]
+    fl = st.sys.floating
+    if fl.sum() >= 3:
+        u, v = spectral_coordinates(st.sys, fl, seed)
+        blk = st.vars[fl]
+        cx[blk] = c[0] + span[0] * (0.25 + 0.5 * u)
+        cy[blk] = c[1] + span[1] * (0.25 + 0.5 * v)
+    st.clamp(cx, cy)
+
+
+def _rows_stage(design: Design, out: Floorplan, src: Floorplan, opts: PlacerOptions,
+                info: dict, progress: Progress) -> Floorplan:
+    """Standard cells onto rows and sites (Abacus), then swap-based detailed placement, when
+    ``cells="legal"``; timed and reported as the stages ``"rows"`` and ``"detail"``."""
+    if opts.cells != "legal":
+        return out
+    cells = cell_mask(design, src)
+    if not cells.any():
+        return out
+    t0 = time.perf_counter()
+    out, facts = legalize_cells(design, out, cells)
+    info.update(facts)
+    info["stage_seconds"]["rows"] = time.perf_counter() - t0
+    _report(progress, "rows", 1.0, {})
+    if opts.detail_passes:
+        t0 = time.perf_counter()
+        out, facts = detailed_place(design, out, cells, passes=opts.detail_passes)
+        info.update(facts)
+        info["stage_seconds"]["detail"] = time.perf_counter() - t0
+        _report(progress, "detail", 1.0, {})
+    return out
 
 
 def refine(design: Design, floorplan: Floorplan, *, target_density: float = 0.8, seed: int = 0,
@@ -359,6 +418,7 @@ def refine(design: Design, floorplan: Floorplan, *, target_density: float = 0.8,
         info["bins"] = res["bins"]
     info["stage_seconds"]["cells"] = time.perf_counter() - t0
     _report(progress, "cells", 1.0, {"overflow": ov})
+    out = _rows_stage(design, out, src, opts, info, progress)
     return _finish(design, out, src, info, legalized, ov, t_all, target, seed)
 
 
@@ -369,7 +429,43 @@ def _start(design: Design, floorplan: Floorplan | None, target_density: float,
     src = _check_inputs(design, floorplan)
     target = check_range("target_density", target_density, 0.0, 1.0, lo_open=True)
     opts = make_options(options)
+    target = fitting_target(design, src, target)
     return src, target, opts, net_multipliers(design, opts.net_weight_scale)
+
+
+TARGET_MARGIN = 0.05  # added to the utilisation when the asked target density is too low
+
+
+def utilisation(design: Design, fp: Floorplan) -> float:
+    """Movable area (macros, clusters, cells; not terminals) ÷ the core area left free by
+    fixed and pinned blocks (with their halos) and placement blockages."""
+    movable = (fp.status == MOVABLE) & (design.kind != TERMINAL)
+    area = float(np.sum(design.width[movable] * design.height[movable]))
+    c = design.core
+    grid = make_grid(c, np.ones(1), np.ones(1), bin_size=max(c[2] - c[0], c[3] - c[1]) / 256)
+    free = float(capacity_map(grid, 1.0, _obstacles(design, fp, ~movable)).sum())
+    return area / free if free > 0 else (np.inf if area > 0 else 0.0)
+
+
+def fitting_target(design: Design, fp: Floorplan, target: float) -> float:
+    """The target density to use: ``target``, or the utilisation plus
+    :data:`TARGET_MARGIN` (at most 1.0, with a warning) when the design is fuller than that.
+
+    Raises
+    ------
+    PlacementError
+        When the movable area does not fit the free core area even at density 1.0.
+    """
+    u = utilisation(design, fp)
+    if u <= target:
+        return target
+    if u > 1.0 + 1e-9:
+        raise PlacementError(f"design {design.name!r}: movable area is {u:.1%} of the free core "
+                             "area; it cannot fit even at target density 1.0")
+    used = min(1.0, u + TARGET_MARGIN)
+    warnings.warn(f"design {design.name!r}: utilisation {u:.3f} exceeds target_density "
+                  f"{target:g}; placing at {used:.3f}", PlacementWarning, stacklevel=4)
+    return used
 
 
 def _legalize_stage(design: Design, fp: Floorplan, macros, info: dict,

@@ -24,7 +24,8 @@ import scipy.sparse as sp
 
 from ..metrics import BinGrid
 
-__all__ = ["Grid", "make_grid", "rasterize", "capacity_map", "overflow", "lookahead"]
+__all__ = ["Grid", "make_grid", "rasterize", "capacity_map", "overflow", "lookahead",
+           "overfilled_regions", "density_weight"]
 
 
 Grid = BinGrid  # the placer bins on its own grid, with the metrics grid type
@@ -100,12 +101,23 @@ def capacity_map(grid: Grid, target: float, obstacles: np.ndarray) -> np.ndarray
     return np.maximum(target * (grid.bin_area - cov), 0.0)
 
 
-def overflow(grid: Grid, cap: np.ndarray, cx, cy, w, h) -> float:
-    """``Σ_bins max(0, movable area − capacity) ÷ movable area`` for objects centred ``cx, cy``."""
-    total = float(np.sum(w * h))
+def density_weight(grid: Grid, w, h, target: float) -> np.ndarray:
+    """Weight of each object's area in the density bins: ``target`` for objects larger than a
+    bin (a hard block fills the bins under it completely, so counting its area at the target
+    density lets it sit anywhere without "overflowing" — the usual scaling of macro area in
+    analytic placement), 1 for the rest."""
+    big = (np.asarray(w) > grid.bw) | (np.asarray(h) > grid.bh)
+    return np.where(big, float(target), 1.0)
+
+
+def overflow(grid: Grid, cap: np.ndarray, cx, cy, w, h, weight=None) -> float:
+    """``Σ_bins max(0, movable area − capacity) ÷ movable area`` for objects centred ``cx, cy``
+    (areas times ``weight``, see :func:`density_weight`)."""
+    wt = np.ones(len(w)) if weight is None else np.asarray(weight, np.float64)
+    total = float(np.sum(w * h * wt))
     if total <= 0:
         return 0.0
-    use = rasterize(grid, cx - w / 2, cy - h / 2, cx + w / 2, cy + h / 2)
+    use = rasterize(grid, cx - w / 2, cy - h / 2, cx + w / 2, cy + h / 2, wt)
     return float(np.maximum(use - cap, 0.0).sum() / total)
 
 
@@ -147,7 +159,8 @@ def _clamp_into(c, size, lo, hi):
 
 
 def lookahead(grid: Grid, cap: np.ndarray, cx, cy, w, h, *, leaf: float = 1.0,
-              max_levels: int = 64):
+              max_levels: int = 64, regions: tuple[np.ndarray, np.ndarray] | None = None,
+              weight=None):
     """Density-feasible look-ahead centres for objects now centred at ``cx, cy``.
 
     Recursive bisection of the core: every region is cut in the middle across its longer
@@ -169,6 +182,13 @@ def lookahead(grid: Grid, cap: np.ndarray, cx, cy, w, h, *, leaf: float = 1.0,
         down to single objects).
     max_levels : int
         Guard on the recursion depth (objects still shared then are clamped into their region).
+    regions : (boxes, member), optional
+        Start the bisection from these regions instead of the whole core: ``boxes`` is a
+        ``(k, 4)`` array of bin-aligned boxes ``x0, x1, y0, y1`` and ``member`` an ``(N,)``
+        array giving each object's region, or -1 for an object that keeps its position (see
+        :func:`overfilled_regions`).
+    weight : (N,) array, optional
+        Factor on each object's area against the capacity (:func:`density_weight`).
 
     Returns
     -------
@@ -182,13 +202,28 @@ def lookahead(grid: Grid, cap: np.ndarray, cx, cy, w, h, *, leaf: float = 1.0,
     cap = cap.copy()
     S = _prefix(cap)
     dmax = float(cap.max()) / grid.bin_area
-    area = np.asarray(w * h, np.float64)
+    wt = np.ones(n) if weight is None else np.asarray(weight, np.float64)
+    area = np.asarray(w * h * wt, np.float64)
     x_span = grid.nx * grid.bw
     y_span = grid.ny * grid.bh
     # regions as float boxes x0, x1, y0, y1
-    boxes = np.array([[grid.xlo, grid.xlo + x_span, grid.ylo, grid.ylo + y_span]])
-    reg = np.zeros(n, np.int64)
-    active = np.arange(n)
+    if regions is None:
+        boxes = np.array([[grid.xlo, grid.xlo + x_span, grid.ylo, grid.ylo + y_span]])
+        reg = np.zeros(n, np.int64)
+    else:
+        boxes = np.asarray(regions[0], np.float64).reshape(-1, 4)
+        reg = np.asarray(regions[1], np.int64).copy()
+    active = np.flatnonzero(reg >= 0)
+    if not len(active):
+        return tx, ty
+    if regions is not None:
+        # objects left where they are take their area out of the capacity of the regions
+        stay = np.flatnonzero(reg < 0)
+        if len(stay):
+            used = rasterize(grid, cx[stay] - w[stay] / 2, cy[stay] - h[stay] / 2,
+                             cx[stay] + w[stay] / 2, cy[stay] + h[stay] / 2, wt[stay])
+            cap = np.maximum(cap - used, 0.0)
+            S = _prefix(cap)
 
     def settle(idx):
         b = boxes[reg[idx]]
@@ -235,7 +270,7 @@ def lookahead(grid: Grid, cap: np.ndarray, cx, cy, w, h, *, leaf: float = 1.0,
             fz = fz[(w[fz] > grid.bw) | (h[fz] > grid.bh)]
             if len(fz):
                 used = rasterize(grid, tx[fz] - w[fz] / 2, ty[fz] - h[fz] / 2,
-                                 tx[fz] + w[fz] / 2, ty[fz] + h[fz] / 2)
+                                 tx[fz] + w[fz] / 2, ty[fz] + h[fz] / 2, wt[fz])
                 cap = np.maximum(cap - used, 0.0)
                 S = _prefix(cap)
             active = active[~big]
@@ -293,3 +328,128 @@ def lookahead(grid: Grid, cap: np.ndarray, cx, cy, w, h, *, leaf: float = 1.0,
     if len(active):
         settle(active)
     return tx, ty
+
+
+def overfilled_regions(grid: Grid, cap: np.ndarray, cx, cy, w, h, *, slack: float = 1e-3,
+                       weight=None) -> tuple[np.ndarray, np.ndarray]:
+    """Regions that the look-ahead step must spread, and which objects each one holds.
+
+    Only overfilled parts of the core are spread, as in the cluster expansion of Kim, Lee,
+    Markov (ICCAD 2010) and the bin-region expansion of Lin, Chu, Shinnerl, Bustany,
+    Nedelchev (ICCAD 2013): bins whose movable area exceeds their capacity are grouped into
+    connected clusters (4-neighbourhood, ``scipy.ndimage.label``); each cluster's bounding box
+    grows by whole bins on every side until the objects centred in it fit its capacity (or it
+    is the whole core); boxes that meet are merged and grown again.  Objects centred outside
+    every box keep their positions, so an under-filled part of the core is never inflated.
+
+    Parameters
+    ----------
+    grid, cap : the bin grid and its free capacity (:func:`capacity_map`).
+    cx, cy, w, h : (N,) centres and footprints of the movable objects.
+    slack : float
+        A bin counts as overfilled when its movable area exceeds ``(1 + slack) × capacity``.
+    weight : (N,) array, optional
+        Factor on each object's area (:func:`density_weight`).
+
+    Returns
+    -------
+    boxes : (k, 4) float array ``x0, x1, y0, y1`` of the regions (bin-aligned).
+    member : (N,) int array, the region of each object or -1.
+    """
+    from scipy import ndimage
+
+    n = len(cx)
+    member = np.full(n, -1, np.int64)
+    if n == 0:
+        return np.zeros((0, 4)), member
+    wt = np.ones(n) if weight is None else np.asarray(weight, np.float64)
+    use = rasterize(grid, cx - w / 2, cy - h / 2, cx + w / 2, cy + h / 2, wt)
+    over = use > cap * (1.0 + slack) + 1e-9 * grid.bin_area
+    if not over.any():
+        return np.zeros((0, 4)), member
+    lab, k = ndimage.label(over)
+    sl = ndimage.find_objects(lab)
+    # bin-index boxes [i0, i1) x [j0, j1)
+    B = np.array([[s[0].start, s[0].stop, s[1].start, s[1].stop] for s in sl], np.int64)
+    ci, cj = grid.locate(cx, cy)
+    area = np.asarray(w * h * wt, np.float64)
+    demand = np.zeros((grid.nx, grid.ny))
+    np.add.at(demand, (ci, cj), area)
+    Sd = _prefix(demand)
+    Sc = _prefix(cap)
+    lim = np.array([grid.nx, grid.ny])
+    for _round in range(64):
+        B = _grow(B, Sd, Sc, lim)
+        B, merged = _merge(B)
+        if not merged:
+            break
+    boxes = np.stack([grid.xlo + B[:, 0] * grid.bw, grid.xlo + B[:, 1] * grid.bw,
+                      grid.ylo + B[:, 2] * grid.bh, grid.ylo + B[:, 3] * grid.bh], axis=1)
+    rmap = np.full((grid.nx, grid.ny), -1, np.int64)  # merged boxes are disjoint
+    for r, (i0, i1, j0, j1) in enumerate(B):
+        rmap[i0:i1, j0:j1] = r
+    member = rmap[ci, cj]
+    return boxes, member
+
+
+def _grow(B: np.ndarray, Sd: np.ndarray, Sc: np.ndarray, lim: np.ndarray) -> np.ndarray:
+    """Grow every box by one bin a side (within the grid) until its demand fits its capacity;
+    all boxes step together, so the loop runs at most ``max(nx, ny)`` times."""
+    B = B.copy()
+    while True:
+        d = _rect_sum(Sd, B[:, 0], B[:, 1], B[:, 2], B[:, 3])
+        c = _rect_sum(Sc, B[:, 0], B[:, 1], B[:, 2], B[:, 3])
+        whole = (B[:, 0] == 0) & (B[:, 2] == 0) & (B[:, 1] == lim[0]) & (B[:, 3] == lim[1])
+        need = (d > c * (1 + 1e-9)) & ~whole
+        if not need.any():
+            return B
+        g = B[need]
+        g[:, 0] = np.maximum(g[:, 0] - 1, 0)
+        g[:, 2] = np.maximum(g[:, 2] - 1, 0)
+        g[:, 1] = np.minimum(g[:, 1] + 1, lim[0])
+        g[:, 3] = np.minimum(g[:, 3] + 1, lim[1])
+        B[need] = g
+
+
+def _merge(B: np.ndarray) -> tuple[np.ndarray, bool]:
+    """Merge boxes that overlap (by at least one bin) into their bounding boxes, repeatedly;
+    returns the boxes and whether anything merged."""
+    merged_any = False
+    while len(B) > 1:
+        if len(B) > 1500:  # many boxes: merge through a painted cover map instead of pairs
+            P = _merge_painted(B)
+            return P, len(P) != len(B)
+        ox = np.minimum(B[:, None, 1], B[None, :, 1]) > np.maximum(B[:, None, 0], B[None, :, 0])
+        oy = np.minimum(B[:, None, 3], B[None, :, 3]) > np.maximum(B[:, None, 2], B[None, :, 2])
+        hit = ox & oy
+        np.fill_diagonal(hit, False)
+        if not hit.any():
+            break
+        from scipy.sparse.csgraph import connected_components
+
+        k, lab = connected_components(sp.csr_array(hit), directed=False)
+        nb = np.empty((k, 4), np.int64)
+        for col, fn in ((0, np.minimum), (2, np.minimum), (1, np.maximum), (3, np.maximum)):
+            init = np.iinfo(np.int64).max if fn is np.minimum else -1
+            v = np.full(k, init, np.int64)
+            fn.at(v, lab, B[:, col])
+            nb[:, col] = v
+        B = nb
+        merged_any = True
+    return B, merged_any
+
+
+def _merge_painted(B: np.ndarray) -> np.ndarray:
+    """Bounding boxes of the connected pieces of the union of ``B`` (bins; pieces that only
+    touch are joined too, which merely makes a region a little larger)."""
+    from scipy import ndimage
+
+    nx, ny = int(B[:, 1].max()), int(B[:, 3].max())
+    cov = np.zeros((nx + 1, ny + 1), np.int64)
+    np.add.at(cov, (B[:, 0], B[:, 2]), 1)
+    np.add.at(cov, (B[:, 1], B[:, 2]), -1)
+    np.add.at(cov, (B[:, 0], B[:, 3]), -1)
+    np.add.at(cov, (B[:, 1], B[:, 3]), 1)
+    lab, _ = ndimage.label(cov.cumsum(0).cumsum(1)[:nx, :ny] > 0)
+    return np.array([[s[0].start, s[0].stop, s[1].start, s[1].stop]
+                     for s in ndimage.find_objects(lab)], np.int64)
