@@ -280,6 +280,7 @@ def place(design: Design, floorplan: Floorplan | None = None, *, target_density:
     cx, cy = out.centres()
     _initial_positions(st, cx, cy, mov_idx, seed)
     st.wirelength(cx, cy, out.orient, opts, opts.initial_iterations, progress, "global")
+    _gather_unconnected(st, cx, cy)
     res = st.spread(cx, cy, out.orient, opts, k0=0, max_it=opts.max_iterations, min_it=0,
                     target_overflow=opts.overflow_target, progress=progress, stage="global")
     _write_back(out, cx, cy, mov_idx)
@@ -342,6 +343,28 @@ def _initial_positions(st: _Stage, cx, cy, mov_idx: np.ndarray, seed: int) -> No
         cx[blk] = c[0] + span[0] * (0.25 + 0.5 * u)
         cy[blk] = c[1] + span[1] * (0.25 + 0.5 * v)
     st.clamp(cx, cy)
+
+
+def _gather_unconnected(st: _Stage, cx, cy) -> None:
+    """Blocks on no net, and groups that reach no fixed pin, have no place of their own: put
+    them at the area-weighted centre of the anchored movable blocks (the spreading then finds
+    them room), not wherever they started or at the core centre."""
+    lone = st.sys.pins_of_var == 0
+    fl = st.sys.floating & ~lone
+    k = ~(lone | st.sys.floating)
+    if not k.any():
+        return
+    v = st.vars
+    a = st.w * st.h
+    centre = (float(np.average(cx[v[k]], weights=a[k])),
+              float(np.average(cy[v[k]], weights=a[k])))
+    # groups that reach no fixed pin: moved as a whole, and pulled there from now on
+    if fl.any():
+        cx[v[fl]] += centre[0] - np.average(cx[v[fl]], weights=a[fl])
+        cy[v[fl]] += centre[1] - np.average(cy[v[fl]], weights=a[fl])
+        st.sys.core_centre = centre
+    cx[v[lone]] = centre[0]
+    cy[v[lone]] = centre[1]
 
 
 def _rows_stage(design: Design, out: Floorplan, src: Floorplan, opts: PlacerOptions,
