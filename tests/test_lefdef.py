@@ -672,3 +672,11 @@ def test_real_compressed_def_with_three_lefs():
         d = fw.load(REAL / "aes_cipher_top.def.gz", lef=lefs)
     assert d.num_blocks == 14635 + 389
     assert fw.evaluate(d, d.initial)["hpwl"] == pytest.approx(42567, rel=1e-4)
+
+
+def test_row_outside_the_die_names_its_row_statement(tmp_path):
+    # before: "rows reach outside the die" with neither a line nor a row
+    p = _broken(tmp_path, "ROW r1 kcore 20000 32000 FS", "ROW r1 kcore 20000 920000 FS")
+    with pytest.raises(DesignError, match="row 1 .*reaches outside the die") as e:
+        read_def(p, lef=LEFS)
+    assert e.value.where == "row 1" and e.value.line == _line_of(p, "ROW r1")

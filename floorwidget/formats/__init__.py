@@ -87,10 +87,11 @@ def load(path, lef: str | Sequence[str] | None = None, *, whitespace: float | No
 
 
 def save(design: Design, floorplan: Floorplan | None, path) -> None:
-    """Write ``floorplan`` (default: the design's initial one) by extension, atomically.
+    """Write ``floorplan`` (default: the design's initial one) by extension, all or nothing.
 
-    ``.aux`` writes a whole Bookshelf set beside it.  ``.def`` also writes LEF abstracts to
-    ``y.lef`` beside ``y.def`` when the design was not read with LEF libraries
+    ``.json``, ``.pl`` and ``.def`` are written compressed when ``path`` ends in ``.gz`` or
+    ``.bz2``.  ``.aux`` writes a whole Bookshelf set beside it.  ``.def`` also writes LEF
+    abstracts to ``y.lef`` beside ``y.def`` when the design was not read with LEF libraries
     (``design.lef_files`` empty), so that the pair reads back with ``load("y.def")``.
     """
     p = Path(path)

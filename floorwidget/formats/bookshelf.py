@@ -66,6 +66,7 @@ from ..design import (
     CELL,
     FIXED,
     MACRO,
+    MAX_SITES,
     MOVABLE,
     ORIENT_CODE,
     ORIENTATIONS,
@@ -778,8 +779,8 @@ def _read_scl(path) -> dict:
                     t.fail(ln, f"row starting on line {start_line} has no {need.title()}")
             x0 = num(pairs["subroworigin"], ln, "SubrowOrigin")
             ns = num(pairs["numsites"], ln, "NumSites", positive=True)
-            if ns != int(ns) or ns > 2**31:
-                t.fail(ln, "NumSites must be a whole number below 2**31")
+            if ns != int(ns) or ns > MAX_SITES:
+                t.fail(ln, f"NumSites must be a whole number up to {MAX_SITES}")
             sw = cur.get("sitespacing", cur.get("sitewidth", 1.0))
             rows["x"].append(x0)
             rows["y"].append(cur["coordinate"])

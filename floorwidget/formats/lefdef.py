@@ -1554,7 +1554,13 @@ class _Def:
                 status=np.concatenate([status, np.array(t_s, np.int8)]),
                 dbu=int(dbu))
         except DesignError as e:  # validation of the assembled design: name the file
-            raise DesignError(e.message, file=self.path, problems=e.problems,
+            line = None
+            m = re.fullmatch(r"row (\d+)", e.where or "")
+            if m and self.rows:  # a row problem: the line of its ROW statement
+                first = np.cumsum([r[6] for r in self.rows])
+                k = int(np.searchsorted(first, int(m.group(1)), side="right"))
+                line = self.line_at(self.rows[min(k, len(self.rows) - 1)][1])
+            raise DesignError(e.message, file=self.path, line=line, problems=e.problems,
                               where=e.where) from None
         design.source = self.path
         return design
