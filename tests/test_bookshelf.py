@@ -475,4 +475,3 @@ def test_unwritable_folder_is_named_as_the_output(tmp_path):
     d = read_aux(DATA / "tiny.aux")
     with pytest.raises(DesignError, match=r"nowhere/s\.aux: cannot write: folder"):
         write_aux(d, d.initial, tmp_path / "nowhere" / "s.aux")
-
