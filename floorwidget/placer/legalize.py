@@ -2,9 +2,13 @@
 
 What "legal" means here (the contract checked by ``tests/test_legalize.py``):
 
-* the **halo boxes** (footprint grown by the block's halo, left/bottom/right/top) of two macros
-  that this function is responsible for, and of such a macro and any other macro, have no
-  overlap of positive area (touching is allowed);
+* the **halo rule** (common practice): a halo is a keep-out around one macro, for standard
+  cells and for the *footprints* of other macros, and halos may overlap each other.  So the
+  footprint of a macro this function is responsible for has no overlap of positive area with
+  the *halo box* (footprint grown by the halo, left/bottom/right/top) of any other macro, and
+  no other macro's footprint overlaps its halo box (touching is allowed).  Facing footprints
+  are kept apart by the larger of the two facing halos (along x or along y), which implies
+  the rule;
 * a macro's **footprint** lies inside the core (the bounding box of the rows); its halo may hang
   over the core edge into the die margin but never beyond the die;
 * a macro's footprint has no overlap of positive area with a placement blockage (a halo may
@@ -51,10 +55,21 @@ Method
    accepted only when it lowers the displacement.  Pairs farther apart than twice the trust
    radius cannot meet, so the trust region keeps each round's constraint set sparse and exact.
 
+6. *Complete fallback.*  When the greedy search fails (retried with the failing macro first),
+   a sequence pair taken from the input positions (Murata, Fujiyoshi, Nakatake, Kajitani,
+   ICCAD 1995) is annealed to a legal fixed-outline packing, obstacles (pinned and fixed
+   macros, blockages) taking part in the pair at their fixed places (:class:`_Packer`; the
+   annealing and its slack-driven move follow Adya, Markov, IEEE TVLSI 2003; the packing is
+   the longest-path evaluation of the constraint graphs, in the role of the LCS evaluation of
+   Tang, Tian, Wong, DATE 2000, but with the pairwise halo separations), then one LP per axis
+   over all relations of the pair minimises the displacement, and step 5 follows.
+
 Notes
 -----
-Macro packing is NP-hard, so a "fits nowhere" error after the greedy search (retried with the
-failing macro moved to the front of the order) is a strong hint, not a proof, of infeasibility.
+Macro packing is NP-hard.  :class:`PlacementError` says which case it is: *impossible by
+area* (more footprint area than free core), *impossible* (a macro fits nowhere even with no
+other movable macro placed: a proof), or *search budget spent* (the sequence-pair search ran
+out of moves; the input may still be feasible).
 Orientation is kept: :func:`floorwidget.placer.orient.choose_orientations` chooses it.
 The result is an early-floorplanning estimate; sign-off belongs to the full implementation flow.
 """
@@ -78,6 +93,7 @@ __all__ = ["legalize_macros", "is_legal"]
 _EPS = 1e-9  # tolerance in grid units when turning a distance into a number of pitches
 _GRID_TOL = 1e-6  # µm, as in design.off_grid
 _EVAL_CELLS = 1 << 18  # candidate x obstacle comparisons per numpy chunk
+_T0 = 0.3  # initial annealing temperature, in median macro sides
 
 
 # ---------------------------------------------------------------------------------------------
@@ -681,8 +697,7 @@ def legalize_macros(design: Design, fp: Floorplan, *, macros: Iterable | None = 
         Greedy restarts with a macro that found no spot moved to the front of the order.
     pack_moves : int, optional
         Budget of the sequence-pair search that runs when the greedy search fails (default
-        1000 moves per macro, at least 20,000, fewer for very many macros; see
-        ``_pack_budget``).
+        about 3e10 / n² moves for n macros, between 300,000 and 10,000,000).
     progress : callable, optional
         ``progress(stage, fraction, info)``.
     **options
@@ -781,10 +796,10 @@ def legalize_macros(design: Design, fp: Floorplan, *, macros: Iterable | None = 
 
 
 def _pack_budget(n: int) -> int:
-    """Default annealing budget: 1000 moves per macro, at least 20,000, and at most about
-    3e10 / n² elementary steps (a move costs O(n²)), so the search stays within about a
-    minute on one core for a few hundred macros."""
-    return int(max(20_000, min(1000 * n, 3e10 / max(n, 1) ** 2)))
+    """Default annealing budget: about 3e10 / n² elementary steps (a move costs O(n²)), at
+    least 300,000 and at most 10,000,000 moves -- well under a minute on one core up to a
+    few hundred macros."""
+    return int(np.clip(3e10 / max(n, 1) ** 2, 300_000, 10_000_000))
 
 
 def _full(prob: _Problem, retries: int, report, pack_moves: int | None,
@@ -796,6 +811,11 @@ def _full(prob: _Problem, retries: int, report, pack_moves: int | None,
         x, y, failed = prob.place_greedy(order, prob.x0, prob.y0, still, prob.x0, prob.y0)
         if failed is None:
             return x, y
+        if failed == order[0]:  # placed first, it met only the obstacles: a proof
+            raise PlacementError(
+                f"impossible: macro {prob.design.names[prob.idx[failed]]!r} ({prob.w[failed]:g} "
+                f"x {prob.h[failed]:g} µm plus halo) fits nowhere in the core among the "
+                "blockages and pinned or fixed macros; free some room or enlarge the core")
         report("legalize", 0.3, {"retry": attempt + 1, "failed": prob.design.names[
             prob.idx[failed]]})
         order = np.concatenate([[failed], order[order != failed]])
@@ -874,28 +894,43 @@ class _Packer:
 
     def search(self, moves: int, seed: int, report) -> tuple[np.ndarray, np.ndarray] | None:
         """Simulated annealing over sequence-pair moves minimising the violation; ``(kx, ky)``
-        of the first legal packing, or None when ``moves`` are spent."""
+        of the first legal packing, or None when ``moves`` are spent.
+
+        The budget is spent in runs of ``max(30000, 500 n)`` moves, each cooling from the
+        same temperature to zero; runs start alternately from the starting pair and from a
+        random pair, each with its own random stream."""
         prob = self.prob
         n = self.n
-        gp, gm = self.gp.copy(), self.gm.copy()
-        kx, ky = np.zeros(n), np.zeros(n)
-        hix, hiy = np.zeros(n), np.zeros(n)
         args = (n, self.sx, self.sy, self.lbx, self.ubx, self.lby, self.uby, prob.kx0,
                 prob.kx1, prob.ky0, prob.ky1, prob.px, prob.py)
-        cost = _sp_pack(gp, gm, *args, kx, ky, hix, hiy)
-        scale = float(np.median(np.concatenate([prob.w, prob.h])))
-        chunk = 5000
-        state = np.array([cost, 0.05 * scale])
-        for start in range(0, moves, chunk):
-            if state[0] <= 0:
-                break
-            _sp_anneal(gp, gm, *args, kx, ky, hix, hiy, state, start, min(moves, start + chunk),
-                       moves, seed)
-            report("legalize", 0.3 + 0.3 * min(1.0, (start + chunk) / moves),
-                   {"stage": "packing", "violation": float(state[0])})
-        self.gp, self.gm = gp, gm
+        kx, ky = np.zeros(n), np.zeros(n)
+        hix, hiy = np.zeros(n), np.zeros(n)
+        t0 = _T0 * float(np.median(np.concatenate([prob.w, prob.h])))
+        chunk = 2000
+        run_length = max(30_000, 500 * n)
+        done = 0
+        run = 0
+        state = np.array([np.inf, t0])
+        rng = np.random.default_rng(seed)
+        while done < moves and state[0] > 0:
+            gp, gm = self.gp.copy(), self.gm.copy()
+            if run % 2:  # every other run from a random pair, to leave a deep basin behind
+                gp, gm = rng.permutation(gp), rng.permutation(gm)
+            state = np.array([_sp_pack(gp, gm, *args, kx, ky, hix, hiy), t0])
+            length = min(run_length, moves - done)
+            for start in range(0, length, chunk):
+                stop = min(length, start + chunk)
+                _sp_anneal(gp, gm, *args, kx, ky, hix, hiy, state, start, stop, length,
+                           seed * 7919 + run * 104729)
+                done += stop - start
+                report("legalize", 0.3 + 0.3 * done / moves,
+                       {"stage": "packing", "violation": float(state[0]), "restarts": run})
+                if state[0] <= 0:
+                    break
+            run += 1
         if state[0] > 0:
             return None
+        self.gp, self.gm = gp, gm
         return self.spread(kx, ky, hix, hiy)
 
     def spread(self, kx, ky, hix, hiy) -> tuple[np.ndarray, np.ndarray]:
