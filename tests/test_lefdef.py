@@ -14,6 +14,7 @@ Outside sources
 
 from __future__ import annotations
 
+import os
 import shutil
 import warnings
 from pathlib import Path
@@ -680,3 +681,27 @@ def test_row_outside_the_die_names_its_row_statement(tmp_path):
     with pytest.raises(DesignError, match="row 1 .*reaches outside the die") as e:
         read_def(p, lef=LEFS)
     assert e.value.where == "row 1" and e.value.line == _line_of(p, "ROW r1")
+
+
+def test_pair_in_two_folders_is_finished_by_the_next_load(demo_design, tmp_path, monkeypatch):
+    (tmp_path / "d").mkdir()
+    (tmp_path / "l").mkdir()
+    dpath, lpath = tmp_path / "d" / "x.def", tmp_path / "l" / "x.lef"
+    write_def_pair(demo_design, demo_design.initial, dpath, lpath)
+    fp = demo_design.initial.copy()
+    fp.x += 2.0
+    import floorwidget.formats._io as io_mod
+    real_replace = io_mod.os.replace
+
+    def fail_on_def(src, dst):  # the LEF is renamed, then the writer "dies" before the DEF
+        if str(dst).endswith("x.def"):
+            raise OSError(5, "Input/output error")
+        return real_replace(src, dst)
+
+    monkeypatch.setattr(io_mod.os, "replace", fail_on_def)
+    with pytest.raises(DesignError, match=r"x\.def: cannot write"):
+        write_def_pair(demo_design, fp, dpath, lpath)
+    monkeypatch.undo()
+    back = read_def(dpath, lef=[lpath])  # finishes the committed pair first
+    assert np.allclose(back.initial.x, fp.x, atol=1e-3)
+    assert not [n for d in ("d", "l") for n in os.listdir(tmp_path / d) if ".fw-" in n]

@@ -205,9 +205,10 @@ def recover(path) -> None:
         if m["ext"] == "commit":
             with contextlib.suppress(OSError, ValueError, TypeError):
                 pairs = json.loads((directory / n).read_text("utf-8"))
-                for tmp, final in pairs:
-                    if (directory / tmp).exists():
-                        os.replace(directory / tmp, directory / final)
+                for tmp, final in pairs:  # names in this folder, or absolute paths
+                    tmp, final = directory / tmp, directory / final
+                    if _TEMP.match(tmp.name) and tmp.parent == final.parent and tmp.exists():
+                        os.replace(tmp, final)
                 os.unlink(directory / n)
     for n, m in dead:
         if m["ext"] == "tmp":
@@ -269,6 +270,9 @@ def write_files(items: Sequence[tuple[Path | str, Callable]], mode: str = "w",
                 encoding: str | None = "utf-8") -> None:
     """Write a set of files all or nothing (see the module docstring for the protocol).
 
+    The commit record sits beside the last file of ``items``; a set spread over several
+    folders is finished by a load from that last file's folder.
+
     Parameters
     ----------
     items : sequence of (path, write)
@@ -308,11 +312,15 @@ def write_files(items: Sequence[tuple[Path | str, Callable]], mode: str = "w",
                     os.fsync(raw.fileno())
             except OSError as e:
                 raise _write_error(p, e) from None
-        if len(paths) > 1:
-            record = _temp_name(paths[0], tag, "commit")
-            rec_tmp = _temp_name(paths[0].with_name(paths[0].name + ".commit"), tag)
+        if len(paths) > 1:  # the record sits beside the last file (the one users load)
+            main = paths[-1]
+            record = _temp_name(main, tag, "commit")
+            rec_tmp = _temp_name(main.with_name(main.name + ".commit"), tag)
             temps.append(rec_tmp)
-            pairs = [[t.name, p.name] for t, p in zip(temps, paths)]
+            here = os.path.abspath(main.parent)
+            pairs = [[t.name, p.name] if os.path.abspath(p.parent) == here
+                     else [os.path.abspath(t), os.path.abspath(p)]
+                     for t, p in zip(temps, paths)]
             try:
                 with open(rec_tmp, "w", encoding="utf-8") as f:
                     json.dump(pairs, f)
@@ -320,9 +328,9 @@ def write_files(items: Sequence[tuple[Path | str, Callable]], mode: str = "w",
                     os.fsync(f.fileno())
                 os.replace(rec_tmp, record)
             except OSError as e:
-                raise _write_error(paths[0], e) from None
+                raise _write_error(main, e) from None
             temps.pop()
-            _fsync_dir(paths[0].parent)
+            _fsync_dir(main.parent)
         for t, p in zip(list(temps), paths):
             try:
                 os.replace(t, p)
