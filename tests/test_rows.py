@@ -36,6 +36,8 @@ def row_design(widths, xs, ys, *, rows=1, sites=400, site=1.0, row_h=10.0, macro
         rng = np.random.default_rng(seed)
         nets = [list(rng.choice(n, size=int(rng.integers(2, 5)), replace=False))
                 for _ in range(max(1, 2 * nc))]
+        # and a few large nets (a clock, a reset), whose boxes the kernels update incrementally
+        nets += [list(rng.choice(n, size=min(n, 60), replace=False)) for _ in range(3)]
     start = np.cumsum([0] + [len(p) for p in nets])
     pins = [b for p in nets for b in p]
     hl = np.zeros((n, 4))

@@ -31,6 +31,7 @@ from typing import Any
 import numpy as np
 
 from ..design import CELL, CLUSTER, MACRO, MOVABLE, TERMINAL, Design, Floorplan
+from ..metrics import hpwl
 from .errors import PlacementError, PlacementWarning
 from .legalize import legalize_macros
 from .options import PlacerOptions, check_range, make_options, net_multipliers
@@ -371,6 +372,7 @@ def _rows_stage(design: Design, out: Floorplan, src: Floorplan, opts: PlacerOpti
                 info: dict, progress: Progress) -> Floorplan:
     """Standard cells onto rows and sites (Abacus), then swap-based detailed placement, when
     ``cells="legal"``; timed and reported as the stages ``"rows"`` and ``"detail"``."""
+    info["hpwl_global"] = hpwl(design, out)
     if opts.cells != "legal":
         return out
     cells = cell_mask(design, src)

@@ -403,10 +403,44 @@ def _fill_runs(occ: np.ndarray, start: np.ndarray, length: np.ndarray, value: np
     occ[np.repeat(start, length) + (np.arange(tot) - first[rep])] = np.repeat(value, length)
 
 
+SMALL_NET = 16  # nets with more pins update their bounding box incrementally when they can
+
+
 @njit(cache=True)
-def _net_span(net, ns, pb, pdx, pdy, bx, by, osign, a, ax, ay, asg, b, bxx, byy, bsg):
-    """HPWL of ``net`` with blocks ``a`` and ``b`` moved to centres (ax, ay) / (bxx, byy) and
-    y-offset signs ``asg`` / ``bsg`` (a = -1: no override)."""
+def _bbox_after(net, N, bx, by, osign, a, ax, ay, asg, b, bxx, byy, bsg):
+    """Bounding box ``x0, x1, y0, y1`` of ``net`` once block ``a`` is centred at (ax, ay) with
+    y-offset sign ``asg`` and ``b`` at (bxx, byy, bsg) (-1: no such block).
+
+    A large net whose moved pins all lie strictly inside its stored box only grows by their
+    new positions (its box cannot shrink); otherwise the box is recomputed from every pin."""
+    ns, pb, pdx, pdy, bnet_s, bnets, bpins, bb = N
+    if ns[net + 1] - ns[net] > SMALL_NET:
+        x0, x1, y0, y1 = bb[net, 0], bb[net, 1], bb[net, 2], bb[net, 3]
+        nx0, nx1, ny0, ny1 = x0, x1, y0, y1
+        inside = True
+        for side in range(2):
+            blk = a if side == 0 else b
+            if blk < 0:
+                continue
+            cx = ax if side == 0 else bxx
+            cy = ay if side == 0 else byy
+            sg = asg if side == 0 else bsg
+            for t in range(bnet_s[blk], bnet_s[blk + 1]):
+                if bnets[t] != net:
+                    continue
+                p = bpins[t]
+                ox = bx[blk] + pdx[p]
+                oy = by[blk] + osign[blk] * pdy[p]
+                if not (x0 < ox < x1 and y0 < oy < y1):
+                    inside = False
+                x = cx + pdx[p]
+                y = cy + sg * pdy[p]
+                nx0 = min(nx0, x)
+                nx1 = max(nx1, x)
+                ny0 = min(ny0, y)
+                ny1 = max(ny1, y)
+        if inside:
+            return nx0, nx1, ny0, ny1
     x0 = np.inf
     x1 = -np.inf
     y0 = np.inf
@@ -422,44 +456,44 @@ def _net_span(net, ns, pb, pdx, pdy, bx, by, osign, a, ax, ay, asg, b, bxx, byy,
         else:
             x = bx[k] + pdx[p]
             y = by[k] + osign[k] * pdy[p]
-        if x < x0:
-            x0 = x
-        if x > x1:
-            x1 = x
-        if y < y0:
-            y0 = y
-        if y > y1:
-            y1 = y
-    return (x1 - x0) + (y1 - y0)
+        x0 = min(x0, x)
+        x1 = max(x1, x)
+        y0 = min(y0, y)
+        y1 = max(y1, y)
+    return x0, x1, y0, y1
 
 
 @njit(cache=True)
-def _swap_gain(i, j, nxi, nyi, sgi, nxj, nyj, sgj, bnet_s, bnets, ns, pb, pdx, pdy, bx, by,
-               osign, stamp, tick):
-    """HPWL before minus after moving i and j to their new centres (nets counted once)."""
+def _swap_gain(i, j, nxi, nyi, sgi, nxj, nyj, sgj, N, bx, by, osign, stamp, tick, commit):
+    """HPWL before minus after moving i (and j, unless -1) to their new centres, every net
+    counted once; with ``commit`` the stored net boxes take their new values."""
+    bnet_s, bnets, bb = N[4], N[5], N[7]
     gain = 0.0
-    for t in range(bnet_s[i], bnet_s[i + 1]):
-        net = bnets[t]
-        stamp[net] = tick
-        gain += _net_span(net, ns, pb, pdx, pdy, bx, by, osign, -1, 0.0, 0.0, 1.0, -1, 0.0,
-                          0.0, 1.0)
-        gain -= _net_span(net, ns, pb, pdx, pdy, bx, by, osign, i, nxi, nyi, sgi, j, nxj, nyj,
-                          sgj)
-    for t in range(bnet_s[j], bnet_s[j + 1] if j >= 0 else bnet_s[j]):
-        net = bnets[t]
-        if stamp[net] == tick:
+    for side in range(2):
+        blk = i if side == 0 else j
+        if blk < 0:
             continue
-        gain += _net_span(net, ns, pb, pdx, pdy, bx, by, osign, -1, 0.0, 0.0, 1.0, -1, 0.0,
-                          0.0, 1.0)
-        gain -= _net_span(net, ns, pb, pdx, pdy, bx, by, osign, i, nxi, nyi, sgi, j, nxj, nyj,
-                          sgj)
+        for t in range(bnet_s[blk], bnet_s[blk + 1]):
+            net = bnets[t]
+            if stamp[net] == tick:
+                continue
+            stamp[net] = tick
+            x0, x1, y0, y1 = _bbox_after(net, N, bx, by, osign, i, nxi, nyi, sgi, j, nxj,
+                                         nyj, sgj)
+            gain += (bb[net, 1] - bb[net, 0] + bb[net, 3] - bb[net, 2]) - (x1 - x0 + y1 - y0)
+            if commit:
+                bb[net, 0] = x0
+                bb[net, 1] = x1
+                bb[net, 2] = y0
+                bb[net, 3] = y1
     return gain
 
 
 @njit(cache=True)
-def _median_target(i, bnet_s, bnets, ns, pb, pdx, pdy, bx, by, osign, maxdeg, buf_x, buf_y):
+def _median_target(i, N, bx, by, osign, maxdeg, buf_x, buf_y):
     """Centre of the optimal region of block i: the median of the bounding-box ends of its
     nets without it (returns NaN when it has no such net)."""
+    ns, pb, pdx, pdy, bnet_s, bnets = N[0], N[1], N[2], N[3], N[4], N[5]
     m = 0
     for t in range(bnet_s[i], bnet_s[i + 1]):
         net = bnets[t]
@@ -495,12 +529,12 @@ def _median_target(i, bnet_s, bnets, ns, pb, pdx, pdy, bx, by, osign, maxdeg, bu
 
 @njit(cache=True)
 def _global_moves(cells, wsite, bx, by, hgt, osign, row_of_cell, site_of_cell, occ, row_off,
-                  r_x0, r_sw, r_y, r_ns, r_sign, rows_by_y, bnet_s, bnets, ns, pb, pdx, pdy,
-                  maxdeg, passes, nbuf, reach_rows, reach_sites):
+                  r_x0, r_sw, r_y, r_ns, r_sign, rows_by_y, N, maxdeg, passes, nbuf,
+                  reach_rows, reach_sites):
     """Global moves and swaps: each cell goes to a free run of sites, or swaps with a cell of
     its width, near its optimal region, on the best strict HPWL gain.  ``occ`` maps every
     site of every row to the cell on it (-1 free, -2 blocked)."""
-    stamp = np.zeros(len(ns) - 1, np.int64)
+    stamp = np.zeros(len(N[0]) - 1, np.int64)
     tick = 0
     buf_x = np.empty(nbuf)
     buf_y = np.empty(nbuf)
@@ -511,8 +545,7 @@ def _global_moves(cells, wsite, bx, by, hgt, osign, row_of_cell, site_of_cell, o
     for _p in range(passes):
         for ci in range(len(cells)):
             i = cells[ci]
-            tx, ty = _median_target(i, bnet_s, bnets, ns, pb, pdx, pdy, bx, by, osign, maxdeg,
-                                    buf_x, buf_y)
+            tx, ty = _median_target(i, N, bx, by, osign, maxdeg, buf_x, buf_y)
             if np.isnan(tx):
                 continue
             w = wsite[i]
@@ -561,9 +594,8 @@ def _global_moves(cells, wsite, bx, by, hgt, osign, row_of_cell, site_of_cell, o
                             if not (r == r0 and sp == s0):
                                 nx_ = r_x0[r] + (sp + w / 2.0) * sw
                                 tick += 1
-                                g = _swap_gain(i, -1, nx_, ny_, sg, 0.0, 0.0, 1.0, bnet_s,
-                                               bnets, ns, pb, pdx, pdy, bx, by, osign, stamp,
-                                               tick)
+                                g = _swap_gain(i, -1, nx_, ny_, sg, 0.0, 0.0, 1.0, N, bx,
+                                               by, osign, stamp, tick, False)
                                 if g > best:
                                     best, best_r, best_s, best_j = g, r, sp, -1
                         q = e
@@ -571,8 +603,8 @@ def _global_moves(cells, wsite, bx, by, hgt, osign, row_of_cell, site_of_cell, o
                         if wsite[c] == w and site_of_cell[c] == q and row_of_cell[c] == r:
                             tick += 1
                             g = _swap_gain(i, c, bx[c], ny_, sg, bx[i],
-                                           r_y[r0] + hgt[c] / 2, osign[i], bnet_s, bnets, ns,
-                                           pb, pdx, pdy, bx, by, osign, stamp, tick)
+                                           r_y[r0] + hgt[c] / 2, osign[i], N, bx, by, osign,
+                                           stamp, tick, False)
                             if g > best:
                                 best, best_r, best_s, best_j = g, r, q, c
                         q += 1
@@ -583,7 +615,10 @@ def _global_moves(cells, wsite, bx, by, hgt, osign, row_of_cell, site_of_cell, o
             r = best_r
             sp = best_s
             j = best_j
+            tick += 1
             if j >= 0:
+                _swap_gain(i, j, bx[j], r_y[r] + hgt[i] / 2, osign[j], bx[i],
+                           r_y[r0] + hgt[j] / 2, osign[i], N, bx, by, osign, stamp, tick, True)
                 xi, gi = bx[i], osign[i]
                 bx[i], by[i], osign[i] = bx[j], r_y[r] + hgt[i] / 2, osign[j]
                 bx[j], by[j], osign[j] = xi, r_y[r0] + hgt[j] / 2, gi
@@ -592,6 +627,8 @@ def _global_moves(cells, wsite, bx, by, hgt, osign, row_of_cell, site_of_cell, o
                     occ[row_off[r0] + s0 + t] = j
                     occ[row_off[r] + sp + t] = i
             else:
+                _swap_gain(i, -1, r_x0[r] + (sp + w / 2.0) * r_sw[r], r_y[r] + hgt[i] / 2,
+                           r_sign[r], 0.0, 0.0, 1.0, N, bx, by, osign, stamp, tick, True)
                 for t in range(w):
                     occ[row_off[r0] + s0 + t] = -1
                 for t in range(w):
@@ -606,10 +643,9 @@ def _global_moves(cells, wsite, bx, by, hgt, osign, row_of_cell, site_of_cell, o
 
 
 @njit(cache=True)
-def _adjacent_swap(seq_start, seq, wum, bx, by, osign, bnet_s, bnets, ns, pb, pdx, pdy,
-                   passes):
+def _adjacent_swap(seq_start, seq, wum, bx, by, osign, N, passes):
     """Swap neighbouring cells of a segment (the pair keeps its span) on a strict gain."""
-    stamp = np.zeros(len(ns) - 1, np.int64)
+    stamp = np.zeros(len(N[0]) - 1, np.int64)
     tick = 0
     total = 0.0
     swaps = 0
@@ -623,9 +659,12 @@ def _adjacent_swap(seq_start, seq, wum, bx, by, osign, bnet_s, bnets, ns, pb, pd
                 nbx = left + wum[b] / 2
                 nax = right - wum[a] / 2
                 tick += 1
-                g = _swap_gain(a, b, nax, by[a], osign[a], nbx, by[b], osign[b], bnet_s,
-                               bnets, ns, pb, pdx, pdy, bx, by, osign, stamp, tick)
+                g = _swap_gain(a, b, nax, by[a], osign[a], nbx, by[b], osign[b], N, bx, by,
+                               osign, stamp, tick, False)
                 if g > 1e-9:
+                    tick += 1
+                    _swap_gain(a, b, nax, by[a], osign[a], nbx, by[b], osign[b], N, bx, by,
+                               osign, stamp, tick, True)
                     bx[a] = nax
                     bx[b] = nbx
                     seq[t] = b
@@ -683,6 +722,13 @@ def detailed_place(design: Design, fp: Floorplan, cells: np.ndarray | None = Non
     bnets = np.ascontiguousarray(pn[o])
     bnet_s = np.concatenate([[0], np.cumsum(np.bincount(pb, minlength=design.num_blocks))])
     ns = design.net_start
+    # every net's pin bounding box, kept up to date by the kernels
+    px = bx[pb] + pdx
+    py = by[pb] + osign[pb] * pdy
+    st = ns[:-1]
+    bb = np.stack([np.minimum.reduceat(px, st), np.maximum.reduceat(px, st),
+                   np.minimum.reduceat(py, st), np.maximum.reduceat(py, st)], axis=1)
+    N = (ns, pb, pdx, pdy, bnet_s, bnets, o.astype(np.int64), np.ascontiguousarray(bb))
     # every site of every row: the cell on it, -1 free, -2 blocked
     seg = row_segments(design, fp, cells)
     nsites = design.row_num_sites.astype(np.int64)
@@ -714,8 +760,8 @@ def detailed_place(design: Design, fp: Floorplan, cells: np.ndarray | None = Non
     for _p in range(passes):  # until a pass saves less than min_gain of what is left
         g, k = _global_moves(order, wsite, bx, by, h.astype(np.float64), osign, row_of_cell,
                              site_of_cell, occ, row_off, design.row_x, design.row_site_width,
-                             design.row_y, nsites, r_sign, rows_by_y, bnet_s, bnets, ns, pb,
-                             pdx, pdy, max_degree, 1, nbuf, 3, 24)
+                             design.row_y, nsites, r_sign, rows_by_y, N, max_degree, 1, nbuf,
+                             3, 24)
         g1 += g
         n1 += k
         if g < min_gain * max(hpwl0 - g1, 1e-12):
@@ -735,8 +781,7 @@ def detailed_place(design: Design, fp: Floorplan, cells: np.ndarray | None = Non
     brk = np.union1d(brk, np.concatenate([np.flatnonzero(frac), np.flatnonzero(frac) + 1]))
     brk = brk[(brk > 0) & (brk < len(o2))]
     seq_start = np.concatenate([[0], brk, [len(o2)]]).astype(np.int64)
-    g2, n2 = _adjacent_swap(seq_start, o2.copy(), w.astype(np.float64), bx, by, osign, bnet_s,
-                            bnets, ns, pb, pdx, pdy, 2)
+    g2, n2 = _adjacent_swap(seq_start, o2.copy(), w.astype(np.float64), bx, by, osign, N, 2)
     out.x[idx] = bx[idx] - w[idx] / 2
     out.y[idx] = by[idx] - h[idx] / 2
     out.orient[idx] = np.where(osign[idx] < 0, ORIENT_CODE["FS"], ORIENT_CODE["N"])

@@ -1,0 +1,152 @@
+"""Placement of the public benchmark designs in ``../shared/realdata`` with default options.
+
+``python benchmarks/bench_real.py [--only ibm01,aes] [--data DIR]``
+
+Each design runs in its own subprocess (its peak memory is its own) with ``fw.place(design)``
+and nothing else: default target density (raised to fit when the design is fuller), legal cells,
+detailed placement.  Columns: cells, macros (movable ones in brackets), utilisation, wall and CPU
+seconds, peak MB, HPWL after global placement, HPWL legal, legal (cells and macros), and the
+yardstick: the DEF's own placement measured by ``floorwidget report`` for the contest designs,
+or a figure remembered from the literature of the suite's day ("from memory": not exact, and
+for similar but not always identical versions of the files).  ``ariane136 (movable SRAMs)`` is a
+copy of the DEF with the SRAMs' ``FIXED`` turned into ``PLACED``, made in a temporary folder.
+
+Targets (2 cores; defaults, no options), from the issues:
+
+* ibm01-mixed legal, HPWL ≤ 2.9e6; ibm05 legal, HPWL ≤ 1.0e7;
+* GSRC n200 and n300 at 10 % whitespace legal, n300 HPWL ≤ 5.4e5;
+* aes_cipher_top legal, HPWL ≤ 1.10 × reference; ariane136 legal, ≤ 1.15 × reference and
+  ≤ 60 s; ariane136 with movable SRAMs legal, ≤ 1.30 × reference.
+
+The figures are early-floorplanning estimates; sign-off belongs to the implementation flow.
+"""
+
+from __future__ import annotations
+
+import argparse
+import gzip
+import json
+import re
+import resource
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parents[1]
+DATA = ROOT.parent / "shared" / "realdata"
+sys.path.insert(0, str(ROOT))
+
+# name: (folder, file pattern, yardstick HPWL or None, yardstick note)
+DESIGNS = {
+    "ibm01": ("ibm01-mixed", "*.aux", 2.5e6, "≈2.5e6 literature, from memory"),
+    "ibm05": ("ibm05", "*.aux", 9.8e6, "≈9.8e6 literature, from memory"),
+    "n200": ("gsrc-n200", "*.hardblocks", None, ""),
+    "n300": ("gsrc-n300", "*.hardblocks", 5.0e5, "≈5.0e5 literature, from memory"),
+    "aes": ("aes_cipher_top", "*.def.gz", "ref", "DEF's own placement"),
+    "ariane": ("ariane136", "*.def.gz", "ref", "DEF's own placement"),
+    "ariane-movable": ("ariane136", "*.def.gz", "ref", "DEF's own placement"),
+}
+
+
+def _lefs(folder: Path) -> list[str]:
+    lefs = sorted(str(p) for p in folder.glob("*.lef"))
+    return [p for p in lefs if "tech" in Path(p).name] + \
+        [p for p in lefs if "tech" not in Path(p).name]
+
+
+def _movable_copy(def_gz: Path, tmp: Path) -> Path:
+    """The DEF with every SRAM component ``FIXED`` turned into ``PLACED``."""
+    out = tmp / def_gz.name
+    text = gzip.decompress(def_gz.read_bytes()).decode()
+    text = re.sub(r"(- \S+ sram\S*\s+\+ )FIXED", r"\1PLACED", text)
+    out.write_bytes(gzip.compress(text.encode(), compresslevel=1))
+    return out
+
+
+def _child(name: str, data: Path) -> dict:
+    import numpy as np
+
+    import floorwidget as fw
+    from floorwidget.design import CELL, MACRO, MOVABLE
+    from floorwidget.placer.flow import utilisation
+
+    folder, pattern, ref, _ = DESIGNS[name]
+    path = next((data / folder).glob(pattern))
+    lef = _lefs(data / folder) if path.name.endswith((".def", ".def.gz")) else None
+    with tempfile.TemporaryDirectory() as tmp:
+        if name == "ariane-movable":
+            path = _movable_copy(path, Path(tmp))
+        d = fw.load(path, lef=lef)
+        out: dict = {"name": name}
+        if ref == "ref":
+            out["ref"] = fw.evaluate(d)["hpwl"]
+        else:
+            out["ref"] = ref
+        st = d.initial.status
+        out["cells"] = int((d.kind == CELL).sum())
+        out["macros"] = int((d.kind == MACRO).sum())
+        out["movable_macros"] = int(((d.kind == MACRO) & (st == MOVABLE)).sum())
+        out["util"] = utilisation(d, d.initial)
+        t = time.perf_counter()
+        c = time.process_time()
+        fp = fw.place(d)
+        out["wall"] = time.perf_counter() - t
+        out["cpu"] = time.process_time() - c
+        rep = fw.evaluate(d, fp)
+        out["hpwl_global"] = fp.info.get("hpwl_global", rep["hpwl"])
+        out["hpwl"] = rep["hpwl"]
+        out["legal"] = rep["legal"]
+        out["target"] = rep["target_density"]
+        out["stages"] = {k: round(v, 1) for k, v in fp.info["stage_seconds"].items()}
+        out["narrow"] = int(np.sum(fp.info.get("narrow_channels", 0)))
+    out["peak_mb"] = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+    return out
+
+
+def main(argv: list[str]) -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--only", default=",".join(DESIGNS), help="comma-separated design names")
+    ap.add_argument("--data", default=str(DATA), help="folder of the benchmark designs")
+    ap.add_argument("--quick", action="store_true", help="the small designs only")
+    ap.add_argument("--child", help=argparse.SUPPRESS)
+    a = ap.parse_args(argv)
+    data = Path(a.data)
+    if a.child:
+        print(json.dumps(_child(a.child, data)))
+        return 0
+    if not data.is_dir():
+        print(f"no benchmark designs at {data}; nothing to measure")
+        return 0
+    names = [n for n in a.only.split(",") if n]
+    if a.quick:
+        names = [n for n in names if n in ("ibm01", "aes", "n200")]
+    print("| design | cells | macros (movable) | util | target | wall s | CPU s | peak MB "
+          "| HPWL global | HPWL legal | legal | yardstick | ÷ yardstick | stages s |")
+    print("|---|---:|---:|---:|---:|---:|---:|---:|---:|---:|---|---:|---:|---|")
+    status = 0
+    for name in names:
+        if name not in DESIGNS or not (data / DESIGNS[name][0]).is_dir():
+            print(f"| {name} | (no data) |")
+            continue
+        p = subprocess.run([sys.executable, __file__, "--child", name, "--data", str(data)],
+                           capture_output=True, text=True)
+        if p.returncode != 0:
+            print(f"| {name} | error: {(p.stderr.strip().splitlines() or ['?'])[-1]} |")
+            status = 1
+            continue
+        r = json.loads(p.stdout.strip().splitlines()[-1])
+        ref = r["ref"]
+        note = DESIGNS[name][3]
+        ratio = f"{r['hpwl'] / ref:.3f}" if ref else "—"
+        yard = f"{ref:.4g} ({note})" if ref else "—"
+        print(f"| {name} | {r['cells']} | {r['macros']} ({r['movable_macros']}) | "
+              f"{r['util']:.2f} | {r['target']:.2f} | {r['wall']:.1f} | {r['cpu']:.1f} | "
+              f"{r['peak_mb']:.0f} | {r['hpwl_global']:.4g} | {r['hpwl']:.4g} | {r['legal']} | "
+              f"{yard} | {ratio} | {r['stages']} |", flush=True)
+    return status
+
+
+if __name__ == "__main__":
+    sys.exit(main(sys.argv[1:]))
