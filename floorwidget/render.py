@@ -81,7 +81,8 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
         Heat layer: bin utilisation (:func:`floorwidget.metrics.density_map`) or RUDY demand
         (:func:`floorwidget.metrics.rudy_map`).
     show_labels : bool
-        Write macro names (skipped above :data:`MAX_LABELS` macros).
+        Write macro names (skipped above :data:`MAX_LABELS` macros), long hierarchical ones
+        shortened by :func:`floorwidget.style.short_labels`; the SVG ids keep the full names.
     ax : matplotlib Axes, optional
         Draw into these axes instead of a new figure.
     figsize : (float, float), optional
@@ -236,8 +237,9 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
         ax.add_collection(notch)
         if show_labels and len(mac) <= MAX_LABELS:
             fs = float(np.clip(700.0 / max(dw, dh) * np.sqrt(np.median(w0 * h0)) / 8.0, 4.0, 8.0))
-            for i, x, y in zip(mac, cx, cy):
-                ax.text(x, y, design.names[i], ha="center", va="center", fontsize=fs,
+            labels = style.short_labels([design.names[i] for i in mac])
+            for lab, x, y in zip(labels, cx, cy):
+                ax.text(x, y, lab, ha="center", va="center", fontsize=fs,
                         zorder=6, clip_on=True, color=style.BLACK)
 
     # --- terminals -----------------------------------------------------------------------

@@ -20,6 +20,9 @@ and as the nearest bqplot ``line_style`` name (``bq_line_style``).
 
 from __future__ import annotations
 
+import re
+from collections import Counter
+from collections.abc import Sequence
 from dataclasses import dataclass
 
 from .design import CELL, CLUSTER, FIXED, MACRO, MOVABLE, PINNED, TERMINAL
@@ -51,6 +54,7 @@ __all__ = [
     "heat_scale",
     "status_style",
     "mpl_colormap",
+    "short_labels",
 ]
 
 # --- Okabe-Ito (2008) -------------------------------------------------------------------------
@@ -190,3 +194,66 @@ def mpl_colormap(kind: str):
     from matplotlib.colors import LinearSegmentedColormap
 
     return LinearSegmentedColormap.from_list(f"floorwidget_{kind}", list(heat_scale(kind)))
+
+
+# --- labels -----------------------------------------------------------------------------------
+
+_HIER = re.compile(r"([/|.])")  # hierarchy separators kept in labels
+_ELLIPSIS = "\u2026"
+
+
+def _label(name: str, level: int, max_len: int) -> str:
+    """``name`` shortened at detail ``level`` (1 = first component and leaf; higher keeps more
+    components before the leaf; the full name once nothing is left out)."""
+    parts = _HIER.split(name)  # components at even indices, separators at odd ones
+    comps = parts[0::2]
+    if len(comps) == 1:  # one long component: its start and its end
+        if level > 1:
+            return name
+        keep = max(max_len - 1, 4)
+        return name[: keep // 3] + _ELLIPSIS + name[len(name) - (keep - keep // 3):]
+    if level >= len(comps) - 1:
+        return name
+    head = comps[0] if len(comps[0]) <= 12 else comps[0][:11] + _ELLIPSIS
+    tail = "".join(parts[len(parts) - 2 * level + 1:])  # the last `level` components
+    out = head + parts[1] + _ELLIPSIS + parts[len(parts) - 2 * level] + tail
+    return out if len(out) < len(name) else name
+
+
+def short_labels(names: Sequence[str], max_len: int = 24) -> list[str]:
+    """Display labels for (hierarchical) block names: short, readable and all different.
+
+    A name of at most ``max_len`` characters is its own label.  A longer one keeps its first
+    component (cut to 12 characters) and its leaf, with an ellipsis for what lies between
+    (``top/…/sram_0``); hierarchy separators are ``/``, ``|`` and ``.``.  A name without a
+    separator keeps its start and end.  Where two labels would be equal, each of them keeps
+    one more component before the leaf, and so on; a name that cannot be told apart
+    otherwise is shown in full.  Names are assumed different (as block names are).
+
+    Parameters
+    ----------
+    names : sequence of str
+    max_len : int
+        Names up to this length are not shortened.
+
+    Returns
+    -------
+    list of str
+        One label per name, pairwise different when the names are.
+
+    Examples
+    --------
+    >>> short_labels(["soc/mem_subsystem/bank0/sram_64k", "soc/mem_subsystem/bank1/sram_64k",
+    ...               "soc/io/pads"])
+    ['soc/\u2026/bank0/sram_64k', 'soc/\u2026/bank1/sram_64k', 'soc/io/pads']
+    """
+    level = [0 if len(nm) <= max_len else 1 for nm in names]
+    labels = [nm if lv == 0 else _label(nm, lv, max_len) for nm, lv in zip(names, level)]
+    while True:
+        count = Counter(labels)
+        clash = [i for i, lab in enumerate(labels) if count[lab] > 1 and labels[i] != names[i]]
+        if not clash:
+            return labels
+        for i in clash:
+            level[i] += 1
+            labels[i] = _label(names[i], level[i], max_len)

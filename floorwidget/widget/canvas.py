@@ -16,6 +16,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..design import MACRO, STATUS_NAMES, TERMINAL, Design, Floorplan
+from ..style import short_labels
 from . import geometry as geo
 from ._style import heat_colors, status_style, ui_colors
 
@@ -87,6 +88,10 @@ class Canvas:
         self.interactive = interactive
         self.margin = 8 if interactive else 2
         self.macro_idx = np.flatnonzero(design.kind == MACRO)
+        # display labels: long hierarchical names shortened, all different (full names in the
+        # details panel)
+        self.labels = np.array(short_labels([design.names[i] for i in self.macro_idx]),
+                               dtype=object)
         self.selected: np.ndarray = np.zeros(0, np.intp)
         self._illegal = np.zeros(design.num_blocks, bool)
         self.heat: str | None = None
@@ -239,14 +244,14 @@ class Canvas:
         mk = self.marks.get("labels")
         if mk is None:
             return
-        d, fp = self.design, self.fp
+        fp = self.fp
         idx = self.macro_idx
         if idx.size == 0:
             mk.visible = False
             return
         w, h = fp.sizes()
         cx, cy = fp.centres()
-        names = np.array([d.names[i] for i in idx], dtype=object)
+        names = self.labels
         nchar = np.array([len(s) for s in names])
         ppu = self.px_per_um
         xs, ys = self.x_scale, self.y_scale
