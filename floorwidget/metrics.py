@@ -797,7 +797,7 @@ def evaluate(design: Design, fp: Floorplan | None = None, target_density: float 
     dict
         Keys :data:`REPORT_KEYS`: ``hpwl`` and ``hpwl_weighted`` (µm), ``density_overflow``,
         ``peak_density``, ``congestion_peak`` and ``congestion_p99`` (RUDY, µm/µm²),
-        ``macro_overlaps`` (pairs, halos included), ``macro_overlap_area`` (µm²),
+        ``macro_overlaps`` (pairs in conflict under the halo rule), ``macro_overlap_area`` (µm²),
         ``out_of_die`` (blocks), ``off_grid`` (macros), ``legal``, ``num_blocks``, ``num_nets``.
 
     Examples

@@ -369,6 +369,21 @@ def test_halo_rule_hand_worked_areas():
     assert leg["macro_overlap_area"] == pytest.approx(70.0)
 
 
+def test_fixed_pair_with_overlapping_halos_reads_legal_from_def(tmp_path):
+    # two fixed macros 4 µm apart with 2 µm halos all round (their halo boxes overlap, neither
+    # footprint enters the other's halo): legal, and the DEF '+ HALO' survives a round trip
+    import floorwidget as fw
+
+    d = make_design([20, 20], [10, 10], [MACRO, MACRO], [[(0, 0, 0), (1, 0, 0)]], halo=2.0)
+    fp = Floorplan(d, [10.0, 34.0], [10.0, 10.0], None, [FIXED, FIXED])
+    assert M.legality(d, fp)["legal"]
+    fw.save(d, fp, tmp_path / "pair.def")
+    back = fw.load(tmp_path / "pair.def")
+    assert back.halo.tolist() == d.halo.tolist()
+    leg = M.legality(back, back.initial)
+    assert leg["legal"] and leg["macro_overlaps"] == 0
+
+
 def test_evaluate_report_keys(demo_design):
     rep = M.evaluate(demo_design, demo_design.initial)
     assert tuple(rep) == M.REPORT_KEYS

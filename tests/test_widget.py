@@ -407,3 +407,17 @@ def test_pin_and_select_take_indices_and_refuse_junk(widget, demo_design):
             widget.select(bad)
         with pytest.raises(err, match="no-such-block|select|pin"):
             widget.pin(bad)
+
+
+def test_illegal_marking_follows_the_halo_rule():
+    # the halo rule (common practice): halos may overlap; a footprint in another's halo may not
+    from floorwidget.design import Design, Floorplan
+    from floorwidget.widget.canvas import illegal_blocks
+
+    d = Design("pair", (0, 0, 100, 100), ["a", "b"], [MACRO, MACRO], [20, 20], [10, 10],
+               [0, 2], [0, 1], [0.0, 0.0], [0.0, 0.0], halo=np.full((2, 4), 2.0),
+               grid_pitch=(1.0, 1.0))
+    clear = Floorplan(d, [10.0, 34.0], [10.0, 10.0])  # 4 µm apart: halo boxes overlap
+    assert not illegal_blocks(d, clear).any()
+    inside = Floorplan(d, [10.0, 31.0], [10.0, 10.0])  # 1 µm apart: b inside a's halo
+    assert illegal_blocks(d, inside).tolist() == [True, True]

@@ -29,8 +29,9 @@ _LABEL_PX_PER_CHAR = 6.0  # approximate width of one label character at 10 px (b
 def illegal_blocks(design: Design, fp: Floorplan) -> np.ndarray:
     """Mask of macros that :func:`floorwidget.metrics.legality` finds at fault.
 
-    Overlapping (halos included), outside the die or core, on a placement blockage, or (movable
-    and pinned macros only) off the snap grid.
+    In conflict with another macro under the halo rule (a footprint inside the other's halo
+    box; halos may overlap each other), outside the die or core, on a placement blockage, or
+    (movable and pinned macros only) off the snap grid.
     """
     from .. import metrics
 
