@@ -102,6 +102,11 @@ def _parser() -> argparse.ArgumentParser:
         sp.add_argument("--lef", nargs="+", action="extend", default=[], metavar="L",
                         help="LEF libraries for a .def input, technology LEF first (one or "
                              "more; may repeat)")
+        sp.add_argument("--whitespace", type=float, default=None, metavar="W",
+                        help="GSRC .blocks/.hardblocks input: outline area = (1 + W) x block "
+                             "area (default: the terminals' box, else 0.10)")
+        sp.add_argument("--aspect", type=float, default=None, metavar="A",
+                        help="GSRC input: outline height / width with --whitespace (default 1)")
 
     r = sub.add_parser("report", help="print the figures of a design as placed in the file")
     r.add_argument("file")
@@ -177,21 +182,21 @@ class _Progress:
             self.stream.flush()
 
 
-def _load(path: str, lef: list[str]):
-    return load(path, lef=lef or None)
+def _load(path: str, args):
+    return load(path, lef=args.lef or None, whitespace=args.whitespace, aspect=args.aspect)
 
 
 def _run(args) -> int:
     if args.command == "report":
         from .metrics import evaluate
 
-        design = _load(args.file, args.lef)
+        design = _load(args.file, args)
         _print_report(evaluate(design, design.initial), args.json)
     elif args.command == "place":
         from .metrics import evaluate
         from .placer import place
 
-        design = _load(args.file, args.lef)
+        design = _load(args.file, args)
         bar = _Progress()
         try:
             fp = place(design, target_density=args.target_density, seed=args.seed, progress=bar)
@@ -200,12 +205,12 @@ def _run(args) -> int:
         save(design, fp, args.output)
         _print_report(evaluate(design, fp, target_density=args.target_density), args.json)
     elif args.command == "convert":
-        design = _load(args.input, args.lef)
+        design = _load(args.input, args)
         save(design, design.initial, args.output)
     elif args.command == "render":
         from .render import render
 
-        design = _load(args.file, args.lef)
+        design = _load(args.file, args)
         render(design, design.initial, args.output, heat=args.heat)
     return 0
 

@@ -188,3 +188,23 @@ def test_mutated_files_raise_only_design_errors(tmp_path, which, pos, junk):
         fw.load(p)
     except DesignError as e:
         assert "\n" not in str(e)
+
+
+def test_command_line_whitespace_and_aspect(tmp_path, capsys):
+    import json
+
+    from floorwidget.cli import main
+
+    p = _write(tmp_path)
+    out = tmp_path / "t.json"
+    assert main(["convert", str(p), str(out), "--whitespace", "0.2", "--aspect", "0.5"]) == 0
+    d = fw.load(out)
+    assert d.die.tolist() == pytest.approx([0.0, 0.0, 60.0, 30.0])  # as worked above
+    assert main(["report", str(p), "--json"]) == 0
+    assert json.loads(capsys.readouterr().out)["num_blocks"] == 5
+    # bad input: one line naming the file, exit 2
+    assert main(["report", str(p), "--whitespace", "-1"]) == 2
+    err = capsys.readouterr().err.strip()
+    assert "t.blocks" in err and "whitespace" in err and "\n" not in err
+    assert main(["report", str(out), "--aspect", "2"]) == 2
+    assert "GSRC" in capsys.readouterr().err
