@@ -118,7 +118,7 @@ def _parser() -> argparse.ArgumentParser:
     pl.add_argument("file")
     common(pl)
     pl.add_argument("-o", "--output", required=True, metavar="OUT",
-                    help="output file: .json, .pl or .def")
+                    help="output file: .json, .pl, .def or .aux (.gz or .bz2 compresses)")
     pl.add_argument("--target-density", type=_density, default=0.8, metavar="D",
                     help="target bin utilisation, 0 < D <= 1 (default 0.8)")
     pl.add_argument("--seed", type=_seed, default=0, metavar="S",

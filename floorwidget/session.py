@@ -343,7 +343,7 @@ class Session:
         self._reports: OrderedDict[int, dict] = OrderedDict()
         self._batches: list[_Batch] = []
         self._source = os.path.abspath(design.source) if design.source else None
-        self._lef = [os.path.abspath(p) for p in getattr(design, "lef_files", [])]
+        self._lef = [os.path.abspath(p) for p in design.lef_files]
         self._lock = threading.RLock()
 
     # --- state ---------------------------------------------------------------------------------
