@@ -160,7 +160,7 @@ def _clamp_into(c, size, lo, hi):
 
 def lookahead(grid: Grid, cap: np.ndarray, cx, cy, w, h, *, leaf: float = 1.0,
               max_levels: int = 64, regions: tuple[np.ndarray, np.ndarray] | None = None,
-              weight=None):
+              weight=None, minimal: bool = True):
     """Density-feasible look-ahead centres for objects now centred at ``cx, cy``.
 
     Recursive bisection of the core: every region is cut in the middle across its longer
@@ -189,6 +189,11 @@ def lookahead(grid: Grid, cap: np.ndarray, cx, cy, w, h, *, leaf: float = 1.0,
         :func:`overfilled_regions`).
     weight : (N,) array, optional
         Factor on each object's area against the capacity (:func:`density_weight`).
+    minimal : bool
+        At each cut, objects stay on their own side unless that side would hold more than its
+        capacity (only the excess crosses the cut), so a region with room to spare is not
+        spread evenly over its area.  ``False``: split in proportion to the capacities (every
+        region filled evenly).
 
     Returns
     -------
@@ -302,7 +307,19 @@ def lookahead(grid: Grid, cap: np.ndarray, cx, cy, w, h, *, leaf: float = 1.0,
         reg_area = np.bincount(r_s, weights=a_s, minlength=nreg)
         reg_first = np.concatenate([[0.0], np.cumsum(reg_area)[:-1]])
         before = csum - a_s - reg_first[r_s]
-        goes_a = (before + a_s / 2) < frac[r_s] * reg_area[r_s]
+        if minimal:
+            # objects keep their own side of the cut unless that side would overfill: the
+            # share sent below the cut is the natural one (area of the objects below it),
+            # clipped into [area − capB, capA]; when even that interval is empty the split
+            # falls back to the capacity ratio
+            c_s = np.where(cutx[r_s], cx[act_s], cy[act_s])
+            nat = np.bincount(r_s, weights=np.where(c_s < mid[r_s], a_s, 0.0), minlength=nreg)
+            lo_s = reg_area - capB
+            fits = lo_s <= capA
+            share = np.where(fits, np.clip(nat, lo_s, capA), frac * reg_area)
+            goes_a = (before + a_s / 2) < share[r_s]
+        else:
+            goes_a = (before + a_s / 2) < frac[r_s] * reg_area[r_s]
         # an object alone in its region goes on down on its own side while that side has room
         alone = np.bincount(r_s, minlength=nreg)[r_s] == 1
         if alone.any():
