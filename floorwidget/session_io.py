@@ -283,8 +283,13 @@ class _Doc:
         return Floorplan(design, x, y, o, s, self.obj(info, where + ".info"))
 
 
-def _check_log(doc: _Doc, design: Design, entries, where: str) -> list:
+MAX_BATCH_DEPTH = 32  # batches inside batches; deeper logs are refused, not recursed into
+
+
+def _check_log(doc: _Doc, design: Design, entries, where: str, depth: int = 0) -> list:
     from .session import Session  # noqa: PLC0415
+    if depth > MAX_BATCH_DEPTH:
+        doc.fail(where, f"batches nested more than {MAX_BATCH_DEPTH} deep")
     known = {"move", "pin", "unpin", "rotate", "flip", "place", "refine", "legalize", "undo",
              "redo", "snapshot", "add_alternative", "restore"}
     out = []
@@ -295,7 +300,7 @@ def _check_log(doc: _Doc, design: Design, entries, where: str) -> list:
             label = doc.text(doc.get(e, "label", w), w + ".label")
             out.append({"op": "batch", "label": label,
                         "actions": _check_log(doc, design, doc.get(e, "actions", w),
-                                              w + ".actions")})
+                                              w + ".actions", depth + 1)})
             continue
         if op not in known or not hasattr(Session, op):
             doc.fail(w + ".op", f"unknown action {op!r}")

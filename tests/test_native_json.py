@@ -142,7 +142,7 @@ def test_unknown_suffix_is_a_design_error(demo_design, tmp_path):
 
 @pytest.mark.parametrize("text, line", [
     ("[" * 1000 + "]" * 1000, 1),                       # RecursionError before
-    ('{"format": "floorwidget-design",\n "x": ' + "[" * 300 + "]" * 300 + "}", 2),
+    ('{"format": "floorwidget-design",\n "x": ' + "[" * 3000 + "]" * 3000 + "}", 2),
 ])
 def test_deep_nesting_is_refused_with_its_line(tmp_path, text, line):
     p = tmp_path / "deep.json"

@@ -565,3 +565,19 @@ def test_deeply_nested_session_file_is_refused(tmp_path):
 def test_session_refuses_a_bad_target_density(td):
     with pytest.raises(DesignError, match="target_density"):
         Session(_DESIGN, target_density=td)
+
+
+def test_deeply_nested_batches_are_refused(tmp_path):
+    s = _busy_session(False)
+    good = tmp_path / "good.json"
+    s.save(good)
+    doc = json.loads(good.read_text())
+    log = []
+    for _ in range(300):  # decodes fine, but would recurse 300 deep on checking and replay
+        log = [{"op": "batch", "label": "b", "actions": log}]
+    doc["log"] = log
+    bad = tmp_path / "bad.json"
+    bad.write_text(json.dumps(doc))
+    with pytest.raises(DesignError, match="nested more than 32") as e:
+        Session.load(bad)
+    assert e.value.where.startswith("log[0].actions[0]")

@@ -46,7 +46,7 @@ __all__ = ["COMPRESSED", "MAX_INPUT_BYTES", "atomic_write", "format_suffix",
 
 COMPRESSED = (".gz", ".bz2")
 MAX_INPUT_BYTES = 1 << 33   # 8 GiB of text: a decompression bomb stops here
-MAX_JSON_DEPTH = 200        # nesting deeper than any document of ours
+MAX_JSON_DEPTH = 200        # the depth named when a document is too deep to decode
 _CHUNK = 1 << 22
 _BOM = "\ufeff"
 _TEMP = re.compile(r"^\.(?P<name>.+)\.fw-(?P<pid>\d+)-(?P<tag>[0-9a-f]+)\.(?P<ext>tmp|commit)$")
@@ -146,23 +146,20 @@ def _too_deep(text: str) -> int | None:
 def read_json_file(path):
     """Decode a JSON file; syntax errors become a :class:`DesignError` with the line.
 
-    Nesting deeper than :data:`MAX_JSON_DEPTH` and numbers beyond float range are refused with
-    the file and line, instead of Python's recursion and integer-size limits.
+    Nesting too deep for Python's decoder and integers of thousands of digits are refused with
+    the file and line (or read as an out-of-range float, which the field checks then name),
+    instead of Python's recursion and integer-size errors.
     """
     path = Path(path)
     text = read_text(path)
-    if text.count("[") + text.count("{") > MAX_JSON_DEPTH:
-        line = _too_deep(text)
-        if line is not None:
-            raise DesignError(f"JSON nested more than {MAX_JSON_DEPTH} levels deep",
-                              file=str(path), line=line)
     try:
         return json.loads(text, parse_int=_parse_int)
     except json.JSONDecodeError as e:
         raise DesignError(f"invalid JSON: {e.msg} (column {e.colno})", file=str(path),
                           line=e.lineno) from None
-    except (RecursionError, ValueError, OverflowError) as e:  # pragma: no cover - guarded above
-        raise DesignError(f"invalid JSON: {e}", file=str(path)) from None
+    except RecursionError:  # located only now: the check costs a pass over the text
+        raise DesignError(f"JSON nested more than {MAX_JSON_DEPTH} levels deep",
+                          file=str(path), line=_too_deep(text) or 1) from None
 
 
 # ---------------------------------------------------------------------------------------------
