@@ -52,6 +52,7 @@ __all__ = ["place", "refine", "legalize"]
 
 Progress = Callable[[str, float, dict], Any] | None
 STALL_FROM = 0.3  # overflow below which a spreading loop that stops improving is stopped
+DP_SLACK = 0.1  # detailed placement may fill a density bin this far above the target
 
 
 # ---------------------------------------------------------------------------------------------
@@ -321,7 +322,7 @@ def place(design: Design, floorplan: Floorplan | None = None, *, target_density:
             info["bins"] = res2["bins"]
         info["stage_seconds"]["cells"] = time.perf_counter() - t0
         _report(progress, "cells", 1.0, {"overflow": final_ov})
-    out = _rows_stage(design, out, src, opts, info, progress)
+    out = _rows_stage(design, out, src, opts, target, info, progress)
     return _finish(design, out, src, info, legalized, final_ov, t_all, target, seed)
 
 
@@ -369,7 +370,7 @@ def _gather_unconnected(st: _Stage, cx, cy) -> None:
 
 
 def _rows_stage(design: Design, out: Floorplan, src: Floorplan, opts: PlacerOptions,
-                info: dict, progress: Progress) -> Floorplan:
+                target: float, info: dict, progress: Progress) -> Floorplan:
     """Standard cells onto rows and sites (Abacus), then swap-based detailed placement, when
     ``cells="legal"``; timed and reported as the stages ``"rows"`` and ``"detail"``."""
     info["hpwl_global"] = hpwl(design, out)
@@ -385,7 +386,8 @@ def _rows_stage(design: Design, out: Floorplan, src: Floorplan, opts: PlacerOpti
     _report(progress, "rows", 1.0, {})
     if opts.detail_passes:
         t0 = time.perf_counter()
-        out, facts = detailed_place(design, out, cells, passes=opts.detail_passes)
+        out, facts = detailed_place(design, out, cells, passes=opts.detail_passes,
+                                    target_density=min(1.0, target + DP_SLACK))
         info.update(facts)
         info["stage_seconds"]["detail"] = time.perf_counter() - t0
         _report(progress, "detail", 1.0, {})
@@ -443,7 +445,7 @@ def refine(design: Design, floorplan: Floorplan, *, target_density: float = 0.8,
         info["bins"] = res["bins"]
     info["stage_seconds"]["cells"] = time.perf_counter() - t0
     _report(progress, "cells", 1.0, {"overflow": ov})
-    out = _rows_stage(design, out, src, opts, info, progress)
+    out = _rows_stage(design, out, src, opts, target, info, progress)
     return _finish(design, out, src, info, legalized, ov, t_all, target, seed)
 
 

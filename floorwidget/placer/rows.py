@@ -53,7 +53,7 @@ from ..design import (
     Floorplan,
     orient_offsets,
 )
-from ..metrics import hpwl, row_of
+from ..metrics import bin_grid, hpwl, rect_area_map, row_of
 from .errors import PlacementError
 
 __all__ = ["RowSegments", "row_segments", "legalize_cells", "detailed_place", "cell_mask"]
@@ -530,10 +530,14 @@ def _median_target(i, N, bx, by, osign, maxdeg, buf_x, buf_y):
 @njit(cache=True)
 def _global_moves(cells, wsite, bx, by, hgt, osign, row_of_cell, site_of_cell, occ, row_off,
                   r_x0, r_sw, r_y, r_ns, r_sign, rows_by_y, N, maxdeg, passes, nbuf,
-                  reach_rows, reach_sites):
+                  reach_rows, reach_sites, D):
     """Global moves and swaps: each cell goes to a free run of sites, or swaps with a cell of
     its width, near its optimal region, on the best strict HPWL gain.  ``occ`` maps every
-    site of every row to the cell on it (-1 free, -2 blocked)."""
+    site of every row to the cell on it (-1 free, -2 blocked).  ``D`` = (usage, capacity,
+    x0, y0, bin width, bin height): a move into another density bin must keep that bin within
+    its capacity (swaps of equal widths change no bin's usage)."""
+    use, cap, dx0, dy0, dbw, dbh = D
+    dnx, dny = use.shape
     stamp = np.zeros(len(N[0]) - 1, np.int64)
     tick = 0
     buf_x = np.empty(nbuf)
@@ -591,8 +595,13 @@ def _global_moves(cells, wsite, bx, by, hgt, osign, row_of_cell, site_of_cell, o
                             b0 -= 1
                         if e - b0 >= w:
                             sp = min(max(st, b0), e - w)
-                            if not (r == r0 and sp == s0):
-                                nx_ = r_x0[r] + (sp + w / 2.0) * sw
+                            nx_ = r_x0[r] + (sp + w / 2.0) * sw
+                            ki = min(max(int((nx_ - dx0) / dbw), 0), dnx - 1)
+                            kj = min(max(int((ny_ - dy0) / dbh), 0), dny - 1)
+                            same = ki == min(max(int((bx[i] - dx0) / dbw), 0), dnx - 1) and \
+                                kj == min(max(int((by[i] - dy0) / dbh), 0), dny - 1)
+                            room = same or use[ki, kj] + wum * hgt[i] <= cap[ki, kj]
+                            if room and not (r == r0 and sp == s0):
                                 tick += 1
                                 g = _swap_gain(i, -1, nx_, ny_, sg, 0.0, 0.0, 1.0, N, bx,
                                                by, osign, stamp, tick, False)
@@ -629,6 +638,11 @@ def _global_moves(cells, wsite, bx, by, hgt, osign, row_of_cell, site_of_cell, o
             else:
                 _swap_gain(i, -1, r_x0[r] + (sp + w / 2.0) * r_sw[r], r_y[r] + hgt[i] / 2,
                            r_sign[r], 0.0, 0.0, 1.0, N, bx, by, osign, stamp, tick, True)
+                a_ = wum * hgt[i]
+                use[min(max(int((bx[i] - dx0) / dbw), 0), dnx - 1),
+                    min(max(int((by[i] - dy0) / dbh), 0), dny - 1)] -= a_
+                use[min(max(int((r_x0[r] + (sp + w / 2.0) * r_sw[r] - dx0) / dbw), 0), dnx - 1),
+                    min(max(int((r_y[r] + hgt[i] / 2 - dy0) / dbh), 0), dny - 1)] += a_
                 for t in range(w):
                     occ[row_off[r0] + s0 + t] = -1
                 for t in range(w):
@@ -675,8 +689,8 @@ def _adjacent_swap(seq_start, seq, wum, bx, by, osign, N, passes):
 
 
 def detailed_place(design: Design, fp: Floorplan, cells: np.ndarray | None = None, *,
-                   passes: int = 8, max_degree: int = 64, min_gain: float = 0.002
-                   ) -> tuple[Floorplan, dict]:
+                   passes: int = 8, max_degree: int = 64, min_gain: float = 0.002,
+                   target_density: float = 1.0) -> tuple[Floorplan, dict]:
     """Lower the HPWL of a row-legal placement by cell swaps that keep it legal.
 
     Parameters
@@ -690,6 +704,11 @@ def detailed_place(design: Design, fp: Floorplan, cells: np.ndarray | None = Non
         Most passes of global moves (then two of adjacent swaps).
     min_gain : float
         Stop once a pass lowers the HPWL by less than this fraction.
+    target_density : float
+        A cell moves into another density bin (the report's grid) only while that bin's cell
+        area stays within this share of its row area, so detailed placement does not pile
+        cells up where the global placement spread them (swaps of equal widths are always
+        allowed: they change no bin's fill).
     max_degree : int
         Nets with more pins are left out of the optimal-region estimate (their gains are still
         counted exactly).
@@ -754,6 +773,15 @@ def detailed_place(design: Design, fp: Floorplan, cells: np.ndarray | None = Non
     rows_by_y = np.argsort(design.row_y, kind="stable").astype(np.int64)
     order = idx[np.lexsort((bx[idx], by[idx]))]
     nbuf = 2 * int(np.diff(bnet_s).max()) + 2
+    # density bins (the report's grid): usage by cell centres, capacity = target x row area
+    g = bin_grid(design)
+    i_, j_ = g.locate(bx[idx], by[idx])
+    use = np.zeros(g.shape)
+    np.add.at(use, (i_, j_), (wsite[idx] * sw) * h[idx])
+    segr = np.stack([seg.x0 + seg.lo * seg.site, seg.y, seg.x0 + seg.hi * seg.site,
+                     seg.y + seg.height], axis=1)
+    cap = target_density * rect_area_map(g, segr)  # the segments hold the cells' sites too
+    D = (use, cap, g.xlo, g.ylo, g.bw, g.bh)
     hpwl0 = hpwl(design, fp)
     g1 = 0.0
     n1 = 0
@@ -761,7 +789,7 @@ def detailed_place(design: Design, fp: Floorplan, cells: np.ndarray | None = Non
         g, k = _global_moves(order, wsite, bx, by, h.astype(np.float64), osign, row_of_cell,
                              site_of_cell, occ, row_off, design.row_x, design.row_site_width,
                              design.row_y, nsites, r_sign, rows_by_y, N, max_degree, 1, nbuf,
-                             3, 24)
+                             3, 24, D)
         g1 += g
         n1 += k
         if g < min_gain * max(hpwl0 - g1, 1e-12):
