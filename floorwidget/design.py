@@ -374,7 +374,7 @@ class Design:
             return [msg for _, msg in self._problems()]
 
     def _problems(self) -> list[tuple[str, str]]:
-        """``(object, message)`` of every problem; the message starts with the object."""
+        """``(object, message)`` of every problem, the object as ``DesignError.where`` names it."""
         out: list[tuple[str, str]] = []
         n, m = self.num_blocks, self.num_nets
         lim = COORD_LIMIT
