@@ -62,6 +62,7 @@ __all__ = [
     "DensityMap",
     "bin_grid",
     "cell_legality",
+    "default_channel",
     "congestion_stats",
     "density_map",
     "density_overflow",
@@ -707,6 +708,21 @@ def legality(design: Design, fp: Floorplan) -> dict:
 
 # ---------------------------------------------------------------------------------------------
 # the report
+
+
+#: Default channel between facing macros, in (median) row heights (common practice: a few
+#: rows, room for routing and a power strap); see :func:`default_channel`.
+DEFAULT_CHANNEL_ROWS = 4
+
+
+def default_channel(design: Design) -> float:
+    """The default channel width (µm): :data:`DEFAULT_CHANNEL_ROWS` median row heights, or
+    1 % of the shorter core side for a design without rows.  Two facing macros are either
+    abutted (halos only) or at least this far apart."""
+    if len(design.row_height):
+        return DEFAULT_CHANNEL_ROWS * float(np.median(design.row_height))
+    c = design.core
+    return 0.01 * float(min(c[2] - c[0], c[3] - c[1]))
 
 
 def cell_legality(design: Design, fp: Floorplan) -> dict:
