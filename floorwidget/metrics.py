@@ -61,17 +61,26 @@ __all__ = [
     "BinGrid",
     "DensityMap",
     "bin_grid",
+    "Channels",
+    "LogicRegions",
     "cell_legality",
+    "channel_gaps",
     "default_channel",
     "congestion_stats",
     "density_map",
     "density_overflow",
     "evaluate",
+    "facing_wall",
     "hpwl",
     "legality",
+    "logic_regions",
+    "macros_facing_wall",
+    "narrow_channels",
+    "nearest_wall",
     "net_hpwl",
     "nets_hpwl",
     "peak_density",
+    "pin_side",
     "row_of",
     "pin_positions",
     "rudy_map",
@@ -94,7 +103,8 @@ REPORT_KEYS = (
     "hpwl", "hpwl_weighted", "density_overflow", "peak_density", "congestion_peak",
     "congestion_p99", "macro_overlaps", "macro_overlap_area", "out_of_die", "off_grid", "legal",
     "num_blocks", "num_nets", "target_density", "cell_overlaps", "cells_off_row",
-    "cells_off_site",
+    "cells_off_site", "narrow_channels", "macros_facing_wall", "logic_regions",
+    "largest_logic_region",
 )
 
 
@@ -792,7 +802,7 @@ def row_of(design: Design, x, y, w) -> tuple[np.ndarray, np.ndarray]:
 
 
 def evaluate(design: Design, fp: Floorplan | None = None, target_density: float | None = None,
-             bin_size: float | None = None) -> dict:
+             bin_size: float | None = None, channel: float | None = None) -> dict:
     """Every report figure of a floorplan, as plain JSON-serialisable Python values.
 
     These are early-floorplanning estimates for comparing alternatives; sign-off belongs to the
@@ -807,6 +817,9 @@ def evaluate(design: Design, fp: Floorplan | None = None, target_density: float 
         For the overflow figure; default the value the placer used (``fp.info``), else 0.8.
     bin_size : float, optional
         Bin side, µm (default from :func:`bin_grid`).
+    channel : float, optional
+        Smallest open channel between facing macros, µm, for ``narrow_channels``; default the
+        one the placer used (``fp.info["channel"]``), else :func:`default_channel`.
 
     Returns
     -------
@@ -814,7 +827,10 @@ def evaluate(design: Design, fp: Floorplan | None = None, target_density: float 
         Keys :data:`REPORT_KEYS`: ``hpwl`` and ``hpwl_weighted`` (µm), ``density_overflow``,
         ``peak_density``, ``congestion_peak`` and ``congestion_p99`` (RUDY, µm/µm²),
         ``macro_overlaps`` (pairs in conflict under the halo rule), ``macro_overlap_area`` (µm²),
-        ``out_of_die`` (blocks), ``off_grid`` (macros), ``legal``, ``num_blocks``, ``num_nets``.
+        ``out_of_die`` (blocks), ``off_grid`` (macros), ``legal``, ``num_blocks``, ``num_nets``;
+        the floorplan's shape: ``narrow_channels`` (:func:`channel_gaps`),
+        ``macros_facing_wall`` (:func:`facing_wall`), ``logic_regions`` and
+        ``largest_logic_region`` (:func:`logic_regions`).
 
     Examples
     --------
@@ -833,6 +849,7 @@ def evaluate(design: Design, fp: Floorplan | None = None, target_density: float 
     peak, p99 = congestion_stats(_rudy(grid, box))
     leg = legality(design, fp)
     cl = cell_legality(design, fp)
+    lr = logic_regions(design, fp)
     return {
         "hpwl": float(per.sum()),
         "hpwl_weighted": float(np.dot(per, design.net_weight)),
@@ -851,4 +868,313 @@ def evaluate(design: Design, fp: Floorplan | None = None, target_density: float 
         "cell_overlaps": cl["cell_overlaps"],
         "cells_off_row": cl["cells_off_row"],
         "cells_off_site": cl["cells_off_site"],
+        "narrow_channels": narrow_channels(
+            design, fp, fp.info.get("channel") if channel is None else channel),
+        "macros_facing_wall": macros_facing_wall(design, fp),
+        "logic_regions": lr.count,
+        "largest_logic_region": lr.largest,
     }
+
+
+# ---------------------------------------------------------------------------------------------
+# floorplan shape: channels between macros, pins facing a wall, logic regions
+#
+# Early-floorplanning rules of thumb (common practice, no single source): hard macros sit
+# against the core boundary or against each other, pin side toward the logic, with the channel
+# between two facing macros either closed (halos touching) or wide enough to route and power,
+# and the standard-cell area left in one piece.
+
+#: Without rows, the length unit of the shape figures is this share of the shorter core side.
+UNIT_WITHOUT_ROWS = 0.01
+#: Logic-region raster: pixel side in row heights, and the most pixels the raster may have
+#: (the pixel grows to stay within it).
+PIXELS_PER_ROW = 4
+MAX_PIXELS = 2**21
+#: A logic region counts when its area exceeds this many square row heights (2 x 2 rows).
+MIN_REGION_ROWS2 = 4.0
+
+
+def _row_unit(design: Design) -> float:
+    """Median row height, or :data:`UNIT_WITHOUT_ROWS` of the shorter core side without rows."""
+    if len(design.row_height):
+        return float(np.median(design.row_height))
+    c = design.core
+    return UNIT_WITHOUT_ROWS * float(min(c[2] - c[0], c[3] - c[1]))
+
+
+@dataclass(frozen=True)
+class Channels:
+    """Narrow channels between facing macros (:func:`channel_gaps`).
+
+    Attributes
+    ----------
+    pairs : (k, 2) int array
+        Block indices ``a < b`` of the two macros on either side.
+    gaps : (k,) float array
+        Footprint-to-footprint distance across the channel, µm.
+    strips : (k, 4) float array
+        The channel itself, ``xlo, ylo, xhi, yhi``: the gap between the two footprints along
+        the axis they face on, times their common span on the other axis.
+    vertical : (k,) bool array
+        True when the strip runs up and down (the macros face each other left and right).
+    channel : float
+        The channel width the gaps were compared with, µm.
+    """
+
+    pairs: np.ndarray
+    gaps: np.ndarray
+    strips: np.ndarray
+    vertical: np.ndarray
+    channel: float
+
+    def __len__(self) -> int:
+        return len(self.gaps)
+
+
+def channel_gaps(design: Design, fp: Floorplan, channel: float | None = None) -> Channels:
+    """Pairs of facing macros whose channel is open but narrower than ``channel``.
+
+    Two macros *face* each other when the projections of their footprints on one axis overlap
+    by a positive length and their footprints are apart along the other axis; the *gap* is the
+    footprint-to-footprint distance along that axis, and the *strip* is the rectangle between
+    them over their common span.  A third macro whose footprint overlaps the strip (a positive
+    area) stands between the two: they do not face each other, and that macro's own gaps are
+    counted instead.  (So three macros abutted in a row give no channel between the outer two.)
+
+    A facing pair is *narrow* when ``h_a + h_b < gap < channel``, where ``h_a`` and ``h_b`` are
+    the two halos on the facing sides: a gap up to ``h_a + h_b`` means the halos touch or
+    overlap, the macros are abutted under the halo rule and no cells or routes are meant to
+    pass; without halos that is ``0 < gap < channel``.  All macros count, fixed ones too.
+
+    Parameters
+    ----------
+    design : Design
+    fp : Floorplan
+    channel : float, optional
+        Smallest open channel, µm; default :func:`default_channel`.
+
+    Returns
+    -------
+    Channels
+        Sorted by pair.
+    """
+    ch = default_channel(design) if channel is None else float(channel)
+    if not (np.isfinite(ch) and ch >= 0):
+        raise ValueError(f"channel must be a non-negative number of µm, got {channel!r}")
+    mac = np.flatnonzero(design.kind == MACRO)
+    empty = Channels(np.zeros((0, 2), np.intp), np.zeros(0), np.zeros((0, 4)),
+                     np.zeros(0, bool), ch)
+    if len(mac) < 2 or ch <= TOL:
+        return empty
+    f = fp.rects()[mac]
+    # candidates: footprints grown by half a channel overlap (broad phase of the legality check)
+    a, b, _ = _overlap_pairs(f + np.array([-ch, -ch, ch, ch]) / 2)
+    fa, fb = f[a], f[b]
+    ox = np.minimum(fa[:, 2], fb[:, 2]) - np.maximum(fa[:, 0], fb[:, 0])
+    oy = np.minimum(fa[:, 3], fb[:, 3]) - np.maximum(fa[:, 1], fb[:, 1])
+    vertical = (oy > TOL) & (-ox > TOL)      # side by side: the strip runs up and down
+    horizontal = (ox > TOL) & (-oy > TOL)    # one above the other
+    gap = np.where(vertical, -ox, -oy)
+    keep = (vertical | horizontal) & (gap < ch - TOL)
+    a, b, gap, vertical = a[keep], b[keep], gap[keep], vertical[keep]
+    fa, fb = f[a], f[b]
+    strips = np.where(
+        vertical[:, None],
+        np.stack([np.minimum(fa[:, 2], fb[:, 2]), np.maximum(fa[:, 1], fb[:, 1]),
+                  np.maximum(fa[:, 0], fb[:, 0]), np.minimum(fa[:, 3], fb[:, 3])], axis=1),
+        np.stack([np.maximum(fa[:, 0], fb[:, 0]), np.minimum(fa[:, 3], fb[:, 3]),
+                  np.minimum(fa[:, 2], fb[:, 2]), np.maximum(fa[:, 1], fb[:, 1])], axis=1))
+    # facing halos: left/right (0, 2) or bottom/top (1, 3) of the lower-left and upper-right one
+    hl = design.halo[mac]
+    first = np.where(vertical, fa[:, 0] < fb[:, 0], fa[:, 1] < fb[:, 1])
+    lo, hi = np.where(first, a, b), np.where(first, b, a)
+    facing = np.where(vertical, hl[lo, 2] + hl[hi, 0], hl[lo, 3] + hl[hi, 1])
+    keep = gap > facing + TOL
+    a, b, gap, vertical, strips = a[keep], b[keep], gap[keep], vertical[keep], strips[keep]
+    if len(a):  # a third footprint inside the strip: the pair does not face each other
+        blocked = np.zeros(len(a), bool)
+        s_i, m_i, _ = _overlap_pairs(np.concatenate([strips, f]))
+        cross = (s_i < len(a)) & (m_i >= len(a))
+        s_i, m_i = s_i[cross], m_i[cross] - len(a)
+        third = (m_i != a[s_i]) & (m_i != b[s_i])
+        blocked[s_i[third]] = True
+        a, b, gap, vertical, strips = (a[~blocked], b[~blocked], gap[~blocked],
+                                       vertical[~blocked], strips[~blocked])
+    pa, pb = mac[a], mac[b]
+    pairs = np.stack([np.minimum(pa, pb), np.maximum(pa, pb)], axis=1)
+    order = np.lexsort((pairs[:, 1], pairs[:, 0]))
+    return Channels(pairs[order], gap[order], strips[order], vertical[order], ch)
+
+
+def narrow_channels(design: Design, fp: Floorplan, channel: float | None = None) -> int:
+    """Number of pairs of facing macros with a channel narrower than ``channel`` (see
+    :func:`channel_gaps` for the rule)."""
+    return len(channel_gaps(design, fp, channel))
+
+
+_SIDES = ("left", "right", "bottom", "top")
+
+
+def pin_side(design: Design, fp: Floorplan) -> np.ndarray:
+    """The side of its footprint each macro's pins lie on, by their centroid.
+
+    The centroid of a macro's pin offsets (oriented by :func:`orient_offsets`), divided by the
+    half-width and half-height of the oriented footprint, gives ``(u, v)``; the side is the one
+    the centroid points to most: left (``-u``), right (``u``), bottom (``-v``) or top (``v``),
+    when that score is positive and strictly larger than the other three.
+
+    Parameters
+    ----------
+    design : Design
+    fp : Floorplan
+
+    Returns
+    -------
+    (num_macros,) int array
+        Per macro in ``design.macros`` order: 0 left, 1 right, 2 bottom, 3 top, -1 no side (no
+        pins, or a centroid at the centre or on a diagonal).
+    """
+    mac = np.flatnonzero(design.kind == MACRO)
+    n = design.num_blocks
+    b = design.pin_block
+    onmac = design.kind[b] == MACRO
+    b = b[onmac]
+    ox, oy = orient_offsets(design.pin_dx[onmac], design.pin_dy[onmac], fp.orient[b])
+    cnt = np.bincount(b, minlength=n)[mac]
+    sx = np.bincount(b, weights=ox, minlength=n)[mac]
+    sy = np.bincount(b, weights=oy, minlength=n)[mac]
+    w, h = fp.sizes()
+    with np.errstate(invalid="ignore", divide="ignore"):
+        u = sx / np.maximum(cnt, 1) / (w[mac] / 2)
+        v = sy / np.maximum(cnt, 1) / (h[mac] / 2)
+    score = np.nan_to_num(np.stack([-u, u, -v, v], axis=1))
+    best = np.argmax(score, axis=1)
+    top = score[np.arange(len(mac)), best]
+    second = np.sort(score, axis=1)[:, -2]
+    ok = (cnt > 0) & (top > 1e-9) & (top > second + 1e-9)
+    return np.where(ok, best, -1)
+
+
+def nearest_wall(design: Design, fp: Floorplan) -> np.ndarray:
+    """The core edge nearest each macro's footprint: 0 left, 1 right, 2 bottom, 3 top.
+
+    Distances are from the footprint's side to the core edge on that side; a tie goes to the
+    first in that order.  Per macro in ``design.macros`` order.
+    """
+    mac = np.flatnonzero(design.kind == MACRO)
+    r = fp.rects()[mac]
+    c = design.core
+    dist = np.stack([r[:, 0] - c[0], c[2] - r[:, 2], r[:, 1] - c[1], c[3] - r[:, 3]], axis=1)
+    return np.argmin(dist, axis=1)
+
+
+def facing_wall(design: Design, fp: Floorplan) -> np.ndarray:
+    """Block indices of the macros whose pins face the nearest core edge.
+
+    A macro faces the wall when its pin side (:func:`pin_side`) is the side toward the core
+    edge nearest its footprint (:func:`nearest_wall`): its pins then point away from the logic
+    they connect to.  Macros without pins never count; fixed macros count like the others.
+
+    Parameters
+    ----------
+    design : Design
+    fp : Floorplan
+
+    Returns
+    -------
+    int array
+    """
+    mac = np.flatnonzero(design.kind == MACRO)
+    return mac[pin_side(design, fp) == nearest_wall(design, fp)]
+
+
+def macros_facing_wall(design: Design, fp: Floorplan) -> int:
+    """Number of macros whose pins face the nearest core edge (:func:`facing_wall`)."""
+    return len(facing_wall(design, fp))
+
+
+@dataclass(frozen=True)
+class LogicRegions:
+    """The free core area cut into connected pieces (:func:`logic_regions`).
+
+    Attributes
+    ----------
+    labels : (nx, ny) int array
+        Per pixel, 0 where macros, halos or blockages are, else the piece it belongs to
+        (1, 2, ...; indexed ``[column, row]``).
+    areas : (k,) float array
+        Area of every piece, µm², largest first (``labels`` numbers follow the same order).
+    count : int
+        Pieces larger than :data:`MIN_REGION_ROWS2` square row heights.
+    largest : float
+        The largest piece's share of the free area (0 when nothing is free).
+    extent : (xlo, ylo, xhi, yhi)
+        What the raster covers (the core).
+    pixel : (float, float)
+        Pixel width and height, µm.
+    """
+
+    labels: np.ndarray
+    areas: np.ndarray
+    count: int
+    largest: float
+    extent: tuple[float, float, float, float]
+    pixel: tuple[float, float]
+
+
+def logic_regions(design: Design, fp: Floorplan) -> LogicRegions:
+    """Connected pieces of the core free of macros (with their halos) and of blockages.
+
+    The core is rasterised with pixels of a quarter row height (:data:`PIXELS_PER_ROW`),
+    grown where needed to keep the raster within :data:`MAX_PIXELS`; a pixel is free when its
+    centre lies in no halo box (footprint plus halo) and no placement blockage.  Free pixels
+    are joined across shared edges (4-connectivity) by ``scipy.ndimage.label``.  A piece counts
+    as a logic region when its area exceeds :data:`MIN_REGION_ROWS2` (2 x 2) square row
+    heights; ``largest`` is the largest piece's share of all free area.  Areas are within about
+    half a pixel times the obstacles' perimeter of the exact figures.
+
+    Parameters
+    ----------
+    design : Design
+    fp : Floorplan
+
+    Returns
+    -------
+    LogicRegions
+    """
+    from scipy import ndimage
+
+    c = design.core
+    cw, chh = float(c[2] - c[0]), float(c[3] - c[1])
+    unit = _row_unit(design)
+    side = max(unit / PIXELS_PER_ROW, np.sqrt(cw * chh / MAX_PIXELS))
+    nx, ny = max(1, int(round(cw / side))), max(1, int(round(chh / side)))
+    px, py = cw / nx, chh / ny
+    obs = fp.rects(halo=True)[design.kind == MACRO]
+    if len(design.blockages):
+        obs = np.concatenate([obs, design.blockages])
+    # pixels whose centre xlo + (i + 1/2) px lies strictly inside: i in [i0, i1)
+    i0 = np.clip(np.floor((obs[:, 0] - c[0]) / px + 0.5), 0, nx).astype(np.intp)
+    i1 = np.clip(np.ceil((obs[:, 2] - c[0]) / px - 0.5), 0, nx).astype(np.intp)
+    j0 = np.clip(np.floor((obs[:, 1] - c[1]) / py + 0.5), 0, ny).astype(np.intp)
+    j1 = np.clip(np.ceil((obs[:, 3] - c[1]) / py - 0.5), 0, ny).astype(np.intp)
+    ok = (i1 > i0) & (j1 > j0)
+    i0, i1, j0, j1 = i0[ok], i1[ok], j0[ok], j1[ok]
+    cover = np.zeros((nx + 1, ny + 1), np.int32)
+    np.add.at(cover, (i0, j0), 1)
+    np.add.at(cover, (i1, j0), -1)
+    np.add.at(cover, (i0, j1), -1)
+    np.add.at(cover, (i1, j1), 1)
+    np.cumsum(cover, axis=0, out=cover)
+    np.cumsum(cover, axis=1, out=cover)
+    labels, k = ndimage.label(cover[:nx, :ny] == 0)
+    counts = np.bincount(labels.ravel(), minlength=k + 1)[1:]
+    order = np.argsort(-counts, kind="stable")
+    relabel = np.zeros(k + 1, labels.dtype)
+    relabel[order + 1] = np.arange(1, k + 1)
+    labels = relabel[labels]
+    areas = counts[order] * (px * py)
+    free = float(areas.sum())
+    return LogicRegions(labels, areas, int(np.sum(areas > MIN_REGION_ROWS2 * unit * unit)),
+                        float(areas[0] / free) if free > 0 else 0.0,
+                        (float(c[0]), float(c[1]), float(c[2]), float(c[3])), (px, py))
