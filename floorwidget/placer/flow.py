@@ -31,11 +31,12 @@ from typing import Any
 import numpy as np
 
 from ..design import CELL, CLUSTER, MACRO, MOVABLE, TERMINAL, Design, Floorplan
-from ..metrics import hpwl
+from ..metrics import default_channel, hpwl
 from .errors import PlacementError, PlacementWarning
 from .legalize import legalize_macros
 from .options import PlacerOptions, check_range, make_options, net_multipliers
 from .orient import choose_orientations
+from .periphery import close_channels, compact, orient_mask_inward, push_to_edges
 from .rows import cell_mask, detailed_place, legalize_cells
 from .solve import QuadraticSystem, spectral_coordinates
 from .spread import (
@@ -296,14 +297,7 @@ def place(design: Design, floorplan: Floorplan | None = None, *, target_density:
     legalized = False
     final_ov = res["overflow"]
     if len(macros) and opts.legalize_macros:
-        # --- orientation of movable macros ----------------------------------------------------
-        t0 = time.perf_counter()
-        if opts.orient:
-            out = choose_orientations(design, out, macros=macros)
-        info["stage_seconds"]["orient"] = time.perf_counter() - t0
-        _report(progress, "orient", 1.0, {})
-        # --- macro legalisation ---------------------------------------------------------------
-        out = _legalize_stage(design, out, macros, info, progress)
+        out = _arrange_macros(design, out, macros, opts, info, progress)
         legalized = True
         # --- cells and clusters around the placed macros --------------------------------------
         t0 = time.perf_counter()
@@ -324,6 +318,67 @@ def place(design: Design, floorplan: Floorplan | None = None, *, target_density:
         _report(progress, "cells", 1.0, {"overflow": final_ov})
     out = _rows_stage(design, out, src, opts, target, info, progress)
     return _finish(design, out, src, info, legalized, final_ov, t_all, target, seed)
+
+
+AUTO_MAX_MACROS = 128     # "auto" arranges at most this many movable macros on the periphery
+AUTO_MIN_SHARE = 0.002    # ... each at least this share of the core area on average
+
+
+def choose_layout(design: Design, fp: Floorplan, macros: np.ndarray, layout: str) -> str:
+    """The macro arrangement ``"auto"`` stands for.
+
+    ``"periphery"`` for designs whose movable macros are hard blocks in the floorplanning
+    sense — at most :data:`AUTO_MAX_MACROS` of them, with a mean area of at least
+    :data:`AUTO_MIN_SHARE` of the core (memories, PHYs; the common-practice rule then applies)
+    — and ``"free"`` for netlists where "macros" are hundreds of small blocks mixed with the
+    logic (e.g. the IBM mixed-size suite), where pushing them to the boundary costs
+    wirelength for nothing.  DEVELOPERS.md gives the measurements behind the thresholds.
+    """
+    if layout != "auto":
+        return layout
+    if not len(macros):
+        return "free"
+    c = design.core
+    share = float(np.mean(design.width[macros] * design.height[macros])) / float(
+        (c[2] - c[0]) * (c[3] - c[1]))
+    return "periphery" if len(macros) <= AUTO_MAX_MACROS and share >= AUTO_MIN_SHARE \
+        else "free"
+
+
+def _arrange_macros(design: Design, out: Floorplan, macros: np.ndarray, opts: PlacerOptions,
+                    info: dict, progress: Progress) -> Floorplan:
+    """Orientation (pins toward the logic, then HPWL), the layout (periphery or free) with
+    legalisation, and the channel rule, as the timed stages ``"orient"`` and ``"legalize"``."""
+    layout = choose_layout(design, out, macros, opts.macro_layout)
+    info["macro_layout"] = layout
+    t0 = time.perf_counter()
+    if opts.orient:
+        out = choose_orientations(design, out, macros=macros,
+                                  restrict=_inward(design, out, macros))
+    info["stage_seconds"]["orient"] = time.perf_counter() - t0
+    _report(progress, "orient", 1.0, {})
+    t0 = time.perf_counter()
+    channel = default_channel(design) if opts.channel is None else float(opts.channel)
+    if layout == "periphery":
+        out, edge = push_to_edges(design, out, macros)
+        out = close_channels(design, out, macros, channel)
+        out = compact(design, out, macros, edge)  # what a widened channel let go touches again
+    else:
+        out = legalize_macros(design, out, macros=macros)
+        out = close_channels(design, out, macros, channel)
+    if opts.orient:  # flips only (footprints stay): pins away from the wall they now face
+        out = choose_orientations(design, out, macros=macros, swap=False,
+                                  restrict=_inward(design, out, macros))
+    info["stage_seconds"]["legalize"] = time.perf_counter() - t0
+    _report(progress, "legalize", 1.0, {})
+    return out
+
+
+def _inward(design: Design, fp: Floorplan, macros: np.ndarray) -> np.ndarray:
+    """Orientation masks (per block) whose pins do not face the macro's nearest core edge."""
+    m = np.full(design.num_blocks, 0xFF, np.int64)
+    m[macros] = orient_mask_inward(design, fp, np.sort(macros))[np.argsort(np.argsort(macros))]
+    return m
 
 
 def _initial_positions(st: _Stage, cx, cy, mov_idx: np.ndarray, seed: int) -> None:

@@ -94,6 +94,17 @@ class PlacerOptions:
         runs the swap-based detailed placement; ``"global"`` leaves them where the global
         placement put them (faster; meant for live previews).  Soft clusters are never
         legalised.
+    macro_layout : {"auto", "periphery", "free"}
+        Where movable macros go after global placement.  ``"periphery"``: against the core
+        boundary, or stacked against macros that are, each on the edge nearest its global
+        position and in the order the global placement gives (common practice for hard
+        macros: the logic stays one region).  ``"free"``: wherever the global placement put
+        them, legalised with minimum displacement.  ``"auto"`` (default): see
+        :func:`floorwidget.placer.flow.choose_layout`.
+    channel : float or None
+        Two facing macros are either abutted (halos only) or at least this far apart (µm);
+        ``None`` (default): :func:`floorwidget.metrics.default_channel` (four row heights).
+        0 turns the rule off.
     detail_passes : int
         Most passes of detailed placement after row legalisation (0: none); passes stop
         earlier once one saves less than 0.2 % of the HPWL.  Default 8.
@@ -113,6 +124,8 @@ class PlacerOptions:
     orient: bool = True
     legalize_macros: bool = True
     cells: str = "legal"
+    macro_layout: str = "auto"
+    channel: float | None = None
     detail_passes: int = 8
 
     def __post_init__(self):
@@ -126,6 +139,11 @@ class PlacerOptions:
         check_int("detail_passes", self.detail_passes, 0, 100)
         if self.cells not in ("legal", "global"):
             raise ValueError(f"option 'cells' must be 'legal' or 'global', got {self.cells!r}")
+        if self.macro_layout not in ("auto", "periphery", "free"):
+            raise ValueError("option 'macro_layout' must be 'auto', 'periphery' or 'free', "
+                             f"got {self.macro_layout!r}")
+        if self.channel is not None:
+            check_range("channel", self.channel, 0.0, 1e9)
         check_range("anchor_weight", self.anchor_weight, 0.0, 1e6, lo_open=True)
         check_range("anchor_growth", self.anchor_growth, 0.0, 1e6)
         if self.bin_size is not None:

@@ -179,7 +179,8 @@ def _seg(gnet: np.ndarray) -> np.ndarray:
 
 
 def choose_orientations(design: Design, fp: Floorplan, macros: Iterable | None = None, *,
-                        passes: int = 50, swap: bool = True, weighted: bool = True) -> Floorplan:
+                        passes: int = 50, swap: bool = True, weighted: bool = True,
+                        restrict: np.ndarray | None = None) -> Floorplan:
     """Choose each movable macro's orientation to minimise the HPWL of its nets.
 
     Parameters
@@ -197,6 +198,10 @@ def choose_orientations(design: Design, fp: Floorplan, macros: Iterable | None =
         set False after legalisation to keep every footprint where it is.
     weighted : bool
         Use the nets' weights (the placer's objective) rather than plain HPWL.
+    restrict : (n,) uint8 array, optional
+        Per block, a mask of orientations to choose among (ANDed with the allowed ones; a
+        macro left with none keeps all its allowed ones), e.g. those whose pins face the
+        logic (:func:`floorwidget.placer.periphery.orient_mask_inward`).
 
     Returns
     -------
@@ -224,6 +229,9 @@ def choose_orientations(design: Design, fp: Floorplan, macros: Iterable | None =
     if cand.any():
         cidx = np.flatnonzero(cand)
         bits = design.orient_allowed[cidx].astype(np.int64)
+        if restrict is not None:
+            sub = bits & np.asarray(restrict, np.int64)[cidx]
+            bits = np.where(sub != 0, sub, bits)
         allowed = (bits[:, None] >> np.arange(8)[None, :]) & 1 == 1
         if not swap:
             w0, h0 = orient_size(design.width[cidx], design.height[cidx], out.orient[cidx])
