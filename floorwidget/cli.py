@@ -4,6 +4,7 @@
 
     floorwidget report  FILE [--lef L ...] [--json]
     floorwidget place   FILE [--lef L ...] -o OUT [--target-density D] [--seed S] [--json]
+                        [--macro-layout auto|periphery|free] [--channel UM]
     floorwidget convert IN OUT [--lef L ...]
     floorwidget render  FILE -o OUT.png|OUT.svg [--lef L ...] [--heat density|congestion]
 
@@ -46,6 +47,10 @@ _LABELS = [
     ("legal", "legal"),
     ("num_blocks", "blocks"),
     ("num_nets", "nets"),
+    ("narrow_channels", "narrow channels (macro pairs)"),
+    ("macros_facing_wall", "macros with pins to a wall"),
+    ("logic_regions", "logic regions"),
+    ("largest_logic_region", "largest logic region (share)"),
 ]
 
 
@@ -68,6 +73,16 @@ def _density(text: str) -> float:
         raise argparse.ArgumentTypeError(f"not a number: {text!r}") from None
     if not (math.isfinite(v) and 0.0 < v <= 1.0):
         raise argparse.ArgumentTypeError(f"must be a number in (0, 1], got {text!r}")
+    return v
+
+
+def _channel(text: str) -> float:
+    try:
+        v = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"not a number: {text!r}") from None
+    if not (math.isfinite(v) and 0.0 <= v <= 1e9):
+        raise argparse.ArgumentTypeError(f"must be a number of µm in [0, 1e9], got {text!r}")
     return v
 
 
@@ -123,6 +138,12 @@ def _parser() -> argparse.ArgumentParser:
                     help="target bin utilisation, 0 < D <= 1 (default 0.8)")
     pl.add_argument("--seed", type=_seed, default=0, metavar="S",
                     help=f"random seed, 0 <= S <= {_SEED_MAX} (default 0)")
+    pl.add_argument("--macro-layout", choices=("auto", "periphery", "free"), default="auto",
+                    help="macros against the core boundary and each other (periphery), where "
+                         "the wirelength puts them (free), or chosen per design (auto, default)")
+    pl.add_argument("--channel", type=_channel, default=None, metavar="UM",
+                    help="facing macros abut or stand at least UM µm apart (default: four row "
+                         "heights)")
     pl.add_argument("--json", action="store_true",
                     help="print the report as JSON (non-finite values as null)")
 
@@ -199,11 +220,13 @@ def _run(args) -> int:
         design = _load(args.file, args)
         bar = _Progress()
         try:
-            fp = place(design, target_density=args.target_density, seed=args.seed, progress=bar)
+            fp = place(design, target_density=args.target_density, seed=args.seed, progress=bar,
+                       macro_layout=args.macro_layout, channel=args.channel)
         finally:
             bar.close()
         save(design, fp, args.output)
-        _print_report(evaluate(design, fp, target_density=args.target_density), args.json)
+        _print_report(evaluate(design, fp, target_density=args.target_density,
+                               channel=args.channel), args.json)
     elif args.command == "convert":
         design = _load(args.input, args)
         save(design, design.initial, args.output)

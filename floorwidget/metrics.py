@@ -80,6 +80,7 @@ __all__ = [
     "net_hpwl",
     "nets_hpwl",
     "peak_density",
+    "periphery_macros",
     "pin_side",
     "row_of",
     "pin_positions",
@@ -1091,6 +1092,42 @@ def facing_wall(design: Design, fp: Floorplan) -> np.ndarray:
 def macros_facing_wall(design: Design, fp: Floorplan) -> int:
     """Number of macros whose pins face the nearest core edge (:func:`facing_wall`)."""
     return len(facing_wall(design, fp))
+
+
+def periphery_macros(design: Design, fp: Floorplan) -> np.ndarray:
+    """Block indices of the macros on the periphery: against the core boundary, or abutted to
+    a macro that is.
+
+    A macro is *against the boundary* when the gap between its footprint and a core edge is at
+    most its halo on that side (nothing fits between); two macros are *abutted* when their
+    footprints' projections on one axis overlap by a positive length and their halo boxes
+    touch or overlap (the abutment of :func:`channel_gaps`).  One step only: a macro abutted to
+    an abutted macro is not on the periphery unless it is against the boundary itself.
+
+    Parameters
+    ----------
+    design : Design
+    fp : Floorplan
+
+    Returns
+    -------
+    int array
+    """
+    mac = np.flatnonzero(design.kind == MACRO)
+    f = fp.rects()[mac]
+    hl = design.halo[mac]
+    c = design.core
+    gap = np.stack([f[:, 0] - c[0], f[:, 1] - c[1], c[2] - f[:, 2], c[3] - f[:, 3]], axis=1)
+    wall = (gap <= hl + TOL).any(axis=1)
+    a, b, _ = _overlap_pairs(fp.rects(halo=True)[mac] + np.array([-TOL, -TOL, TOL, TOL]), 0.0)
+    ox = np.minimum(f[a, 2], f[b, 2]) - np.maximum(f[a, 0], f[b, 0])
+    oy = np.minimum(f[a, 3], f[b, 3]) - np.maximum(f[a, 1], f[b, 1])
+    face = (ox > TOL) | (oy > TOL)
+    a, b = a[face], b[face]
+    on = wall.copy()
+    on[a[wall[b]]] = True
+    on[b[wall[a]]] = True
+    return mac[on]
 
 
 @dataclass(frozen=True)

@@ -243,3 +243,32 @@ def test_logic_regions_hand_worked():
     left = 300.0 - (2.5 * 28.5 + 1.5 * 28.5 - 27.0) - 2.25
     assert lr.areas.tolist() == [780.0, left, 2.25] and lr.count == 2
     assert lr.largest == pytest.approx(780.0 / (780.0 + left + 2.25))
+
+
+# --------------------------------------------------------------------------------------------
+# macros on the periphery, against shapely
+
+
+@settings(max_examples=100, deadline=None)
+@given(macro_sets())
+def test_periphery_macros_match_shapely(case):
+    # against the boundary: the halo box is not properly inside the core (it touches or crosses
+    # the boundary); abutted: halo boxes intersect and the footprints share a span on one axis
+    xs, ys, ws, hs, halo, _ = case
+    d = macro_design(list(zip(ws, hs)), halo=halo)
+    fp = Floorplan(d, xs, ys)
+    core = box(*d.core)
+    foot = [box(x, y, x + w, y + h) for x, y, w, h in zip(xs, ys, ws, hs)]
+    hb = [box(x - h_[0], y - h_[1], x + w + h_[2], y + h + h_[3])
+          for x, y, w, h, h_ in zip(xs, ys, ws, hs, halo)]
+    wall = [not core.contains_properly(h) for h in hb]
+
+    def share_span(a, b):
+        ax0, ay0, ax1, ay1 = foot[a].bounds
+        bx0, by0, bx1, by1 = foot[b].bounds
+        return min(ax1, bx1) > max(ax0, bx0) or min(ay1, by1) > max(ay0, by0)
+
+    n = len(foot)
+    want = [i for i in range(n) if wall[i] or any(
+        wall[j] and hb[i].intersects(hb[j]) and share_span(i, j) for j in range(n) if j != i)]
+    assert M.periphery_macros(d, fp).tolist() == want
