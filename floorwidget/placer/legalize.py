@@ -94,6 +94,9 @@ _EPS = 1e-9  # tolerance in grid units when turning a distance into a number of 
 _GRID_TOL = 1e-6  # µm, as in design.off_grid
 _EVAL_CELLS = 1 << 18  # candidate x obstacle comparisons per numpy chunk
 _T0 = 0.3  # initial annealing temperature, in median macro sides
+_DISP_WEIGHT = 0.02  # weight of the packed displacement against the violation while annealing
+_RUN_PER_MACRO = 1000  # annealing moves per macro in one run
+_SWAP_WINDOW = 0.01  # swap partners at most this fraction of the macros apart in a sequence
 
 
 # ---------------------------------------------------------------------------------------------
@@ -893,35 +896,40 @@ class _Packer:
         self.gm = np.lexsort((ids, u + v))
 
     def search(self, moves: int, seed: int, report) -> tuple[np.ndarray, np.ndarray] | None:
-        """Simulated annealing over sequence-pair moves minimising the violation; ``(kx, ky)``
-        of the first legal packing, or None when ``moves`` are spent.
+        """Simulated annealing over sequence-pair moves (see :func:`_sp_anneal`) minimising the
+        violation; ``(kx, ky)`` of the first legal packing after :meth:`spread`, or None when
+        ``moves`` are spent.
 
-        The budget is spent in runs of ``max(30000, 500 n)`` moves, each cooling from the
+        The budget is spent in runs of ``max(30000, 1000 n)`` moves, each cooling from the
         same temperature to zero; runs start alternately from the starting pair and from a
         random pair, each with its own random stream."""
         prob = self.prob
         n = self.n
+        tx = (prob.x0 - prob.ox) / prob.px  # targets, grid units
+        ty = (prob.y0 - prob.oy) / prob.py
         args = (n, self.sx, self.sy, self.lbx, self.ubx, self.lby, self.uby, prob.kx0,
-                prob.kx1, prob.ky0, prob.ky1, prob.px, prob.py)
+                prob.kx1, prob.ky0, prob.ky1, prob.px, prob.py, tx, ty)
         kx, ky = np.zeros(n), np.zeros(n)
         hix, hiy = np.zeros(n), np.zeros(n)
         t0 = _T0 * float(np.median(np.concatenate([prob.w, prob.h])))
         chunk = 2000
-        run_length = max(30_000, 500 * n)
+        run_length = max(30_000, _RUN_PER_MACRO * n)
         done = 0
         run = 0
-        state = np.array([np.inf, t0])
+        state = np.array([np.inf, t0, 0.0])
         rng = np.random.default_rng(seed)
         while done < moves and state[0] > 0:
             gp, gm = self.gp.copy(), self.gm.copy()
             if run % 2:  # every other run from a random pair, to leave a deep basin behind
                 gp, gm = rng.permutation(gp), rng.permutation(gm)
-            state = np.array([_sp_pack(gp, gm, *args, kx, ky, hix, hiy), t0])
+            viol, disp = _sp_pack(gp, gm, *args, kx, ky, hix, hiy)
+            state = np.array([viol, t0, disp])
             length = min(run_length, moves - done)
             for start in range(0, length, chunk):
                 stop = min(length, start + chunk)
                 _sp_anneal(gp, gm, *args, kx, ky, hix, hiy, state, start, stop, length,
-                           seed * 7919 + run * 104729)
+                           seed * 7919 + run * 104729, _DISP_WEIGHT,
+                           max(3, int(_SWAP_WINDOW * n)))
                 done += stop - start
                 report("legalize", 0.3 + 0.3 * done / moves,
                        {"stage": "packing", "violation": float(state[0]), "restarts": run})
@@ -972,11 +980,12 @@ class _Packer:
 
 
 @njit(cache=True)
-def _sp_pack(gp, gm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py,
+def _sp_pack(gp, gm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py, tx, ty,
              kx, ky, hix, hiy):  # pragma: no cover (compiled)
     """Pack sequence pair ``(gp, gm)`` into ``kx, ky`` (the least positions, which are also
-    the lower bounds they met) with upper bounds ``hix, hiy``; return the violation in µm.
-    Elements ``< n`` are macros, the others obstacles."""
+    the lower bounds they met) with upper bounds ``hix, hiy``; return the violation and the
+    L1 displacement from the targets ``tx, ty``, both in µm.  Elements ``< n`` are macros, the
+    others obstacles."""
     tot = len(gp)
     m = tot - n
     pp = np.empty(tot, np.int64)
@@ -1001,6 +1010,7 @@ def _sp_pack(gp, gm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py,
                 hy = min(hy, uby[o, a])
         hix[a], hiy[a] = hx, hy
     viol = 0.0
+    disp = 0.0
     for q in range(tot):  # 'left of': topological in G+ order
         b = gp[q]
         if b >= n:
@@ -1012,6 +1022,7 @@ def _sp_pack(gp, gm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py,
                 v = max(v, kx[a] + sx[a, b])
         kx[b] = v
         viol += max(0.0, v - hix[b]) * px
+        disp += abs(v - tx[b]) * px
     for q in range(tot):  # 'below': topological in G- order
         b = gm[q]
         if b >= n:
@@ -1023,7 +1034,8 @@ def _sp_pack(gp, gm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py,
                 v = max(v, ky[a] + sy[a, b])
         ky[b] = v
         viol += max(0.0, v - hiy[b]) * py
-    return viol
+        disp += abs(v - ty[b]) * py
+    return viol, disp
 
 
 @njit(cache=True)
@@ -1044,17 +1056,24 @@ def _move_next_to(seq, a, b, after):  # pragma: no cover (compiled)
 
 
 @njit(cache=True)
-def _sp_anneal(gp, gm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py,
-               kx, ky, hix, hiy, state, start, stop, total, seed):  # pragma: no cover
+def _sp_anneal(gp, gm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py, tx, ty,
+               kx, ky, hix, hiy, state, start, stop, total, seed, lam,
+               win):  # pragma: no cover
     """Annealing moves ``start .. stop`` of ``total`` on ``(gp, gm)`` in place; ``state`` holds
-    ``(cost, initial temperature)``.  Moves: swap a macro with another element in G+, in G-
-    or in both, or the slack-driven move of Adya and Markov (IEEE TVLSI 2003): a macro that
-    overshoots its bound along the worse axis is stacked next to a macro with the most room
-    across it.  Deterministic for a given ``seed``."""
+    ``(violation, initial temperature, displacement)``.  The cost is the violation plus
+    ``lam`` times the packed displacement, that weight fading to zero over the run so that the
+    run ends on legality alone; it stops at the first legal packing.  Moves, all local (the
+    partner lies at most ``win`` places away in a sequence, so the pair keeps the input's
+    relative order away from the move): swap a macro with another element in G+, in G- or in
+    both, or the slack-driven move of Adya and Markov (IEEE TVLSI 2003): a macro that
+    overshoots its bound along the worse axis is stacked next to the nearby macro with the most
+    room across it.  Deterministic for a given ``seed``."""
     np.random.seed(seed + start)
     tot = len(gp)
-    cost = state[0]
+    viol = state[0]
     t0 = state[1]
+    disp = state[2]
+    cost = viol + lam * disp
     tp = gp.copy()
     tm = gm.copy()
     nkx = kx.copy()
@@ -1062,18 +1081,27 @@ def _sp_anneal(gp, gm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py
     nhx = hix.copy()
     nhy = hiy.copy()
     for it in range(start, stop):
-        if cost <= 0.0:
+        if viol <= 0.0:
             break
         frac = 1.0 - it / total
         temp = t0 * frac * frac + 1e-9
+        w_d = lam * frac  # the displacement term fades out: the run ends on legality alone
+        cost = viol + w_d * disp
         tp[:] = gp
         tm[:] = gm
         kind = np.random.randint(0, 4)
-        if kind < 3 or n < 2:
+        if kind < 3 or n < 2:  # swap with an element at most `win` places away in one sequence
             a = np.random.randint(0, n)
-            b = np.random.randint(0, tot - 1)
-            if b >= a:
-                b += 1
+            seq = tm if kind == 1 else tp
+            qa = 0
+            while seq[qa] != a:
+                qa += 1
+            lo = max(0, qa - win)
+            hi = min(tot - 1, qa + win)
+            qb = lo + np.random.randint(0, hi - lo)
+            if qb >= qa:
+                qb += 1
+            b = seq[qb]
             if kind != 1:
                 for q in range(tot):
                     if tp[q] == a:
@@ -1106,12 +1134,18 @@ def _sp_anneal(gp, gm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py
                         a = q
                         break
                     pick -= 1
-            # b: among the macros with the most room across (best of a few draws)
+            # b: the macro with the most room across among a few drawn near a in a sequence
+            seq = tm if np.random.randint(0, 2) == 1 else tp
+            qa = 0
+            while seq[qa] != a:
+                qa += 1
+            lo = max(0, qa - win)
+            hi = min(tot - 1, qa + win)
             b = -1
             best = -np.inf
             for _ in range(8):
-                c = np.random.randint(0, n)
-                if c == a:
+                c = seq[lo + np.random.randint(0, hi - lo + 1)]
+                if c == a or c >= n:
                     continue
                 room = (hiy[c] - ky[c]) if on_x else (hix[c] - kx[c])
                 if room > best:
@@ -1125,8 +1159,9 @@ def _sp_anneal(gp, gm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py
             else:  # side by side: right of b (after in both) or left (before in both)
                 _move_next_to(tp, a, b, after)
                 _move_next_to(tm, a, b, after)
-        c2 = _sp_pack(tp, tm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py,
-                      nkx, nky, nhx, nhy)
+        v2, d2 = _sp_pack(tp, tm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py,
+                          tx, ty, nkx, nky, nhx, nhy)
+        c2 = v2 + w_d * d2
         if c2 <= cost or np.random.random() < np.exp(-(c2 - cost) / temp):
             gp[:] = tp
             gm[:] = tm
@@ -1134,5 +1169,6 @@ def _sp_anneal(gp, gm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py
             ky[:] = nky
             hix[:] = nhx
             hiy[:] = nhy
-            cost = c2
-    state[0] = cost
+            cost, viol, disp = c2, v2, d2
+    state[0] = viol
+    state[2] = disp
