@@ -85,6 +85,7 @@ __all__ = [
     "row_of",
     "pin_positions",
     "rudy_map",
+    "wall_bars",
 ]
 
 #: Upper bound on the number of bins along either side of the default grid.  128 keeps a map
@@ -1087,6 +1088,30 @@ def facing_wall(design: Design, fp: Floorplan) -> np.ndarray:
     """
     mac = np.flatnonzero(design.kind == MACRO)
     return mac[pin_side(design, fp) == nearest_wall(design, fp)]
+
+
+def wall_bars(design: Design, fp: Floorplan, depth: float = 0.12) -> tuple[np.ndarray,
+                                                                            np.ndarray]:
+    """Marks for the macros of :func:`facing_wall`: a thin rectangle along each one's pin side,
+    inside the footprint, ``depth`` times its shorter side deep.
+
+    Returns
+    -------
+    blocks : int array
+    bars : (k, 4) array of ``xlo, ylo, xhi, yhi``
+    """
+    mac = np.flatnonzero(design.kind == MACRO)
+    side = pin_side(design, fp)
+    hit = (side == nearest_wall(design, fp)) & (side >= 0)
+    r = fp.rects()[mac[hit]]
+    side = side[hit]
+    t = depth * np.minimum(r[:, 2] - r[:, 0], r[:, 3] - r[:, 1])
+    bars = r.copy()
+    bars[side == 0, 2] = r[side == 0, 0] + t[side == 0]   # left: keep a strip at xlo
+    bars[side == 1, 0] = r[side == 1, 2] - t[side == 1]   # right
+    bars[side == 2, 3] = r[side == 2, 1] + t[side == 2]   # bottom
+    bars[side == 3, 1] = r[side == 3, 3] - t[side == 3]   # top
+    return mac[hit], bars
 
 
 def macros_facing_wall(design: Design, fp: Floorplan) -> int:

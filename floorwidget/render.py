@@ -57,7 +57,8 @@ def _illegal_mask(design: Design, fp: Floorplan) -> np.ndarray:
 
 def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str | None = None,
            show_labels: bool = True, ax=None, figsize: tuple[float, float] | None = None,
-           dpi: int = 150, title: str | None = None, target_density: float | None = None):
+           dpi: int = 150, title: str | None = None, target_density: float | None = None,
+           channel: float | None = None):
     """Draw a floorplan to scale; write it to ``path`` (PNG or SVG, by suffix) if given.
 
     Layers, bottom to top: a raster of soft-cluster and standard-cell area (or, with ``heat``,
@@ -67,8 +68,13 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
     marks, then a legend, a scale bar and a title with the report figures.  Macro status shows
     as fill colour *and* outline pattern (:data:`floorwidget.style.STATUS_STYLES`); macros that
     break a rule (:func:`floorwidget.metrics.legality`) get, on top, the illegal style's
-    cross-hatch and heavy dotted outline.  In SVG output
-    each macro's rectangle carries ``id="macro:<name>"``.
+    cross-hatch and heavy dotted outline.  The floorplan's shape: a channel between two facing
+    macros that is open but narrower than ``channel`` is a hatched vermillion strip
+    (:data:`floorwidget.style.NARROW_CHANNEL`), and a macro whose pins face the nearest core
+    edge carries a dashed, hatched bar along its pin side
+    (:data:`floorwidget.style.PINS_TO_WALL`).  In SVG output each macro's rectangle carries
+    ``id="macro:<name>"``, each narrow channel ``id="channel:<a>:<b>"`` and each bar
+    ``id="pins-to-wall:<name>"``.
 
     Parameters
     ----------
@@ -94,6 +100,10 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
     target_density : float, optional
         The target of the overflow figure in the title; default the one the floorplan was
         placed with (``fp.info["target_density"]``), else the report's default.
+    channel : float, optional
+        Channels between facing macros narrower than this (µm) are drawn as hatched strips
+        (:func:`floorwidget.metrics.channel_gaps`); default the one the floorplan was placed
+        with (``fp.info["channel"]``), else :func:`floorwidget.metrics.default_channel`.
 
     Returns
     -------
@@ -221,6 +231,25 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
                                    zorder=4.4))
     for i in mac[has_halo]:
         outline(hrects[i], style.HALO, 3, alpha=0.9)
+    # floorplan shape: narrow channels (hatched strips) and pins toward a wall (a bar on the
+    # pin side)
+    nc, wc = style.NARROW_CHANNEL, style.PINS_TO_WALL
+    chans = metrics.channel_gaps(design, fp, channel if channel is not None
+                                 else fp.info.get("channel"))
+    for (a, b), s in zip(chans.pairs, chans.strips):
+        p = Rectangle((s[0], s[1]), s[2] - s[0], s[3] - s[1],
+                      facecolor=(*_rgb(nc.fill), nc.fill_opacity), edgecolor=nc.stroke,
+                      linewidth=nc.stroke_width, hatch=nc.hatch, zorder=4.6)
+        p.set_gid(f"channel:{design.names[a]}:{design.names[b]}")
+        ax.add_patch(p)
+    walled, bars = metrics.wall_bars(design, fp)
+    for i, s in zip(walled, bars):
+        p = Rectangle((s[0], s[1]), s[2] - s[0], s[3] - s[1],
+                      facecolor=(*_rgb(wc.fill), wc.fill_opacity), edgecolor=wc.stroke,
+                      linewidth=wc.stroke_width, linestyle=wc.mpl_linestyle(), hatch=wc.hatch,
+                      zorder=4.8)
+        p.set_gid(f"pins-to-wall:{design.names[i]}")
+        ax.add_patch(p)
     if len(mac):
         # orientation notch: the N-frame lower-left corner, mapped through the orientation
         w0, h0 = design.width[mac], design.height[mac]
@@ -276,6 +305,12 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
         handles.append(Patch(facecolor="none", edgecolor=ill.fill, linewidth=ill.stroke_width,
                              linestyle=ill.mpl_linestyle(), hatch=ill.hatch,
                              label="breaks a rule (overlap, die, core, blockage or grid)"))
+    if len(chans):
+        handles.append(Patch(facecolor=(*_rgb(nc.fill), nc.fill_opacity), edgecolor=nc.stroke,
+                             hatch=nc.hatch, label=f"{nc.label} (< {chans.channel:.3g} µm)"))
+    if len(walled):
+        handles.append(Patch(facecolor=(*_rgb(wc.fill), wc.fill_opacity), edgecolor=wc.stroke,
+                             linestyle=wc.mpl_linestyle(), hatch=wc.hatch, label=wc.label))
     if (design.halo[mac] > 0).any():
         handles.append(Patch(facecolor="none", edgecolor=style.HALO.stroke,
                              linewidth=style.HALO.stroke_width,
@@ -306,7 +341,7 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
 
     if target_density is None:
         target_density = fp.info.get("target_density")
-    rep = metrics.evaluate(design, fp, target_density=target_density)
+    rep = metrics.evaluate(design, fp, target_density=target_density, channel=chans.channel)
     names = np.bincount(status[mac], minlength=3) if len(mac) else np.zeros(3, int)
     counts = ", ".join(f"{int(c)} {STATUS_NAMES[k]}" for k, c in enumerate(names) if c)
     head = title if title is not None else f"{design.name}: {len(mac)} macros ({counts or 'none'})"
@@ -314,6 +349,9 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
            f"{rep['target_density']:g} · "
            f"RUDY peak {rep['congestion_peak']:.3g} · "
            f"{'legal' if rep['legal'] else str(rep['macro_overlaps']) + ' macro overlaps'}"
+           f"\n{rep['narrow_channels']} narrow channels · {rep['macros_facing_wall']} macros "
+           f"with pins to a wall · {rep['logic_regions']} logic regions (largest "
+           f"{rep['largest_logic_region']:.0%} of the free area)"
            f"\nearly floorplanning estimates; sign-off belongs to the implementation flow")
     ax.set_title(f"{head}\n{sub}", fontsize=8.5, loc="left")
 

@@ -39,8 +39,10 @@ __all__ = [
     "DIE",
     "HALO",
     "KIND_COLOURS",
+    "NARROW_CHANNEL",
     "OKABE_ITO",
     "ORANGE",
+    "PINS_TO_WALL",
     "REDDISH_PURPLE",
     "SKY_BLUE",
     "STATUS_STYLES",
@@ -134,6 +136,15 @@ DIE = BlockStyle(WHITE, 0.0, BLACK, 1.6, (), "solid", "", "die")
 CORE = BlockStyle(WHITE, 0.0, BLACK, 0.8, (1.0, 2.0), "dotted", "", "core (rows)")
 #: I/O terminal marks.
 TERMINAL_MARK = BlockStyle(BLACK, 1.0, BLACK, 0.5, (), "solid", "", "I/O terminal")
+
+#: A channel between two facing macros that is open but narrower than the channel rule:
+#: a vermillion strip with a back-diagonal hatch (the hatch carries it in greyscale).
+NARROW_CHANNEL = BlockStyle(VERMILLION, 0.30, VERMILLION, 1.0, (), "solid", "\\\\\\",
+                            "narrow channel")
+#: A macro whose pins face the nearest core edge: a heavy dashed vermillion bar along its pin
+#: side, inside the footprint.
+PINS_TO_WALL = BlockStyle(VERMILLION, 0.9, BLACK, 0.8, (4.0, 2.0), "dashed", "||",
+                          "pins toward a wall")
 
 #: Base colour per block kind (soft clusters and cells are shown as an area raster).
 KIND_COLOURS = {MACRO: SKY_BLUE, CLUSTER: BLUISH_GREEN, CELL: BLUISH_GREEN, TERMINAL: BLACK}

@@ -43,6 +43,11 @@ def ui_colors() -> dict:
         "flyline": _st.BLACK,
         "selection": _st.YELLOW, "selection_under": _st.BLACK,
         "handle": _st.WHITE,
+        "channel": _st.NARROW_CHANNEL.fill, "channel_opacity": _st.NARROW_CHANNEL.fill_opacity,
+        "channel_label": _st.NARROW_CHANNEL.label,
+        "wall": _st.PINS_TO_WALL.fill, "wall_opacity": _st.PINS_TO_WALL.fill_opacity,
+        "wall_stroke": _st.PINS_TO_WALL.stroke, "wall_dash": _st.PINS_TO_WALL.bq_line_style,
+        "wall_label": _st.PINS_TO_WALL.label,
     }
 
 

@@ -67,6 +67,10 @@ def _fmt(v: Any, unit: str = "") -> str:
     return f"{f:.3g}{unit}"
 
 
+def _pct(v: Any) -> str:
+    return "–" if v is None else f"{float(v):.0%}"
+
+
 class FloorplanWidget(W.VBox):
     """An editable, to-scale floorplan in the notebook.
 
@@ -143,9 +147,17 @@ class FloorplanWidget(W.VBox):
 
     def _build_controls(self, live: bool, pin_on_drop: bool) -> None:
         self.buttons: dict[str, W.Button] = {}
+        # how "Place all" arranges the macros (the placer's macro_layout option)
+        self.layout_style = W.Dropdown(
+            options=[("layout: auto", "auto"), ("layout: periphery", "periphery"),
+                     ("layout: free", "free")], value="auto",
+            tooltip="Macro arrangement for Place all: against the core boundary and each "
+                    "other (periphery), where the wirelength puts them (free), or chosen "
+                    "per design (auto)", layout=W.Layout(width="112px"))
         rows = [
             [self._button("Place all", lambda: self.place(wait=False),
                           "Global placement of every movable block (runs in the background)"),
+             self.layout_style,
              self._button("Refine", self.refine, "Improve around the pinned macros"),
              self._button("Legalise", self.legalize, "Remove macro overlaps, snap to grid")],
             [self._button("Pin", lambda: self._on_selection("pin"), "Pin the selected macros"),
@@ -180,7 +192,8 @@ class FloorplanWidget(W.VBox):
         self.toggles["Density"].observe(lambda ch: self._heat_toggled("density", ch), "value")
         self.toggles["Congestion"].observe(lambda ch: self._heat_toggled("congestion", ch),
                                            "value")
-        self.controls = W.VBox([self.mode] + [W.HBox(r) for r in rows]
+        self.controls = W.VBox([self.mode]
+                               + [W.HBox(r, layout=W.Layout(flex_flow="row wrap")) for r in rows]
                                + [W.HBox(heat), W.HBox(opts)])
         self.progress = W.FloatProgress(value=0.0, min=0.0, max=1.0, description="",
                                         layout=W.Layout(width="340px", visibility="hidden"))
@@ -247,6 +260,14 @@ class FloorplanWidget(W.VBox):
              "I/O pin"),
             (swatch(f'<polygon points="2,14 10,14 2,6" fill="{ui["outline"]}"/>'),
              "pin-1 corner"),
+            (swatch(f'<rect x="2" y="5" width="22" height="6" fill="{ui["channel"]}" '
+                    f'fill-opacity="{ui["channel_opacity"]}" stroke="{ui["channel"]}"/>'
+                    f'<polyline points="2,11 7,5 12,11 17,5 22,11" fill="none" '
+                    f'stroke="{ui["channel"]}"/>'), ui["channel_label"]),
+            (swatch(f'<rect x="2" y="2" width="22" height="12" fill="none" '
+                    f'stroke="{ui["outline"]}"/><rect x="2" y="2" width="5" height="12" '
+                    f'fill="{ui["wall"]}" stroke="{ui["wall_stroke"]}" '
+                    f'stroke-dasharray="2,1"/>'), ui["wall_label"]),
             (swatch(f'<line x1="2" y1="8" x2="24" y2="8" stroke="{ui["flyline"]}" '
                     f'stroke-opacity="0.45" stroke-width="4"/>'), "nets (width ~ count)"),
             (swatch(f'<rect x="3" y="3" width="20" height="10" fill="none" '
@@ -514,6 +535,10 @@ class FloorplanWidget(W.VBox):
                                f"{_fmt(r.get('macro_overlap_area'), ' µm²')}"),
             ("Out of die / off grid", f"{_fmt(r.get('out_of_die'))} / {_fmt(r.get('off_grid'))}"),
             ("Legal", _fmt(r.get("legal"))),
+            ("Narrow channels", f"{_fmt(r.get('narrow_channels'))} pairs"),
+            ("Pins to a wall", f"{_fmt(r.get('macros_facing_wall'))} macros"),
+            ("Logic regions", f"{_fmt(r.get('logic_regions'))}, largest "
+                              f"{_pct(r.get('largest_logic_region'))} of the free area"),
             ("Last solve", "–" if solve is None else f"{float(solve):.2f} s"),
         ]
         body = "".join(f"<tr><td style='padding-right:10px'>{k}</td>"
@@ -533,13 +558,16 @@ class FloorplanWidget(W.VBox):
         alts = self.session.alternatives
         cols = [("hpwl", "HPWL µm"), ("density_overflow", "overflow"),
                 ("congestion_peak", "cong. peak"), ("congestion_p99", "cong. p99"),
-                ("macro_overlaps", "overlaps"), ("legal", "legal")]
+                ("macro_overlaps", "overlaps"), ("legal", "legal"),
+                ("narrow_channels", "narrow ch."), ("macros_facing_wall", "pins to wall"),
+                ("logic_regions", "logic regions"), ("largest_logic_region", "largest")]
         head = "".join(f"<th style='padding:0 8px'>{h}</th>" for _, h in cols)
         rows = []
         cur = self.session.report
         for lab, rep in [("current", cur)] + [(a.label, a.report) for a in alts]:
-            cells = "".join(f"<td style='text-align:right;padding:0 8px'>{_fmt(rep.get(k))}</td>"
-                            for k, _ in cols)
+            cells = "".join(f"<td style='text-align:right;padding:0 8px'>"
+                            f"{(_pct if k == 'largest_logic_region' else _fmt)(rep.get(k))}"
+                            "</td>" for k, _ in cols)
             rows.append(f"<tr><td>{html.escape(lab)}</td>{cells}</tr>")
         return (f"<table style='font-size:12px'><tr><th>label</th>{head}</tr>"
                 + "".join(rows) + "</table>")
@@ -640,6 +668,8 @@ class FloorplanWidget(W.VBox):
         request is refused, not queued.
         """
         opts = {**self.place_options, **options}
+        if self.layout_style.value != "auto":  # "auto" is the placer's default
+            opts.setdefault("macro_layout", self.layout_style.value)
         return self._run("Place", lambda: self.session.place(progress=self._progress, **opts),
                          wait)
 

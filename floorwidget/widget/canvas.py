@@ -6,7 +6,9 @@ engineer compares is drawn exactly like what they edit.
 
 Layer order, bottom to top: heat images (soft clusters / cells, density, RUDY congestion), die
 and core outlines, placement rows (only when zoomed in), blockages, halos, macro fills, status
-outlines, orientation notches, flylines, selection, I/O pins, labels, drag handles.  Every layer
+outlines, narrow channels (a filled strip with a zigzag hatch) and bars on the pin side of macros
+whose pins face a wall, orientation notches, flylines, selection, I/O pins, labels, drag
+handles.  Every layer
 is a single mark, so the number of marks does not grow with the design; each mark holds at most
 a few thousand elements.
 """
@@ -96,6 +98,11 @@ class Canvas:
         self.selected: np.ndarray = np.zeros(0, np.intp)
         self._illegal = np.zeros(design.num_blocks, bool)
         self.heat: str | None = None
+        #: channel rule (µm) for the narrow-channel strips; None: the floorplan's, else the
+        #: default of :func:`floorwidget.metrics.default_channel`
+        self.channel: float | None = None
+        self.narrow = None                       # metrics.Channels drawn, after update()
+        self.walled = np.zeros(0, np.intp)       # macros drawn with a pins-to-wall bar
         self._has_soft = bool(((design.kind != MACRO) & (design.kind != TERMINAL)).any())
         self.status_style = status_style()
         self.ui = ui_colors()
@@ -148,6 +155,15 @@ class Canvas:
         # a third cue besides colour and outline, for greyscale prints
         m["hatch"] = bq.Lines(x=px, y=py, scales=sc, colors=[self.ui["outline"]],
                               stroke_width=1.2, opacities=[0.8], visible=False)
+        # floorplan shape: narrow channels and pins toward a wall (metrics.channel_gaps and
+        # metrics.wall_bars); colour, hatch and dash so they read in greyscale too
+        m["channels"] = bq.Lines(x=px, y=py, scales=sc, fill="inside", stroke_width=1.0,
+                                 colors=[self.ui["channel"]], visible=False)
+        m["channel_hatch"] = bq.Lines(x=px, y=py, scales=sc, stroke_width=1.0,
+                                      colors=[self.ui["channel"]], visible=False)
+        m["wall_bars"] = bq.Lines(x=px, y=py, scales=sc, fill="inside", stroke_width=1.5,
+                                  colors=[self.ui["wall_stroke"]],
+                                  line_style=self.ui["wall_dash"], visible=False)
         m["notches"] = bq.Lines(x=px, y=py, scales=sc, fill="inside", stroke_width=0.5,
                                 colors=[self.ui["outline"]], visible=False)
         m["flylines"] = bq.Lines(x=px, y=py, scales=sc, fill="inside", stroke_width=0.0,
@@ -317,6 +333,7 @@ class Canvas:
                     m["notches"].x, m["notches"].y = nx_, ny_
                     _set_list(m["notches"], "fill_colors", [self.ui["outline"]] * len(idx))
                     m["notches"].visible = True
+                self._draw_shape()
                 if "handles" in m:
                     cx, cy = fp.centres()
                     with m["handles"].hold_sync():
@@ -326,6 +343,38 @@ class Canvas:
                 self._draw_labels()
                 self._draw_flylines()
                 self._draw_selection()
+
+    def _draw_shape(self) -> None:
+        """Narrow channels and pins-toward-a-wall bars of the current floorplan."""
+        from .. import metrics
+
+        fp, m = self.fp, self.marks
+        chans = metrics.channel_gaps(self.design, fp,
+                                     self.channel if self.channel is not None
+                                     else fp.info.get("channel"))
+        self.narrow = chans
+        for name in ("channels", "channel_hatch"):
+            m[name].visible = bool(len(chans))
+        if len(chans):
+            x, y = geo.rect_rows(chans.strips)
+            zx, zy = geo.zigzag_rows(chans.strips, chans.vertical)
+            with m["channels"].hold_sync():
+                m["channels"].x, m["channels"].y = x, y
+                _set_list(m["channels"], "fill_colors", [self.ui["channel"]] * len(x))
+                _set_list(m["channels"], "fill_opacities",
+                          [float(self.ui["channel_opacity"])] * len(x))
+            with m["channel_hatch"].hold_sync():
+                m["channel_hatch"].x, m["channel_hatch"].y = zx, zy
+        blocks, bars = metrics.wall_bars(self.design, fp)
+        self.walled = blocks
+        mk = m["wall_bars"]
+        mk.visible = bool(len(blocks))
+        if len(blocks):
+            x, y = geo.rect_rows(bars)
+            with mk.hold_sync():
+                mk.x, mk.y = x, y
+                _set_list(mk, "fill_colors", [self.ui["wall"]] * len(x))
+                _set_list(mk, "fill_opacities", [float(self.ui["wall_opacity"])] * len(x))
 
     def _draw_hatch(self, rects: np.ndarray, keys: np.ndarray) -> None:
         st = self.status_style

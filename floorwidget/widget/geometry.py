@@ -17,6 +17,7 @@ __all__ = [
     "flyline_bundles",
     "square_view",
     "visible_rows",
+    "zigzag_rows",
 ]
 
 
@@ -141,3 +142,36 @@ def terminal_xy(design: Design, fp: Floorplan) -> tuple[np.ndarray, np.ndarray]:
     t = design.kind == TERMINAL
     cx, cy = fp.centres()
     return cx[t], cy[t]
+
+
+def zigzag_rows(strips: np.ndarray, vertical: np.ndarray,
+                max_teeth: int = 24) -> tuple[np.ndarray, np.ndarray]:
+    """A zigzag across each strip, as a hatch that one ``Lines`` row can draw.
+
+    The line runs from one long side of the strip to the other and back, advancing along the
+    strip by its width each time (so the teeth are at 45 degrees), with at most ``max_teeth``
+    crossings (wider teeth on long strips); rows are padded by repeating their last point.
+
+    Parameters
+    ----------
+    strips : (k, 4) array of ``xlo, ylo, xhi, yhi``
+    vertical : (k,) bool array
+        True for strips that run up and down (their width is along x).
+
+    Returns
+    -------
+    x, y : (k, max_teeth + 1) arrays
+    """
+    s = np.asarray(strips, dtype=np.float64).reshape(-1, 4)
+    v = np.asarray(vertical, bool).reshape(-1)
+    across = np.where(v, s[:, 2] - s[:, 0], s[:, 3] - s[:, 1])
+    along = np.where(v, s[:, 3] - s[:, 1], s[:, 2] - s[:, 0])
+    teeth = np.clip(np.floor(along / np.maximum(across, 1e-12)), 1, max_teeth).astype(np.intp)
+    k = np.arange(max_teeth + 1)[None, :]
+    t = np.minimum(k, teeth[:, None]) / teeth[:, None]        # 0 .. 1 along the strip
+    side = (np.minimum(k, teeth[:, None]) % 2).astype(np.float64)  # 0, 1, 0, ... across
+    lo_a = np.where(v, s[:, 1], s[:, 0])[:, None]
+    lo_c = np.where(v, s[:, 0], s[:, 1])[:, None]
+    pa = lo_a + t * along[:, None]
+    pc = lo_c + side * across[:, None]
+    return np.where(v[:, None], pc, pa), np.where(v[:, None], pa, pc)
