@@ -97,6 +97,7 @@ _T0 = 0.3  # initial annealing temperature, in median macro sides
 _DISP_WEIGHT = 0.02  # weight of the packed displacement against the violation while annealing
 _RUN_PER_MACRO = 1000  # annealing moves per macro in one run
 _SWAP_WINDOW = 0.01  # swap partners at most this fraction of the macros apart in a sequence
+_POLISH_PER_MACRO = 200  # annealing moves per macro among legal packings, for displacement
 
 
 # ---------------------------------------------------------------------------------------------
@@ -916,6 +917,7 @@ class _Packer:
         run_length = max(30_000, _RUN_PER_MACRO * n)
         done = 0
         run = 0
+        win = max(3, int(_SWAP_WINDOW * n))
         state = np.array([np.inf, t0, 0.0])
         rng = np.random.default_rng(seed)
         while done < moves and state[0] > 0:
@@ -928,8 +930,7 @@ class _Packer:
             for start in range(0, length, chunk):
                 stop = min(length, start + chunk)
                 _sp_anneal(gp, gm, *args, kx, ky, hix, hiy, state, start, stop, length,
-                           seed * 7919 + run * 104729, _DISP_WEIGHT,
-                           max(3, int(_SWAP_WINDOW * n)))
+                           seed * 7919 + run * 104729, _DISP_WEIGHT, win, False)
                 done += stop - start
                 report("legalize", 0.3 + 0.3 * done / moves,
                        {"stage": "packing", "violation": float(state[0]), "restarts": run})
@@ -938,6 +939,14 @@ class _Packer:
             run += 1
         if state[0] > 0:
             return None
+        # polish: lower the displacement among legal packings only
+        length = min(_POLISH_PER_MACRO * n, moves)
+        state[1] = t0 * 0.1
+        for start in range(0, length, chunk):
+            _sp_anneal(gp, gm, *args, kx, ky, hix, hiy, state, start,
+                       min(length, start + chunk), length, seed * 7919 + 15485863, 1.0, win,
+                       True)
+            report("legalize", 0.6, {"stage": "polish", "displacement": float(state[2])})
         self.gp, self.gm = gp, gm
         return self.spread(kx, ky, hix, hiy)
 
@@ -1058,7 +1067,7 @@ def _move_next_to(seq, a, b, after):  # pragma: no cover (compiled)
 @njit(cache=True)
 def _sp_anneal(gp, gm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py, tx, ty,
                kx, ky, hix, hiy, state, start, stop, total, seed, lam,
-               win):  # pragma: no cover
+               win, polish):  # pragma: no cover
     """Annealing moves ``start .. stop`` of ``total`` on ``(gp, gm)`` in place; ``state`` holds
     ``(violation, initial temperature, displacement)``.  The cost is the violation plus
     ``lam`` times the packed displacement, that weight fading to zero over the run so that the
@@ -1067,7 +1076,9 @@ def _sp_anneal(gp, gm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py
     relative order away from the move): swap a macro with another element in G+, in G- or in
     both, or the slack-driven move of Adya and Markov (IEEE TVLSI 2003): a macro that
     overshoots its bound along the worse axis is stacked next to the nearby macro with the most
-    room across it.  Deterministic for a given ``seed``."""
+    room across it.  With ``polish`` the pair is legal already and stays so: only legal
+    packings are accepted and the cost is the displacement.  Deterministic for a given
+    ``seed``."""
     np.random.seed(seed + start)
     tot = len(gp)
     viol = state[0]
@@ -1081,15 +1092,15 @@ def _sp_anneal(gp, gm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py
     nhx = hix.copy()
     nhy = hiy.copy()
     for it in range(start, stop):
-        if viol <= 0.0:
+        if viol <= 0.0 and not polish:
             break
         frac = 1.0 - it / total
         temp = t0 * frac * frac + 1e-9
-        w_d = lam * frac  # the displacement term fades out: the run ends on legality alone
+        w_d = 1.0 if polish else lam * frac  # fading out: a run ends on legality alone
         cost = viol + w_d * disp
         tp[:] = gp
         tm[:] = gm
-        kind = np.random.randint(0, 4)
+        kind = np.random.randint(0, 3 if polish else 4)  # (no overshoot to chase in polish)
         if kind < 3 or n < 2:  # swap with an element at most `win` places away in one sequence
             a = np.random.randint(0, n)
             seq = tm if kind == 1 else tp
@@ -1162,6 +1173,8 @@ def _sp_anneal(gp, gm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py
         v2, d2 = _sp_pack(tp, tm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py,
                           tx, ty, nkx, nky, nhx, nhy)
         c2 = v2 + w_d * d2
+        if polish and v2 > 0.0:
+            continue
         if c2 <= cost or np.random.random() < np.exp(-(c2 - cost) / temp):
             gp[:] = tp
             gm[:] = tm
