@@ -139,7 +139,7 @@ def test_drop_moves_snaps_pins_and_refines(widget, demo_design):
     # a drag towards the core middle, so the move is not clamped at the core edge
     core = d.core
     dx = 123.4 if cx[i] < (core[0] + core[2]) / 2 else -123.4
-    dy = 56.7 if cy[i] < (core[1] + core[3]) / 2 else -56.7
+    dy = 57.3 if cy[i] < (core[1] + core[3]) / 2 else -57.3  # not a half-step tie
     out = widget.drop(k, cx[i] + dx, cy[i] + dy)
     fp = s.floorplan
     assert out["moved"] == [name] and out["refined"]
