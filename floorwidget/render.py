@@ -10,6 +10,8 @@ implementation flow's timing, power and physical checks.
 
 from __future__ import annotations
 
+import sys
+import types
 from pathlib import Path
 
 import numpy as np
@@ -27,7 +29,7 @@ from .design import (
     orient_offsets,
 )
 
-__all__ = ["render", "SUFFIXES"]
+__all__ = ["render", "side_by_side", "SUFFIXES"]
 
 #: Output formats by file suffix.
 SUFFIXES = {".png": "png", ".svg": "svg"}
@@ -367,3 +369,70 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
 def _rgb(hex_colour: str) -> tuple[float, float, float]:
     h = hex_colour.lstrip("#")
     return tuple(int(h[k:k + 2], 16) / 255.0 for k in (0, 2, 4))
+
+
+def side_by_side(design: Design, floorplans: dict, path=None, *, heat: str | None = None,
+                 width: float = 8.0, dpi: int = 120, channel: float | None = None):
+    """Several floorplans of one design drawn next to each other by :func:`render`.
+
+    Each panel is a full :func:`render` (its legend beside it, its figures in its title), so
+    alternatives read the same way as single pictures.
+
+    Parameters
+    ----------
+    design : Design
+    floorplans : dict
+        ``{title: Floorplan}``, drawn left to right.
+    path : str or Path, optional
+        ``.png`` or ``.svg``, written atomically.
+    heat, channel
+        As for :func:`render`.
+    width : float
+        Inches per panel (plot and legend).
+    dpi : int
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    try:
+        from matplotlib.backends.backend_agg import FigureCanvasAgg
+        from matplotlib.figure import Figure
+    except ImportError:  # pragma: no cover - depends on the installation
+        raise DesignError("rendering needs matplotlib: pip install 'floorwidget[render]'") from None
+    if not floorplans:
+        raise ValueError("side_by_side needs at least one floorplan")
+    die = design.die
+    k = len(floorplans)
+    plot_w = 0.62 / k  # of the figure width per panel; the rest of a panel holds its legend
+    fig = Figure(figsize=(width * k, max(3.5, 0.62 * width * (die[3] - die[1])
+                                          / (die[2] - die[0]) + 1.8)))
+    FigureCanvasAgg(fig)
+    for j, (title, fp) in enumerate(floorplans.items()):
+        ax = fig.add_axes((j / k + 0.04 / k, 0.08, plot_w, 0.72))
+        render(design, fp, ax=ax, heat=heat, title=str(title), channel=channel)
+    if path is not None:
+        path = Path(path)
+        fmt = SUFFIXES.get(path.suffix.lower())
+        if fmt is None:
+            raise DesignError(f"cannot render to a {path.suffix or 'suffix-less'} file: use .png "
+                              "or .svg", file=str(path))
+        from .formats._io import atomic_write
+
+        meta = {"Date": None} if fmt == "svg" else {}
+        with atomic_write(path, "wb") as f:
+            fig.savefig(f, format=fmt, dpi=dpi, metadata=meta, bbox_inches="tight")
+    return fig
+
+
+class _CallableModule(types.ModuleType):
+    """``import floorwidget.render`` (or ``from floorwidget.render import ...``) binds the
+    package attribute ``floorwidget.render`` to this module, hiding the lazily exported function
+    of the same name; calling the module calls the function, so ``fw.render(...)`` works either
+    way."""
+
+    def __call__(self, *args, **kwargs):
+        return render(*args, **kwargs)
+
+
+sys.modules[__name__].__class__ = _CallableModule

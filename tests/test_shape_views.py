@@ -102,3 +102,13 @@ def test_layout_control_reaches_session_place(layout):
     assert w.place(wait=True)
     assert w.session.log[-1]["kwargs"]["macro_layout"] == layout
     assert w.floorplan.info.get("macro_layout") == layout
+
+
+def test_fw_render_stays_callable_after_importing_the_module(shaped, tmp_path):
+    import floorwidget as fw
+    from floorwidget.render import side_by_side
+
+    d, fp = shaped
+    fw.render(d, fp, tmp_path / "one.svg")  # the package attribute may now be the module
+    fig = side_by_side(d, {"a": fp, "b": d.initial}, tmp_path / "two.svg")
+    assert len(fig.axes) == 2 and (tmp_path / "two.svg").stat().st_size > 0
