@@ -892,6 +892,8 @@ UNIT_WITHOUT_ROWS = 0.01
 #: (the pixel grows to stay within it).
 PIXELS_PER_ROW = 4
 MAX_PIXELS = 2**21
+#: Logic regions are found on the exact grid of the obstacles' edges up to this many cells.
+EXACT_MAX_CELLS = 2**20
 #: A logic region counts when its area exceeds this many square row heights (2 x 2 rows).
 MIN_REGION_ROWS2 = 4.0
 
@@ -1162,38 +1164,41 @@ class LogicRegions:
     Attributes
     ----------
     labels : (nx, ny) int array
-        Per pixel, 0 where macros, halos or blockages are, else the piece it belongs to
+        Per raster cell, 0 where macros, halos or blockages are, else the piece it belongs to
         (1, 2, ...; indexed ``[column, row]``).
+    x_edges, y_edges : (nx + 1,) and (ny + 1,) float arrays
+        The raster's cell edges, µm (uneven on the exact grid).
     areas : (k,) float array
         Area of every piece, µm², largest first (``labels`` numbers follow the same order).
     count : int
         Pieces larger than :data:`MIN_REGION_ROWS2` square row heights.
     largest : float
         The largest piece's share of the free area (0 when nothing is free).
-    extent : (xlo, ylo, xhi, yhi)
-        What the raster covers (the core).
-    pixel : (float, float)
-        Pixel width and height, µm.
+    exact : bool
+        Whether the raster was the exact grid of the obstacles' edges (else even pixels).
     """
 
     labels: np.ndarray
+    x_edges: np.ndarray
+    y_edges: np.ndarray
     areas: np.ndarray
     count: int
     largest: float
-    extent: tuple[float, float, float, float]
-    pixel: tuple[float, float]
+    exact: bool
 
 
 def logic_regions(design: Design, fp: Floorplan) -> LogicRegions:
     """Connected pieces of the core free of macros (with their halos) and of blockages.
 
-    The core is rasterised with pixels of a quarter row height (:data:`PIXELS_PER_ROW`),
-    grown where needed to keep the raster within :data:`MAX_PIXELS`; a pixel is free when its
-    centre lies in no halo box (footprint plus halo) and no placement blockage.  Free pixels
-    are joined across shared edges (4-connectivity) by ``scipy.ndimage.label``.  A piece counts
-    as a logic region when its area exceeds :data:`MIN_REGION_ROWS2` (2 x 2) square row
-    heights; ``largest`` is the largest piece's share of all free area.  Areas are within about
-    half a pixel times the obstacles' perimeter of the exact figures.
+    The core is cut into a raster whose cells are each wholly covered or wholly free: the grid
+    of every obstacle edge (halo boxes and placement blockages, clipped to the core), which is
+    exact, while it has at most :data:`EXACT_MAX_CELLS` cells; else even pixels a quarter row
+    height wide (:data:`PIXELS_PER_ROW`), grown to keep within :data:`MAX_PIXELS`, a pixel being
+    free when its centre lies in no obstacle (areas then within about half a pixel times the
+    obstacles' perimeter).  Free cells are joined across shared edges (4-connectivity; pieces
+    meeting at a corner only stay apart) by ``scipy.ndimage.label``.  A piece counts as a logic
+    region when its area exceeds :data:`MIN_REGION_ROWS2` (2 x 2) square row heights;
+    ``largest`` is the largest piece's share of all free area.
 
     Parameters
     ----------
@@ -1207,19 +1212,31 @@ def logic_regions(design: Design, fp: Floorplan) -> LogicRegions:
     from scipy import ndimage
 
     c = design.core
-    cw, chh = float(c[2] - c[0]), float(c[3] - c[1])
     unit = _row_unit(design)
-    side = max(unit / PIXELS_PER_ROW, np.sqrt(cw * chh / MAX_PIXELS))
-    nx, ny = max(1, int(round(cw / side))), max(1, int(round(chh / side)))
-    px, py = cw / nx, chh / ny
     obs = fp.rects(halo=True)[design.kind == MACRO]
     if len(design.blockages):
         obs = np.concatenate([obs, design.blockages])
-    # pixels whose centre xlo + (i + 1/2) px lies strictly inside: i in [i0, i1)
-    i0 = np.clip(np.floor((obs[:, 0] - c[0]) / px + 0.5), 0, nx).astype(np.intp)
-    i1 = np.clip(np.ceil((obs[:, 2] - c[0]) / px - 0.5), 0, nx).astype(np.intp)
-    j0 = np.clip(np.floor((obs[:, 1] - c[1]) / py + 0.5), 0, ny).astype(np.intp)
-    j1 = np.clip(np.ceil((obs[:, 3] - c[1]) / py - 0.5), 0, ny).astype(np.intp)
+    obs = np.stack([np.clip(obs[:, 0], c[0], c[2]), np.clip(obs[:, 1], c[1], c[3]),
+                    np.clip(obs[:, 2], c[0], c[2]), np.clip(obs[:, 3], c[1], c[3])], axis=1)
+    obs = obs[(obs[:, 2] > obs[:, 0]) & (obs[:, 3] > obs[:, 1])]
+    xe = np.unique(np.concatenate([c[[0, 2]], obs[:, 0], obs[:, 2]]))
+    ye = np.unique(np.concatenate([c[[1, 3]], obs[:, 1], obs[:, 3]]))
+    exact = (len(xe) - 1) * (len(ye) - 1) <= EXACT_MAX_CELLS
+    if exact:  # every edge is a grid line: cells are wholly in or out
+        i0, i1 = np.searchsorted(xe, obs[:, 0]), np.searchsorted(xe, obs[:, 2])
+        j0, j1 = np.searchsorted(ye, obs[:, 1]), np.searchsorted(ye, obs[:, 3])
+    else:
+        cw, chh = float(c[2] - c[0]), float(c[3] - c[1])
+        side = max(unit / PIXELS_PER_ROW, np.sqrt(cw * chh / MAX_PIXELS))
+        nx, ny = max(1, int(round(cw / side))), max(1, int(round(chh / side)))
+        px, py = cw / nx, chh / ny
+        xe, ye = c[0] + px * np.arange(nx + 1), c[1] + py * np.arange(ny + 1)
+        # pixels whose centre xlo + (i + 1/2) px lies strictly inside: i in [i0, i1)
+        i0 = np.clip(np.floor((obs[:, 0] - c[0]) / px + 0.5), 0, nx).astype(np.intp)
+        i1 = np.clip(np.ceil((obs[:, 2] - c[0]) / px - 0.5), 0, nx).astype(np.intp)
+        j0 = np.clip(np.floor((obs[:, 1] - c[1]) / py + 0.5), 0, ny).astype(np.intp)
+        j1 = np.clip(np.ceil((obs[:, 3] - c[1]) / py - 0.5), 0, ny).astype(np.intp)
+    nx, ny = len(xe) - 1, len(ye) - 1
     ok = (i1 > i0) & (j1 > j0)
     i0, i1, j0, j1 = i0[ok], i1[ok], j0[ok], j1[ok]
     cover = np.zeros((nx + 1, ny + 1), np.int32)
@@ -1230,13 +1247,14 @@ def logic_regions(design: Design, fp: Floorplan) -> LogicRegions:
     np.cumsum(cover, axis=0, out=cover)
     np.cumsum(cover, axis=1, out=cover)
     labels, k = ndimage.label(cover[:nx, :ny] == 0)
-    counts = np.bincount(labels.ravel(), minlength=k + 1)[1:]
-    order = np.argsort(-counts, kind="stable")
+    cell = np.outer(np.diff(xe), np.diff(ye))
+    per = np.bincount(labels.ravel(), weights=cell.ravel(), minlength=k + 1)[1:]
+    order = np.argsort(-per, kind="stable")
     relabel = np.zeros(k + 1, labels.dtype)
     relabel[order + 1] = np.arange(1, k + 1)
     labels = relabel[labels]
-    areas = counts[order] * (px * py)
+    areas = per[order]
     free = float(areas.sum())
-    return LogicRegions(labels, areas, int(np.sum(areas > MIN_REGION_ROWS2 * unit * unit)),
-                        float(areas[0] / free) if free > 0 else 0.0,
-                        (float(c[0]), float(c[1]), float(c[2]), float(c[3])), (px, py))
+    return LogicRegions(labels, xe, ye, areas,
+                        int(np.sum(areas > MIN_REGION_ROWS2 * unit * unit)),
+                        float(areas[0] / free) if free > 0 else 0.0, bool(exact))

@@ -190,12 +190,20 @@ def obstacle_sets(draw):
     return rects, blk, halo
 
 
-@settings(max_examples=120, deadline=None)
-@given(obstacle_sets())
-def test_logic_regions_match_shapely(case):
-    # edges on a 0.5 µm grid, pixels of a quarter row (0.25 µm): the raster is exact, so the
-    # piece count and the largest share must equal shapely's (unions and differences of
-    # rectangles, GEOS)
+@pytest.mark.parametrize("exact", [True, False])
+@settings(max_examples=80, deadline=None)
+@given(case=obstacle_sets())
+def test_logic_regions_match_shapely(case, exact):
+    # the piece count, the areas and the largest share equal shapely's (unions and differences
+    # of rectangles, GEOS): on the grid of the obstacles' edges, and on even pixels of a quarter
+    # row (0.25 µm) too, since the edges here lie on a 0.5 µm grid
+    with pytest.MonkeyPatch.context() as mp:
+        if not exact:
+            mp.setattr(M, "EXACT_MAX_CELLS", 0)
+        check_regions(case, exact)
+
+
+def check_regions(case, exact):
     rects, blk, halo = case
     core = (0.0, 0.0, 40.0, 30.0)
     sizes = [(r[2] - r[0], r[3] - r[1]) for r in rects] or [(1.0, 1.0)]
@@ -210,14 +218,16 @@ def test_logic_regions_match_shapely(case):
     pieces = [free] if free.geom_type == "Polygon" else list(getattr(free, "geoms", []))
     areas = sorted((p.area for p in pieces if p.area > 0), reverse=True)
     lr = M.logic_regions(d, fp)
+    assert lr.exact == exact
     assert lr.count == sum(a > 4.0 for a in areas)      # larger than 2 x 2 rows (1 µm rows)
     assert lr.areas == pytest.approx(areas, abs=1e-9)
     total = sum(areas)
     assert lr.largest == pytest.approx(areas[0] / total if total else 0.0)
 
 
-def test_logic_regions_off_grid_within_raster_tolerance():
-    # edges anywhere: the free area is within half a pixel times the obstacles' perimeter
+def test_logic_regions_off_grid_within_raster_tolerance(monkeypatch):
+    # edges anywhere: exact on the edge grid; on even pixels the free area is within half a
+    # pixel times the obstacles' perimeter (shapely for the reference)
     rng = np.random.default_rng(5)
     core = (0.0, 0.0, 40.0, 30.0)
     for _ in range(20):
@@ -225,11 +235,15 @@ def test_logic_regions_off_grid_within_raster_tolerance():
         x, y = rng.uniform(-3, 38, k), rng.uniform(-3, 28, k)
         w, h = rng.uniform(0.3, 12, k), rng.uniform(0.3, 12, k)
         d = macro_design(list(zip(w, h)), core=core)
-        lr = M.logic_regions(d, Floorplan(d, x, y))
         free = box(*core).difference(shapely.union_all(
             [box(a, b, a + c, b + e) for a, b, c, e in zip(x, y, w, h)]))
-        tol = 0.5 * lr.pixel[0] * float(np.sum(2 * (w + h)))
-        assert lr.areas.sum() == pytest.approx(free.area, abs=tol)
+        monkeypatch.setattr(M, "EXACT_MAX_CELLS", 2**20)
+        lr = M.logic_regions(d, Floorplan(d, x, y))
+        assert lr.exact and lr.areas.sum() == pytest.approx(free.area, rel=1e-9)
+        monkeypatch.setattr(M, "EXACT_MAX_CELLS", 0)
+        lr = M.logic_regions(d, Floorplan(d, x, y))
+        tol = 0.5 * np.diff(lr.x_edges).max() * float(np.sum(2 * (w + h)))
+        assert not lr.exact and lr.areas.sum() == pytest.approx(free.area, abs=tol)
 
 
 def test_logic_regions_hand_worked():
