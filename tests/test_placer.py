@@ -394,3 +394,27 @@ def test_floorplan_type_checks():
     with pytest.raises(TypeError):
         place(d, floorplan="nope")
     assert isinstance(place(d), Floorplan)
+
+
+def test_place_without_nets_on_movable_blocks_does_not_crash():
+    # issue 12: a design whose movable blocks are on no net used to fail in the solve
+    d = Design("nonets", (0, 0, 100, 100), ["a", "b"], [CLUSTER, MACRO], [10, 20], [10, 20],
+               [0], [], [], [], grid_pitch=(1, 1))
+    fp = place(d)
+    assert metrics.evaluate(d, fp)["legal"]
+    assert refine(d, fp).identical(refine(d, fp))
+
+
+def test_pinned_macro_on_a_blockage_is_reported_not_silently_accepted():
+    # issue 12: legalize/refine cannot move a pinned macro; they must say it keeps the
+    # floorplan illegal (warning and report entry naming it)
+    d = make_design([10, 10, 0], [10, 10, 0], [MACRO, MACRO, TERMINAL],
+                    [[(0, 0, 0), (1, 0, 0), (2, 0, 0)]], x=[40, 0, 0], y=[40, 0, 0],
+                    status=[PINNED, MOVABLE, FIXED], blockages=np.array([[35, 35, 60, 60]]))
+    with pytest.warns(PlacementWarning, match="'b0'"):
+        out = legalize(d, d.initial)
+    assert out.info["pinned_illegal"] == ["b0"]
+    rep = metrics.evaluate(d, out)
+    assert not rep["legal"] and rep["pinned_illegal"] == ["b0"]
+    with pytest.warns(PlacementWarning, match="'b0'"):
+        refine(d, d.initial)

@@ -31,7 +31,7 @@ from typing import Any
 import numpy as np
 
 from ..design import CELL, CLUSTER, MACRO, MOVABLE, TERMINAL, Design, Floorplan
-from ..metrics import default_channel, hpwl
+from ..metrics import default_channel, hpwl, pinned_illegal
 from .errors import PlacementError, PlacementWarning
 from .legalize import legalize_macros
 from .options import PlacerOptions, check_range, make_options, net_multipliers
@@ -434,6 +434,10 @@ def _rows_stage(design: Design, out: Floorplan, src: Floorplan, opts: PlacerOpti
     cells = cell_mask(design, src)
     if not cells.any():
         return out
+    if not len(design.row_y):
+        warnings.warn(f"design {design.name!r} has standard cells but no rows; they stay at "
+                      "their global positions", PlacementWarning, stacklevel=4)
+        return out
     t0 = time.perf_counter()
     out, facts = legalize_cells(design, out, cells)
     info.update(facts)
@@ -572,7 +576,23 @@ def _finish(design: Design, out: Floorplan, src: Floorplan, info: dict, legalize
     info["target_density"] = target
     info["seed"] = int(seed)
     out.info = info
+    _warn_pinned(design, out)
     return out
+
+
+def _warn_pinned(design: Design, fp: Floorplan) -> None:
+    """Say so when pinned or fixed macros keep the result from being legal (the placer never
+    moves them); the names also go to ``fp.info["pinned_illegal"]``."""
+    if not (fp.status != MOVABLE).any():
+        return
+    bad = pinned_illegal(design, fp)
+    fp.info["pinned_illegal"] = bad
+    if bad:
+        more = f" and {len(bad) - 3} more" if len(bad) > 3 else ""
+        warnings.warn(f"design {design.name!r}: pinned or fixed macro(s) "
+                      f"{', '.join(map(repr, bad[:3]))}{more} are outside the core, on a "
+                      "blockage, off the grid or overlapping each other; the floorplan cannot "
+                      "be legal until they move", PlacementWarning, stacklevel=3)
 
 def legalize(design: Design, floorplan: Floorplan, **options: Any) -> Floorplan:
     """Legalise the movable macros only (no orientation change, cells untouched).
@@ -600,4 +620,5 @@ def legalize(design: Design, floorplan: Floorplan, **options: Any) -> Floorplan:
     out = Floorplan(design, out.x, out.y, out.orient, src.status)
     _restore_fixed(out, src)
     out.info = {"legalized": True, "seconds": time.perf_counter() - t0, "iterations": 0}
+    _warn_pinned(design, out)
     return out

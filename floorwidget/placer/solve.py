@@ -150,11 +150,12 @@ def assemble_axis(pos, off, pin_var, nv: int, topo: NetTopology, eps: float):
     iam, ibm = va[mm], vb[mm]
     delta = off[a[mm]] - off[b[mm]]
     idx = np.concatenate([iam, ibm, va[mf], vb[fm]])
-    diag = np.bincount(idx, weights=np.concatenate([wmm, wmm, w[mf], w[fm]]), minlength=nv)
+    diag = np.bincount(idx, weights=np.concatenate([wmm, wmm, w[mf], w[fm]]),
+                       minlength=nv).astype(np.float64)  # (an empty bincount is integer)
     rhs_w = np.concatenate([-wmm * delta, wmm * delta,
                             w[mf] * (pos[b[mf]] - off[a[mf]]),
                             w[fm] * (pos[a[fm]] - off[b[fm]])])
-    rhs = np.bincount(idx, weights=rhs_w, minlength=nv)
+    rhs = np.bincount(idx, weights=rhs_w, minlength=nv).astype(np.float64)
     it = np.int32 if nv < 2**31 - 1 else np.int64
     rows = np.concatenate([iam, ibm]).astype(it)
     cols = np.concatenate([ibm, iam]).astype(it)
