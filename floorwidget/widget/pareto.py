@@ -43,6 +43,10 @@ _LABELS = {
     "congestion_p99": "RUDY congestion, p99",
     "density_overflow": "density overflow",
     "peak_density": "peak bin density",
+    "narrow_channels": "narrow channels (macro pairs)",
+    "macros_facing_wall": "macros with pins to a wall",
+    "logic_regions": "logic regions",
+    "largest_logic_region": "largest logic region (share)",
 }
 
 
