@@ -11,12 +11,7 @@ import numpy as np
 import pytest
 
 import floorwidget as fw
-from floorwidget.placer.options import PlacerOptions
 from floorwidget.synth import rent_design
-
-pytestmark = pytest.mark.skipif(
-    "macro_layout" not in PlacerOptions.__dataclass_fields__,
-    reason="the placer has no macro_layout option yet")
 
 
 def run(*args):

@@ -8,7 +8,6 @@ from test_floorplan_shape import macro_design  # tests/ is on sys.path
 
 from floorwidget import metrics as M
 from floorwidget.design import Floorplan
-from floorwidget.placer.options import PlacerOptions
 from floorwidget.render import render
 from floorwidget.synth import rent_design
 from floorwidget.widget.geometry import zigzag_rows
@@ -90,8 +89,6 @@ def test_panel_shows_the_figures_and_the_table_has_their_columns(shaped):
     assert "narrow channel" in w.legend.value and "pins toward a wall" in w.legend.value
 
 
-@pytest.mark.skipif("macro_layout" not in PlacerOptions.__dataclass_fields__,
-                    reason="the placer has no macro_layout option yet")
 @pytest.mark.parametrize("layout", ["periphery", "free"])
 def test_layout_control_reaches_session_place(layout):
     from floorwidget.widget import FloorplanWidget
