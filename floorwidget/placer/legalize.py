@@ -61,8 +61,11 @@ Method
    macros, blockages) taking part in the pair at their fixed places (:class:`_Packer`; the
    annealing and its slack-driven move follow Adya, Markov, IEEE TVLSI 2003; the packing is
    the longest-path evaluation of the constraint graphs, in the role of the LCS evaluation of
-   Tang, Tian, Wong, DATE 2000, but with the pairwise halo separations), then one LP per axis
-   over all relations of the pair minimises the displacement, and step 5 follows.
+   Tang, Tian, Wong, DATE 2000, but with the pairwise halo separations).  The moves are local
+   and the cost carries a fading wirelength term (the HPWL of the nets touching the macros;
+   their displacement when there are no nets), so the packing keeps the input's relative
+   order where it can; a short annealing among legal packings then lowers that term.  One LP
+   per axis over all relations of the pair minimises the displacement, and step 5 follows.
 
 Notes
 -----
@@ -84,7 +87,7 @@ from numba import njit
 from scipy import sparse
 from scipy.optimize import linprog
 
-from ..design import MACRO, MOVABLE, Design, Floorplan, off_grid
+from ..design import MACRO, MOVABLE, Design, Floorplan, off_grid, orient_offsets
 from ._select import movable_macros
 from .errors import PlacementError
 
@@ -94,7 +97,7 @@ _EPS = 1e-9  # tolerance in grid units when turning a distance into a number of 
 _GRID_TOL = 1e-6  # µm, as in design.off_grid
 _EVAL_CELLS = 1 << 18  # candidate x obstacle comparisons per numpy chunk
 _T0 = 0.3  # initial annealing temperature, in median macro sides
-_DISP_WEIGHT = 0.02  # weight of the packed displacement against the violation while annealing
+_DISP_WEIGHT = 0.05  # weight of the quality term (as this much displacement) while annealing
 _RUN_PER_MACRO = 1000  # annealing moves per macro in one run
 _SWAP_WINDOW = 0.01  # swap partners at most this fraction of the macros apart in a sequence
 _POLISH_PER_MACRO = 200  # annealing moves per macro among legal packings, for displacement
@@ -206,6 +209,7 @@ class _Problem:
 
     def __init__(self, design: Design, fp: Floorplan, move: np.ndarray):
         self.design = design
+        self.fp = fp  # the input (read only)
         self.idx = np.flatnonzero(move)  # block indices of M
         w, h = fp.sizes()
         hl = design.halo
@@ -885,6 +889,7 @@ class _Packer:
         uby = np.floor((o[:, 1] - h - pt - oy) / py + _EPS)
         uby -= ((oy + uby * py) + h) + pt > o[:, 1]
         self.lbx, self.ubx, self.lby, self.uby = lbx, ubx, lby, uby
+        self.nets = self._nets()
         # the starting pair from the input positions (centres, scaled to the core), obstacles
         # where they are: G+ by u - v, G- by u + v
         c = prob.core
@@ -895,6 +900,29 @@ class _Packer:
         ids = np.arange(n + self.m)
         self.gp = np.lexsort((ids, u - v))
         self.gm = np.lexsort((ids, u + v))
+
+    def _nets(self):
+        """The nets touching M in CSR form for :func:`_sp_pack`: ``(start, macro or -1, x, y,
+        weight)``, pin ``x, y`` being offsets from the macro's lower-left corner (orientation
+        applied) or, for pins of blocks that stay, absolute positions."""
+        prob = self.prob
+        d, fp = prob.design, prob.fp
+        nets = d.nets_of(prob.idx)
+        deg = d.net_degree[nets]
+        first = np.repeat(d.net_start[nets] - (np.cumsum(deg) - deg), deg)
+        pins = first + np.arange(int(deg.sum()))
+        blk = d.pin_block[pins]
+        where = np.full(d.num_blocks, -1, np.int64)
+        where[prob.idx] = np.arange(len(prob.idx))
+        pin_m = where[blk]
+        ax, ay = fp.pin_positions()
+        w, h = fp.sizes()
+        dx, dy = orient_offsets(d.pin_dx[pins], d.pin_dy[pins], fp.orient[blk])
+        mine = pin_m >= 0
+        pin_x = np.where(mine, w[blk] / 2 + dx, ax[pins])
+        pin_y = np.where(mine, h[blk] / 2 + dy, ay[pins])
+        start = np.concatenate([[0], np.cumsum(deg)]).astype(np.int64)
+        return start, pin_m, pin_x, pin_y, d.net_weight[nets].astype(np.float64)
 
     def search(self, moves: int, seed: int, report) -> tuple[np.ndarray, np.ndarray] | None:
         """Simulated annealing over sequence-pair moves (see :func:`_sp_anneal`) minimising the
@@ -909,7 +937,8 @@ class _Packer:
         tx = (prob.x0 - prob.ox) / prob.px  # targets, grid units
         ty = (prob.y0 - prob.oy) / prob.py
         args = (n, self.sx, self.sy, self.lbx, self.ubx, self.lby, self.uby, prob.kx0,
-                prob.kx1, prob.ky0, prob.ky1, prob.px, prob.py, tx, ty)
+                prob.kx1, prob.ky0, prob.ky1, prob.px, prob.py, tx, ty, *self.nets,
+                prob.ox, prob.oy)
         kx, ky = np.zeros(n), np.zeros(n)
         hix, hiy = np.zeros(n), np.zeros(n)
         t0 = _T0 * float(np.median(np.concatenate([prob.w, prob.h])))
@@ -917,20 +946,24 @@ class _Packer:
         run_length = max(30_000, _RUN_PER_MACRO * n)
         done = 0
         run = 0
-        win = max(3, int(_SWAP_WINDOW * n))
+        win = max(int(_SWAP_WINDOW * n), min(n + self.m, 10))
+        lam = None
         state = np.array([np.inf, t0, 0.0])
         rng = np.random.default_rng(seed)
         while done < moves and state[0] > 0:
             gp, gm = self.gp.copy(), self.gm.copy()
             if run % 2:  # every other run from a random pair, to leave a deep basin behind
                 gp, gm = rng.permutation(gp), rng.permutation(gm)
-            viol, disp = _sp_pack(gp, gm, *args, kx, ky, hix, hiy)
-            state = np.array([viol, t0, disp])
+            viol, qual = _sp_pack(gp, gm, *args, kx, ky, hix, hiy)
+            if lam is None:  # the quality term weighs like _DISP_WEIGHT x displacement
+                disp = (np.abs(kx - tx).sum() * prob.px + np.abs(ky - ty).sum() * prob.py)
+                lam = _DISP_WEIGHT * disp / max(qual, 1e-300)
+            state = np.array([viol, t0, qual])
             length = min(run_length, moves - done)
             for start in range(0, length, chunk):
                 stop = min(length, start + chunk)
                 _sp_anneal(gp, gm, *args, kx, ky, hix, hiy, state, start, stop, length,
-                           seed * 7919 + run * 104729, _DISP_WEIGHT, win, False)
+                           seed * 7919 + run * 104729, lam, win, False)
                 done += stop - start
                 report("legalize", 0.3 + 0.3 * done / moves,
                        {"stage": "packing", "violation": float(state[0]), "restarts": run})
@@ -939,14 +972,14 @@ class _Packer:
             run += 1
         if state[0] > 0:
             return None
-        # polish: lower the displacement among legal packings only
+        # polish: lower the quality term among legal packings only
         length = min(_POLISH_PER_MACRO * n, moves)
         state[1] = t0 * 0.1
         for start in range(0, length, chunk):
             _sp_anneal(gp, gm, *args, kx, ky, hix, hiy, state, start,
                        min(length, start + chunk), length, seed * 7919 + 15485863, 1.0, win,
                        True)
-            report("legalize", 0.6, {"stage": "polish", "displacement": float(state[2])})
+            report("legalize", 0.6, {"stage": "polish", "quality": float(state[2])})
         self.gp, self.gm = gp, gm
         return self.spread(kx, ky, hix, hiy)
 
@@ -990,11 +1023,14 @@ class _Packer:
 
 @njit(cache=True)
 def _sp_pack(gp, gm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py, tx, ty,
+             ns, pin_m, pin_x, pin_y, nw, ox, oy,
              kx, ky, hix, hiy):  # pragma: no cover (compiled)
     """Pack sequence pair ``(gp, gm)`` into ``kx, ky`` (the least positions, which are also
     the lower bounds they met) with upper bounds ``hix, hiy``; return the violation and the
-    L1 displacement from the targets ``tx, ty``, both in µm.  Elements ``< n`` are macros, the
-    others obstacles."""
+    quality, both in µm.  The quality is the weighted HPWL of the nets ``ns`` (CSR over pins:
+    ``pin_m`` the macro or -1, ``pin_x, pin_y`` the offset from its lower-left corner or the
+    fixed position), or without nets the L1 displacement from the targets ``tx, ty``.
+    Elements ``< n`` are macros, the others obstacles."""
     tot = len(gp)
     m = tot - n
     pp = np.empty(tot, np.int64)
@@ -1044,6 +1080,19 @@ def _sp_pack(gp, gm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py, 
         ky[b] = v
         viol += max(0.0, v - hiy[b]) * py
         disp += abs(v - ty[b]) * py
+    if len(ns) > 1:
+        disp = 0.0
+        for k in range(len(ns) - 1):
+            x0 = y0 = np.inf
+            x1 = y1 = -np.inf
+            for p in range(ns[k], ns[k + 1]):
+                m = pin_m[p]
+                x, y = pin_x[p], pin_y[p]
+                if m >= 0:
+                    x += ox + kx[m] * px
+                    y += oy + ky[m] * py
+                x0, x1, y0, y1 = min(x0, x), max(x1, x), min(y0, y), max(y1, y)
+            disp += nw[k] * ((x1 - x0) + (y1 - y0))
     return viol, disp
 
 
@@ -1066,18 +1115,19 @@ def _move_next_to(seq, a, b, after):  # pragma: no cover (compiled)
 
 @njit(cache=True)
 def _sp_anneal(gp, gm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py, tx, ty,
-               kx, ky, hix, hiy, state, start, stop, total, seed, lam,
-               win, polish):  # pragma: no cover
+               ns, pin_m, pin_x, pin_y, nw, ox, oy, kx, ky, hix, hiy, state, start, stop,
+               total, seed, lam, win, polish):  # pragma: no cover
     """Annealing moves ``start .. stop`` of ``total`` on ``(gp, gm)`` in place; ``state`` holds
-    ``(violation, initial temperature, displacement)``.  The cost is the violation plus
-    ``lam`` times the packed displacement, that weight fading to zero over the run so that the
-    run ends on legality alone; it stops at the first legal packing.  Moves, all local (the
-    partner lies at most ``win`` places away in a sequence, so the pair keeps the input's
-    relative order away from the move): swap a macro with another element in G+, in G- or in
-    both, or the slack-driven move of Adya and Markov (IEEE TVLSI 2003): a macro that
-    overshoots its bound along the worse axis is stacked next to the nearby macro with the most
-    room across it.  With ``polish`` the pair is legal already and stays so: only legal
-    packings are accepted and the cost is the displacement.  Deterministic for a given
+    ``(violation, initial temperature, quality)``.  The cost is the violation plus ``lam``
+    times the quality of the packing (:func:`_sp_pack`: the HPWL of the nets touching the
+    macros, or their displacement when there are none), that weight fading to zero over the
+    run so that the run ends on legality alone; it stops at the first legal packing.  Moves,
+    all local (the partner lies at most ``win`` places away in a sequence, so the pair keeps
+    the input's relative order away from the move): swap a macro with another element in G+,
+    in G- or in both, or the slack-driven move of Adya and Markov (IEEE TVLSI 2003): a macro
+    that overshoots its bound along the worse axis is stacked next to the nearby macro with
+    the most room across it.  With ``polish`` the pair is legal already and stays so: only legal
+    packings are accepted and the cost is the quality.  Deterministic for a given
     ``seed``."""
     np.random.seed(seed + start)
     tot = len(gp)
@@ -1171,7 +1221,7 @@ def _sp_anneal(gp, gm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py
                 _move_next_to(tp, a, b, after)
                 _move_next_to(tm, a, b, after)
         v2, d2 = _sp_pack(tp, tm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py,
-                          tx, ty, nkx, nky, nhx, nhy)
+                          tx, ty, ns, pin_m, pin_x, pin_y, nw, ox, oy, nkx, nky, nhx, nhy)
         c2 = v2 + w_d * d2
         if polish and v2 > 0.0:
             continue
