@@ -415,6 +415,7 @@ def test_two_macros_at_42_percent_with_one_blockage():
     assert out.info["legalize_mode"] == "full"
     assert out.info["legalize_displacement"] == pytest.approx(19.0, abs=1e-9)
     assert sorted(out.y.tolist())[0] >= 55.0
+    assert legalize_macros(d, d.initial).identical(out)  # deterministic
 
 
 def _guillotine_instance(seed: int, n_pieces: int, drop: float, pin: float, halo: bool):
