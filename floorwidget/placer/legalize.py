@@ -222,7 +222,6 @@ class _Problem:
         self.ox, self.oy = (float(v) for v in design.grid_origin)
         self.px, self.py = (float(v) for v in design.grid_pitch)
         obst = (design.kind == MACRO) & ~move
-        self.obst_idx = np.flatnonzero(obst)
         self.obst = fp.rects()[obst]  # footprints of the macros that stay
         self.obst_halo = hl[obst].copy()  # and their halos (left, bottom, right, top)
         self.blk = np.asarray(design.blockages, dtype=np.float64).reshape(-1, 4)
@@ -664,7 +663,7 @@ def _check_capacity(prob: _Problem) -> None:
 
 def is_legal(design: Design, fp: Floorplan, macros=None) -> bool:
     """Whether the movable macros (or the subset ``macros``) of ``fp`` are legal in the sense
-    of this module (halo boxes disjoint, footprint in core, halo in die, off blockages, on grid).
+    of this module (the halo rule, footprint in core, halo in die, off blockages, on grid).
     """
     move = movable_macros(design, fp, macros)
     prob = _Problem(design, fp, move)
@@ -723,9 +722,11 @@ def legalize_macros(design: Design, fp: Floorplan, *, macros: Iterable | None = 
     Raises
     ------
     PlacementError
-        Pinned/fixed macros overlapping each other (the pair is named), a macro that does not
-        fit in the core, more macro area than free core area, or a macro that finds no free
-        spot.  The input floorplan is untouched.
+        Pinned/fixed macros in conflict with each other (the pair is named), a macro that
+        does not fit in the core, "impossible by area" (more macro area than free core area),
+        "impossible" (a macro fits nowhere among the obstacles alone), or "search budget
+        spent" (the sequence-pair search found no legal packing in ``pack_moves``; not a
+        proof).  The input floorplan is untouched.
 
     Examples
     --------
