@@ -704,7 +704,7 @@ def legalize_macros(design: Design, fp: Floorplan, *, macros: Iterable | None = 
         Greedy restarts with a macro that found no spot moved to the front of the order.
     pack_moves : int, optional
         Budget of the sequence-pair search that runs when the greedy search fails (default
-        about 3e10 / n² moves for n macros, between 300,000 and 10,000,000).
+        about 3e10 / n² moves for n macros, at most 10,000,000).
     progress : callable, optional
         ``progress(stage, fraction, info)``.
     **options
@@ -806,9 +806,9 @@ def legalize_macros(design: Design, fp: Floorplan, *, macros: Iterable | None = 
 
 def _pack_budget(n: int) -> int:
     """Default annealing budget: about 3e10 / n² elementary steps (a move costs O(n²)), at
-    least 300,000 and at most 10,000,000 moves -- well under a minute on one core up to a
-    few hundred macros."""
-    return int(np.clip(3e10 / max(n, 1) ** 2, 300_000, 10_000_000))
+    most 10,000,000 moves -- about a minute at most on one core, whatever the number of
+    macros (333,333 moves for 300 macros)."""
+    return int(np.clip(3e10 / max(n, 1) ** 2, 1000, 10_000_000))
 
 
 def _full(prob: _Problem, retries: int, report, pack_moves: int | None,
