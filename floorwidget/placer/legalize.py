@@ -101,6 +101,7 @@ _DISP_WEIGHT = 0.05  # weight of the quality term (as this much displacement) wh
 _RUN_PER_MACRO = 1000  # annealing moves per macro in one run
 _SWAP_WINDOW = 0.01  # swap partners at most this fraction of the macros apart in a sequence
 _POLISH_PER_MACRO = 200  # annealing moves per macro among legal packings, for displacement
+_SPREAD_MAX = 800  # most macros for the LP over every relation of the sequence pair
 
 
 # ---------------------------------------------------------------------------------------------
@@ -987,8 +988,12 @@ class _Packer:
     def spread(self, kx, ky, hix, hiy) -> tuple[np.ndarray, np.ndarray]:
         """Minimum L1 displacement from the targets keeping every relation of the pair: one
         LP per axis over all pair constraints (the white-space distribution of Tang, Tian,
-        Wong, ASP-DAC 2005, from memory); the packed positions stay if HiGHS fails."""
+        Wong, ASP-DAC 2005, from memory); the packed positions stay if HiGHS fails, and above
+        :data:`_SPREAD_MAX` macros (n² / 2 constraints), where the trust-region LP of
+        :meth:`_Problem.lp_improve` does this work instead."""
         prob, n = self.prob, self.n
+        if n > _SPREAD_MAX:
+            return kx, ky
         pp = np.empty(len(self.gp), np.intp)
         pm = np.empty(len(self.gm), np.intp)
         pp[self.gp] = np.arange(len(pp))
