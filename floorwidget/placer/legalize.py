@@ -100,7 +100,7 @@ _T0 = 0.3  # initial annealing temperature, in median macro sides
 _DISP_WEIGHT = 0.05  # weight of the quality term (as this much displacement) while annealing
 _RUN_PER_MACRO = 1000  # annealing moves per macro in one run
 _SWAP_WINDOW = 0.01  # swap partners at most this fraction of the macros apart in a sequence
-_POLISH_PER_MACRO = 200  # annealing moves per macro among legal packings, for displacement
+_POLISH_PER_MACRO = 200  # annealing moves per macro among legal packings, for the quality term
 _SPREAD_MAX = 800  # most macros for the LP over every relation of the sequence pair
 
 
