@@ -323,9 +323,6 @@ def _has_gsrc() -> bool:
 
 
 @pytest.mark.skipif(not _has_gsrc(), reason="no GSRC reader in this build")
-@pytest.mark.xfail(strict=False, reason="GSRC reader: some errors name neither a line nor an "
-                   "object yet ('terminal has no position', 'file ends N pin(s) short', 'no "
-                   "blocks defined'); remove this mark once they do")
 @fuzz("gsrc")
 @given(which=st.sampled_from(sorted(GSRC)), ops=OPS)
 def test_gsrc_set(which, ops):

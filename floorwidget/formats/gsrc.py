@@ -179,7 +179,7 @@ def _read_blocks(path: Path):
             raise DesignError(f"header announces {counts[key][0]} {key} block(s), the file "
                               f"defines {have[key]}", file=str(path), line=counts[key][1])
     if not names:
-        raise DesignError("no blocks defined", file=str(path))
+        raise DesignError("no blocks defined", file=str(path), where="the block list")
     return names, kinds, np.array(size, dtype=np.float64).reshape(-1, 2)
 
 
@@ -241,8 +241,8 @@ def _read_nets(path: Path, index: dict[str, int], size: np.ndarray):
         dy.append(oy)
         need -= 1
     if need:
-        raise DesignError(f"file ends {need} pin(s) short of the NetDegree on line {open_no}",
-                          file=str(path))
+        raise DesignError(f"the file ends {need} pin(s) short of this NetDegree",
+                          file=str(path), line=open_no)
     if net_names:
         starts.append(len(pin_block))
     for key, have in (("nets", len(net_names)), ("pins", len(pin_block))):
@@ -324,14 +324,14 @@ def read_gsrc(path, *, whitespace: float | None = None, aspect: float | None = N
         if v is not None and not (np.isfinite(v) and ok(v)):
             raise DesignError(f"{what} must be a finite number "
                               f"{'>= 0' if what == 'whitespace' else '> 0'}, got {v!r}",
-                              file=str(p))
+                              file=str(p), where=what)
     names, kind, size = _read_blocks(p)
     index = {nm: i for i, nm in enumerate(names)}
     n = len(names)
     nets_path = _sibling(p, ".nets")
     if not nets_path.exists():
         raise DesignError(f"missing {nets_path.name} beside it (GSRC sets are found by stem)",
-                          file=str(p))
+                          file=str(p), where=nets_path.name)
     net_start, pin_block, pin_dx, pin_dy, net_names = _read_nets(nets_path, index, size)
     pl_path = _sibling(p, ".pl")
     term = kind == TERMINAL
@@ -339,12 +339,12 @@ def read_gsrc(path, *, whitespace: float | None = None, aspect: float | None = N
         x, y, orient = _read_pl(pl_path, index, n)
         missing = term & np.isnan(x)
         if missing.any():
-            raise DesignError(f"terminal {names[int(np.flatnonzero(missing)[0])]!r} has no "
-                              f"position ({int(missing.sum())} terminal(s) missing)",
-                              file=str(pl_path))
+            first = f"terminal {names[int(np.flatnonzero(missing)[0])]!r}"
+            raise DesignError(f"{first} has no position ({int(missing.sum())} terminal(s) "
+                              "missing)", file=str(pl_path), where=first)
     elif term.any():
         raise DesignError(f"missing {pl_path.name} beside it: the terminals need positions",
-                          file=str(p))
+                          file=str(p), where=pl_path.name)
     else:
         x, y, orient = np.full(n, np.nan), np.full(n, np.nan), np.zeros(n, np.int8)
     block_area = float((size[:, 0] * size[:, 1]).sum())
