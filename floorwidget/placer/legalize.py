@@ -60,8 +60,10 @@ Method
    ICCAD 1995) is annealed to a legal fixed-outline packing, obstacles (pinned and fixed
    macros, blockages) taking part in the pair at their fixed places (:class:`_Packer`; the
    annealing and its slack-driven move follow Adya, Markov, IEEE TVLSI 2003; the packing is
-   the longest-path evaluation of the constraint graphs, in the role of the LCS evaluation of
-   Tang, Tian, Wong, DATE 2000, but with the pairwise halo separations).  The moves are local
+   the longest-path evaluation of the constraint graphs: in O(n log n) by prefix maxima as in
+   the LCS evaluation of Tang, Tian, Wong, DATE 2000, when the separations depend on one macro
+   only (no halos, or equal ones), else in O(n²) with the pairwise halo separations).  The
+   annealing is compiled with numba.  The moves are local
    and the cost carries a fading wirelength term (the HPWL of the nets touching the macros;
    their displacement when there are no nets), so the packing keeps the input's relative
    order where it can; a short annealing among legal packings then lowers that term.  One LP
@@ -97,8 +99,8 @@ _EPS = 1e-9  # tolerance in grid units when turning a distance into a number of 
 _GRID_TOL = 1e-6  # µm, as in design.off_grid
 _EVAL_CELLS = 1 << 18  # candidate x obstacle comparisons per numpy chunk
 _T0 = 0.3  # initial annealing temperature, in median macro sides
-_DISP_WEIGHT = 0.05  # weight of the quality term (as this much displacement) while annealing
-_RUN_PER_MACRO = 1000  # annealing moves per macro in one run
+_DISP_WEIGHT = 0.3  # weight of the quality term (as this much displacement), halved each run
+_RUN_PER_MACRO = 5000  # most annealing moves per macro in one run (at most half the budget)
 _SWAP_WINDOW = 0.01  # swap partners at most this fraction of the macros apart in a sequence
 _POLISH_PER_MACRO = 200  # annealing moves per macro among legal packings, for the quality term
 _SPREAD_MAX = 800  # most macros for the LP over every relation of the sequence pair
@@ -805,13 +807,6 @@ def legalize_macros(design: Design, fp: Floorplan, *, macros: Iterable | None = 
     return out
 
 
-def _pack_budget(n: int) -> int:
-    """Default annealing budget: about 3e10 / n² elementary steps (a move costs O(n²)), at
-    most 10,000,000 moves -- about a minute at most on one core, whatever the number of
-    macros (333,333 moves for 300 macros)."""
-    return int(np.clip(3e10 / max(n, 1) ** 2, 1000, 10_000_000))
-
-
 def _full(prob: _Problem, retries: int, report, pack_moves: int | None,
           seed: int) -> tuple[np.ndarray, np.ndarray]:
     n = len(prob.idx)
@@ -830,8 +825,9 @@ def _full(prob: _Problem, retries: int, report, pack_moves: int | None,
             prob.idx[failed]]})
         order = np.concatenate([[failed], order[order != failed]])
     # the greedy search is incomplete: pack from a sequence pair instead
-    moves = _pack_budget(n) if pack_moves is None else int(pack_moves)
-    found = _Packer(prob).search(moves, seed, report)
+    packer = _Packer(prob)
+    moves = packer.budget() if pack_moves is None else int(pack_moves)
+    found = packer.search(moves, seed, report)
     if found is None:
         i = failed
         raise PlacementError(
@@ -892,6 +888,12 @@ class _Packer:
         uby -= ((oy + uby * py) + h) + pt > o[:, 1]
         self.lbx, self.ubx, self.lby, self.uby = lbx, ubx, lby, uby
         self.nets = self._nets()
+        # separations that depend on the first macro only (no halos, or halos that never
+        # exceed the facing ones) allow the O(n log n) evaluation
+        self.wx, self.wy = self.sx[:, -1].copy(), self.sy[:, -1].copy()
+        self.node = bool((self.sx == self.wx[:, None]).all()
+                         and (self.sy == self.wy[:, None]).all())
+
         # the starting pair from the input positions (centres, scaled to the core), obstacles
         # where they are: G+ by u - v, G- by u + v
         c = prob.core
@@ -902,6 +904,15 @@ class _Packer:
         ids = np.arange(n + self.m)
         self.gp = np.lexsort((ids, u - v))
         self.gm = np.lexsort((ids, u + v))
+
+    def budget(self) -> int:
+        """Default annealing budget: about 4e10 elementary steps (a move costs O(n log n)
+        with node weights, O(n²) otherwise, plus the pins of the macros' nets), at most
+        10,000,000 moves -- under a minute on one core whatever the number of macros."""
+        n = self.n
+        steps = (2 * n * np.log2(n + 1) if self.node else n * n) + len(self.nets[1]) \
+            + 4 * (n + self.m)
+        return int(np.clip(4e10 / steps, 1000, 10_000_000))
 
     def _nets(self):
         """The nets touching M in CSR form for :func:`_sp_pack`: ``(start, macro or -1, x, y,
@@ -938,14 +949,14 @@ class _Packer:
         n = self.n
         tx = (prob.x0 - prob.ox) / prob.px  # targets, grid units
         ty = (prob.y0 - prob.oy) / prob.py
-        args = (n, self.sx, self.sy, self.lbx, self.ubx, self.lby, self.uby, prob.kx0,
-                prob.kx1, prob.ky0, prob.ky1, prob.px, prob.py, tx, ty, *self.nets,
-                prob.ox, prob.oy)
+        args = (n, self.sx, self.sy, self.node, self.wx, self.wy, self.lbx, self.ubx, self.lby,
+                self.uby, prob.kx0, prob.kx1, prob.ky0, prob.ky1, prob.px, prob.py, tx, ty,
+                *self.nets, prob.ox, prob.oy)
         kx, ky = np.zeros(n), np.zeros(n)
         hix, hiy = np.zeros(n), np.zeros(n)
         t0 = _T0 * float(np.median(np.concatenate([prob.w, prob.h])))
         chunk = 2000
-        run_length = max(30_000, _RUN_PER_MACRO * n)
+        run_length = max(30_000, min(moves // 2, _RUN_PER_MACRO * n))
         done = 0
         run = 0
         win = max(int(_SWAP_WINDOW * n), min(n + self.m, 10))
@@ -965,7 +976,7 @@ class _Packer:
             for start in range(0, length, chunk):
                 stop = min(length, start + chunk)
                 _sp_anneal(gp, gm, *args, kx, ky, hix, hiy, state, start, stop, length,
-                           seed * 7919 + run * 104729, lam, win, False)
+                           seed * 7919 + run * 104729, lam / 2 ** run, win, False)
                 done += stop - start
                 report("legalize", 0.3 + 0.3 * done / moves,
                        {"stage": "packing", "violation": float(state[0]), "restarts": run})
@@ -975,7 +986,7 @@ class _Packer:
         if state[0] > 0:
             return None
         # polish: lower the quality term among legal packings only
-        length = min(_POLISH_PER_MACRO * n, moves)
+        length = min(_POLISH_PER_MACRO * n, moves // 10)
         state[1] = t0 * 0.1
         for start in range(0, length, chunk):
             _sp_anneal(gp, gm, *args, kx, ky, hix, hiy, state, start,
@@ -1028,7 +1039,8 @@ class _Packer:
 
 
 @njit(cache=True)
-def _sp_pack(gp, gm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py, tx, ty,
+def _sp_pack(gp, gm, n, sx, sy, node, wx, wy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py,
+             tx, ty,
              ns, pin_m, pin_x, pin_y, nw, ox, oy,
              kx, ky, hix, hiy):  # pragma: no cover (compiled)
     """Pack sequence pair ``(gp, gm)`` into ``kx, ky`` (the least positions, which are also
@@ -1062,7 +1074,13 @@ def _sp_pack(gp, gm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py, 
         hix[a], hiy[a] = hx, hy
     viol = 0.0
     disp = 0.0
-    for q in range(tot):  # 'left of': topological in G+ order
+    if node:  # longest paths with node weights: prefix maxima in a Fenwick tree
+        _fenwick_longest(gp, pm, n, wx, lox, kx, False)
+        _fenwick_longest(gm, pp, n, wy, loy, ky, True)
+        for b in range(n):
+            viol += max(0.0, kx[b] - hix[b]) * px + max(0.0, ky[b] - hiy[b]) * py
+            disp += abs(kx[b] - tx[b]) * px + abs(ky[b] - ty[b]) * py
+    for q in range(tot if not node else 0):  # 'left of': topological in G+ order
         b = gp[q]
         if b >= n:
             continue
@@ -1074,7 +1092,7 @@ def _sp_pack(gp, gm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py, 
         kx[b] = v
         viol += max(0.0, v - hix[b]) * px
         disp += abs(v - tx[b]) * px
-    for q in range(tot):  # 'below': topological in G- order
+    for q in range(tot if not node else 0):  # 'below': topological in G- order
         b = gm[q]
         if b >= n:
             continue
@@ -1103,6 +1121,34 @@ def _sp_pack(gp, gm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py, 
 
 
 @njit(cache=True)
+def _fenwick_longest(order, key, n, wt, lo, k, reverse):  # pragma: no cover (compiled)
+    """Longest paths with node weights along a sequence pair: for the macros in ``order``,
+    ``k[b] = max(lo[b], max k[a] + wt[a])`` over the macros ``a`` earlier in ``order`` with a
+    smaller ``key`` (a larger one with ``reverse``), by prefix maxima in a Fenwick tree over
+    the keys -- the LCS-style evaluation of Tang, Tian, Wong (DATE 2000) in O(n log n)."""
+    tot = len(order)
+    tree = np.full(tot + 1, -np.inf)
+    for q in range(tot):
+        b = order[q]
+        if b >= n:
+            continue
+        j = tot - key[b] - 1 if reverse else key[b]  # 0-based; query the keys below j
+        best = lo[b]
+        i = j
+        while i > 0:
+            if tree[i] > best:
+                best = tree[i]
+            i -= i & (-i)
+        k[b] = best
+        i = j + 1
+        v = best + wt[b]
+        while i <= tot:
+            if tree[i] < v:
+                tree[i] = v
+            i += i & (-i)
+
+
+@njit(cache=True)
 def _move_next_to(seq, a, b, after):  # pragma: no cover (compiled)
     """Take ``a`` out of ``seq`` and put it just before (``after`` False) or after ``b``."""
     ia = 0
@@ -1120,7 +1166,8 @@ def _move_next_to(seq, a, b, after):  # pragma: no cover (compiled)
 
 
 @njit(cache=True)
-def _sp_anneal(gp, gm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py, tx, ty,
+def _sp_anneal(gp, gm, n, sx, sy, node, wx, wy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px,
+               py, tx, ty,
                ns, pin_m, pin_x, pin_y, nw, ox, oy, kx, ky, hix, hiy, state, start, stop,
                total, seed, lam, win, polish):  # pragma: no cover
     """Annealing moves ``start .. stop`` of ``total`` on ``(gp, gm)`` in place; ``state`` holds
@@ -1226,8 +1273,9 @@ def _sp_anneal(gp, gm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py
             else:  # side by side: right of b (after in both) or left (before in both)
                 _move_next_to(tp, a, b, after)
                 _move_next_to(tm, a, b, after)
-        v2, d2 = _sp_pack(tp, tm, n, sx, sy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px, py,
-                          tx, ty, ns, pin_m, pin_x, pin_y, nw, ox, oy, nkx, nky, nhx, nhy)
+        v2, d2 = _sp_pack(tp, tm, n, sx, sy, node, wx, wy, lbx, ubx, lby, uby, kx0, kx1, ky0,
+                          ky1, px, py, tx, ty, ns, pin_m, pin_x, pin_y, nw, ox, oy, nkx, nky,
+                          nhx, nhy)
         c2 = v2 + w_d * d2
         if polish and v2 > 0.0:
             continue
