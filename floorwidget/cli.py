@@ -47,6 +47,11 @@ _LABELS = [
     ("legal", "legal"),
     ("num_blocks", "blocks"),
     ("num_nets", "nets"),
+    ("target_density", "target density used"),
+    ("cell_overlaps", "overlapping cell pairs"),
+    ("cells_off_row", "cells off their rows"),
+    ("cells_off_site", "cells off their sites"),
+    ("pinned_illegal", "pinned macros breaking legality"),
     ("narrow_channels", "narrow channels (macro pairs)"),
     ("macros_facing_wall", "macros with pins to a wall"),
     ("logic_regions", "logic regions"),
@@ -175,6 +180,8 @@ def _print_report(rep: dict, as_json: bool, out=None) -> None:
             text = "yes" if v else "no"
         elif isinstance(v, float):
             text = f"{v:,.4g}" if abs(v) < 1e4 else f"{v:,.0f}"
+        elif isinstance(v, str):
+            text = v or "none"
         else:
             text = f"{v:,}"
         out.write(f"{label:<{width}}  {text}\n")

@@ -106,7 +106,7 @@ REPORT_KEYS = (
     "congestion_p99", "macro_overlaps", "macro_overlap_area", "out_of_die", "off_grid", "legal",
     "num_blocks", "num_nets", "target_density", "cell_overlaps", "cells_off_row",
     "cells_off_site", "narrow_channels", "macros_facing_wall", "logic_regions",
-    "largest_logic_region",
+    "largest_logic_region", "pinned_illegal",
 )
 
 
@@ -727,6 +727,23 @@ def legality(design: Design, fp: Floorplan) -> dict:
 DEFAULT_CHANNEL_ROWS = 4
 
 
+def pinned_illegal(design: Design, fp: Floorplan, leg: dict | None = None) -> list[str]:
+    """Names of the pinned or fixed macros that break legality on their own — outside the
+    core, on a placement blockage, off the grid (pinned only), or in conflict with another
+    non-movable macro — which no placer run can repair (it never moves them)."""
+    leg = legality(design, fp) if leg is None else leg
+    still = fp.status != MOVABLE
+    bad = np.zeros(design.num_blocks, bool)
+    for key in ("out_of_core", "on_blockage", "off_grid"):
+        bad[leg[key]] = True
+    pairs = leg["overlap_pairs"]
+    if len(pairs):
+        both = still[pairs[:, 0]] & still[pairs[:, 1]]
+        bad[pairs[both].ravel()] = True
+    bad &= still & (design.kind == MACRO)
+    return [design.names[i] for i in np.flatnonzero(bad)]
+
+
 def default_channel(design: Design) -> float:
     """The default channel width (µm): :data:`DEFAULT_CHANNEL_ROWS` median row heights, or
     1 % of the shorter core side for a design without rows.  Two facing macros are either
@@ -875,6 +892,7 @@ def evaluate(design: Design, fp: Floorplan | None = None, target_density: float 
         "macros_facing_wall": macros_facing_wall(design, fp),
         "logic_regions": lr.count,
         "largest_logic_region": lr.largest,
+        "pinned_illegal": ", ".join(pinned_illegal(design, fp, leg)),
     }
 
 

@@ -388,7 +388,7 @@ def test_evaluate_report_keys(demo_design):
     rep = M.evaluate(demo_design, demo_design.initial)
     assert tuple(rep) == M.REPORT_KEYS
     assert json.loads(json.dumps(rep)) == rep
-    assert {type(v) for v in rep.values()} <= {float, int, bool}
+    assert {type(v) for v in rep.values()} <= {float, int, bool, str}
     assert rep["num_blocks"] == demo_design.num_blocks
     assert rep["hpwl"] == pytest.approx(M.hpwl(demo_design, demo_design.initial))
     # every movable block starts at the core centre: a pile-up, so not legal and overflowing

@@ -415,6 +415,6 @@ def test_pinned_macro_on_a_blockage_is_reported_not_silently_accepted():
         out = legalize(d, d.initial)
     assert out.info["pinned_illegal"] == ["b0"]
     rep = metrics.evaluate(d, out)
-    assert not rep["legal"] and rep["pinned_illegal"] == ["b0"]
+    assert not rep["legal"] and rep["pinned_illegal"] == "b0"
     with pytest.warns(PlacementWarning, match="'b0'"):
         refine(d, d.initial)

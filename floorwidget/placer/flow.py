@@ -34,7 +34,7 @@ from ..design import CELL, CLUSTER, MACRO, MOVABLE, TERMINAL, Design, Floorplan
 from ..metrics import default_channel, hpwl, pinned_illegal
 from .errors import PlacementError, PlacementWarning
 from .legalize import legalize_macros
-from .options import PlacerOptions, check_range, make_options, net_multipliers
+from .options import PlacerOptions, check_int, check_range, make_options, net_multipliers
 from .orient import choose_orientations
 from .periphery import close_channels, compact, orient_mask_inward, push_to_edges
 from .rows import cell_mask, detailed_place, legalize_cells
@@ -270,9 +270,10 @@ def place(design: Design, floorplan: Floorplan | None = None, *, target_density:
     True
     """
     t_all = time.perf_counter()
-    src, target, opts, mult = _start(design, floorplan, target_density, options)
+    src, target, opts, mult = _start(design, floorplan, target_density, seed, options)
     out = src.copy()
-    info: dict[str, Any] = {"stage_seconds": {}, "stage_iterations": {}}
+    info: dict[str, Any] = {"stage_seconds": {}, "stage_iterations": {},
+                            "channel": _channel(design, opts)}
     movable = (src.status == MOVABLE) & (design.kind != TERMINAL)
     mov_idx = np.flatnonzero(movable)
 
@@ -358,11 +359,12 @@ def _arrange_macros(design: Design, out: Floorplan, macros: np.ndarray, opts: Pl
     info["stage_seconds"]["orient"] = time.perf_counter() - t0
     _report(progress, "orient", 1.0, {})
     t0 = time.perf_counter()
-    channel = default_channel(design) if opts.channel is None else float(opts.channel)
+    channel = info["channel"]
     if layout == "periphery":
         out, edge = push_to_edges(design, out, macros)
         out = close_channels(design, out, macros, channel)
         out = compact(design, out, macros, edge)  # what a widened channel let go touches again
+        out = close_channels(design, out, macros, channel)  # and what compaction opened
     else:
         out = legalize_macros(design, out, macros=macros)
         out = close_channels(design, out, macros, channel)
@@ -372,6 +374,11 @@ def _arrange_macros(design: Design, out: Floorplan, macros: np.ndarray, opts: Pl
     info["stage_seconds"]["legalize"] = time.perf_counter() - t0
     _report(progress, "legalize", 1.0, {})
     return out
+
+
+def _channel(design: Design, opts: PlacerOptions) -> float:
+    """The channel rule's width: the option, or the design's default."""
+    return default_channel(design) if opts.channel is None else float(opts.channel)
 
 
 def _inward(design: Design, fp: Floorplan, macros: np.ndarray) -> np.ndarray:
@@ -479,9 +486,10 @@ def refine(design: Design, floorplan: Floorplan, *, target_density: float = 0.8,
         When the macros cannot be legalised or the cells do not fit; the input is untouched.
     """
     t_all = time.perf_counter()
-    src, target, opts, mult = _start(design, floorplan, target_density, options)
+    src, target, opts, mult = _start(design, floorplan, target_density, seed, options)
     out = src.copy()
-    info: dict[str, Any] = {"stage_seconds": {}, "stage_iterations": {}}
+    info: dict[str, Any] = {"stage_seconds": {}, "stage_iterations": {},
+                            "channel": _channel(design, opts)}
     macros = _movable_macros(design, src)
     legalized = False
     if len(macros) and opts.legalize_macros:
@@ -509,11 +517,12 @@ def refine(design: Design, floorplan: Floorplan, *, target_density: float = 0.8,
 
 
 
-def _start(design: Design, floorplan: Floorplan | None, target_density: float,
+def _start(design: Design, floorplan: Floorplan | None, target_density: float, seed: int,
            options: dict) -> tuple[Floorplan, float, Any, Any]:
     """Checked inputs of place and refine: floorplan, target density, options, net factors."""
     src = _check_inputs(design, floorplan)
     target = check_range("target_density", target_density, 0.0, 1.0, lo_open=True)
+    check_int("seed", seed, 0, 2**32 - 1)
     opts = make_options(options)
     target = fitting_target(design, src, target)
     return src, target, opts, net_multipliers(design, opts.net_weight_scale)

@@ -24,9 +24,10 @@ from __future__ import annotations
 import numpy as np
 
 from ..design import MACRO, Design, Floorplan, orient_offsets, orient_size
+from ..metrics import channel_gaps
 from .legalize import legalize_macros
 
-__all__ = ["edge_of", "push_to_edges", "close_channels", "orient_mask_inward", "facing_gaps"]
+__all__ = ["edge_of", "push_to_edges", "close_channels", "orient_mask_inward", "compact"]
 
 LEFT, BOTTOM, RIGHT, TOP = 0, 1, 2, 3
 EPS = 1e-9
@@ -178,40 +179,16 @@ def push_to_edges(design: Design, fp: Floorplan, idx: np.ndarray) -> tuple[Floor
     return out, edge
 
 
-def facing_gaps(rects: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """Pairs of rectangles facing each other: their spans overlap by a positive length on one
-    axis and a positive gap separates them on the other.  Returns ``a, b, gap, axis`` (axis
-    0: the gap is horizontal, ``a`` left of ``b``; 1: vertical, ``a`` below ``b``)."""
-    n = len(rects)
-    if n < 2:
-        z = np.zeros(0, np.intp)
-        return z, z, np.zeros(0), z
-    a, b = np.triu_indices(n, 1)
-    ra, rb = rects[a], rects[b]
-    oy = np.minimum(ra[:, 3], rb[:, 3]) - np.maximum(ra[:, 1], rb[:, 1])
-    ox = np.minimum(ra[:, 2], rb[:, 2]) - np.maximum(ra[:, 0], rb[:, 0])
-    gx = np.maximum(rb[:, 0] - ra[:, 2], ra[:, 0] - rb[:, 2])
-    gy = np.maximum(rb[:, 1] - ra[:, 3], ra[:, 1] - rb[:, 3])
-    horiz = (oy > EPS) & (gx > EPS)
-    vert = (ox > EPS) & (gy > EPS)
-    sel = horiz | vert
-    a, b = a[sel], b[sel]
-    gap = np.where(horiz[sel], gx[sel], gy[sel])
-    axis = np.where(horiz[sel], 0, 1)
-    # order each pair: a left of (or below) b
-    swap = np.where(axis == 0, rects[a, 0] > rects[b, 0], rects[a, 1] > rects[b, 1])
-    a2 = np.where(swap, b, a)
-    b2 = np.where(swap, a, b)
-    return a2, b2, gap, axis
-
-
 def close_channels(design: Design, fp: Floorplan, movable: np.ndarray, channel: float,
                    rounds: int = 6) -> Floorplan:
-    """Remove channels narrower than ``channel`` between facing macros.
+    """Remove channels narrower than ``channel`` between facing macros (the rule of
+    :func:`floorwidget.metrics.channel_gaps`: open wider than the two facing halos together,
+    narrower than ``channel``).
 
     For each such pair with a movable member, that member slides toward the other until the
-    pair abuts (the halo rule's separation), or, when something is in the way, away from it
-    until the gap is ``channel``; pairs that can do neither are left (reported by the metrics).
+    pair abuts (the halo rule's least separation), or, when something is in the way, away from
+    it until the gap is ``channel``; pairs that can do neither are left (the report counts
+    them).
     """
     out = fp.copy()
     if channel <= 0:
@@ -221,17 +198,16 @@ def close_channels(design: Design, fp: Floorplan, movable: np.ndarray, channel: 
     mov[movable] = True
     bl = _obstacles(design)
     for _ in range(rounds):
-        r = out.rects()
-        a, b, gap, axis = facing_gaps(r[mac])
-        a, b = mac[a], mac[b]
-        need = np.where(axis == 0, _sep(design, b, a, LEFT), _sep(design, b, a, BOTTOM))
-        narrow = (gap > need + 1e-6) & (gap < channel - 1e-6) & (mov[a] | mov[b])
-        if not narrow.any():
+        ch = channel_gaps(design, out, channel)
+        todo = mov[ch.pairs[:, 0]] | mov[ch.pairs[:, 1]]
+        if not todo.any():
             break
         changed = False
-        for k in np.flatnonzero(narrow):
-            i, j, ax = int(a[k]), int(b[k]), int(axis[k])
+        for k in np.flatnonzero(todo):
             r = out.rects()
+            p, q = int(ch.pairs[k, 0]), int(ch.pairs[k, 1])
+            ax = 0 if ch.vertical[k] else 1  # 0: side by side, the gap is horizontal
+            i, j = (p, q) if r[p, ax] < r[q, ax] else (q, p)  # i left of (or below) j
             g = (r[j, 0] - r[i, 2]) if ax == 0 else (r[j, 1] - r[i, 3])
             sep = float(_sep(design, np.array([j]), np.array([i]), LEFT if ax == 0
                              else BOTTOM)[0])
@@ -243,7 +219,7 @@ def close_channels(design: Design, fp: Floorplan, movable: np.ndarray, channel: 
             # slides away until the gap is the channel)
             moves = [(m, d_) for m, d_ in ((j, toward_i), (i, toward_j)) if mov[m]]
             moves += [(m, d_) for m, d_ in ((j, toward_j), (i, toward_i)) if mov[m]]
-            gp = design.grid_pitch[0 if ax == 0 else 1]
+            gp = design.grid_pitch[ax]
             for k_, (m, direction) in enumerate(moves):
                 closing = k_ < len(moves) // 2
                 want = g - sep if closing else np.ceil((channel - g) / gp - 1e-9) * gp
