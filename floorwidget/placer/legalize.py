@@ -942,9 +942,11 @@ class _Packer:
         violation; ``(kx, ky)`` of the first legal packing after :meth:`spread`, or None when
         ``moves`` are spent.
 
-        The budget is spent in runs of ``max(30000, 1000 n)`` moves, each cooling from the
-        same temperature to zero; runs start alternately from the starting pair and from a
-        random pair, each with its own random stream."""
+        The budget is spent in runs of ``max(30000, min(moves / 2, 5000 n))`` moves, each
+        cooling from the same temperature to zero; runs start alternately from the starting
+        pair and from a random pair, each with its own random stream, and each weighs the
+        quality term half as much as the one before.  A legal packing is then polished
+        (:func:`_sp_anneal` with ``polish``)."""
         prob = self.prob
         n = self.n
         tx = (prob.x0 - prob.ox) / prob.px  # targets, grid units
@@ -1018,9 +1020,7 @@ class _Packer:
         hi_y = np.where(bm, j, i)[~horiz]
         tx = np.round((prob.x0 - prob.ox) / prob.px)
         ty = np.round((prob.y0 - prob.oy) / prob.py)
-        # lower bounds: the least positions of a packing whose macros all sit on their bound
-        # are not known apart from the chain, so recompute them from the obstacles alone
-        lox, loy = self.lower_bounds(pp, pm)
+        lox, loy = self.lower_bounds(pp, pm)  # from the core and the obstacles
         nx_ = _solve_axis(n, lo_x, hi_x, self.sx[lo_x, hi_x], np.clip(tx, lox, hix), lox, hix)
         ny_ = _solve_axis(n, lo_y, hi_y, self.sy[lo_y, hi_y], np.clip(ty, loy, hiy), loy, hiy)
         return (kx if nx_ is None else nx_), (ky if ny_ is None else ny_)
