@@ -46,7 +46,7 @@ p2 B : 1.5 -2
 """
 PL = """UCLA pl 1.0
 p1 0 0
-p2 120 60
+p2 120 60 : N /FIXED
 """
 
 
@@ -147,7 +147,8 @@ def test_real_gsrc_sets_match_their_readme():
     (BLOCKS, NETS.replace("%-100", "%x"), PL, "t.nets:5", "number"),
     (BLOCKS, NETS, PL.replace("p2 120 60", "p9 120 60"), "t.pl:3", "unknown block 'p9'"),
     (BLOCKS, NETS, PL.replace("p2 120 60", "p2 120"), "t.pl:3", "expected"),
-    (BLOCKS, NETS, PL.replace("p2 120 60\n", ""), "t.pl:", "'p2' has no position"),
+    (BLOCKS, NETS, PL.replace(": N", ": Q"), "t.pl:3", "orientation"),
+    (BLOCKS, NETS, PL.replace("p2 120 60 : N /FIXED\n", ""), "t.pl:", "'p2' has no position"),
 ])
 def test_malformed_input_names_file_and_line(tmp_path, blocks, nets, pl, where, match):
     p = _write(tmp_path, blocks, nets, pl)

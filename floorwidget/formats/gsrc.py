@@ -22,8 +22,9 @@ What the statements become (our choices):
 * ``.nets``: ``NetDegree : k [name]`` followed by ``k`` pin lines ``node [direction] [: dx dy]``.
   Pin offsets are from the node centre; an offset written ``%p`` is ``p`` percent of the node's
   half width (half height), so ``%100`` is the edge.  Without an offset a pin is at the centre.
-* ``.pl``: ``name x y [: orientation]`` gives terminal positions (and, optionally, block
-  lower-left corners; unlisted blocks start stacked at the outline centre, unplaced).
+* ``.pl``: ``name x y [: orientation] [/FIXED]`` gives terminal positions (and, optionally,
+  block lower-left corners; unlisted blocks start stacked at the outline centre, unplaced;
+  blocks stay movable).
 
 The outline (die and core):
 
@@ -259,8 +260,10 @@ def _read_pl(path: Path, index: dict[str, int], n: int):
     orient = np.zeros(n, np.int8)
     for no, line in _lines(path, "pl"):
         tok = line.replace(":", " : ").split()
+        if tok and tok[-1].upper() in ("/FIXED", "/FIXED_NI"):
+            tok = tok[:-1]  # terminals are fixed anyway; blocks stay movable
         if len(tok) not in (3, 5) or (len(tok) == 5 and tok[3] != ":"):
-            raise DesignError(f"expected 'name x y [: orientation]', got {line!r}",
+            raise DesignError(f"expected 'name x y [: orientation] [/FIXED]', got {line!r}",
                               file=str(path), line=no)
         b = index.get(tok[0])
         if b is None:
