@@ -36,7 +36,13 @@ from .errors import PlacementError, PlacementWarning
 from .legalize import legalize_macros
 from .options import PlacerOptions, check_int, check_range, make_options, net_multipliers
 from .orient import choose_orientations
-from .periphery import close_channels, compact, orient_mask_inward, push_to_edges
+from .periphery import (
+    close_channels,
+    compact,
+    fill_pockets,
+    orient_mask_inward,
+    push_to_edges,
+)
 from .rows import cell_mask, detailed_place, legalize_cells
 from .solve import QuadraticSystem, spectral_coordinates
 from .spread import (
@@ -364,7 +370,8 @@ def _arrange_macros(design: Design, out: Floorplan, macros: np.ndarray, opts: Pl
         out, edge = push_to_edges(design, out, macros)
         out = close_channels(design, out, macros, channel)
         out = compact(design, out, macros, edge)  # what a widened channel let go touches again
-        out = close_channels(design, out, macros, channel)  # and what compaction opened
+        out = fill_pockets(design, out, macros)   # logic walled in by macros
+        out = close_channels(design, out, macros, channel)  # and what those moves opened
     else:
         out = legalize_macros(design, out, macros=macros)
         out = close_channels(design, out, macros, channel)

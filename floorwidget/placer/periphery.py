@@ -13,6 +13,8 @@ the place along the boundary, and the order, that the global placement gave it.
   they touch it or a macro (with the halo rule's separation).
 * :func:`close_channels` — a gap between facing macros narrower than ``channel`` is closed (one
   of the pair slides to abut the other) or, where that is blocked, widened to ``channel``.
+* :func:`fill_pockets` — macros slide into pockets of logic walled in by macros, so the logic
+  stays one region where it can.
 * :func:`orient_mask_inward` — the allowed orientations whose pin centroid does not point at the
   macro's nearest core edge.
 
@@ -27,7 +29,8 @@ from ..design import MACRO, Design, Floorplan, orient_offsets, orient_size
 from ..metrics import channel_gaps
 from .legalize import legalize_macros
 
-__all__ = ["edge_of", "push_to_edges", "close_channels", "orient_mask_inward", "compact"]
+__all__ = ["edge_of", "push_to_edges", "close_channels", "orient_mask_inward", "compact",
+           "fill_pockets"]
 
 LEFT, BOTTOM, RIGHT, TOP = 0, 1, 2, 3
 EPS = 1e-9
@@ -266,3 +269,86 @@ def orient_mask_inward(design: Design, fp: Floorplan, idx: np.ndarray,
     mask &= allowed
     return np.where((mask == 0) | ~has, allowed, mask)
 
+
+
+def _on_boundary(design: Design, r: np.ndarray, hl: np.ndarray) -> np.ndarray:
+    """Per macro, the sides (LEFT, BOTTOM, RIGHT, TOP) on which it sits against the boundary:
+    its footprint within a grid step of the core edge or its halo within one of the die edge."""
+    c, d = design.core, design.die
+    gx, gy = design.grid_pitch
+    return np.stack([
+        (r[:, 0] - c[0] < gx) | (r[:, 0] - hl[:, 0] - d[0] < gx),
+        (r[:, 1] - c[1] < gy) | (r[:, 1] - hl[:, 1] - d[1] < gy),
+        (c[2] - r[:, 2] < gx) | (d[2] - r[:, 2] - hl[:, 2] < gx),
+        (c[3] - r[:, 3] < gy) | (d[3] - r[:, 3] - hl[:, 3] < gy)], axis=1)
+
+
+def fill_pockets(design: Design, fp: Floorplan, movable: np.ndarray, rounds: int = 8
+                 ) -> Floorplan:
+    """Close pockets of logic walled in by macros (pieces of the free core other than the
+    largest, :func:`floorwidget.metrics.logic_regions`): a macro that sits on the boundary and
+    borders a pocket slides along the boundary into it, when that lowers the number of pieces
+    (or their area) and nothing is in the way."""
+    from ..metrics import logic_regions
+
+    out = fp.copy()
+    mov = np.zeros(design.num_blocks, bool)
+    mov[movable] = True
+    mac = np.flatnonzero(design.kind == MACRO)
+    bl = _obstacles(design)
+
+    def score(f):
+        lr = logic_regions(design, f)
+        return lr, (lr.count, float(lr.areas[1:].sum()) if len(lr.areas) > 1 else 0.0)
+
+    lr, best = score(out)
+    for _ in range(rounds):
+        if best[0] <= 1 and best[1] == 0.0:
+            break
+        improved = False
+        for k in range(2, len(lr.areas) + 1):
+            cols, rows = np.nonzero(lr.labels == k)
+            if not len(cols):
+                continue
+            px0, px1 = lr.x_edges[cols.min()], lr.x_edges[cols.max() + 1]
+            py0, py1 = lr.y_edges[rows.min()], lr.y_edges[rows.max() + 1]
+            r = out.rects()
+            rh = out.rects(halo=True)
+            near = mov[mac] & (rh[mac, 0] <= px1 + 1e-6) & (rh[mac, 2] >= px0 - 1e-6) & \
+                (rh[mac, 1] <= py1 + 1e-6) & (rh[mac, 3] >= py0 - 1e-6)
+            side = _on_boundary(design, r[mac], design.halo[mac])
+            for i in mac[near]:
+                s = side[np.searchsorted(mac, i)]
+                # along the boundary only: up/down on a left or right edge, sideways on the
+                # bottom or top one; toward the pocket
+                toward = [d_ for d_, ok in ((TOP, py1 > r[i, 3]), (BOTTOM, py0 < r[i, 1]),
+                                            (RIGHT, px1 > r[i, 2]), (LEFT, px0 < r[i, 0]))
+                          if ok]
+                if s.any():  # keep to the boundary it sits on
+                    dirs = [d_ for d_ in toward if (d_ in (TOP, BOTTOM) and (s[LEFT] or s[RIGHT]))
+                            or (d_ in (LEFT, RIGHT) and (s[BOTTOM] or s[TOP]))]
+                else:  # a stacked macro: any way toward the pocket, if it still touches
+                    dirs = toward
+                for direction in dirs:
+                    want = {LEFT: r[i, 0] - px0, RIGHT: px1 - r[i, 2], BOTTOM: r[i, 1] - py0,
+                            TOP: py1 - r[i, 3]}[direction]
+                    t = min(_travel(design, r, i, mac[mac != i], direction, bl), want)
+                    trial = out.copy()
+                    if t <= 0 or not _slide(design, trial, i, direction, t):
+                        continue
+                    if not s.any():
+                        rt = trial.rects()
+                        if min(_travel(design, rt, i, mac[mac != i], e, bl)
+                               for e in range(4)) > max(design.grid_pitch):
+                            continue  # it would float free of its stack
+                    lr2, sc = score(trial)
+                    if sc < best:
+                        out, lr, best, improved = trial, lr2, sc, True
+                        break
+                if improved:
+                    break
+            if improved:
+                break
+        if not improved:
+            break
+    return out
