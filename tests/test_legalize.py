@@ -421,8 +421,9 @@ def test_two_macros_at_42_percent_with_one_blockage():
 def _guillotine_instance(seed: int, n_pieces: int, drop: float, pin: float, halo: bool):
     """A feasible instance by construction: a grid-aligned core cut into ``n_pieces``
     rectangles by random guillotine cuts; each piece (unless dropped as white space or
-    turned into a blockage) holds one macro, the piece minus a right/top halo margin; a few
-    are pinned where they are, the rest are scattered anywhere in the core."""
+    turned into a blockage) holds one macro, the piece minus a halo margin on its right and
+    top or on its left and bottom (so the halo box is the piece, and facing halos differ);
+    a few are pinned where they are, the rest are scattered anywhere in the core."""
     rng = np.random.default_rng(seed)
     W, H = (int(v) for v in rng.integers(60, 200, 2))
     pieces = [(0, 0, W, H)]
@@ -446,14 +447,15 @@ def _guillotine_instance(seed: int, n_pieces: int, drop: float, pin: float, halo
             blk.append((x0, y0, x1, y1))
             continue
         m = int(rng.integers(0, 3)) if halo and min(x1 - x0, y1 - y0) > 4 else 0
+        low = rng.random() < 0.5  # the halo margin on the left and bottom, else right and top
         w.append(float(x1 - x0 - m))
         h.append(float(y1 - y0 - m))
-        hl.append((0.0, 0.0, float(m), float(m)))
+        hl.append((float(m), float(m), 0.0, 0.0) if low else (0.0, 0.0, float(m), float(m)))
         pinned = rng.random() < pin
-        wit.append((float(x0), float(y0)))
+        wit.append((float(x0 + m * low), float(y0 + m * low)))
         status.append(PINNED if pinned else MOVABLE)
-        xs.append(float(x0) if pinned else float(rng.uniform(0, W - w[-1])))
-        ys.append(float(y0) if pinned else float(rng.uniform(0, H - h[-1])))
+        xs.append(wit[-1][0] if pinned else float(rng.uniform(0, W - w[-1])))
+        ys.append(wit[-1][1] if pinned else float(rng.uniform(0, H - h[-1])))
     d = _design((0, 0, W, H), w, h, halo=np.array(hl).reshape(-1, 4), status=status,
                 x=xs, y=ys, blockages=np.array(blk, float).reshape(-1, 4))
     witness = d.initial.copy()
