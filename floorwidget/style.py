@@ -213,22 +213,34 @@ _HIER = re.compile(r"([/|.])")  # hierarchy separators kept in labels
 _ELLIPSIS = "\u2026"
 
 
-def _label(name: str, level: int, max_len: int) -> str:
-    """``name`` shortened at detail ``level`` (1 = first component and leaf; higher keeps more
-    components before the leaf; the full name once nothing is left out)."""
+def _label(name: str, keep: set[int], max_len: int) -> str:
+    """``name`` shortened to its first component, its leaf and the components ``keep``
+    (counted from the end, the leaf being 1), with an ellipsis for each run left out; the full
+    name when that is not shorter.  A name without separators keeps its start and end, or is
+    shown in full once ``keep`` holds anything."""
     parts = _HIER.split(name)  # components at even indices, separators at odd ones
-    comps = parts[0::2]
-    if len(comps) == 1:  # one long component: its start and its end
-        if level > 1:
+    comps, seps = parts[0::2], parts[1::2]
+    n = len(comps)
+    if n == 1:
+        if keep:
             return name
-        keep = max(max_len - 1, 4)
-        return name[: keep // 3] + _ELLIPSIS + name[len(name) - (keep - keep // 3):]
-    if level >= len(comps) - 1:
-        return name
-    head = comps[0] if len(comps[0]) <= 12 else comps[0][:11] + _ELLIPSIS
-    tail = "".join(parts[len(parts) - 2 * level + 1:])  # the last `level` components
-    out = head + parts[1] + _ELLIPSIS + parts[len(parts) - 2 * level] + tail
+        room = max(max_len - 1, 4)
+        return name[: room // 3] + _ELLIPSIS + name[len(name) - (room - room // 3):]
+    idx = sorted({0, n - 1} | {n - k for k in keep if 0 < n - k < n})
+    out = comps[0] if len(comps[0]) <= 12 or idx[1] == 1 else comps[0][:11] + _ELLIPSIS
+    for prev, i in zip(idx, idx[1:]):
+        out += (seps[i - 1] if i == prev + 1 else seps[prev] + _ELLIPSIS + seps[i - 1]) + comps[i]
     return out if len(out) < len(name) else name
+
+
+def _tell_apart(names: list[str]) -> int | None:
+    """The component (counted from the end, above the leaf) nearest the leaf in which
+    ``names`` do not all agree, or None."""
+    comps = [_HIER.split(nm)[0::2] for nm in names]
+    for k in range(2, max(len(c) for c in comps)):
+        if len({c[-k] if k < len(c) else None for c in comps}) > 1:
+            return k
+    return None
 
 
 def short_labels(names: Sequence[str], max_len: int = 24) -> list[str]:
@@ -237,9 +249,10 @@ def short_labels(names: Sequence[str], max_len: int = 24) -> list[str]:
     A name of at most ``max_len`` characters is its own label.  A longer one keeps its first
     component (cut to 12 characters) and its leaf, with an ellipsis for what lies between
     (``top/…/sram_0``); hierarchy separators are ``/``, ``|`` and ``.``.  A name without a
-    separator keeps its start and end.  Where two labels would be equal, each of them keeps
-    one more component before the leaf, and so on; a name that cannot be told apart
-    otherwise is shown in full.  Names are assumed different (as block names are).
+    separator keeps its start and end.  Where labels would be equal, each of them also keeps
+    the component nearest the leaf in which those names differ (``soc/cpu/…/bank_3`` and
+    ``soc/dsp/…/bank_3``), and so on; a name that cannot be told apart otherwise is shown in
+    full.  Names are assumed different (as block names are).
 
     Parameters
     ----------
@@ -258,13 +271,23 @@ def short_labels(names: Sequence[str], max_len: int = 24) -> list[str]:
     ...               "soc/io/pads"])
     ['soc/\u2026/bank0/sram_64k', 'soc/\u2026/bank1/sram_64k', 'soc/io/pads']
     """
-    level = [0 if len(nm) <= max_len else 1 for nm in names]
-    labels = [nm if lv == 0 else _label(nm, lv, max_len) for nm, lv in zip(names, level)]
+    keep: list[set[int]] = [set() for _ in names]
+    labels = [nm if len(nm) <= max_len else _label(nm, keep[i], max_len)
+              for i, nm in enumerate(names)]
     while True:
-        count = Counter(labels)
-        clash = [i for i, lab in enumerate(labels) if count[lab] > 1 and labels[i] != names[i]]
-        if not clash:
+        groups: dict[str, list[int]] = {}
+        for i, lab in enumerate(labels):
+            groups.setdefault(lab, []).append(i)
+        clashes = [[i for i in g if labels[i] != names[i]] for g in groups.values()
+                   if len(g) > 1]
+        clashes = [g for g in clashes if g]
+        if not clashes:
             return labels
-        for i in clash:
-            level[i] += 1
-            labels[i] = _label(names[i], level[i], max_len)
+        for g in clashes:
+            k = _tell_apart([names[i] for i in g])
+            for i in g:
+                if k is None or k in keep[i]:
+                    labels[i] = names[i]  # nothing left to tell them apart by: in full
+                else:
+                    keep[i].add(k)
+                    labels[i] = _label(names[i], keep[i], max_len)
