@@ -21,7 +21,6 @@ and as the nearest bqplot ``line_style`` name (``bq_line_style``).
 from __future__ import annotations
 
 import re
-from collections import Counter
 from collections.abc import Sequence
 from dataclasses import dataclass
 
