@@ -45,3 +45,7 @@ def test_hand_worked_labels():
     assert short_labels(names) == ["ariane/\u2026/sram_block_0/tag_sram/macro_mem",
                                    "ariane/\u2026/sram_block_1/tag_sram/macro_mem",
                                    "ariane/\u2026/data_sram/macro_mem", "pll"]
+    # names that differ far from the leaf keep that component, not the whole path
+    assert short_labels(["soc/cpu_cluster/core0/l2/data_bank_3",
+                         "soc/dsp/core0/l2/data_bank_3"]) == [
+        "soc/cpu_cluster/\u2026/data_bank_3", "soc/dsp/\u2026/data_bank_3"]
