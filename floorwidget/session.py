@@ -83,9 +83,10 @@ class ChangeEvent:
     Attributes
     ----------
     action : str
-        ``"move"``, ``"pin"``, ``"unpin"``, ``"rotate"``, ``"flip"``, ``"place"``, ``"refine"``,
-        ``"legalize"``, ``"restore"``, ``"undo"``, ``"redo"``, ``"snapshot"``,
-        ``"add_alternative"``, or the label of a :meth:`Session.batch`.
+        ``"move"``, ``"pin"``, ``"unpin"``, ``"rotate"``, ``"flip"``, ``"set_orientation"``,
+        ``"align"``, ``"distribute"``, ``"array"``, ``"mirror"``, ``"push"``, ``"shift"``,
+        ``"place"``, ``"refine"``, ``"legalize"``, ``"restore"``, ``"undo"``, ``"redo"``,
+        ``"snapshot"``, ``"add_alternative"``, or the label of a :meth:`Session.batch`.
     blocks : ndarray of int or None
         Indices of the blocks whose position, orientation or status may have changed
         (sorted); ``None`` means "assume all"; an empty array means none did (e.g. a snapshot).
@@ -622,6 +623,108 @@ class Session:
         Raises :class:`DesignError` when the mirror image is not an allowed orientation.
         """
         self._reorient("flip", name)
+
+    @_locked
+    def set_orientation(self, name: str, orientation: str) -> tuple[float, float]:
+        """Give a block the orientation ``orientation`` (``"N"``, ``"FS"``, ...) by name.
+
+        Like :meth:`rotate`, the footprint centre is kept, then the corner is re-snapped and
+        kept inside the core.  Returns the lower-left corner taken.
+
+        Raises
+        ------
+        DesignError
+            An unknown or disallowed orientation, or a fixed block.
+        """
+        i = self._movable_index(name, "turned")
+        if orientation not in ORIENTATIONS:
+            raise DesignError(f"orientation must be one of {', '.join(ORIENTATIONS)}; got "
+                              f"{orientation!r}")
+        d, fp = self.design, self._fp
+        code = ORIENTATIONS.index(orientation)
+        if not d.orient_allowed[i] >> code & 1:
+            raise DesignError(f"block {name!r} does not allow {orientation} (allowed: "
+                              f"{', '.join(d.allowed_orientations(name))})")
+        cur = int(fp.orient[i])
+        w0, h0 = (float(v) for v in orient_size(d.width[i], d.height[i], cur))
+        w1, h1 = (float(v) for v in orient_size(d.width[i], d.height[i], code))
+        nx, ny = float(fp.x[i]), float(fp.y[i])
+        if code != cur:
+            nx, ny = self._fit(i, nx + (w0 - w1) / 2, ny + (h0 - h1) / 2, code)
+        new = fp.copy()
+        new.x[i], new.y[i], new.orient[i] = nx, ny, code
+        self._commit("set_orientation", new, log=((name, orientation),), blocks=[i])
+        return nx, ny
+
+    # --- arranging groups of macros (floorwidget.arrange does the geometry) -------------------
+    def _arrange(self, op: str, names, fn: Callable, args: tuple, kwargs: dict | None = None):
+        lst = self._names(names)
+        idx = np.array([self.design.block(nm) for nm in lst], dtype=np.int64)
+        kwargs = dict(kwargs or {})
+        res = fn(self.design, self._fp, idx, *args, **kwargs)
+        log_args = (lst, *(_plain(a, f"{op} argument") for a in args))
+        log_kw = {k: _plain(v, f"{op} option {k!r}") for k, v in kwargs.items()
+                  if v is not None}
+        self._commit(op, res.apply(self._fp), log=(log_args, log_kw), blocks=idx)
+        return res
+
+    @_locked
+    def align(self, names: Iterable[str], side: str):
+        """Line up macros on one edge or centre line of their bounding box (one undo step).
+
+        ``side``: ``"left"``, ``"right"``, ``"bottom"``, ``"top"``, ``"x_centre"`` or
+        ``"y_centre"``; see :func:`floorwidget.arrange.align`.  Pinned and fixed macros are
+        refused (nothing changes).  The result may be illegal; :attr:`report` says so.
+
+        Returns
+        -------
+        floorwidget.arrange.Arranged
+            The positions taken and notes on what was adjusted.
+        """
+        from . import arrange  # noqa: PLC0415
+        return self._arrange("align", names, arrange.align, (side,))
+
+    @_locked
+    def distribute(self, names: Iterable[str], axis: str = "x"):
+        """Equal gaps between neighbouring macros along ``axis`` (``"x"`` or ``"y"``), the
+        outer two staying; see :func:`floorwidget.arrange.distribute`."""
+        from . import arrange  # noqa: PLC0415
+        return self._arrange("distribute", names, arrange.distribute, (axis,))
+
+    @_locked
+    def array(self, names: Iterable[str], rows: int, cols: int, pitch=None):
+        """Pack macros into a ``rows × cols`` array, in the order given, bottom row first.
+
+        ``pitch`` (µm, a number or ``(x, y)``) is the step between neighbouring cells; ``None``
+        abuts them under the halo rule.  See :func:`floorwidget.arrange.array`.
+        """
+        from . import arrange  # noqa: PLC0415
+        return self._arrange("array", names, arrange.array, (rows, cols), {"pitch": pitch})
+
+    @_locked
+    def mirror(self, names: Iterable[str], axis: str = "x"):
+        """Mirror a group about its centre: ``axis="x"`` swaps left and right, ``"y"`` top and
+        bottom; orientations mirrored too.  See :func:`floorwidget.arrange.mirror`."""
+        from . import arrange  # noqa: PLC0415
+        return self._arrange("mirror", names, arrange.mirror, (axis,))
+
+    @_locked
+    def push(self, names: Iterable[str], side: str | None = None):
+        """Move a group as one to a core edge (``None``: the nearest) until it touches it.
+        See :func:`floorwidget.arrange.push`."""
+        from . import arrange  # noqa: PLC0415
+        return self._arrange("push", names, arrange.push, (), {"side": side})
+
+    @_locked
+    def shift(self, names: str | Iterable[str], dx: float, dy: float):
+        """Move macros by ``(dx, dy)`` µm as one group, snapped, stopping at the core edge.
+
+        A hand move like :meth:`move`: pinned macros may be shifted (they stay pinned), fixed
+        ones may not.  See :func:`floorwidget.arrange.shift`.
+        """
+        from . import arrange  # noqa: PLC0415
+        return self._arrange("shift", names, arrange.shift,
+                             (_finite(dx, "dx"), _finite(dy, "dy")))
 
     # --- placer calls --------------------------------------------------------------------------
     def _run_placer(self, action: str, fn: Callable, opts: dict, progress) -> None:

@@ -290,8 +290,9 @@ def _check_log(doc: _Doc, design: Design, entries, where: str, depth: int = 0) -
     from .session import Session  # noqa: PLC0415
     if depth > MAX_BATCH_DEPTH:
         doc.fail(where, f"batches nested more than {MAX_BATCH_DEPTH} deep")
-    known = {"move", "pin", "unpin", "rotate", "flip", "place", "refine", "legalize", "undo",
-             "redo", "snapshot", "add_alternative", "restore"}
+    known = {"move", "pin", "unpin", "rotate", "flip", "set_orientation", "align",
+             "distribute", "array", "mirror", "push", "shift", "place", "refine", "legalize",
+             "undo", "redo", "snapshot", "add_alternative", "restore"}
     out = []
     for k, e in enumerate(doc.lst(entries, where)):
         w = f"{where}[{k}]"
