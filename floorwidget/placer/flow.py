@@ -110,6 +110,7 @@ class _Stage:
         self.obstacles = _obstacles(design, fp, fixed)
         self.cap = capacity_map(self.grid, target, self.obstacles)
         self.wt = density_weight(self.grid, self.w, self.h, target)
+        self.soft = design.kind[self.vars] == CLUSTER
         self.area = float(np.sum(self.w * self.h * self.wt))
         c = design.core
         self.lo_x = c[0] + self.w / 2
@@ -139,7 +140,7 @@ class _Stage:
         regions = overfilled_regions(self.grid, self.cap, cx[v], cy[v], self.w, self.h,
                                      weight=self.wt)
         return lookahead(self.grid, self.cap, cx[v], cy[v], self.w, self.h, regions=regions,
-                         weight=self.wt)
+                         weight=self.wt, scale=self.soft)
 
     def overflow(self, cx, cy) -> float:
         v = self.vars

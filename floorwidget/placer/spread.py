@@ -160,7 +160,7 @@ def _clamp_into(c, size, lo, hi):
 
 def lookahead(grid: Grid, cap: np.ndarray, cx, cy, w, h, *, leaf: float = 1.0,
               max_levels: int = 64, regions: tuple[np.ndarray, np.ndarray] | None = None,
-              weight=None, minimal: bool = True):
+              weight=None, minimal: bool = True, scale: np.ndarray | None = None):
     """Density-feasible look-ahead centres for objects now centred at ``cx, cy``.
 
     Recursive bisection of the core: every region is cut in the middle across its longer
@@ -194,6 +194,11 @@ def lookahead(grid: Grid, cap: np.ndarray, cx, cy, w, h, *, leaf: float = 1.0,
         capacity (only the excess crosses the cut), so a region with room to spare is not
         spread evenly over its area.  ``False``: split in proportion to the capacities (every
         region filled evenly).
+    scale : (N,) bool array, optional
+        Objects whose positions in a leaf region are scaled linearly onto the region (each
+        axis, order kept) instead of only clamped into it, so that a pile of them in one spot
+        of a bin is spread over the bin — meant for soft clusters, which stand for many cells
+        and are never legalised (piled up, they read as a density no row could hold).
 
     Returns
     -------
@@ -235,6 +240,22 @@ def lookahead(grid: Grid, cap: np.ndarray, cx, cy, w, h, *, leaf: float = 1.0,
         tx[idx] = _clamp_into(cx[idx], w[idx], b[:, 0], b[:, 1])
         ty[idx] = _clamp_into(cy[idx], h[idx], b[:, 2], b[:, 3])
 
+    def spread_out(idx):
+        """Objects of a leaf region: their span scaled linearly onto the region on each axis
+        (relative order kept), so a pile in one corner of a bin is spread over the bin."""
+        r = reg[idx]
+        b = boxes[r]
+        for c, size, lo, hi, t in ((cx, w, b[:, 0], b[:, 1], tx), (cy, h, b[:, 2], b[:, 3], ty)):
+            v = c[idx]
+            mn = np.full(len(boxes), np.inf)
+            mx = np.full(len(boxes), -np.inf)
+            np.minimum.at(mn, r, v)
+            np.maximum.at(mx, r, v)
+            span = mx[r] - mn[r]
+            room = np.maximum(hi - lo - size[idx], 0.0)
+            f = np.where(span > 1e-12 * (hi - lo), (v - mn[r]) / np.where(span > 0, span, 1), 0.5)
+            t[idx] = _clamp_into(lo + size[idx] / 2 + f * room, size[idx], lo, hi)
+
     for _level in range(max_levels):
         nreg = len(boxes)
         r_of = reg[active]
@@ -249,7 +270,12 @@ def lookahead(grid: Grid, cap: np.ndarray, cx, cy, w, h, *, leaf: float = 1.0,
             small[np.flatnonzero(small)[~full]] = False
         done = small[r_of]
         if done.any():
-            settle(active[done])
+            fin = active[done]
+            if scale is not None and scale[fin].any():
+                spread_out(fin[scale[fin]])
+                settle(fin[~scale[fin]])
+            else:
+                settle(fin)
             active = active[~done]
             r_of = r_of[~done]
             if not len(active):
