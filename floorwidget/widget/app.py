@@ -130,11 +130,14 @@ class FloorplanWidget(W.VBox):
         h.observe(self._on_brush, names=["selected"])
 
         self._build_controls(live, pin_on_drop)
+        self._build_edit_controls()
         self.session.on_change(self._on_change)
         self._refresh_readouts()
         self._refresh_alternatives()
+        self._refresh_edit()
         side = W.VBox([self.controls, self.progress, self.message, self.readout, self.legend,
-                       self.details], layout=W.Layout(width="360px", margin="0 0 0 10px"))
+                       self.details, self.edit_box, self.arrange_box],
+                      layout=W.Layout(width="360px", margin="0 0 0 10px"))
         top = W.HBox([self.canvas.figure, side], layout=W.Layout(flex_flow="row wrap"))
         super().__init__([top, self.alt_box])
 
@@ -225,6 +228,75 @@ class FloorplanWidget(W.VBox):
             W.HTML("<b>Alternatives</b>"), W.HBox([self.alt_label, keep, self.alt_a,
                                                    self.alt_b, restore]),
             self.alt_table, self.alt_thumbs, self.alt_diff])
+
+    def _build_edit_controls(self) -> None:
+        """Exact edits of one macro and arrangements of the selection (all Session calls)."""
+        px, py = (float(v) for v in self.design.grid_pitch)
+        small = {"description_width": "initial"}
+
+        def num(label, tip, width="104px"):
+            return W.FloatText(description=label, tooltip=tip, style=small,
+                               layout=W.Layout(width=width))
+
+        self.edit_x = num("x", "Lower-left corner x, µm (snaps to the placement grid)")
+        self.edit_y = num("y", "Lower-left corner y, µm (snaps to the placement grid)")
+        self.edit_orient = W.Dropdown(options=list(ORIENTATIONS), tooltip="Orientation",
+                                      layout=W.Layout(width="64px"))
+        set_b = self._button("Set", self.apply_edit, "Put the selected macro at x, y in this "
+                             "orientation (one undo step)", width="52px")
+        steps = [("◀", -px, 0.0, "left"), ("▶", px, 0.0, "right"), ("▲", 0.0, py, "up"),
+                 ("▼", 0.0, -py, "down")]
+        nudges = [self._button(g, lambda dx=dx, dy=dy: self._shift_selection(dx, dy),
+                               f"Nudge the selection {w} by one grid step", width="40px")
+                  for g, dx, dy, w in steps]
+        self.offset_dx = num("dx", "Offset x, µm", "96px")
+        self.offset_dy = num("dy", "Offset y, µm", "96px")
+        by = self._button("Move by", lambda: self._shift_selection(self.offset_dx.value,
+                                                                   self.offset_dy.value),
+                          "Move the selection by dx, dy as one group", width="76px")
+        self.edit_box = W.VBox([
+            W.HTML("<b>Exact position</b> <span style='font-size:11px'>(µm, lower-left "
+                   "corner)</span>"),
+            W.HBox([self.edit_x, self.edit_y, self.edit_orient, set_b]),
+            W.HBox(nudges + [W.HTML(f"<span style='font-size:11px;margin-left:6px'>one "
+                                    f"step = {px:g} × {py:g} µm</span>")]),
+            W.HBox([self.offset_dx, self.offset_dy, by])])
+
+        self.align_side = W.Dropdown(
+            options=[("left edges", "left"), ("right edges", "right"),
+                     ("bottom edges", "bottom"), ("top edges", "top"),
+                     ("centres in a column", "x_centre"), ("centres in a row", "y_centre")],
+            value="left", layout=W.Layout(width="160px"))
+        align = self._button("Align", lambda: self._arrange("align", self.align_side.value),
+                             "Line the selected macros up", width="76px")
+        even = [self._button("Even gaps ↔", lambda: self._arrange("distribute", "x"),
+                             "Equal gaps from left to right; the outer two stay",
+                             width="104px"),
+                self._button("Even gaps ↕", lambda: self._arrange("distribute", "y"),
+                             "Equal gaps from bottom to top; the outer two stay",
+                             width="104px")]
+        self.array_rows = W.BoundedIntText(value=2, min=1, max=10_000, description="rows",
+                                           style=small, layout=W.Layout(width="96px"))
+        self.array_cols = W.BoundedIntText(value=2, min=1, max=10_000, description="cols",
+                                           style=small, layout=W.Layout(width="96px"))
+        self.array_pitch_x = num("pitch x", "0: abutted (halos apart)", "110px")
+        self.array_pitch_y = num("y", "0: abutted (halos apart)", "80px")
+        arr = self._button("Array", self._array_selection, "Fill an array, in selection "
+                           "order, bottom row first; pitch 0 abuts the cells under the halo "
+                           "rule", width="64px")
+        mirrors = [self._button("Mirror ↔", lambda: self._arrange("mirror", "x"),
+                                "Swap left and right about the group's centre", width="86px"),
+                   self._button("Mirror ↕", lambda: self._arrange("mirror", "y"),
+                                "Swap top and bottom about the group's centre", width="86px"),
+                   self._button("To core edge", lambda: self._arrange("push"),
+                                "Move the group to the nearest core edge", width="104px")]
+        self.arrange_box = W.VBox([
+            W.HTML("<b>Arrange selected</b> <span style='font-size:11px'>(pinned macros "
+                   "are refused; unpin first)</span>"),
+            W.HBox([self.align_side, align]), W.HBox(even),
+            W.HBox([self.array_rows, self.array_cols]),
+            W.HBox([self.array_pitch_x, self.array_pitch_y, arr]),
+            W.HBox(mirrors)])
 
     def _legend_html(self) -> str:
         st = status_style()
@@ -338,7 +410,121 @@ class FloorplanWidget(W.VBox):
             for nm in names:
                 getattr(s, action)(nm)
 
+    # --- exact edits and arrangements of the selection ------------------------------------------
+    def _selected_names(self) -> list[str]:
+        names = self.selection
+        if not names:
+            raise ValueError("Select one or more macros first (click, or Box select).")
+        return names
+
+    def _refresh_edit(self) -> None:
+        """Fill the exact-position fields from the one selected macro (else clear them)."""
+        sel = self.canvas.selected
+        one = sel.size == 1
+        for wdg in (self.edit_x, self.edit_y, self.edit_orient, self.buttons["Set"]):
+            wdg.disabled = not one
+        if one:
+            i, fp = int(sel[0]), self.session.floorplan
+            cur = ORIENTATIONS[fp.orient[i]]
+            allowed = self.design.allowed_orientations(self.design.names[i])
+            self.edit_orient.options = allowed if cur in allowed else [cur, *allowed]
+            self.edit_x.value, self.edit_y.value = float(fp.x[i]), float(fp.y[i])
+            self.edit_orient.value = cur
+
+    def apply_edit(self) -> None:
+        """Put the one selected macro at the typed x, y and orientation (one undo step).
+
+        The orientation is set first (its centre kept); the corner moves only when x or y was
+        changed, so a new orientation alone turns the macro in place.
+        """
+        names = self._selected_names()
+        if len(names) != 1:
+            raise ValueError("Select exactly one macro to type its position.")
+        self._refuse_if_busy()
+        nm, s = names[0], self.session
+        i = self.design.block(nm)
+        x0, y0 = float(s.floorplan.x[i]), float(s.floorplan.y[i])
+        x, y, o = float(self.edit_x.value), float(self.edit_y.value), self.edit_orient.value
+        with s.batch(f"edit {nm}"):
+            if o != s.floorplan.orientation(nm):
+                s.set_orientation(nm, o)
+            if (x, y) != (x0, y0):
+                s.move(nm, x, y)
+        self._after("Placed", [nm])
+
+    def _shift_selection(self, dx: float, dy: float) -> None:
+        names = self._selected_names()
+        self.shift(names, dx, dy)
+
+    def _array_selection(self) -> None:
+        px, py = float(self.array_pitch_x.value), float(self.array_pitch_y.value)
+        pitch = None if px <= 0 and py <= 0 else (px if px > 0 else py, py if py > 0 else px)
+        self._arrange("array", int(self.array_rows.value), int(self.array_cols.value), pitch)
+
+    def _arrange(self, op: str, *args) -> None:
+        getattr(self, op)(self._selected_names(), *args)
+
+    def _after(self, verb: str, names, res=None) -> None:
+        """Say what an edit did, what was adjusted and whether the floorplan is still legal."""
+        names = [names] if isinstance(names, str) else list(names)
+        what = names[0] if len(names) == 1 else f"{len(names)} macros"
+        parts = [f"{verb} {what}."] + [f"{n[:1].upper()}{n[1:]}." for n in
+                                        (res.notes if res is not None else ())]
+        rep = self._last_report
+        if not rep.get("legal", True):
+            parts.append(f"Not legal now: {_fmt(rep.get('macro_overlaps'))} macro conflict "
+                         "pair(s) under the halo rule; see the readouts.")
+        self.notify(" ".join(parts))
+
+    def align(self, names, side: str):
+        """:meth:`Session.align` (and a message in the panel)."""
+        self._refuse_if_busy()
+        res = self.session.align(names, side)
+        self._after("Aligned", names, res)
+        return res
+
+    def distribute(self, names, axis: str = "x"):
+        """:meth:`Session.distribute`."""
+        self._refuse_if_busy()
+        res = self.session.distribute(names, axis)
+        self._after("Spaced", names, res)
+        return res
+
+    def array(self, names, rows: int, cols: int, pitch=None):
+        """:meth:`Session.array`."""
+        self._refuse_if_busy()
+        res = self.session.array(names, rows, cols, pitch)
+        self._after(f"Arrayed ({res.pitch[0]:g} × {res.pitch[1]:g} µm steps)", names, res)
+        return res
+
+    def mirror(self, names, axis: str = "x"):
+        """:meth:`Session.mirror`."""
+        self._refuse_if_busy()
+        res = self.session.mirror(names, axis)
+        self._after("Mirrored", names, res)
+        return res
+
+    def push(self, names, side: str | None = None):
+        """:meth:`Session.push`."""
+        self._refuse_if_busy()
+        res = self.session.push(names, side)
+        self._after("Moved", names, res)
+        return res
+
+    def shift(self, names, dx: float, dy: float):
+        """:meth:`Session.shift`."""
+        self._refuse_if_busy()
+        res = self.session.shift(names, dx, dy)
+        self._after("Moved", names, res)
+        return res
+
+    def set_orientation(self, name: str, orientation: str):
+        """:meth:`Session.set_orientation`."""
+        self._refuse_if_busy()
+        return self.session.set_orientation(name, orientation)
+
     def _refresh_details(self) -> None:
+        self._refresh_edit()
         d, fp = self.design, self.session.floorplan
         sel = self.canvas.selected
         if sel.size == 0:

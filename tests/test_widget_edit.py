@@ -1,0 +1,107 @@
+"""Headless tests of the widget's exact edits and arrange controls.
+
+The controls are driven as a person would: select macros, set the fields, ``click()`` the
+buttons (ipywidgets runs the same callbacks as in the browser).  The expected positions are
+closed forms — equal edges, :func:`floorwidget.design.snap` of the typed value, one grid step
+per nudge — and every action is one undo step.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+pytest.importorskip("bqplot")
+
+from floorwidget.design import PINNED, snap  # noqa: E402
+from floorwidget.widget import FloorplanWidget  # noqa: E402
+
+
+@pytest.fixture
+def w(demo_design):
+    w = FloorplanWidget(demo_design, size=400, live=False)
+    s = w.session
+    for k, nm in enumerate(["sram_sp4k_0", "sram_sp4k_1", "sram_sp2k_0"]):
+        s.move(nm, 300.0 + 400 * k, 400.0 + 250 * k)
+    return w
+
+
+def test_align_through_the_panel(w, demo_design):
+    d, s = demo_design, w.session
+    names = ["sram_sp4k_0", "sram_sp4k_1"]
+    steps = len(s.history)
+    w.select(names)
+    w.align_side.value = "top"
+    w.buttons["Align"].click()
+    r = s.floorplan.rects()[[d.block(n) for n in names]]
+    assert r[0, 3] == r[1, 3]  # same height: the top edges are equal exactly
+    assert len(s.history) == steps + 1 and s.history[-1] == "align"
+    assert "Aligned 2 macros" in w.message.value
+    assert s.script().rstrip().endswith(f"session.align({names!r}, 'top')")
+    w.buttons["Undo"].click()
+    assert len(s.history) == steps
+
+
+def test_typed_coordinate_and_orientation(w, demo_design):
+    d, s = demo_design, w.session
+    nm = "sram_sp2k_0"
+    i = d.block(nm)
+    w.select([nm])
+    assert not w.buttons["Set"].disabled
+    assert w.edit_x.value == s.floorplan.x[i] and w.edit_orient.value == "N"
+    w.edit_x.value, w.edit_y.value = 812.4, 633.3
+    w.buttons["Set"].click()
+    (ox, oy), (px, py) = d.grid_origin, d.grid_pitch
+    assert s.floorplan.x[i] == snap(812.4, ox, px) and s.floorplan.y[i] == snap(633.3, oy, py)
+    assert w.edit_x.value == s.floorplan.x[i]  # the fields show what was taken
+    # a new orientation alone turns the macro about its centre (one step)
+    cx, cy = (c[i] for c in s.floorplan.centres())
+    w.edit_orient.value = "E"
+    w.buttons["Set"].click()
+    assert s.floorplan.orientation(nm) == "E"
+    ncx, ncy = (c[i] for c in s.floorplan.centres())
+    assert abs(ncx - cx) <= px / 2 + 1e-9 and abs(ncy - cy) <= py / 2 + 1e-9
+    assert s.history[-2:] == [f"edit {nm}", f"edit {nm}"]
+    # several macros selected: the fields are off
+    w.select(["sram_sp4k_0", nm])
+    assert w.buttons["Set"].disabled
+
+
+def test_nudge_and_offset_move_the_selection(w, demo_design):
+    d, s = demo_design, w.session
+    names = ["sram_sp4k_0", "sram_sp4k_1"]
+    idx = [d.block(n) for n in names]
+    s.pin(names[0])  # nudging is a hand move: pinned macros move and stay pinned
+    w.select(names)
+    x0, y0 = s.floorplan.x[idx].copy(), s.floorplan.y[idx].copy()
+    w.buttons["▶"].click()
+    w.buttons["▲"].click()
+    px, py = d.grid_pitch
+    assert np.array_equal(s.floorplan.x[idx], x0 + px)
+    assert np.allclose(s.floorplan.y[idx], y0 + py, rtol=0, atol=1e-9)
+    assert s.floorplan.status[idx[0]] == PINNED
+    w.offset_dx.value, w.offset_dy.value = -100.0, 0.0
+    w.buttons["Move by"].click()
+    assert np.array_equal(s.floorplan.x[idx], x0 + px - 100.0)
+    assert s.history[-3:] == ["shift", "shift", "shift"]
+
+
+def test_arrange_buttons_refuse_pinned_and_report_illegal(w, demo_design):
+    d, s = demo_design, w.session
+    names = ["sram_sp4k_0", "sram_sp4k_1", "sram_sp2k_0"]
+    w.select(names)
+    w.array_rows.value, w.array_cols.value = 1, 3
+    w.array_pitch_x.value, w.array_pitch_y.value = 100.0, 0.0  # narrower than the macros
+    w.buttons["Array"].click()
+    x = s.floorplan.x[[d.block(n) for n in names]]
+    assert np.array_equal(np.diff(x), [100.0, 100.0])
+    assert not s.report["legal"] and "Not legal now" in w.message.value
+    s.pin(names[1])
+    before = s.floorplan
+    for label in ("Mirror ↔", "Even gaps ↕", "To core edge", "Align"):
+        w.buttons[label].click()
+        assert "is pinned" in w.message.value
+        assert s.floorplan is before
+    w.select([])
+    w.buttons["Align"].click()
+    assert "Select one or more macros first" in w.message.value
