@@ -161,7 +161,8 @@ def test_drag_moves_macro_in_real_browser(lab, browser, artifacts):
         page.close()
 
 
-def _drag_check(page, lab, artifacts):
+def _open_notebook(page, lab) -> tuple[dict, list]:
+    """Open the notebook, run it, and return the first state and the handles' screen points."""
     state_path = lab["root"] / "state.json"
     page.set_default_timeout(60_000)
     page.goto(f"{lab['base']}/lab/tree/{NOTEBOOK.name}?token={lab['token']}")
@@ -195,7 +196,12 @@ def _drag_check(page, lab, artifacts):
         raise AssertionError(f"the drag handles were not drawn: {info}")
     page.evaluate(_HANDLES_JS, [n, True])  # bring the canvas into view
     page.wait_for_timeout(700)  # let the layout settle
-    pts = page.evaluate(_HANDLES_JS, [n, False])
+    return st0, page.evaluate(_HANDLES_JS, [n, False])
+
+
+def _drag_check(page, lab, artifacts):
+    state_path = lab["root"] / "state.json"
+    st0, pts = _open_notebook(page, lab)
 
     # screen pixels per µm from two far-apart handles and their data centres (kernel side)
     import numpy as np
@@ -260,3 +266,74 @@ def _drag_check(page, lab, artifacts):
     shot = artifacts / "browser_drag.png"
     page.screenshot(path=str(shot), full_page=False)
     assert shot.stat().st_size > 10_000
+
+
+def test_align_and_typed_position_in_real_browser(lab, browser, artifacts):
+    page = browser.new_page(viewport={"width": 1600, "height": 1100})
+    try:
+        _arrange_check(page, lab, artifacts)
+    except BaseException:
+        page.screenshot(path=str(artifacts / "browser_arrange_failure.png"))
+        raise
+    finally:
+        page.close()
+
+
+def _arrange_check(page, lab, artifacts):
+    """Box-select two macros, press Align (left edges), then type one macro's x and Set."""
+    import numpy as np
+
+    state_path = lab["root"] / "state.json"
+    st0, pts = _open_notebook(page, lab)
+    names = st0["macros"]
+    px = np.array(pts, dtype=float)
+    # two handles whose screen box (grown by 12 px) holds no third handle and no pinned macro
+    best = None
+    for a in range(len(px)):
+        for b in range(a + 1, len(px)):
+            if "pinned" in (st0["status"][names[a]], st0["status"][names[b]]):
+                continue
+            lo = np.minimum(px[a], px[b]) - 12
+            hi = np.maximum(px[a], px[b]) + 12
+            inside = np.all((px >= lo) & (px <= hi), axis=1).sum()
+            d = float(np.hypot(*(px[a] - px[b])))
+            if inside == 2 and (best is None or d < best[0]):
+                best = (d, a, b, lo, hi)
+    assert best is not None
+    _, a, b, lo, hi = best
+    page.get_by_role("button", name="Box select", exact=True).click()
+    page.wait_for_timeout(300)
+    page.mouse.move(lo[0], lo[1])
+    page.mouse.down()
+    for t in np.linspace(0, 1, 8)[1:]:
+        page.mouse.move(lo[0] + t * (hi[0] - lo[0]), lo[1] + t * (hi[1] - lo[1]))
+        page.wait_for_timeout(30)
+    page.mouse.up()
+    page.wait_for_selector("text=2 macros selected", timeout=20_000)
+    page.get_by_role("button", name="Align", exact=True).click()
+    st1 = _wait_state(state_path, lambda s: s["undo"][-1:] == ["align"], 60, "the align")
+    xa, xb = st1["positions"][names[a]][0], st1["positions"][names[b]][0]
+    assert xa == xb == min(st0["positions"][names[a]][0], st0["positions"][names[b]][0])
+
+    # a typed coordinate: select one macro by clicking its handle, type x, press Set
+    page.get_by_role("button", name="Move macros", exact=True).click()
+    page.wait_for_timeout(500)
+    pts = page.evaluate(_HANDLES_JS, [len(names), False])
+    page.mouse.click(*pts[a])
+    # the details panel names the one selected macro (the handles of the pair may touch)
+    details = page.locator(".widget-html-content:has-text('lower-left (')")
+    details.wait_for(timeout=20_000)
+    picked = details.inner_text().split()[0]
+    assert picked in (names[a], names[b]), details.inner_text()
+    field = page.locator(".fw-edit-x input")
+    field.fill("812.4")
+    field.press("Enter")
+    page.wait_for_timeout(300)
+    page.get_by_role("button", name="Set", exact=True).click()
+    st2 = _wait_state(state_path, lambda s: s["undo"][-1:] == [f"edit {picked}"], 60,
+                      "the typed position")
+    origin, pitch = 20.0, st2["pitch"][0]  # the demo's grid: origin 20 µm
+    assert st2["positions"][picked][0] == origin + round((812.4 - origin) / pitch) * pitch
+    assert st2["positions"][picked][1] == st1["positions"][picked][1]
+    page.wait_for_timeout(500)
+    page.screenshot(path=str(artifacts / "browser_arrange.png"), full_page=False)

@@ -242,6 +242,9 @@ class FloorplanWidget(W.VBox):
         self.edit_y = num("y", "Lower-left corner y, µm (snaps to the placement grid)")
         self.edit_orient = W.Dropdown(options=list(ORIENTATIONS), tooltip="Orientation",
                                       layout=W.Layout(width="64px"))
+        for wdg, cls in ((self.edit_x, "fw-edit-x"), (self.edit_y, "fw-edit-y"),
+                         (self.edit_orient, "fw-edit-orient")):
+            wdg.add_class(cls)  # stable hooks for the browser test
         set_b = self._button("Set", self.apply_edit, "Put the selected macro at x, y in this "
                              "orientation (one undo step)", width="52px")
         steps = [("◀", -px, 0.0, "left"), ("▶", px, 0.0, "right"), ("▲", 0.0, py, "up"),
