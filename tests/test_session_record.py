@@ -158,6 +158,26 @@ class SessionModel(RuleBasedStateMachine):
         assert after[2][i] != before[2][i] and allowed >> int(after[2][i]) & 1
         self._expect_push(after)
 
+    @rule(op=st.sampled_from(["align", "distribute", "array", "mirror", "push", "shift"]),
+          k=st.integers(0, 11))
+    def arrange(self, op, k):
+        names = MACROS[:4]  # macros that allow all eight orientations (mirror never refused)
+        args = {"align": (["left", "right", "bottom", "top", "x_centre", "y_centre"][k % 6],),
+                "distribute": ("xy"[k % 2],), "array": (1 + k % 2, 4 - 2 * (k % 2)),
+                "mirror": ("xy"[k % 2],), "push": (), "shift": (7.0 * k - 30.0, 3.3)}[op]
+        fn = getattr(self.s, op)
+        pinned = any(self.s.floorplan.status_of(n) == "pinned" for n in names)
+        if pinned and op != "shift":  # arranging refuses pinned macros; a shift is a hand move
+            self._fails_unchanged(DesignError, fn, names, *args)
+            return
+        before = state(self.s.floorplan)
+        fn(names, *args)
+        after = state(self.s.floorplan)
+        rest = np.ones(self.d.num_blocks, bool)
+        rest[[self.d.block(n) for n in names]] = False
+        assert all(np.array_equal(b[rest], a[rest]) for b, a in zip(before, after))
+        self._expect_push(after)
+
     @rule()
     def undo(self):
         if self.pos == 0:
