@@ -37,7 +37,17 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .design import FIXED, MACRO, ORIENTATIONS, PINNED, Design, DesignError, Floorplan, snap
+from .design import (
+    FIXED,
+    MACRO,
+    ORIENTATIONS,
+    PINNED,
+    Design,
+    DesignError,
+    Floorplan,
+    orient_size,
+    snap,
+)
 
 __all__ = ["Arranged", "SIDES", "AXES", "EDGES", "align", "array", "distribute", "fit",
            "mirror", "push", "shift"]
@@ -168,8 +178,6 @@ def _choice(v, options: Sequence[str], what: str) -> str:
 
 
 def _sizes(design: Design, fp: Floorplan, idx: np.ndarray, orient=None):
-    from .design import orient_size  # noqa: PLC0415
-
     o = fp.orient[idx] if orient is None else orient
     w, h = orient_size(design.width[idx], design.height[idx], o)
     return np.asarray(w, float), np.asarray(h, float)
@@ -268,8 +276,10 @@ def distribute(design: Design, fp: Floorplan, idx, axis: str = "x") -> Arranged:
     return _finish(design, fp, idx, x, y)
 
 
-def _pitch_pair(pitch) -> tuple[float, float]:
-    if isinstance(pitch, (int, float, np.integer, np.floating)) and not isinstance(pitch, bool):
+def _pitch_pair(pitch) -> tuple[float | None, float | None]:
+    """``(x, y)`` pitches, µm; ``None`` for an axis to abut."""
+    if pitch is None or (isinstance(pitch, (int, float, np.integer, np.floating))
+                         and not isinstance(pitch, bool)):
         vals = [pitch, pitch]
     else:
         try:
@@ -281,6 +291,9 @@ def _pitch_pair(pitch) -> tuple[float, float]:
                               f"{pitch!r}")
     out = []
     for v in vals:
+        if v is None:
+            out.append(None)
+            continue
         if isinstance(v, bool) or not isinstance(v, (int, float, np.integer, np.floating)) \
                 or not math.isfinite(float(v)) or float(v) <= 0:
             raise DesignError(f"array pitch must be positive finite µm, got {pitch!r}")
@@ -298,14 +311,14 @@ def array(design: Design, fp: Floorplan, idx, rows: int, cols: int, pitch=None) 
     ----------
     rows, cols : int
         ``rows * cols`` must hold every macro.
-    pitch : float or (float, float), optional
+    pitch : float or (float or None, float or None), optional
         Distance between the lower-left corners of neighbouring cells, µm (x, y), rounded to
-        the nearest whole number of grid steps (at least one).  ``None`` (default) abuts the
-        cells under the halo rule (common practice: a halo keeps other macros' footprints out,
-        halos may overlap each other): neighbouring columns stand apart by the larger of the
-        facing halos — the largest right halo of the left column, the largest left halo of the
-        right column — and the column step (widest macro of the column plus that gap) is
-        rounded *up* to whole grid steps; rows likewise.
+        the nearest whole number of grid steps (at least one).  ``None`` (default, or for one
+        axis) abuts the cells under the halo rule (common practice: a halo keeps other macros'
+        footprints out, halos may overlap each other): neighbouring columns stand apart by the
+        larger of the facing halos — the largest right halo of the left column, the largest
+        left halo of the right column — and the column step (widest macro of the column plus
+        that gap) is rounded *up* to whole grid steps; rows likewise.
 
     Returns
     -------
@@ -325,30 +338,25 @@ def array(design: Design, fp: Floorplan, idx, rows: int, cols: int, pitch=None) 
     w, h = _sizes(design, fp, idx)
     r, c = np.arange(n) // cols, np.arange(n) % cols
     notes = []
-    if pitch is None:
-        hl, hb, hr, ht = (design.halo[idx, k] for k in range(4))
+    want = _pitch_pair(pitch)
 
-        def steps(key, size, lo_halo, hi_halo, p, m):
-            big = np.zeros(m)
-            np.maximum.at(big, key, size)
-            lo_h, hi_h = np.zeros(m), np.zeros(m)
-            np.maximum.at(lo_h, key, lo_halo)
-            np.maximum.at(hi_h, key, hi_halo)
-            gap = np.maximum(hi_h[:-1], lo_h[1:])
-            return np.ceil((big[:-1] + gap) / p - _EPS) * p
+    def offsets(key, size, lo_halo, hi_halo, p, m, given):
+        if given is not None:  # a pitch: whole grid steps, at least one
+            step = max(round(given / p), 1) * p
+            if abs(step - given) > _EPS * p:
+                notes.append(f"pitch {given:g} µm rounded to the placement grid: {step:g} µm")
+            return np.arange(m) * step, step
+        big, lo_h, hi_h = np.zeros(m), np.zeros(m), np.zeros(m)
+        np.maximum.at(big, key, size)
+        np.maximum.at(lo_h, key, lo_halo)
+        np.maximum.at(hi_h, key, hi_halo)
+        steps = np.ceil((big[:-1] + np.maximum(hi_h[:-1], lo_h[1:])) / p - _EPS) * p
+        return np.concatenate([[0.0], np.cumsum(steps)]), float(steps[0]) if m > 1 else 0.0
 
-        sx = steps(c, w, hl, hr, px, cols)
-        sy = steps(r, h, hb, ht, py, rows)
-        offx = np.concatenate([[0.0], np.cumsum(sx)])
-        offy = np.concatenate([[0.0], np.cumsum(sy)])
-        used = (float(sx[0]) if len(sx) else 0.0, float(sy[0]) if len(sy) else 0.0)
-    else:
-        ax, ay = _pitch_pair(pitch)
-        gx, gy = max(round(ax / px), 1) * px, max(round(ay / py), 1) * py
-        if abs(gx - ax) > _EPS * px or abs(gy - ay) > _EPS * py:
-            notes.append(f"pitch rounded to the placement grid: ({gx:g}, {gy:g}) µm")
-        offx, offy = np.arange(cols) * gx, np.arange(rows) * gy
-        used = (gx, gy)
+    halo = design.halo[idx]
+    offx, ux = offsets(c, w, halo[:, 0], halo[:, 2], px, cols, want[0])
+    offy, uy = offsets(r, h, halo[:, 1], halo[:, 3], py, rows, want[1])
+    used = (ux, uy)
     x0 = float(snap(fp.x[idx].min(), ox, px))
     y0 = float(snap(fp.y[idx].min(), oy, py))
     return _finish(design, fp, idx, x0 + offx[c], y0 + offy[r], notes=notes, pitch=used,

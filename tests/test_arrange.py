@@ -168,6 +168,11 @@ def test_array_with_a_pitch_is_exact(demo_design):
     # a pitch off the grid is rounded to it and said so
     res = s.array(names, 2, 4, pitch=(230.4, 170.2))  # 170.2 / 1.8 = 94.6
     assert res.pitch[0] == 230.0 and abs(res.pitch[1] - 171.0) < 1e-9 and res.notes
+    # a pitch along x only: the rows abut (150 µm + the 5 µm halo, rounded up to 1.8 µm steps)
+    res = s.array(names, 2, 4, pitch=(230.0, None))
+    y = s.floorplan.y[idx].reshape(2, 4)
+    assert res.pitch[0] == 230.0 and abs(res.pitch[1] - np.ceil(155 / 1.8) * 1.8) < 1e-9
+    assert np.allclose(np.diff(y, axis=0), res.pitch[1], rtol=0, atol=1e-9)
 
 
 def test_array_abutted_under_the_halo_rule(g):

@@ -282,8 +282,8 @@ class FloorplanWidget(W.VBox):
                                            style=small, layout=W.Layout(width="96px"))
         self.array_cols = W.BoundedIntText(value=2, min=1, max=10_000, description="cols",
                                            style=small, layout=W.Layout(width="96px"))
-        self.array_pitch_x = num("pitch x", "0: abutted (halos apart)", "110px")
-        self.array_pitch_y = num("y", "0: abutted (halos apart)", "80px")
+        self.array_pitch_x = num("pitch x", "Column step, µm; 0: abutted (halos apart)", "110px")
+        self.array_pitch_y = num("y", "Row step, µm; 0: abutted (halos apart)", "80px")
         arr = self._button("Array", self._array_selection, "Fill an array, in selection "
                            "order, bottom row first; pitch 0 abuts the cells under the halo "
                            "rule", width="64px")
@@ -460,8 +460,10 @@ class FloorplanWidget(W.VBox):
         self.shift(names, dx, dy)
 
     def _array_selection(self) -> None:
-        px, py = float(self.array_pitch_x.value), float(self.array_pitch_y.value)
-        pitch = None if px <= 0 and py <= 0 else (px if px > 0 else py, py if py > 0 else px)
+        # 0 (or less) on an axis abuts the cells along it
+        px, py = (float(v) if v > 0 else None
+                  for v in (self.array_pitch_x.value, self.array_pitch_y.value))
+        pitch = None if px is None and py is None else (px, py)
         self._arrange("array", int(self.array_rows.value), int(self.array_cols.value), pitch)
 
     def _arrange(self, op: str, *args) -> None:
