@@ -469,12 +469,14 @@ class FloorplanWidget(W.VBox):
     def _arrange(self, op: str, *args) -> None:
         getattr(self, op)(self._selected_names(), *args)
 
-    def _after(self, verb: str, names, res=None) -> None:
+    def _after(self, verb: str, names, res=None, detail: str = "") -> None:
         """Say what an edit did, what was adjusted and whether the floorplan is still legal."""
         names = [names] if isinstance(names, str) else list(names)
         what = names[0] if len(names) == 1 else f"{len(names)} macros"
-        parts = [f"{verb} {what}."] + [f"{n[:1].upper()}{n[1:]}." for n in
-                                        (res.notes if res is not None else ())]
+        if detail:
+            what += f" ({detail})"
+        notes = res.notes if res is not None else ()
+        parts = [f"{verb} {what}."] + [f"{n[:1].upper()}{n[1:]}." for n in notes]
         rep = self._last_report
         if not rep.get("legal", True):
             parts.append(f"Not legal now: {_fmt(rep.get('macro_overlaps'))} macro conflict "
@@ -499,7 +501,9 @@ class FloorplanWidget(W.VBox):
         """:meth:`Session.array`."""
         self._refuse_if_busy()
         res = self.session.array(names, rows, cols, pitch)
-        self._after(f"Arrayed ({res.pitch[0]:g} × {res.pitch[1]:g} µm steps)", names, res)
+        steps = ", ".join(f"{k} step {v:g} µm" for k, v in zip(("column", "row"), res.pitch)
+                          if v)
+        self._after("Arrayed", names, res, steps)
         return res
 
     def mirror(self, names, axis: str = "x"):
