@@ -421,7 +421,7 @@ class FloorplanWidget(W.VBox):
         return names
 
     def _refresh_edit(self) -> None:
-        """Fill the exact-position fields from the one selected macro (else clear them)."""
+        """Fill the exact-position fields from the one selected macro (else disable them)."""
         sel = self.canvas.selected
         one = sel.size == 1
         for wdg in (self.edit_x, self.edit_y, self.edit_orient, self.buttons["Set"]):
@@ -483,49 +483,39 @@ class FloorplanWidget(W.VBox):
                          "pair(s) under the halo rule; see the readouts.")
         self.notify(" ".join(parts))
 
-    def align(self, names, side: str):
-        """:meth:`Session.align` (and a message in the panel)."""
+    def _arranged(self, op: str, verb: str, names, *args):
         self._refuse_if_busy()
-        res = self.session.align(names, side)
-        self._after("Aligned", names, res)
+        res = getattr(self.session, op)(names, *args)
+        detail = ""
+        if op == "array":
+            detail = ", ".join(f"{k} step {v:g} µm"
+                               for k, v in zip(("column", "row"), res.pitch) if v)
+        self._after(verb, names, res, detail)
         return res
+
+    def align(self, names, side: str):
+        """:meth:`Session.align`, with a message in the panel (as the other arrangements)."""
+        return self._arranged("align", "Aligned", names, side)
 
     def distribute(self, names, axis: str = "x"):
         """:meth:`Session.distribute`."""
-        self._refuse_if_busy()
-        res = self.session.distribute(names, axis)
-        self._after("Spaced", names, res)
-        return res
+        return self._arranged("distribute", "Spaced", names, axis)
 
     def array(self, names, rows: int, cols: int, pitch=None):
         """:meth:`Session.array`."""
-        self._refuse_if_busy()
-        res = self.session.array(names, rows, cols, pitch)
-        steps = ", ".join(f"{k} step {v:g} µm" for k, v in zip(("column", "row"), res.pitch)
-                          if v)
-        self._after("Arrayed", names, res, steps)
-        return res
+        return self._arranged("array", "Arrayed", names, rows, cols, pitch)
 
     def mirror(self, names, axis: str = "x"):
         """:meth:`Session.mirror`."""
-        self._refuse_if_busy()
-        res = self.session.mirror(names, axis)
-        self._after("Mirrored", names, res)
-        return res
+        return self._arranged("mirror", "Mirrored", names, axis)
 
     def push(self, names, side: str | None = None):
         """:meth:`Session.push`."""
-        self._refuse_if_busy()
-        res = self.session.push(names, side)
-        self._after("Moved", names, res)
-        return res
+        return self._arranged("push", "Moved", names, side)
 
     def shift(self, names, dx: float, dy: float):
         """:meth:`Session.shift`."""
-        self._refuse_if_busy()
-        res = self.session.shift(names, dx, dy)
-        self._after("Moved", names, res)
-        return res
+        return self._arranged("shift", "Moved", names, dx, dy)
 
     def set_orientation(self, name: str, orientation: str):
         """:meth:`Session.set_orientation`."""
