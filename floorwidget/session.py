@@ -47,6 +47,7 @@ from typing import Any
 
 import numpy as np
 
+from . import arrange
 from .design import (
     FIXED,
     MACRO,
@@ -681,14 +682,12 @@ class Session:
         floorwidget.arrange.Arranged
             The positions taken and notes on what was adjusted.
         """
-        from . import arrange  # noqa: PLC0415
         return self._arrange("align", names, arrange.align, (side,))
 
     @_locked
     def distribute(self, names: Iterable[str], axis: str = "x"):
         """Equal gaps between neighbouring macros along ``axis`` (``"x"`` or ``"y"``), the
         outer two staying; see :func:`floorwidget.arrange.distribute`."""
-        from . import arrange  # noqa: PLC0415
         return self._arrange("distribute", names, arrange.distribute, (axis,))
 
     @_locked
@@ -698,21 +697,18 @@ class Session:
         ``pitch`` (µm, a number or ``(x, y)``) is the step between neighbouring cells; ``None``
         abuts them under the halo rule.  See :func:`floorwidget.arrange.array`.
         """
-        from . import arrange  # noqa: PLC0415
         return self._arrange("array", names, arrange.array, (rows, cols), {"pitch": pitch})
 
     @_locked
     def mirror(self, names: Iterable[str], axis: str = "x"):
         """Mirror a group about its centre: ``axis="x"`` swaps left and right, ``"y"`` top and
         bottom; orientations mirrored too.  See :func:`floorwidget.arrange.mirror`."""
-        from . import arrange  # noqa: PLC0415
         return self._arrange("mirror", names, arrange.mirror, (axis,))
 
     @_locked
     def push(self, names: Iterable[str], side: str | None = None):
         """Move a group as one to a core edge (``None``: the nearest) until it touches it.
         See :func:`floorwidget.arrange.push`."""
-        from . import arrange  # noqa: PLC0415
         return self._arrange("push", names, arrange.push, (), {"side": side})
 
     @_locked
@@ -722,7 +718,6 @@ class Session:
         A hand move like :meth:`move`: pinned macros may be shifted (they stay pinned), fixed
         ones may not.  See :func:`floorwidget.arrange.shift`.
         """
-        from . import arrange  # noqa: PLC0415
         return self._arrange("shift", names, arrange.shift,
                              (_finite(dx, "dx"), _finite(dy, "dy")))
 
