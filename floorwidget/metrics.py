@@ -788,14 +788,62 @@ def cell_legality(design: Design, fp: Floorplan) -> dict:
     obs = fp.rects(halo=True)[mac]
     if len(design.blockages):
         obs = np.concatenate([obs, design.blockages])
-    allr = np.concatenate([r[cells], obs])
-    a, b, _ = _overlap_pairs(allr)
-    nc = len(cells)
-    bad_pairs = int(np.sum((a < nc) | (b < nc)))  # pairs between two obstacles do not count
+    rc = r[cells]
+    bad_pairs = _banded_overlaps(rc) + _cross_overlaps(rc, obs)
     res.update(cell_overlaps=bad_pairs, cells_off_row=int(off_row.sum()),
                cells_off_site=int(off_site.sum()))
     res["cells_legal"] = not (bad_pairs or off_row.any() or off_site.any())
     return res
+
+
+def _banded_overlaps(r: np.ndarray, tol: float = TOL) -> int:
+    """Number of overlapping pairs among rectangles no taller than a few rows (cells).
+
+    The plane is cut into horizontal bands as tall as the tallest rectangle, so each
+    rectangle lies in at most two bands and two overlapping ones share a band; the x-sweep of
+    :func:`_overlap_pairs` then runs per band (rectangles keyed by band, then left edge) and
+    never pairs cells of far-apart rows.  A pair met in two bands is counted once.
+    """
+    n = len(r)
+    if n < 2:
+        return 0
+    hb = float(np.max(r[:, 3] - r[:, 1])) + tol
+    b0 = np.floor(r[:, 1] / hb).astype(np.int64)
+    b1 = np.floor((r[:, 3] - tol) / hb).astype(np.int64)
+    two = b1 > b0
+    idx = np.concatenate([np.arange(n), np.flatnonzero(two)])
+    band = np.concatenate([b0, b1[two]])
+    span = float(np.max(r[:, 2]) - np.min(r[:, 0])) + 1.0
+    # one key per (band, x): shifting every band by the x span keeps bands apart in one sweep
+    shift = (band - band.min()).astype(np.float64) * 2.0 * span
+    rr = r[idx].copy()
+    rr[:, 0] += shift
+    rr[:, 2] += shift
+    a, b, _ = _overlap_pairs(rr, tol)
+    ia, ib = idx[a], idx[b]
+    keep = ia != ib
+    pairs = np.unique(np.stack([np.minimum(ia, ib), np.maximum(ia, ib)], axis=1)[keep], axis=0)
+    return int(len(pairs))
+
+
+def _cross_overlaps(cells: np.ndarray, obs: np.ndarray, tol: float = TOL) -> int:
+    """Number of (cell, obstacle) pairs overlapping by a positive area: for each obstacle the
+    cells whose left edge lies within its reach are found by ``searchsorted`` on the sorted
+    left edges and tested as one flat array."""
+    if not len(cells) or not len(obs):
+        return 0
+    order = np.argsort(cells[:, 0], kind="stable")
+    cs = cells[order]
+    wmax = float(np.max(cs[:, 2] - cs[:, 0]))
+    lo = np.searchsorted(cs[:, 0], obs[:, 0] - wmax, side="left")
+    hi = np.searchsorted(cs[:, 0], obs[:, 2] - tol, side="left")
+    cnt = np.maximum(hi - lo, 0)
+    o = np.repeat(np.arange(len(obs)), cnt)
+    first = np.cumsum(cnt) - cnt
+    c = lo[o] + (np.arange(int(cnt.sum())) - first[o])
+    ox = np.minimum(cs[c, 2], obs[o, 2]) - np.maximum(cs[c, 0], obs[o, 0])
+    oy = np.minimum(cs[c, 3], obs[o, 3]) - np.maximum(cs[c, 1], obs[o, 1])
+    return int(np.sum((ox > tol) & (oy > tol)))
 
 
 def row_of(design: Design, x, y, w) -> tuple[np.ndarray, np.ndarray]:

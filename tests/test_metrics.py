@@ -427,3 +427,27 @@ def test_default_bins_are_not_smaller_than_the_soft_clusters(demo_design):
     soft = demo_design.kind == CLUSTER
     median_side = np.median(np.sqrt(demo_design.width[soft] * demo_design.height[soft]))
     assert min(g.bw, g.bh) >= 1.9 * median_side
+
+
+@pytest.mark.parametrize("seed", range(5))
+def test_cell_overlap_counts_match_all_pairs(seed):
+    # the banded sweep (cells) and the per-obstacle search (cells against macros/blockages)
+    # count exactly the pairs that a brute-force all-pairs test of positive overlap finds
+    from floorwidget.metrics import _banded_overlaps, _cross_overlaps
+
+    rng = np.random.default_rng(seed)
+    n, m = 300, 5
+    x = rng.uniform(0, 50, n)
+    y = rng.integers(0, 10, n) * 2.0 + rng.choice([0.0, 0.0, 0.5], n)
+    r = np.stack([x, y, x + rng.uniform(0.5, 4, n), y + rng.choice([2.0, 3.0], n)], 1)
+    o0 = np.stack([rng.uniform(0, 50, m), rng.uniform(0, 20, m)], 1)
+    ob = np.concatenate([o0, o0 + rng.uniform(1, 10, (m, 2))], 1)
+
+    def brute(p, q):
+        ox = np.minimum(p[:, None, 2], q[None, :, 2]) - np.maximum(p[:, None, 0], q[None, :, 0])
+        oy = np.minimum(p[:, None, 3], q[None, :, 3]) - np.maximum(p[:, None, 1], q[None, :, 1])
+        return (ox > 1e-6) & (oy > 1e-6)
+
+    cc = brute(r, r)
+    assert _banded_overlaps(r) == int(np.triu(cc, 1).sum())
+    assert _cross_overlaps(r, ob) == int(brute(r, ob).sum())
