@@ -103,25 +103,17 @@ def _travel(design: Design, rects: np.ndarray, i: int, others: np.ndarray, direc
 def _slide(design: Design, fp: Floorplan, i: int, direction: int, dist: float) -> bool:
     """Move macro ``i`` by ``dist`` (at most) in ``direction``, rounded to the grid so it stays
     legal; returns whether it moved."""
-    g0, gp = design.grid_origin, design.grid_pitch
-    if direction in (LEFT, RIGHT):
-        k = np.floor(dist / gp[0] + 1e-9)
-        if k <= 0:
-            return False
-        step = k * gp[0] * (-1 if direction == LEFT else 1)
-        nx = g0[0] + np.round((fp.x[i] + step - g0[0]) / gp[0]) * gp[0]
-        if nx == fp.x[i]:
-            return False
-        fp.x[i] = nx
-    else:
-        k = np.floor(dist / gp[1] + 1e-9)
-        if k <= 0:
-            return False
-        step = k * gp[1] * (-1 if direction == BOTTOM else 1)
-        ny = g0[1] + np.round((fp.y[i] + step - g0[1]) / gp[1]) * gp[1]
-        if ny == fp.y[i]:
-            return False
-        fp.y[i] = ny
+    ax = 0 if direction in (LEFT, RIGHT) else 1
+    g0, gp = design.grid_origin[ax], design.grid_pitch[ax]
+    pos = fp.x if ax == 0 else fp.y
+    k = np.floor(dist / gp + 1e-9)
+    if k <= 0:
+        return False
+    step = k * gp * (-1 if direction in (LEFT, BOTTOM) else 1)
+    new = g0 + np.round((pos[i] + step - g0) / gp) * gp
+    if new == pos[i]:
+        return False
+    pos[i] = new
     return True
 
 
