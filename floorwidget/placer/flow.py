@@ -59,6 +59,7 @@ __all__ = ["place", "refine", "legalize"]
 
 Progress = Callable[[str, float, dict], Any] | None
 STALL_FROM = 0.3  # overflow below which a spreading loop that stops improving is stopped
+REFINE_DETAIL_PASSES = 1  # refine is the quick clean-up after a hand edit (aes: 0.63 -> 0.24 s)
 DP_SLACK = 0.1  # detailed placement may fill a density bin this far above the target
 
 
@@ -474,8 +475,10 @@ def refine(design: Design, floorplan: Floorplan, *, target_density: float = 0.8,
 
     Movable macros are legalised from their current positions (minimal displacement: only those
     that now overlap something move noticeably); cells and clusters are re-spread for a few
-    iterations (``refine_iterations``) from where they are, around the macros.  PINNED and
-    FIXED blocks, and terminals, are kept bit-exact.
+    iterations (``refine_iterations``) from where they are, around the macros; standard cells
+    go back onto rows with one detailed-placement pass (``detail_passes`` defaults to
+    :data:`REFINE_DETAIL_PASSES` here).  PINNED and FIXED blocks, and terminals, are kept
+    bit-exact.
 
     Parameters
     ----------
@@ -493,6 +496,7 @@ def refine(design: Design, floorplan: Floorplan, *, target_density: float = 0.8,
     PlacementError
         When the macros cannot be legalised or the cells do not fit; the input is untouched.
     """
+    options = {"detail_passes": REFINE_DETAIL_PASSES, **options}
     t_all = time.perf_counter()
     src, target, opts, mult = _start(design, floorplan, target_density, seed, options)
     out = src.copy()
