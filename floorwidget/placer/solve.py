@@ -299,6 +299,10 @@ def spectral_coordinates(system: QuadraticSystem, mask: np.ndarray, seed: int = 
     rng = np.random.default_rng(seed)
     x0 = rng.standard_normal((k, 3))
     x0[:, 0] = 1.0
+    if k <= 200:  # small: a dense eigensolver is exact and cheap
+        vec = np.linalg.eigh(lap.toarray())[1]
+        u, v = vec[:, 1], vec[:, 2]
+        return _unit(u, rng, k), _unit(v, rng, k)
     try:
         # lowest eigenpairs of the (tiny-shifted) Laplacian, Jacobi-preconditioned
         shift = lap + sp.diags_array(np.full(k, 1e-9 * max(float(d.max()), 1.0)))
@@ -308,8 +312,10 @@ def spectral_coordinates(system: QuadraticSystem, mask: np.ndarray, seed: int = 
         u, v = vec[:, 1], vec[:, 2]
     except (np.linalg.LinAlgError, ValueError):  # degenerate graph: keep a random start
         u, v = rng.random(k), rng.random(k)
-    out = []
-    for z in (u, v):
-        lo, hi = np.percentile(z, [1, 99])
-        out.append(np.clip((z - lo) / (hi - lo), 0, 1) if hi > lo else rng.random(k))
-    return out[0], out[1]
+    return _unit(u, rng, k), _unit(v, rng, k)
+
+
+def _unit(z: np.ndarray, rng, k: int) -> np.ndarray:
+    """``z`` scaled to [0, 1] between its 1st and 99th percentiles (random when flat)."""
+    lo, hi = np.percentile(z, [1, 99])
+    return np.clip((z - lo) / (hi - lo), 0, 1) if hi > lo else rng.random(k)
