@@ -241,12 +241,14 @@ def place(design: Design, floorplan: Floorplan | None = None, *, target_density:
         Supplies statuses (PINNED/FIXED blocks stay where they are) and the orientations to
         start from; positions of movable blocks are ignored.  Default ``design.initial``.
     target_density : float
-        Fraction of each bin's free area the movable objects may fill, in (0, 1].
+        Fraction of each bin's free area the movable objects may fill, in (0, 1]; raised to
+        the design's utilisation + :data:`TARGET_MARGIN` (at most 1, with a
+        :class:`PlacementWarning`) when the design is fuller than that.
     seed : int
         Seeds the small initial jitter; same inputs and seed give bit-identical output.
     progress : callable, optional
         ``progress(stage, fraction, info)``; stages ``"global"``, ``"orient"``, ``"legalize"``,
-        ``"cells"``.
+        ``"cells"``, ``"rows"`` and ``"detail"``.
     **options
         See :class:`~floorwidget.placer.options.PlacerOptions`.
 
@@ -255,17 +257,18 @@ def place(design: Design, floorplan: Floorplan | None = None, *, target_density:
     Floorplan
         New floorplan; ``info`` holds ``iterations`` (total), ``stage_iterations``,
         ``overflow`` (final), ``seconds`` (total), ``stage_seconds``, ``bins``, ``legalized``
-        (whether macros were legalised).  ``overflow`` is measured on the placer's own bins
-        (``bins``; a side of about two objects) with placed macros counted as obstacles, so it
-        reads lower than :func:`floorwidget.metrics.density_overflow` on its default grid of a
-        few row heights, where any hard block larger than a bin overfills it at a target below
-        1.
+        (whether macros were legalised), ``target_density`` (the value used), ``channel``,
+        ``macro_layout`` (the layout used), ``hpwl_global`` (before the cells went onto rows)
+        and, with legal cells, ``cell_displacement``, ``dp_gain``.  ``overflow`` is measured
+        on the placer's own bins (``bins``; a side of about two objects) with placed macros
+        counted as obstacles, so it reads lower than
+        :func:`floorwidget.metrics.density_overflow` on its default grid of a few row heights.
 
     Raises
     ------
     PlacementError
-        When the movable area exceeds the capacity at ``target_density`` or the macros cannot
-        be legalised; the input is untouched.
+        When the movable area does not fit the free core area even at density 1, or the
+        macros or cells cannot be legalised; the input is untouched.
     ValueError
         For an unknown or out-of-range option.
 
