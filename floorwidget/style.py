@@ -36,11 +36,13 @@ __all__ = [
     "CORE",
     "DENSITY_SCALE",
     "DIE",
+    "GROUP_PALETTE",
     "HALO",
     "KIND_COLOURS",
     "NARROW_CHANNEL",
     "OKABE_ITO",
     "ORANGE",
+    "OTHER_GROUP",
     "PINS_TO_WALL",
     "REDDISH_PURPLE",
     "SKY_BLUE",
@@ -144,6 +146,12 @@ NARROW_CHANNEL = BlockStyle(VERMILLION, 0.30, VERMILLION, 1.0, (), "solid", "\\\
 #: side, inside the footprint.
 PINS_TO_WALL = BlockStyle(VERMILLION, 0.9, BLACK, 0.8, (4.0, 2.0), "dashed", "||",
                           "pins toward a wall")
+
+#: Colours of hierarchy groups, heaviest group first: Okabe-Ito without black (kept for text
+#: and outlines); groups past these seven share :data:`OTHER_GROUP`, and the legend says so.
+GROUP_PALETTE = (ORANGE, SKY_BLUE, BLUISH_GREEN, YELLOW, BLUE, VERMILLION, REDDISH_PURPLE)
+#: A mid grey for every group past the palette.
+OTHER_GROUP = "#A0A0A0"
 
 #: Base colour per block kind (soft clusters and cells are shown as an area raster).
 KIND_COLOURS = {MACRO: SKY_BLUE, CLUSTER: BLUISH_GREEN, CELL: BLUISH_GREEN, TERMINAL: BLACK}

@@ -226,14 +226,34 @@ def test_flylines_bundle_per_neighbour(widget, demo_design):
                 ref[b] = ref.get(b, 0) + 1
     nb, cnt = widget.canvas.flyline_data()
     assert dict(zip(nb.tolist(), cnt.tolist())) == ref
-    fl = widget.canvas.marks["flylines"]
-    assert fl.visible and np.asarray(fl.x).reshape(-1, 5).shape[0] == len(ref)
+    # drawn: one bundle per target (a macro, an I/O bus, a hierarchy group's logic), weighted
+    # by the distinct nets reaching it; reference: the same walk, names cut by hand
+    def target(b):
+        nm = d.names[b]
+        if d.kind[b] == MACRO:
+            return nm
+        if d.kind[b] == 3:
+            return "I/O " + nm.split("[")[0]
+        return "logic of " + (nm.rsplit("/", 1)[0].split("/")[0] if "/" in nm else "(top level)")
+
+    nets: dict[str, set] = {}
+    for n in range(d.num_nets):
+        blocks = set(d.pin_block[d.net_start[n]:d.net_start[n + 1]].tolist())
+        if i in blocks and d.net_start[n + 1] - d.net_start[n] <= 64:
+            for b in blocks - {i}:
+                nets.setdefault(target(b), set()).add(n)
+    c = widget.canvas
+    tg, tcnt, _, _ = c.bundle_data()
+    assert {c.target_label(t): k for t, k in zip(tg.tolist(), tcnt.tolist())} \
+        == {k: len(v) for k, v in nets.items()}
+    fl = c.marks["flylines"]
+    assert fl.visible and np.asarray(fl.x).reshape(-1, 5).shape[0] == len(nets)
     # a bundle of more nets is drawn wider (polygon width across the line)
     xs = np.asarray(fl.x).reshape(-1, 5)
     ys = np.asarray(fl.y).reshape(-1, 5)
     width = np.hypot(xs[:, 0] - xs[:, 3], ys[:, 0] - ys[:, 3])
-    order = np.argsort(cnt)
-    assert width[order[-1]] >= width[order[0]]
+    order = np.argsort(tcnt)
+    assert width[order[-1]] > width[order[0]] or tcnt.min() == tcnt.max()
     assert widget.design.names[i] in widget.details.value
 
 

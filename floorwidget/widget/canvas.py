@@ -17,8 +17,9 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..design import MACRO, STATUS_NAMES, TERMINAL, Design, Floorplan
-from ..style import short_labels
+from .. import hierarchy as hier
+from ..design import CELL, CLUSTER, MACRO, STATUS_NAMES, TERMINAL, Design, Floorplan
+from ..style import GROUP_PALETTE, OTHER_GROUP, short_labels
 from . import geometry as geo
 from ._style import heat_colors, status_style, ui_colors
 
@@ -104,6 +105,21 @@ class Canvas:
         self.narrow = None                       # metrics.Channels drawn, after update()
         self.walled = np.zeros(0, np.intp)       # macros drawn with a pins-to-wall bar
         self._has_soft = bool(((design.kind != MACRO) & (design.kind != TERMINAL)).any())
+        #: hierarchy groups of every block (:func:`floorwidget.hierarchy.hierarchy_groups`);
+        #: flylines bundle per group, and :meth:`colour_by_groups` colours by them
+        self.groups = hier.hierarchy_groups(design.names, 1)
+        self.colour_groups = False
+        self.group_colours: list[str] = []
+        self.group_legend: list[tuple[str, list[int]]] = []
+        #: a hierarchy group whose blocks are the flyline source (instead of the selection)
+        self.focus_group: int | None = None
+        #: also draw the bundles reached through one standard cell or soft cluster
+        self.through_logic = False
+        term = np.flatnonzero(design.kind == TERMINAL)
+        self.buses = hier.bus_groups([design.names[i] for i in term])
+        self._bus_of = np.full(design.num_blocks, -1, np.intp)
+        self._bus_of[term] = self.buses.index
+        self._set_targets()
         self.status_style = status_style()
         self.ui = ui_colors()
 
@@ -124,6 +140,15 @@ class Canvas:
             cs = bq.ColorScale(colors=heat_colors(name), min=0.0, max=1.0)
             m[name] = bq.HeatMap(x=gx, y=gy, color=np.zeros((len(gy), len(gx))),
                                  scales={**sc, "color": cs}, visible=(name == "cells"))
+        # hierarchy groups of the logic: one picture, a pixel per heat bin (never a mark per
+        # cell); filled in by colour_by_groups
+        import ipywidgets as W
+
+        m["groups"] = bq.Image(image=W.Image(value=geo.png_rgba(np.zeros((1, 1, 4))),
+                                             format="png"),
+                               x=[self.grid.xlo, self.grid.xlo + self.grid.nx * self.grid.bw],
+                               y=[self.grid.ylo, self.grid.ylo + self.grid.ny * self.grid.bh],
+                               scales=sc, visible=False)
         die_x, die_y = geo.rect_rows(design.die[None, :])
         m["die"] = bq.Lines(x=die_x[0], y=die_y[0], scales=sc, colors=[self.ui["die"]],
                             stroke_width=self.ui["die_width"])
@@ -166,6 +191,9 @@ class Canvas:
                                   line_style=self.ui["wall_dash"], visible=False)
         m["notches"] = bq.Lines(x=px, y=py, scales=sc, fill="inside", stroke_width=0.5,
                                 colors=[self.ui["outline"]], visible=False)
+        m["flylines_through"] = bq.Lines(x=px, y=py, scales=sc, fill="inside",
+                                         stroke_width=0.0, colors=[self.ui["flyline_through"]],
+                                         visible=False)
         m["flylines"] = bq.Lines(x=px, y=py, scales=sc, fill="inside", stroke_width=0.0,
                                  colors=[self.ui["flyline"]], visible=False)
         # selection: a light outline over a dark one, visible on any fill and in greyscale
@@ -306,8 +334,13 @@ class Canvas:
                 mk = m["macros"]
                 with mk.hold_sync():
                     mk.x, mk.y = x, y
-                    _set_list(mk, "fill_colors", [st[k]["fill"] for k in keys])
-                    _set_list(mk, "fill_opacities", [float(st[k]["opacity"]) for k in keys])
+                    if self.colour_groups:
+                        gi = self.groups.index[idx]
+                        _set_list(mk, "fill_colors", [self.group_colours[g] for g in gi])
+                        _set_list(mk, "fill_opacities", [0.85] * len(idx))
+                    else:
+                        _set_list(mk, "fill_colors", [st[k]["fill"] for k in keys])
+                        _set_list(mk, "fill_opacities", [float(st[k]["opacity"]) for k in keys])
                     _set_list(mk, "colors", [st[k]["stroke"] for k in keys])
                 for k, key in enumerate(self.outline_keys):
                     rowsel = np.array([(st[s]["dash"], float(st[s]["width"])) == key
@@ -419,7 +452,10 @@ class Canvas:
             self.marks[k].visible = k == name
         if name is not None:
             self._draw_heat(name)
-        self.marks["cells"].visible = name is None and self._has_soft
+        self.marks["cells"].visible = name is None and self._has_soft and not self.colour_groups
+        self.marks["groups"].visible = name is None and self._has_soft and self.colour_groups
+        if name is None and self.colour_groups:
+            self._draw_groups()
 
     def _draw_heat(self, name: str) -> None:
         v = self.heat_values(name)
@@ -436,8 +472,112 @@ class Canvas:
         """Refresh whichever heat image is showing."""
         if self.heat is not None:
             self._draw_heat(self.heat)
+        elif self.colour_groups:
+            self._draw_groups()
         elif self._has_soft:
             self._draw_heat("cells")
+
+    # --- hierarchy --------------------------------------------------------------------------
+    def set_groups(self, depth: int = 1, separators: str = hier.SEPARATORS) -> None:
+        """Group the blocks by hierarchy (:func:`floorwidget.hierarchy.hierarchy_groups`).
+
+        Colours (when shown), the flyline bundles to logic and the focus group follow.
+        """
+        self.groups = hier.hierarchy_groups(self.design.names, depth, separators)
+        self.focus_group = None
+        self._set_targets()
+        if self.colour_groups:
+            self.colour_by_groups(True)
+        elif self.interactive:
+            self._draw_flylines()
+
+    def _set_targets(self) -> None:
+        """Flyline targets: each macro itself, each I/O bus, each hierarchy group's logic."""
+        d = self.design
+        n = d.num_blocks
+        t = np.full(n, -1, np.intp)
+        mac = d.kind == MACRO
+        t[mac] = np.flatnonzero(mac)
+        term = d.kind == TERMINAL
+        t[term] = n + self._bus_of[term]
+        logic = (d.kind == CELL) | (d.kind == CLUSTER)
+        t[logic] = n + len(self.buses) + self.groups.index[logic]
+        self._target_of = t
+        self._bundle_cache: dict = {}  # bundles per flyline source, for these targets
+
+    def target_label(self, t: int) -> str:
+        """What flyline target ``t`` is: a macro's name, an I/O bus or a group's logic."""
+        n = self.design.num_blocks
+        if t < n:
+            return self.design.names[t]
+        if t < n + len(self.buses):
+            return f"I/O {self.buses.keys[t - n]}"
+        return f"logic of {self.groups.label(t - n - len(self.buses))}"
+
+    def group_weights(self) -> np.ndarray:
+        """Placed area (µm²) of each hierarchy group's macros and logic; ranks the colours."""
+        d = self.design
+        area = d.width * d.height * (d.kind != TERMINAL)
+        return np.bincount(self.groups.index, weights=area, minlength=len(self.groups))
+
+    def colour_by_groups(self, on: bool = True) -> None:
+        """Colour macros and the logic area by hierarchy group (``False``: by status).
+
+        The :data:`~floorwidget.style.GROUP_PALETTE` colours go to the groups with most area;
+        all other groups are grey (:data:`~floorwidget.style.OTHER_GROUP`).  The outlines
+        still carry the status.  ``group_legend`` lists every group under its colour.
+        """
+        self.colour_groups = bool(on)
+        if on:
+            self.group_colours, self.group_legend = hier.group_colours(
+                self.group_weights(), GROUP_PALETTE, OTHER_GROUP)
+        self.marks["groups"].visible = bool(on) and self._has_soft and self.heat is None
+        self.marks["cells"].visible = not on and self._has_soft and self.heat is None
+        self.update(self.fp, self._illegal)
+
+    def group_rgba(self, fp: Floorplan | None = None) -> np.ndarray:
+        """The logic picture: ``(ny, nx, 4)`` uint8, top row first.
+
+        Each bin takes the colour of the group with most standard-cell and soft-cluster area
+        in it, at an opacity that grows with that area (the fullest bin nearly opaque).  With a
+        focus group, only its logic is coloured and the rest is a faint grey.
+        """
+        from .. import metrics
+
+        d = self.design
+        fp = self.fp if fp is None else fp
+        logic = np.flatnonzero((d.kind == CELL) | (d.kind == CLUSTER))
+        rects = fp.rects()[logic]
+        gi = self.groups.index[logic]
+        cols = np.array(self.group_colours or [OTHER_GROUP] * len(self.groups), dtype=object)
+        grid = self.grid
+        if self.focus_group is not None:
+            key = np.where(gi == self.focus_group, 1, 0)
+            palette = [OTHER_GROUP, cols[self.focus_group]]
+        else:  # one map per distinct colour: at most the palette's size plus grey
+            palette = sorted(set(cols[gi].tolist())) if gi.size else [OTHER_GROUP]
+            pos = {c: k for k, c in enumerate(palette)}
+            key = np.array([pos[c] for c in cols], np.intp)[gi] if gi.size else gi
+        maps = np.stack([metrics.rect_area_map(grid, rects[key == k])
+                         for k in range(len(palette))])  # (k, nx, ny)
+        total = maps.sum(axis=0)
+        top = maps.argmax(axis=0)
+        rgb = np.array([[int(c[i:i + 2], 16) for i in (1, 3, 5)] for c in palette], np.uint8)
+        hi = float(total.max()) if total.size else 0.0
+        alpha = np.sqrt(total / hi) if hi > 0 else np.zeros_like(total)
+        if self.focus_group is not None:
+            alpha = np.where(top == 1, np.sqrt(maps[1] / max(float(maps[1].max()), 1e-30)),
+                             0.25 * alpha)
+        out = np.zeros((grid.ny, grid.nx, 4), np.uint8)
+        out[..., :3] = rgb[top].transpose(1, 0, 2)
+        out[..., 3] = np.round(255 * 0.9 * alpha).T
+        return out[::-1]
+
+    def _draw_groups(self) -> None:
+        mk = self.marks["groups"]
+        if not self._has_soft:
+            return
+        mk.image.value = geo.png_rgba(self.group_rgba())
 
     def preview(self, fp: Floorplan, blocks) -> None:
         """Move the rectangles of ``blocks`` (macro indices) to where ``fp`` has them.
@@ -463,8 +603,54 @@ class Canvas:
     def select(self, blocks) -> None:
         """Highlight ``blocks`` (indices) and show the flylines of their nets."""
         self.selected = np.unique(np.asarray(blocks, dtype=np.intp))
+        self.focus_group = None
         self._draw_selection()
         self._draw_flylines()
+        if self.colour_groups:
+            self._draw_cells()
+
+    def focus(self, group: int | None) -> None:
+        """Make hierarchy group ``group`` the flyline source and select its macros.
+
+        With colours by group on, the logic picture then shows that group's logic alone.
+        ``None`` clears it (and the selection).
+        """
+        if group is None:
+            self.select([])
+            return
+        g = int(group)
+        if not 0 <= g < len(self.groups):
+            raise IndexError(f"no hierarchy group {group!r} (there are {len(self.groups)})")
+        mem = self.groups.members(g)
+        self.selected = mem[self.design.kind[mem] == MACRO]
+        self.focus_group = g
+        self._draw_selection()
+        self._draw_flylines()
+        if self.colour_groups:
+            self._draw_cells()
+
+    def source_blocks(self) -> np.ndarray:
+        """The flyline source: the focus group's blocks, else the selection."""
+        if self.focus_group is not None:
+            return self.groups.members(self.focus_group)
+        return self.selected
+
+    def show_box(self, xlo: float, ylo: float, xhi: float, yhi: float,
+                 min_span: float | None = None) -> None:
+        """Centre the view on a box and zoom so that it fills about a third of the view.
+
+        The span is at least ``min_span`` (default: a fiftieth of the whole view) and at most
+        the whole view.
+        """
+        hx0, hx1, _, _ = self.home
+        full = hx1 - hx0
+        lo = full / 50 if min_span is None else float(min_span)
+        span = float(np.clip(3.0 * max(xhi - xlo, yhi - ylo), lo, full))
+        cx, cy = (xlo + xhi) / 2, (ylo + yhi) / 2
+        with self.figure.hold_sync():
+            self.x_scale.min, self.x_scale.max = cx - span / 2, cx + span / 2
+            self.y_scale.min, self.y_scale.max = cy - span / 2, cy + span / 2
+        self._on_view()
 
     def _draw_selection(self):
         marks = (self.marks["selection_under"], self.marks["selection"])
@@ -489,27 +675,54 @@ class Canvas:
             self._fly = geo.flyline_bundles(self.design, self.fp, self.selected)
         return self._fly
 
+    def bundle_data(self, through: bool = False):
+        """Flyline bundles of :meth:`source_blocks` (see :func:`geometry.net_bundles`).
+
+        Targets are the other macros (each its own bundle), the I/O buses and the logic of each
+        hierarchy group (:meth:`target_label` names them).  ``through=True`` gives the bundles
+        reached through one standard cell or soft cluster instead.  Kept per source: the
+        bundles depend on the netlist only.
+        """
+        src = self.source_blocks()
+        key = (src.tobytes(), bool(through))
+        cache = self._bundle_cache
+        if key not in cache:
+            if len(cache) > 8:
+                cache.clear()
+            d = self.design
+            mask = ((d.kind == CELL) | (d.kind == CLUSTER)) if through else None
+            cache[key] = geo.net_bundles(d, src, self._target_of, through=mask)
+        return cache[key]
+
     def _draw_flylines(self):
-        mk = self.marks["flylines"]
-        if self.selected.size == 0:
-            mk.visible = False
-            return
-        nb, cnt = self.flyline_data()
-        if nb.size == 0:
-            mk.visible = False
-            return
+        src = self.source_blocks()
         cx, cy = self.fp.centres()
-        x0 = float(cx[self.selected].mean())
-        y0 = float(cy[self.selected].mean())
-        # width in pixels grows with the number of nets in the bundle, converted to µm
-        width_px = 1.0 + 1.5 * np.log2(cnt.astype(np.float64))
-        xs, ys = geo.bundle_rows(x0, y0, cx[nb], cy[nb], width_px / self.px_per_um)
-        with mk.hold_sync():
-            mk.x, mk.y = xs, ys
-            if len(mk.fill_colors) != len(nb):  # per-row lists validate slowly: set on change
-                mk.fill_colors = [self.ui["flyline"]] * len(nb)
-                mk.fill_opacities = [0.45] * len(nb)
-            mk.visible = True
+        for name, through in (("flylines", False), ("flylines_through", True)):
+            mk = self.marks[name]
+            if src.size == 0 or (through and not self.through_logic):
+                mk.visible = False
+                continue
+            tg, cnt, pt, pb = self.bundle_data(through)
+            if tg.size == 0:
+                mk.visible = False
+                continue
+            # each bundle ends in the middle of the blocks of its target that it reaches
+            u, inv = np.unique(pt, return_inverse=True)
+            k = np.bincount(inv, minlength=len(u))
+            ex = np.bincount(inv, weights=cx[pb], minlength=len(u)) / k
+            ey = np.bincount(inv, weights=cy[pb], minlength=len(u)) / k
+            at = np.searchsorted(u, tg)
+            x0, y0 = float(cx[src].mean()), float(cy[src].mean())
+            # width in pixels grows with the number of nets in the bundle, converted to µm
+            width_px = 1.0 + 1.5 * np.log2(cnt.astype(np.float64))
+            xs, ys = geo.bundle_rows(x0, y0, ex[at], ey[at], width_px / self.px_per_um)
+            with mk.hold_sync():
+                mk.x, mk.y = xs, ys
+                if len(mk.fill_colors) != len(tg):  # per-row lists validate slowly
+                    mk.fill_colors = [self.ui["flyline_through" if through else "flyline"]] \
+                        * len(tg)
+                    mk.fill_opacities = [0.3 if through else 0.45] * len(tg)
+                mk.visible = True
 
     def element_counts(self) -> dict[str, int]:
         """Elements drawn by each mark (rows of a 2-D Lines, points of a Scatter, bins)."""

@@ -15,6 +15,8 @@ __all__ = [
     "notch_rows",
     "bundle_rows",
     "flyline_bundles",
+    "net_bundles",
+    "png_rgba",
     "square_view",
     "visible_rows",
     "zigzag_rows",
@@ -63,40 +65,89 @@ def notch_rows(design: Design, fp: Floorplan, idx: np.ndarray,
     return cx[idx][:, None] + ox, cy[idx][:, None] + oy
 
 
+def _net_pins(design: Design, nets: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Pins of ``nets`` and the position in ``nets`` of each pin's net (a ragged arange)."""
+    starts = design.net_start[nets]
+    lens = design.net_start[nets + 1] - starts
+    offs = np.repeat(starts - np.cumsum(np.concatenate([[0], lens[:-1]])), lens)
+    return offs + np.arange(int(lens.sum())), np.repeat(nets, lens)
+
+
+def _small_nets(design: Design, blocks: np.ndarray, max_degree: int) -> np.ndarray:
+    if blocks.size == 0:
+        return np.zeros(0, np.intp)
+    nets = design.nets_of(blocks)
+    return nets[design.net_degree[nets] <= max_degree]
+
+
+def net_bundles(design: Design, blocks, target_of: np.ndarray | None = None, *,
+                through: np.ndarray | None = None, max_degree: int = 64, limit: int = 400
+                ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Bundles of the nets from ``blocks`` to targets: each target once, weighted by nets.
+
+    ``target_of`` maps every block to a target id (a macro to itself, the terminals of one I/O
+    bus to the bus, the cells of one hierarchy group to the group, ``-1`` to none); the weight
+    of a target is the number of distinct nets joining ``blocks`` to any block of it.  Nets of
+    more than ``max_degree`` pins are left out (they would tie the source to everything).
+
+    With ``through`` (a block mask, e.g. the standard cells), the bundles are those of the
+    second ring instead: the nets of the ``through`` blocks that ``blocks`` reach by a net,
+    other than those first nets; a target is then joined through one such block.
+
+    Returns
+    -------
+    targets, counts : int arrays
+        At most ``limit`` targets, the ones with most nets first.
+    pair_target, pair_block : int arrays
+        Every (target, block) reached, for drawing each bundle to the middle of the blocks it
+        reaches.
+    """
+    n = design.num_blocks
+    src = np.zeros(n, bool)
+    blocks = np.atleast_1d(np.asarray(blocks, dtype=np.intp))
+    src[blocks] = True
+    tgt = np.arange(n) if target_of is None else np.asarray(target_of, dtype=np.intp)
+    empty = np.zeros(0, np.intp)
+    nets = _small_nets(design, blocks, max_degree)
+    if through is not None and nets.size:
+        pin, _ = _net_pins(design, nets)
+        blk = design.pin_block[pin]
+        mid = np.unique(blk[np.asarray(through, bool)[blk] & ~src[blk]])
+        nets = np.setdiff1d(_small_nets(design, mid, max_degree), nets, assume_unique=True)
+        src[mid] = True  # the cells passed through are not targets of the second ring
+    if nets.size == 0:
+        return empty, empty.astype(np.int64), empty, empty
+    pin, net_of_pin = _net_pins(design, nets)
+    blk = design.pin_block[pin]
+    keep = ~src[blk] & (tgt[blk] >= 0)
+    blk, net_of_pin = blk[keep], net_of_pin[keep]
+    t = tgt[blk]
+    pairs = np.unique(np.stack([net_of_pin, t], axis=1), axis=0)
+    if len(pairs) == 0:
+        return empty, empty.astype(np.int64), empty, empty
+    targets, counts = np.unique(pairs[:, 1], return_counts=True)
+    order = np.argsort(-counts, kind="stable")[:limit]
+    targets, counts = targets[order].astype(np.intp), counts[order]
+    tb = np.unique(np.stack([t, blk], axis=1), axis=0)
+    tb = tb[np.isin(tb[:, 0], targets)]
+    return targets, counts, tb[:, 0].astype(np.intp), tb[:, 1].astype(np.intp)
+
+
 def flyline_bundles(design: Design, fp: Floorplan, blocks, max_degree: int = 64,
                     limit: int = 400) -> tuple[np.ndarray, np.ndarray]:
     """Neighbours of ``blocks`` and the number of nets each shares with them.
 
     Nets of more than ``max_degree`` pins are left out (they would tie the macro to everything).
-    Each neighbour appears once however many nets it shares: that is the bundle.
+    Each neighbour appears once however many nets it shares: that is the bundle
+    (:func:`net_bundles` with every block its own target).
 
     Returns
     -------
     neighbours, counts : int arrays
         At most ``limit`` neighbours, the ones sharing most nets first.
     """
-    blocks = np.atleast_1d(np.asarray(blocks, dtype=np.intp))
-    if blocks.size == 0 or design.num_nets == 0:
-        return np.zeros(0, np.intp), np.zeros(0, np.int64)
-    nets = design.nets_of(blocks)
-    deg = design.net_degree[nets]
-    nets = nets[deg <= max_degree]
-    if nets.size == 0:
-        return np.zeros(0, np.intp), np.zeros(0, np.int64)
-    starts = design.net_start[nets]
-    lens = design.net_start[nets + 1] - starts
-    # pins of the chosen nets, without a Python loop: a ragged arange
-    offs = np.repeat(starts - np.cumsum(np.concatenate([[0], lens[:-1]])), lens)
-    pin = offs + np.arange(int(lens.sum()))
-    net_of_pin = np.repeat(np.arange(len(nets)), lens)
-    blk = design.pin_block[pin]
-    keep = ~np.isin(blk, blocks)
-    pairs = np.unique(np.stack([net_of_pin[keep], blk[keep]], axis=1), axis=0)
-    if len(pairs) == 0:
-        return np.zeros(0, np.intp), np.zeros(0, np.int64)
-    nb, counts = np.unique(pairs[:, 1], return_counts=True)
-    order = np.argsort(-counts, kind="stable")[:limit]
-    return nb[order].astype(np.intp), counts[order]
+    nb, counts, _, _ = net_bundles(design, blocks, max_degree=max_degree, limit=limit)
+    return nb, counts
 
 
 def bundle_rows(x0: float, y0: float, x1: np.ndarray, y1: np.ndarray,
@@ -175,3 +226,24 @@ def zigzag_rows(strips: np.ndarray, vertical: np.ndarray,
     pa = lo_a + t * along[:, None]
     pc = lo_c + side * across[:, None]
     return np.where(v[:, None], pc, pa), np.where(v[:, None], pa, pc)
+
+
+def png_rgba(rgba: np.ndarray) -> bytes:
+    """A PNG file (8-bit RGBA, no filter) of an ``(h, w, 4)`` uint8 array, top row first.
+
+    Written with zlib alone (PNG specification, W3C Recommendation, 2003: signature, IHDR,
+    one IDAT, IEND, CRC-32 per chunk), so the canvas needs no imaging package.
+    """
+    import struct
+    import zlib
+
+    a = np.ascontiguousarray(rgba, dtype=np.uint8)
+    h, w = a.shape[:2]
+    raw = np.concatenate([np.zeros((h, 1), np.uint8), a.reshape(h, w * 4)], axis=1).tobytes()
+
+    def chunk(kind: bytes, data: bytes) -> bytes:
+        return (struct.pack(">I", len(data)) + kind + data
+                + struct.pack(">I", zlib.crc32(kind + data) & 0xFFFFFFFF))
+
+    return (b"\x89PNG\r\n\x1a\n" + chunk(b"IHDR", struct.pack(">IIBBBBB", w, h, 8, 6, 0, 0, 0))
+            + chunk(b"IDAT", zlib.compress(raw, 6)) + chunk(b"IEND", b""))
