@@ -17,7 +17,8 @@ from typing import Any
 import ipywidgets as W
 import numpy as np
 
-from ..design import FIXED, ORIENTATIONS, STATUS_NAMES, Design, DesignError, Floorplan
+from .. import hierarchy as hier
+from ..design import FIXED, MACRO, ORIENTATIONS, STATUS_NAMES, Design, DesignError, Floorplan
 from ..session import ChangeEvent, Session
 from ._style import status_style, ui_colors
 from .canvas import Canvas, thumbnail
@@ -131,12 +132,13 @@ class FloorplanWidget(W.VBox):
 
         self._build_controls(live, pin_on_drop)
         self._build_edit_controls()
+        self._build_view_controls()
         self.session.on_change(self._on_change)
         self._refresh_readouts()
         self._refresh_alternatives()
         self._refresh_edit()
         side = W.VBox([self.controls, self.progress, self.message, self.readout, self.legend,
-                       self.details, self.edit_box, self.arrange_box],
+                       self.view_box, self.details, self.edit_box, self.arrange_box],
                       layout=W.Layout(width="360px", margin="0 0 0 10px"))
         top = W.HBox([self.canvas.figure, side], layout=W.Layout(flex_flow="row wrap"))
         super().__init__([top, self.alt_box])
@@ -301,6 +303,163 @@ class FloorplanWidget(W.VBox):
             W.HBox([self.array_pitch_x, self.array_pitch_y, arr]),
             W.HBox(mirrors)])
 
+    def _build_view_controls(self) -> None:
+        """Find by name, hierarchy colours and groups, flylines through logic (view only)."""
+        small = {"description_width": "initial"}
+        self.find_text = W.Text(placeholder="block name or part of one",
+                                layout=W.Layout(width="230px"))
+        self.find_text.add_class("fw-find")
+        find = self._button("Find", lambda: self.find(self.find_text.value),
+                            "Centre the view on the block(s) whose name contains this",
+                            width="64px")
+        self.group_depth = W.BoundedIntText(value=1, min=0, max=64, description="depth",
+                                            style=small, layout=W.Layout(width="90px"),
+                                            tooltip="Hierarchy levels kept in a group's name")
+        self.group_seps = W.Dropdown(
+            options=[("split at / and .", "/."), ("also at _ (flattened names)", "/._")],
+            value="/.", layout=W.Layout(width="200px"),
+            tooltip="Hierarchy separators in the instance names")
+        self.toggles["Colour by group"] = W.ToggleButton(
+            value=False, description="Colour by group", layout=W.Layout(width="130px"),
+            tooltip="Macros and the logic area coloured by hierarchy group")
+        self.toggles["Through one cell"] = W.ToggleButton(
+            value=False, description="Through one cell", layout=W.Layout(width="130px"),
+            tooltip="Also draw the bundles reached through one standard cell or cluster")
+        self.group_pick = W.Dropdown(layout=W.Layout(width="230px"),
+                                     tooltip="Hierarchy groups, largest first")
+        show = self._button("Show group", lambda: self.show_group(self.group_pick.value),
+                            "Select the group's macros and draw its flylines", width="100px")
+        self.group_legend = W.HTML("")
+        for wdg in (self.group_depth, self.group_seps):
+            wdg.observe(lambda _c: self._ui(self._regroup), "value")
+        self.toggles["Colour by group"].observe(
+            lambda ch: self._ui(lambda: self.colour_by_groups(ch["new"])), "value")
+        self.toggles["Through one cell"].observe(
+            lambda ch: self._ui(lambda: self._through(ch["new"])), "value")
+        self.view_box = W.VBox([
+            W.HTML("<b>Find and hierarchy</b>"),
+            W.HBox([self.find_text, find]),
+            W.HBox([self.group_depth, self.group_seps]),
+            W.HBox([self.toggles["Colour by group"], self.toggles["Through one cell"]]),
+            W.HBox([self.group_pick, show]), self.group_legend])
+        self._refresh_groups()
+
+    # --- seeing the design ----------------------------------------------------------------------
+    def find(self, query: str) -> list[str]:
+        """Find blocks by name (:func:`floorwidget.hierarchy.find_blocks`) and show them.
+
+        An exact name, or a part that only one name contains, centres the view on that block;
+        several matches fit the view to all of them.  Found macros become the selection (so the
+        arrange controls act on them); up to :data:`~floorwidget.widget.canvas.FOUND_LIMIT`
+        found blocks are ringed.  The message says what was found, also when nothing was.
+
+        Returns
+        -------
+        list of str
+            Names found (empty when none).
+        """
+        d, c = self.design, self.canvas
+        try:
+            found, exact = hier.find_blocks(d.names, query)
+        except ValueError as e:
+            self.notify(str(e), error=True)
+            return []
+        found = np.concatenate([found[d.kind[found] == MACRO], found[d.kind[found] != MACRO]])
+        msg = hier.found_message(d.names, query, found, exact)
+        if found.size == 0:
+            c.mark_found([])
+            self.notify(msg, error=True)
+            return []
+        r = self.session.floorplan.rects()[found]
+        macros = found[d.kind[found] == MACRO]
+        if macros.size:
+            self.select(macros)
+        c.mark_found(found)
+        c.show_box(r[:, 0].min(), r[:, 1].min(), r[:, 2].max(), r[:, 3].max())
+        if macros.size and found.size > 1:
+            msg += f" {macros.size:,d} of them macros, now selected."
+        if found.size > len(c.found):
+            msg += f" Rings on the first {len(c.found)}."
+        self.notify(msg)
+        return [d.names[i] for i in found]
+
+    def _regroup(self) -> None:
+        self.canvas.set_groups(int(self.group_depth.value), self.group_seps.value)
+        self._refresh_groups()
+
+    def _through(self, on: bool) -> None:
+        self.canvas.show_through(on)
+        self._refresh_details()
+
+    def colour_by_groups(self, on: bool = True, depth: int | None = None,
+                         separators: str | None = None) -> None:
+        """Colour macros and logic by hierarchy group (``on=False``: back to status colours).
+
+        ``depth`` and ``separators`` regroup first (the panel's fields follow).
+        """
+        with self.group_depth.hold_trait_notifications():
+            if depth is not None:
+                self.group_depth.value = int(depth)
+            if separators is not None:
+                self.group_seps.value = separators
+        if depth is not None or separators is not None:
+            self._regroup()
+        self.canvas.colour_by_groups(on)
+        if self.toggles["Colour by group"].value != bool(on):
+            self.toggles["Colour by group"].value = bool(on)
+        self._refresh_groups()
+
+    def show_group(self, group) -> None:
+        """Make a hierarchy group (its index or key) the flyline source and select its macros."""
+        g = self.canvas.groups
+        if isinstance(group, str):
+            key = "" if group == hier.TOP else group
+            if key not in g.keys:
+                raise KeyError(f"no hierarchy group {group!r} at depth "
+                               f"{self.group_depth.value}")
+            group = g.keys.index(key)
+        self.canvas.focus(group)
+        self._refresh_details()
+
+    def _refresh_groups(self) -> None:
+        """The group list (largest 100) and the colour legend of the hierarchy groups."""
+        c = self.canvas
+        g = c.groups
+        w = c.group_weights()
+        order = np.argsort(-w, kind="stable")[:100]
+        sizes = g.sizes
+        opts = [(f"{g.label(k)} ({sizes[k]:,d})", int(k)) for k in order]
+        self.group_pick.options = opts
+        self.group_legend.value = self.group_legend_html() if c.colour_groups else ""
+
+    def group_legend_html(self) -> str:
+        """What the group colours mean: every group under its colour (HTML)."""
+        c = self.canvas
+        g = c.groups
+        sizes = g.sizes
+        mac = np.bincount(g.index, weights=(self.design.kind == MACRO),
+                          minlength=len(g)).astype(int)
+        rows = []
+        for colour, members in c.group_legend:
+            sw = (f'<svg width="18" height="12"><rect x="1" y="1" width="16" height="10" '
+                  f'fill="{colour}" stroke="black" stroke-width="0.5"/></svg>')
+            if len(members) == 1:
+                k = members[0]
+                text = (f"{html.escape(g.label(k))} — {mac[k]:,d} macros, "
+                        f"{sizes[k] - mac[k]:,d} other blocks")
+            else:
+                text = (f"{len(members):,d} more groups, all grey (the palette has "
+                        f"{len(c.group_legend) - 1} colours): "
+                        f"{int(mac[members].sum()):,d} macros, "
+                        f"{int((sizes[members] - mac[members]).sum()):,d} other blocks")
+            rows.append(f'<div style="white-space:nowrap;overflow:hidden;'
+                        f'text-overflow:ellipsis">{sw} {text}</div>')
+        return ('<div style="font-size:11px;line-height:15px;max-width:350px">'
+                f"<i>{len(g):,d} hierarchy group(s) at depth {self.group_depth.value}; "
+                "largest area first (Okabe–Ito colours). Outlines still show status; the "
+                "logic area takes the colour of the group with most cell area in each bin, "
+                "stronger where fuller.</i>" + "".join(rows) + "</div>")
+
     def _legend_html(self) -> str:
         st = status_style()
         ui = ui_colors()
@@ -344,7 +503,12 @@ class FloorplanWidget(W.VBox):
                     f'fill="{ui["wall"]}" stroke="{ui["wall_stroke"]}" '
                     f'stroke-dasharray="2,1"/>'), ui["wall_label"]),
             (swatch(f'<line x1="2" y1="8" x2="24" y2="8" stroke="{ui["flyline"]}" '
-                    f'stroke-opacity="0.45" stroke-width="4"/>'), "nets (width ~ count)"),
+                    f'stroke-opacity="0.45" stroke-width="4"/>'),
+             "nets to a macro, I/O bus or group's logic (width ~ count)"),
+            (swatch(f'<line x1="2" y1="8" x2="24" y2="8" stroke="{ui["flyline_through"]}" '
+                    f'stroke-opacity="0.3" stroke-width="4"/>'), "through one cell"),
+            (swatch('<circle cx="13" cy="8" r="6" fill="none" stroke="black" '
+                    'stroke-width="2"/>'), "found by name"),
             (swatch(f'<rect x="3" y="3" width="20" height="10" fill="none" '
                     f'stroke="{ui["selection_under"]}" stroke-width="4"/><rect x="3" y="3" '
                     f'width="20" height="10" fill="none" stroke="{ui["selection"]}" '
@@ -522,10 +686,34 @@ class FloorplanWidget(W.VBox):
         self._refuse_if_busy()
         return self.session.set_orientation(name, orientation)
 
+    def _bundles_text(self) -> str:
+        """The heaviest flyline bundles of the current source, as one line (HTML)."""
+        c = self.canvas
+        parts = []
+        for through, what in ((False, "most shared nets with"),
+                              (True, "through one cell, most nets to")):
+            if through and not c.through_logic:
+                continue
+            tg, cnt, _, _ = c.bundle_data(through)
+            top = ", ".join(f"{html.escape(c.target_label(t))} ({k})"
+                            for t, k in zip(tg[:5].tolist(), cnt[:5].tolist()))
+            parts.append(f"{what}: {top or '–'}")
+        return "<br/>".join(parts)
+
     def _refresh_details(self) -> None:
         self._refresh_edit()
-        d, fp = self.design, self.session.floorplan
-        sel = self.canvas.selected
+        d, fp, c = self.design, self.session.floorplan, self.canvas
+        sel = c.selected
+        if c.focus_group is not None:
+            g = c.groups
+            k = c.focus_group
+            mem = g.members(k)
+            nmac = int((d.kind[mem] == MACRO).sum())
+            self.details.value = (f"<b>group {html.escape(g.label(k))}</b>: {nmac:,d} macros"
+                                  f"{' (selected)' if nmac else ''}, {mem.size - nmac:,d} "
+                                  "other blocks<br/>"
+                                  + self._bundles_text())
+            return
         if sel.size == 0:
             self.details.value = "<i>Click a macro to see its nets and details.</i>"
             return
@@ -533,18 +721,18 @@ class FloorplanWidget(W.VBox):
             names = ", ".join(html.escape(d.names[i]) for i in sel[:8])
             more = f" and {sel.size - 8} more" if sel.size > 8 else ""
             self.details.value = (f"<b>{sel.size} macros selected</b>: {names}{more}<br/>"
-                                  "Drag one of them to move all together.")
+                                  "Drag one of them to move all together.<br/>"
+                                  + self._bundles_text())
             return
         i = int(sel[0])
         w, h = fp.sizes()
-        nb, cnt = self.canvas.flyline_data()
-        top = ", ".join(f"{html.escape(d.names[j])} ({c})" for j, c in zip(nb[:5], cnt[:5]))
         nets = d.nets_of([i])
         self.details.value = (
             f"<b>{html.escape(d.names[i])}</b> &nbsp; {w[i]:g} × {h[i]:g} µm, "
             f"{ORIENTATIONS[fp.orient[i]]}, {STATUS_NAMES[fp.status[i]]}<br/>"
-            f"lower-left ({fp.x[i]:.2f}, {fp.y[i]:.2f}) µm; {len(nets)} nets<br/>"
-            f"most shared nets with: {top or '–'}")
+            f"lower-left ({fp.x[i]:.2f}, {fp.y[i]:.2f}) µm; {len(nets)} nets; group "
+            f"{html.escape(c.groups.label(int(c.groups.index[i])))}<br/>"
+            + self._bundles_text())
 
     # --- the one drop path ------------------------------------------------------------------------
     def _refuse_if_busy(self) -> None:

@@ -4,11 +4,12 @@ One :class:`Canvas` draws one floorplan.  The interactive widget and the small t
 alternatives view use this same class (the thumbnail simply turns interaction off), so what the
 engineer compares is drawn exactly like what they edit.
 
-Layer order, bottom to top: heat images (soft clusters / cells, density, RUDY congestion), die
-and core outlines, placement rows (only when zoomed in), blockages, halos, macro fills, status
-outlines, narrow channels (a filled strip with a zigzag hatch) and bars on the pin side of macros
-whose pins face a wall, orientation notches, flylines, selection, I/O pins, labels, drag
-handles.  Every layer
+Layer order, bottom to top: heat images (soft clusters / cells, density, RUDY congestion), the
+logic picture by hierarchy group, die and core outlines, placement rows (only when zoomed in),
+blockages, halos, macro fills, status outlines, narrow channels (a filled strip with a zigzag
+hatch) and bars on the pin side of macros whose pins face a wall, orientation notches, flylines
+(through one cell, then direct), selection, I/O pins, rings around blocks found by name, labels,
+drag handles.  Every layer
 is a single mark, so the number of marks does not grow with the design; each mark holds at most
 a few thousand elements.
 """
@@ -25,6 +26,10 @@ from ._style import heat_colors, status_style, ui_colors
 
 __all__ = ["Canvas", "illegal_blocks", "thumbnail"]
 
+#: most blocks ringed after a search by name
+FOUND_LIMIT = 200
+#: most flyline bundles drawn per kind (direct, through one cell): the heaviest ones
+BUNDLE_LIMIT = 100
 _HEAT_BINS = 64          # bins along the longer core side for the heat images
 _LABEL_PX_PER_CHAR = 6.0  # approximate width of one label character at 10 px (bold)
 
@@ -104,6 +109,7 @@ class Canvas:
         self.channel: float | None = None
         self.narrow = None                       # metrics.Channels drawn, after update()
         self.walled = np.zeros(0, np.intp)       # macros drawn with a pins-to-wall bar
+        self.found = np.zeros(0, np.intp)        # blocks ringed after a search by name
         self._has_soft = bool(((design.kind != MACRO) & (design.kind != TERMINAL)).any())
         #: hierarchy groups of every block (:func:`floorwidget.hierarchy.hierarchy_groups`);
         #: flylines bundle per group, and :meth:`colour_by_groups` colours by them
@@ -207,6 +213,10 @@ class Canvas:
                                     default_size=10 if interactive else 4,
                                     colors=[self.ui["terminal"]], stroke=None)
         if interactive:
+            # rings around blocks found by name (at most FOUND_LIMIT of them)
+            m["found"] = bq.Scatter(x=[0.0], y=[0.0], scales=sc, marker="circle", fill=False,
+                                    default_size=220, stroke=self.ui["found"], stroke_width=2.5,
+                                    colors=[self.ui["found"]], visible=False)
             m["labels"] = bq.Label(x=[0.0], y=[0.0], text=[""], scales=sc, default_size=10,
                                    font_unit="px", align="middle", colors=[self.ui["label"]],
                                    visible=False)
@@ -376,6 +386,8 @@ class Canvas:
                 self._draw_labels()
                 self._draw_flylines()
                 self._draw_selection()
+                if self.found.size:
+                    self.mark_found(self.found)
 
     def _draw_shape(self) -> None:
         """Narrow channels and pins-toward-a-wall bars of the current floorplan."""
@@ -557,9 +569,10 @@ class Canvas:
         else:  # one map per distinct colour: at most the palette's size plus grey
             palette = sorted(set(cols[gi].tolist())) if gi.size else [OTHER_GROUP]
             pos = {c: k for k, c in enumerate(palette)}
-            key = np.array([pos[c] for c in cols], np.intp)[gi] if gi.size else gi
+            key = np.array([pos.get(c, -1) for c in cols], np.intp)[gi]
         maps = np.stack([metrics.rect_area_map(grid, rects[key == k])
                          for k in range(len(palette))])  # (k, nx, ny)
+        maps = np.maximum(maps, 0.0)  # the running sums leave rounding-size negatives
         total = maps.sum(axis=0)
         top = maps.argmax(axis=0)
         rgb = np.array([[int(c[i:i + 2], 16) for i in (1, 3, 5)] for c in palette], np.uint8)
@@ -629,6 +642,27 @@ class Canvas:
         if self.colour_groups:
             self._draw_cells()
 
+    def show_through(self, on: bool = True) -> None:
+        """Also draw the flyline bundles reached through one standard cell or soft cluster."""
+        self.through_logic = bool(on)
+        if self.interactive:
+            self._draw_flylines()
+
+    def mark_found(self, blocks) -> None:
+        """Ring the centres of ``blocks`` (at most :data:`FOUND_LIMIT`; none clears)."""
+        mk = self.marks.get("found")
+        if mk is None:
+            return
+        blocks = np.asarray(blocks, dtype=np.intp)[:FOUND_LIMIT]
+        self.found = blocks
+        if blocks.size == 0:
+            mk.visible = False
+            return
+        cx, cy = self.fp.centres()
+        with mk.hold_sync():
+            mk.x, mk.y = cx[blocks], cy[blocks]
+            mk.visible = True
+
     def source_blocks(self) -> np.ndarray:
         """The flyline source: the focus group's blocks, else the selection."""
         if self.focus_group is not None:
@@ -691,7 +725,8 @@ class Canvas:
                 cache.clear()
             d = self.design
             mask = ((d.kind == CELL) | (d.kind == CLUSTER)) if through else None
-            cache[key] = geo.net_bundles(d, src, self._target_of, through=mask)
+            cache[key] = geo.net_bundles(d, src, self._target_of, through=mask,
+                                         limit=BUNDLE_LIMIT)
         return cache[key]
 
     def _draw_flylines(self):
@@ -733,6 +768,8 @@ class Canvas:
                 continue
             if hasattr(mk, "color") and k in ("cells", "density", "congestion"):
                 out[k] = int(np.asarray(mk.color).size)
+            elif k == "groups":  # one picture, a pixel per heat bin
+                out[k] = self.grid.nx * self.grid.ny
             elif getattr(mk, "text", None) is not None and k == "labels":
                 out[k] = len(mk.text)
             else:
