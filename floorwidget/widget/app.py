@@ -350,7 +350,7 @@ class FloorplanWidget(W.VBox):
 
         An exact name, or a part that only one name contains, centres the view on that block;
         several matches fit the view to all of them.  Found macros become the selection (so the
-        arrange controls act on them); up to :data:`~floorwidget.widget.canvas.FOUND_LIMIT`
+        arrange controls act on them; none clears the selection); up to :data:`~floorwidget.widget.canvas.FOUND_LIMIT`
         found blocks are ringed.  The message says what was found, also when nothing was.
 
         Returns
@@ -372,8 +372,7 @@ class FloorplanWidget(W.VBox):
             return []
         r = self.session.floorplan.rects()[found]
         macros = found[d.kind[found] == MACRO]
-        if macros.size:
-            self.select(macros)
+        self.select(macros)  # none among them: the selection is cleared
         c.mark_found(found)
         c.show_box(r[:, 0].min(), r[:, 1].min(), r[:, 2].max(), r[:, 3].max())
         if macros.size and found.size > 1:
