@@ -154,7 +154,7 @@ class Canvas:
                                              format="png"),
                                x=[self.grid.xlo, self.grid.xlo + self.grid.nx * self.grid.bw],
                                y=[self.grid.ylo, self.grid.ylo + self.grid.ny * self.grid.bh],
-                               scales=sc, visible=False)
+                               scales=sc, pixelated=True, visible=False)
         die_x, die_y = geo.rect_rows(design.die[None, :])
         m["die"] = bq.Lines(x=die_x[0], y=die_y[0], scales=sc, colors=[self.ui["die"]],
                             stroke_width=self.ui["die_width"])
