@@ -350,8 +350,9 @@ class FloorplanWidget(W.VBox):
 
         An exact name, or a part that only one name contains, centres the view on that block;
         several matches fit the view to all of them.  Found macros become the selection (so the
-        arrange controls act on them; none clears the selection); up to :data:`~floorwidget.widget.canvas.FOUND_LIMIT`
-        found blocks are ringed.  The message says what was found, also when nothing was.
+        arrange controls act on them; no macro found clears the selection); up to
+        :data:`~floorwidget.widget.canvas.FOUND_LIMIT` found blocks are ringed.  The message
+        says what was found, also when nothing was.
 
         Returns
         -------

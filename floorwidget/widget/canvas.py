@@ -111,9 +111,8 @@ class Canvas:
         self.walled = np.zeros(0, np.intp)       # macros drawn with a pins-to-wall bar
         self.found = np.zeros(0, np.intp)        # blocks ringed after a search by name
         self._has_soft = bool(((design.kind != MACRO) & (design.kind != TERMINAL)).any())
-        #: hierarchy groups of every block (:func:`floorwidget.hierarchy.hierarchy_groups`);
-        #: flylines bundle per group, and :meth:`colour_by_groups` colours by them
-        self.groups = hier.hierarchy_groups(design.names, 1)
+        self._groups: hier.Groups | None = None   # made on first use (see groups)
+        self._buses: hier.Groups | None = None
         self.colour_groups = False
         self.group_colours: list[str] = []
         self.group_legend: list[tuple[str, list[int]]] = []
@@ -121,11 +120,8 @@ class Canvas:
         self.focus_group: int | None = None
         #: also draw the bundles reached through one standard cell or soft cluster
         self.through_logic = False
-        term = np.flatnonzero(design.kind == TERMINAL)
-        self.buses = hier.bus_groups([design.names[i] for i in term])
-        self._bus_of = np.full(design.num_blocks, -1, np.intp)
-        self._bus_of[term] = self.buses.index
-        self._set_targets()
+        self._target_of: np.ndarray | None = None
+        self._bundle_cache: dict = {}  # flyline bundles per source, for these targets
         self.status_style = status_style()
         self.ui = ui_colors()
 
@@ -495,27 +491,46 @@ class Canvas:
 
         Colours (when shown), the flyline bundles to logic and the focus group follow.
         """
-        self.groups = hier.hierarchy_groups(self.design.names, depth, separators)
+        self._groups = hier.hierarchy_groups(self.design.names, depth, separators)
         self.focus_group = None
-        self._set_targets()
+        self._target_of = None
+        self._bundle_cache = {}
         if self.colour_groups:
             self.colour_by_groups(True)
         elif self.interactive:
             self._draw_flylines()
 
-    def _set_targets(self) -> None:
-        """Flyline targets: each macro itself, each I/O bus, each hierarchy group's logic."""
-        d = self.design
-        n = d.num_blocks
-        t = np.full(n, -1, np.intp)
-        mac = d.kind == MACRO
-        t[mac] = np.flatnonzero(mac)
-        term = d.kind == TERMINAL
-        t[term] = n + self._bus_of[term]
-        logic = (d.kind == CELL) | (d.kind == CLUSTER)
-        t[logic] = n + len(self.buses) + self.groups.index[logic]
-        self._target_of = t
-        self._bundle_cache: dict = {}  # bundles per flyline source, for these targets
+    @property
+    def groups(self) -> hier.Groups:
+        """Hierarchy groups of every block (:func:`floorwidget.hierarchy.hierarchy_groups`,
+        depth 1 until :meth:`set_groups`); flylines bundle per group, and
+        :meth:`colour_by_groups` colours by them."""
+        if self._groups is None:
+            self._groups = hier.hierarchy_groups(self.design.names, 1)
+        return self._groups
+
+    @property
+    def buses(self) -> hier.Groups:
+        """The I/O terminals grouped into buses (:func:`floorwidget.hierarchy.bus_groups`)."""
+        if self._buses is None:
+            d = self.design
+            self._buses = hier.bus_groups([d.names[i] for i in np.flatnonzero(d.kind == TERMINAL)])
+        return self._buses
+
+    def _targets(self) -> np.ndarray:
+        """Flyline target of each block: the macro itself, its I/O bus, its group's logic."""
+        if self._target_of is None:
+            d = self.design
+            n = d.num_blocks
+            t = np.full(n, -1, np.intp)
+            mac = d.kind == MACRO
+            t[mac] = np.flatnonzero(mac)
+            term = d.kind == TERMINAL
+            t[term] = n + self.buses.index
+            logic = (d.kind == CELL) | (d.kind == CLUSTER)
+            t[logic] = n + len(self.buses) + self.groups.index[logic]
+            self._target_of = t
+        return self._target_of
 
     def target_label(self, t: int) -> str:
         """What flyline target ``t`` is: a macro's name, an I/O bus or a group's logic."""
@@ -725,7 +740,7 @@ class Canvas:
                 cache.clear()
             d = self.design
             mask = ((d.kind == CELL) | (d.kind == CLUSTER)) if through else None
-            cache[key] = geo.net_bundles(d, src, self._target_of, through=mask,
+            cache[key] = geo.net_bundles(d, src, self._targets(), through=mask,
                                          limit=BUNDLE_LIMIT)
         return cache[key]
 
