@@ -40,7 +40,7 @@ def ui_colors() -> dict:
         "halo_dash": _st.HALO.bq_line_style,
         "terminal": _st.TERMINAL_MARK.fill,
         "outline": _st.BLACK, "label": _st.BLACK,
-        "flyline": _st.BLACK, "flyline_through": _st.BLUE, "found": _st.BLACK,
+        "flyline": _st.BLACK, "flyline_through": _st.BLACK, "found": _st.BLACK,
         "selection": _st.YELLOW, "selection_under": _st.BLACK,
         "handle": _st.WHITE,
         "channel": _st.NARROW_CHANNEL.fill, "channel_opacity": _st.NARROW_CHANNEL.fill_opacity,

@@ -430,6 +430,7 @@ class FloorplanWidget(W.VBox):
         sizes = g.sizes
         opts = [(f"{g.label(k)} ({sizes[k]:,d})", int(k)) for k in order]
         self.group_pick.options = opts
+        self.group_pick.value = opts[0][1] if opts else None
         self.group_legend.value = self.group_legend_html() if c.colour_groups else ""
 
     def group_legend_html(self) -> str:
@@ -505,8 +506,9 @@ class FloorplanWidget(W.VBox):
             (swatch(f'<line x1="2" y1="8" x2="24" y2="8" stroke="{ui["flyline"]}" '
                     f'stroke-opacity="0.45" stroke-width="4"/>'),
              "nets to a macro, I/O bus or group's logic (width ~ count)"),
-            (swatch(f'<line x1="2" y1="8" x2="24" y2="8" stroke="{ui["flyline_through"]}" '
-                    f'stroke-opacity="0.3" stroke-width="4"/>'), "through one cell"),
+            (swatch(f'<rect x="2" y="6" width="22" height="4" fill="none" '
+                    f'stroke="{ui["flyline_through"]}" stroke-dasharray="3,2"/>'),
+             "through one cell"),
             (swatch('<circle cx="13" cy="8" r="6" fill="none" stroke="black" '
                     'stroke-width="2"/>'), "found by name"),
             (swatch(f'<rect x="3" y="3" width="20" height="10" fill="none" '

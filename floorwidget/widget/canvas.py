@@ -193,9 +193,11 @@ class Canvas:
                                   line_style=self.ui["wall_dash"], visible=False)
         m["notches"] = bq.Lines(x=px, y=py, scales=sc, fill="inside", stroke_width=0.5,
                                 colors=[self.ui["outline"]], visible=False)
-        m["flylines_through"] = bq.Lines(x=px, y=py, scales=sc, fill="inside",
-                                         stroke_width=0.0, colors=[self.ui["flyline_through"]],
-                                         visible=False)
+        # bundles through one cell: hollow and dashed, so they differ from the direct ones
+        # by shape (the group colours use the whole palette)
+        m["flylines_through"] = bq.Lines(x=px, y=py, scales=sc, stroke_width=1.0,
+                                         line_style="dashed", opacities=[0.7],
+                                         colors=[self.ui["flyline_through"]], visible=False)
         m["flylines"] = bq.Lines(x=px, y=py, scales=sc, fill="inside", stroke_width=0.0,
                                  colors=[self.ui["flyline"]], visible=False)
         # selection: a light outline over a dark one, visible on any fill and in greyscale
@@ -768,10 +770,9 @@ class Canvas:
             xs, ys = geo.bundle_rows(x0, y0, ex[at], ey[at], width_px / self.px_per_um)
             with mk.hold_sync():
                 mk.x, mk.y = xs, ys
-                if len(mk.fill_colors) != len(tg):  # per-row lists validate slowly
-                    mk.fill_colors = [self.ui["flyline_through" if through else "flyline"]] \
-                        * len(tg)
-                    mk.fill_opacities = [0.3 if through else 0.45] * len(tg)
+                if not through and len(mk.fill_colors) != len(tg):  # lists validate slowly
+                    mk.fill_colors = [self.ui["flyline"]] * len(tg)
+                    mk.fill_opacities = [0.45] * len(tg)
                 mk.visible = True
 
     def element_counts(self) -> dict[str, int]:
