@@ -14,8 +14,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .design import CELL, CLUSTER, TERMINAL, Design, Floorplan
+
 __all__ = ["SEPARATORS", "TOP", "Groups", "bus_groups", "find_blocks", "found_message",
-           "group_colours", "hierarchy_groups"]
+           "group_area", "group_colours", "hierarchy_groups", "logic_picture"]
 
 #: Default hierarchy separators.
 SEPARATORS = "/."
@@ -212,3 +214,55 @@ def group_colours(weight: np.ndarray, palette: Sequence[str], other: str
     if len(w) > k:
         legend.append((other, sorted(order[k:].tolist())))
     return colours, legend
+
+
+def group_area(design: Design, groups: Groups) -> np.ndarray:
+    """Footprint area (µm²) of each group's blocks, I/O terminals left out."""
+    area = design.width * design.height * (design.kind != TERMINAL)
+    return np.bincount(groups.index, weights=area, minlength=len(groups))
+
+
+def _rgb(colour: str) -> list[int]:
+    return [int(colour[i:i + 2], 16) for i in (1, 3, 5)]
+
+
+def logic_picture(design: Design, fp: Floorplan, grid, groups: Groups,
+                  colours: Sequence[str], *, focus: int | None = None,
+                  other: str = "#A0A0A0") -> np.ndarray:
+    """The logic of each group as one picture: ``(ny, nx, 4)`` uint8 RGBA, top row first.
+
+    Each bin of ``grid`` (a :class:`floorwidget.metrics.BinGrid`) takes the colour of the
+    group with most standard-cell and soft-cluster area in it (``colours[g]``; groups that
+    share a colour count together), at an opacity growing with the square root of that area,
+    the fullest bin at 90 %; bins without logic are transparent.  With ``focus``, only that
+    group's logic is coloured and all other logic is ``other`` at a quarter of its opacity.
+    Exact areas per bin from :func:`floorwidget.metrics.rect_area_map`, one map per colour.
+    """
+    from . import metrics
+
+    logic = np.flatnonzero((design.kind == CELL) | (design.kind == CLUSTER))
+    rects = fp.rects()[logic]
+    gi = groups.index[logic]
+    cols = np.asarray(colours, dtype=object)
+    if focus is not None:
+        key = (gi == focus).astype(np.intp)
+        palette = [other, str(cols[focus])]
+    else:  # one map per distinct colour: at most the palette's size plus the grey
+        palette = sorted(set(cols[gi].tolist())) if gi.size else [other]
+        pos = {c: k for k, c in enumerate(palette)}
+        key = np.array([pos.get(c, -1) for c in cols], np.intp)[gi]
+    maps = np.stack([metrics.rect_area_map(grid, rects[key == k])
+                     for k in range(len(palette))])  # (k, nx, ny)
+    maps = np.maximum(maps, 0.0)  # the running sums leave rounding-size negatives
+    total = maps.sum(axis=0)
+    top = maps.argmax(axis=0)
+    hi = float(total.max()) if total.size else 0.0
+    alpha = np.sqrt(total / hi) if hi > 0 else np.zeros_like(total)
+    if focus is not None:
+        mine = float(maps[1].max())
+        alpha = np.where(top == 1, np.sqrt(maps[1] / mine) if mine > 0 else 0.0, 0.25 * alpha)
+    rgb = np.array([_rgb(c) for c in palette], np.uint8)
+    out = np.zeros((grid.ny, grid.nx, 4), np.uint8)
+    out[..., :3] = rgb[top].transpose(1, 0, 2)
+    out[..., 3] = np.round(255 * 0.9 * alpha).T
+    return out[::-1]

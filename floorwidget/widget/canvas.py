@@ -544,10 +544,8 @@ class Canvas:
         return f"logic of {self.groups.label(t - n - len(self.buses))}"
 
     def group_weights(self) -> np.ndarray:
-        """Placed area (µm²) of each hierarchy group's macros and logic; ranks the colours."""
-        d = self.design
-        area = d.width * d.height * (d.kind != TERMINAL)
-        return np.bincount(self.groups.index, weights=area, minlength=len(self.groups))
+        """Block area of each hierarchy group (:func:`floorwidget.hierarchy.group_area`)."""
+        return hier.group_area(self.design, self.groups)
 
     def colour_by_groups(self, on: bool = True) -> None:
         """Colour macros and the logic area by hierarchy group (``False``: by status).
@@ -565,43 +563,11 @@ class Canvas:
         self.update(self.fp, self._illegal)
 
     def group_rgba(self, fp: Floorplan | None = None) -> np.ndarray:
-        """The logic picture: ``(ny, nx, 4)`` uint8, top row first.
-
-        Each bin takes the colour of the group with most standard-cell and soft-cluster area
-        in it, at an opacity that grows with that area (the fullest bin nearly opaque).  With a
-        focus group, only its logic is coloured and the rest is a faint grey.
-        """
-        from .. import metrics
-
-        d = self.design
+        """The logic picture on the heat grid (:func:`floorwidget.hierarchy.logic_picture`)."""
         fp = self.fp if fp is None else fp
-        logic = np.flatnonzero((d.kind == CELL) | (d.kind == CLUSTER))
-        rects = fp.rects()[logic]
-        gi = self.groups.index[logic]
-        cols = np.array(self.group_colours or [OTHER_GROUP] * len(self.groups), dtype=object)
-        grid = self.grid
-        if self.focus_group is not None:
-            key = np.where(gi == self.focus_group, 1, 0)
-            palette = [OTHER_GROUP, cols[self.focus_group]]
-        else:  # one map per distinct colour: at most the palette's size plus grey
-            palette = sorted(set(cols[gi].tolist())) if gi.size else [OTHER_GROUP]
-            pos = {c: k for k, c in enumerate(palette)}
-            key = np.array([pos.get(c, -1) for c in cols], np.intp)[gi]
-        maps = np.stack([metrics.rect_area_map(grid, rects[key == k])
-                         for k in range(len(palette))])  # (k, nx, ny)
-        maps = np.maximum(maps, 0.0)  # the running sums leave rounding-size negatives
-        total = maps.sum(axis=0)
-        top = maps.argmax(axis=0)
-        rgb = np.array([[int(c[i:i + 2], 16) for i in (1, 3, 5)] for c in palette], np.uint8)
-        hi = float(total.max()) if total.size else 0.0
-        alpha = np.sqrt(total / hi) if hi > 0 else np.zeros_like(total)
-        if self.focus_group is not None:
-            alpha = np.where(top == 1, np.sqrt(maps[1] / max(float(maps[1].max()), 1e-30)),
-                             0.25 * alpha)
-        out = np.zeros((grid.ny, grid.nx, 4), np.uint8)
-        out[..., :3] = rgb[top].transpose(1, 0, 2)
-        out[..., 3] = np.round(255 * 0.9 * alpha).T
-        return out[::-1]
+        cols = self.group_colours or [OTHER_GROUP] * len(self.groups)
+        return hier.logic_picture(self.design, fp, self.grid, self.groups, cols,
+                                  focus=self.focus_group, other=OTHER_GROUP)
 
     def _draw_groups(self) -> None:
         mk = self.marks["groups"]
