@@ -60,7 +60,8 @@ def _illegal_mask(design: Design, fp: Floorplan) -> np.ndarray:
 def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str | None = None,
            show_labels: bool = True, ax=None, figsize: tuple[float, float] | None = None,
            dpi: int = 150, title: str | None = None, target_density: float | None = None,
-           channel: float | None = None):
+           channel: float | None = None, hierarchy: int | None = None,
+           separators: str = "/."):
     """Draw a floorplan to scale; write it to ``path`` (PNG or SVG, by suffix) if given.
 
     Layers, bottom to top: a raster of soft-cluster and standard-cell area (or, with ``heat``,
@@ -106,6 +107,12 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
         Channels between facing macros narrower than this (µm) are drawn as hatched strips
         (:func:`floorwidget.metrics.channel_gaps`); default the one the floorplan was placed
         with (``fp.info["channel"]``), else :func:`floorwidget.metrics.default_channel`.
+    hierarchy : int, optional
+        Colour by hierarchy group at this depth (:func:`floorwidget.hierarchy.hierarchy_groups`
+        with ``separators``): macro fills take their group's colour (the status stays in the
+        outline), the cell raster the colour of the group with most cell area per bin
+        (:func:`floorwidget.hierarchy.logic_picture`, unless ``heat`` is given), and the
+        legend lists the coloured groups and how many more share the grey.
 
     Returns
     -------
@@ -157,6 +164,17 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
 
     rects = fp.rects()
     kind, status = design.kind, fp.status
+    group_fill = None
+    if hierarchy is not None:
+        from . import hierarchy as hier
+
+        try:
+            groups = hier.hierarchy_groups(design.names, hierarchy, separators)
+        except ValueError as e:
+            raise DesignError(str(e)) from None
+        gcols, glegend = hier.group_colours(hier.group_area(design, groups),
+                                            style.GROUP_PALETTE, style.OTHER_GROUP)
+        group_fill = [gcols[g] for g in groups.index]
 
     # --- raster layer --------------------------------------------------------------------
     grid = metrics.bin_grid(design)  # the report's grid, so the colour bar matches the title
@@ -185,7 +203,11 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
         if heat == "density":
             vmax = max(vmax, 1.0)
         vmax = vmax if vmax > 0 else 1.0
-    if data is not None:
+    if data is not None and group_fill is not None and heat is None:
+        pic = hier.logic_picture(design, fp, grid, groups, gcols, other=style.OTHER_GROUP)
+        ax.imshow(pic, origin="upper", extent=extent, zorder=0,
+                  interpolation="nearest").set_gid("raster")
+    elif data is not None:
         image = ax.imshow(data.T, origin="lower", extent=extent, cmap=cmap, zorder=0,
                           interpolation="nearest", alpha=0.85 if heat else 0.75,
                           vmin=0.0, vmax=vmax)
@@ -219,7 +241,9 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
         st = style.block_style(int(status[i]))
         r = rects[i]
         xy, w, h = (r[0], r[1]), r[2] - r[0], r[3] - r[1]
-        p = Rectangle(xy, w, h, facecolor=(*_rgb(st.fill), st.fill_opacity),
+        fill = (*_rgb(st.fill), st.fill_opacity) if group_fill is None \
+            else (*_rgb(group_fill[i]), 0.85)
+        p = Rectangle(xy, w, h, facecolor=fill,
                       edgecolor=st.stroke, linewidth=st.stroke_width,
                       linestyle=st.mpl_linestyle(), hatch=st.hatch or None, zorder=4)
         p.set_gid(f"macro:{design.names[i]}")
@@ -298,11 +322,19 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
             fontsize=7)
 
     present = {int(s) for s in status[mac]}
-    handles = [Patch(facecolor=(*_rgb(st.fill), st.fill_opacity), edgecolor=st.stroke,
+    handles = [Patch(facecolor=(*_rgb(st.fill), st.fill_opacity) if group_fill is None
+                     else "none", edgecolor=st.stroke,
                      linewidth=st.stroke_width, linestyle=st.mpl_linestyle(),
                      hatch=st.hatch or None, label=st.label)
                for code, st in ((c, style.block_style(c)) for c in range(3))
                if code in present or code == 0]
+    if group_fill is not None:
+        for colour, members in glegend:
+            label = (f"group {groups.label(members[0])}" if len(members) == 1 else
+                     f"{len(members)} more groups, all grey ({len(style.GROUP_PALETTE)} colours "
+                     "in the palette)")
+            handles.append(Patch(facecolor=(*_rgb(colour), 0.85), edgecolor="none",
+                                 label=label))
     if bad.any():
         handles.append(Patch(facecolor="none", edgecolor=ill.fill, linewidth=ill.stroke_width,
                              linestyle=ill.mpl_linestyle(), hatch=ill.hatch,
@@ -327,8 +359,11 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
     if term.any():
         handles.append(Line2D([], [], marker="s", linestyle="none", color=style.BLACK,
                               markersize=4, label="I/O terminal"))
-    if heat is None and data is not None:
+    if heat is None and data is not None and group_fill is None:
         handles.append(Patch(facecolor=style.CELL_RAMP[3], label="standard-cell area"))
+    elif heat is None and data is not None:
+        handles.append(Patch(facecolor="none", edgecolor="none",
+                             label="cell area: colour of the group with most area per bin"))
     handles.append(Line2D([], [], color=style.BLACK, linewidth=1.6, label="die"))
     handles.append(Line2D([], [], color=style.BLACK, linewidth=0.8,
                           linestyle=style.CORE.mpl_linestyle(), label="core (rows)"))

@@ -155,3 +155,31 @@ def test_group_palette_is_okabe_ito_without_black():
     assert len(set(pal)) == len(pal) == 7
     assert set(pal) == set(style.OKABE_ITO.values()) - {style.BLACK}
     assert style.OTHER_GROUP not in style.OKABE_ITO.values()
+
+
+def test_render_colours_by_group(tmp_path):
+    pytest.importorskip("matplotlib")
+    import xml.etree.ElementTree as ET
+
+    from floorwidget.design import CELL, MACRO, Design, DesignError
+    from floorwidget.render import render
+
+    names = ["top/ram0", "blk/ram1", "a/c0", "a/c1", "b/c0"]
+    d = Design("hand", [0, 0, 100, 100], names, [MACRO, MACRO, CELL, CELL, CELL],
+               [20, 20, 4, 4, 4], [20, 20, 4, 4, 4], [0, 2, 4], [0, 2, 1, 4],
+               np.zeros(4), np.zeros(4), x=[70, 70, 5, 12, 40], y=[70, 10, 10, 10, 10])
+    out = tmp_path / "groups.svg"
+    fig = render(d, None, out, hierarchy=1)
+    root = ET.parse(out).getroot()
+    fills = {}
+    for el in root.iter():
+        if (el.get("id") or "").startswith("macro:"):
+            path = next(el.iter("{http://www.w3.org/2000/svg}path"))
+            fills[el.get("id")[6:]] = path.get("style").split("fill: ")[1][:7].upper()
+    # equal macro areas: the groups in order of appearance get the first two colours
+    assert fills == {"top/ram0": style.GROUP_PALETTE[0], "blk/ram1": style.GROUP_PALETTE[1]}
+    labels = [t.get_text() for t in fig.axes[0].get_legend().get_texts()]
+    assert {"group top", "group blk", "group a", "group b"} <= set(labels)
+    with pytest.raises(DesignError, match="depth"):
+        render(d, None, tmp_path / "bad.svg", hierarchy=-1)
+    assert not (tmp_path / "bad.svg").exists()
