@@ -224,7 +224,9 @@ def test_flylines_bundle_per_neighbour(widget, demo_design):
         if i in blocks and len(d.pin_block[d.net_start[n]:d.net_start[n + 1]]) <= 64:
             for b in blocks - {i}:
                 ref[b] = ref.get(b, 0) + 1
-    nb, cnt = widget.canvas.flyline_data()
+    from floorwidget.widget.geometry import flyline_bundles
+
+    nb, cnt = flyline_bundles(d, widget.floorplan, [i])
     assert dict(zip(nb.tolist(), cnt.tolist())) == ref
     # drawn: one bundle per target (a macro, an I/O bus, a hierarchy group's logic), weighted
     # by the distinct nets reaching it; reference: the same walk, names cut by hand

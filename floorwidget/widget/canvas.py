@@ -681,17 +681,6 @@ class Canvas:
                 mk.x, mk.y = x, y
                 mk.visible = True
 
-    def flyline_data(self):
-        """``(neighbours, counts)`` of the current selection (see :func:`flyline_bundles`).
-
-        The bundles depend on the netlist only, not on positions, so they are kept per selection.
-        """
-        key = tuple(self.selected.tolist())
-        if getattr(self, "_fly_key", None) != key:
-            self._fly_key = key
-            self._fly = geo.flyline_bundles(self.design, self.fp, self.selected)
-        return self._fly
-
     def bundle_data(self, through: bool = False):
         """Flyline bundles of :meth:`source_blocks` (see :func:`geometry.net_bundles`).
 
