@@ -118,8 +118,11 @@ def test_colours_by_group_legend_and_logic_picture(hw, hand):
         p = pixel(x, 12.0)
         assert np.allclose(p[:3], rgb(colour), atol=1 / 255) and p[3] > 0.5
     assert pixel(90.0, 40.0)[3] == 0  # no logic there
-    # focus on b: a's logic fades to a faint grey, b keeps its colour
+    # focus on b: a's logic fades to a faint grey, b keeps its colour; the picture is a new
+    # image widget (the browser redraws on a new one, not on new bytes in the old one)
+    before = c.marks["groups"].image
     hw.show_group("b")
+    assert c.marks["groups"].image is not before
     img = mpimg.imread(io.BytesIO(c.marks["groups"].image.value), format="png")
     pa, pb = pixel(4.0, 12.0), pixel(44.0, 12.0)
     assert np.allclose(pb[:3], rgb(pal[3]), atol=1 / 255)

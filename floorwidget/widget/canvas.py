@@ -573,7 +573,13 @@ class Canvas:
         mk = self.marks["groups"]
         if not self._has_soft:
             return
-        mk.image.value = geo.png_rgba(self.group_rgba())
+        import ipywidgets as W
+
+        # a new image widget each time: the browser view redraws on a new `image`, not on a
+        # change of the old widget's bytes (seen in JupyterLab with bqplot 0.13)
+        old = mk.image
+        mk.image = W.Image(value=geo.png_rgba(self.group_rgba()), format="png")
+        old.close()
 
     def preview(self, fp: Floorplan, blocks) -> None:
         """Move the rectangles of ``blocks`` (macro indices) to where ``fp`` has them.
