@@ -146,6 +146,10 @@ def test_grey_past_the_palette_is_in_the_legend(demo_design):
     fills = set(c.marks["macros"].fill_colors)
     assert fills <= set(style.GROUP_PALETTE) | {style.OTHER_GROUP}
     assert w.group_depth.value == 2 and w.group_seps.value == "/._"
+    # typing a depth in the panel regroups: depth 0 is one group, the top level
+    w.group_depth.value = 0
+    assert len(w.canvas.groups) == 1 and w.group_pick.options[0][0].startswith("(top level)")
+    assert "more groups" not in w.group_legend.value
 
 
 def test_find_by_name(hw, hand):

@@ -330,8 +330,9 @@ class FloorplanWidget(W.VBox):
         show = self._button("Show group", lambda: self.show_group(self.group_pick.value),
                             "Select the group's macros and draw its flylines", width="100px")
         self.group_legend = W.HTML("")
+        self._quiet = False
         for wdg in (self.group_depth, self.group_seps):
-            wdg.observe(lambda _c: self._ui(self._regroup), "value")
+            wdg.observe(lambda _c: None if self._quiet else self._ui(self._regroup), "value")
         self.toggles["Colour by group"].observe(
             lambda ch: self._ui(lambda: self.colour_by_groups(ch["new"])), "value")
         self.toggles["Through one cell"].observe(
@@ -397,12 +398,15 @@ class FloorplanWidget(W.VBox):
 
         ``depth`` and ``separators`` regroup first (the panel's fields follow).
         """
-        with self.group_depth.hold_trait_notifications():
-            if depth is not None:
-                self.group_depth.value = int(depth)
-            if separators is not None:
-                self.group_seps.value = separators
         if depth is not None or separators is not None:
+            self._quiet = True  # the fields' observers would regroup once per field
+            try:
+                if depth is not None:
+                    self.group_depth.value = int(depth)
+                if separators is not None:
+                    self.group_seps.value = separators
+            finally:
+                self._quiet = False
             self._regroup()
         self.canvas.colour_by_groups(on)
         if self.toggles["Colour by group"].value != bool(on):
