@@ -334,7 +334,8 @@ class FloorplanWidget(W.VBox):
         for wdg in (self.group_depth, self.group_seps):
             wdg.observe(lambda _c: None if self._quiet else self._ui(self._regroup), "value")
         self.toggles["Colour by group"].observe(
-            lambda ch: self._ui(lambda: self.colour_by_groups(ch["new"])), "value")
+            lambda ch: None if self._quiet else self._ui(lambda: self.colour_by_groups(ch["new"])),
+            "value")
         self.toggles["Through one cell"].observe(
             lambda ch: self._ui(lambda: self._through(ch["new"])), "value")
         self.view_box = W.VBox([
@@ -386,7 +387,7 @@ class FloorplanWidget(W.VBox):
 
     def _regroup(self) -> None:
         self.canvas.set_groups(int(self.group_depth.value), self.group_seps.value)
-        self._refresh_groups()
+        self._refresh_groups(regrouped=True)
 
     def _through(self, on: bool) -> None:
         self.canvas.show_through(on)
@@ -398,20 +399,20 @@ class FloorplanWidget(W.VBox):
 
         ``depth`` and ``separators`` regroup first (the panel's fields follow).
         """
-        if depth is not None or separators is not None:
-            self._quiet = True  # the fields' observers would regroup once per field
-            try:
-                if depth is not None:
-                    self.group_depth.value = int(depth)
-                if separators is not None:
-                    self.group_seps.value = separators
-            finally:
-                self._quiet = False
-            self._regroup()
-        self.canvas.colour_by_groups(on)
-        if self.toggles["Colour by group"].value != bool(on):
+        self._quiet = True  # the fields' own observers would redo this once per field
+        try:
+            if depth is not None:
+                self.group_depth.value = int(depth)
+            if separators is not None:
+                self.group_seps.value = separators
             self.toggles["Colour by group"].value = bool(on)
-        self._refresh_groups()
+        finally:
+            self._quiet = False
+        regroup = depth is not None or separators is not None
+        if regroup:
+            self.canvas.set_groups(int(self.group_depth.value), self.group_seps.value)
+        self.canvas.colour_by_groups(on)
+        self._refresh_groups(regrouped=regroup)
 
     def show_group(self, group) -> None:
         """Make a hierarchy group (its index or key) the flyline source and select its macros."""
@@ -425,7 +426,7 @@ class FloorplanWidget(W.VBox):
         self.canvas.focus(group)
         self._refresh_details()
 
-    def _refresh_groups(self) -> None:
+    def _refresh_groups(self, regrouped: bool = False) -> None:
         """The group list (largest 100) and the colour legend of the hierarchy groups."""
         c = self.canvas
         g = c.groups
@@ -433,8 +434,9 @@ class FloorplanWidget(W.VBox):
         order = np.argsort(-w, kind="stable")[:100]
         sizes = g.sizes
         opts = [(f"{g.label(k)} ({sizes[k]:,d})", int(k)) for k in order]
+        keep = None if regrouped else self.group_pick.value
         self.group_pick.options = opts
-        self.group_pick.value = opts[0][1] if opts else None
+        self.group_pick.value = keep if keep in order else (opts[0][1] if opts else None)
         self.group_legend.value = self.group_legend_html() if c.colour_groups else ""
 
     def group_legend_html(self) -> str:

@@ -605,10 +605,11 @@ class Canvas:
     def select(self, blocks) -> None:
         """Highlight ``blocks`` (indices) and show the flylines of their nets."""
         self.selected = np.unique(np.asarray(blocks, dtype=np.intp))
+        unfocus = self.focus_group is not None
         self.focus_group = None
         self._draw_selection()
         self._draw_flylines()
-        if self.colour_groups:
+        if unfocus and self.colour_groups:  # the logic picture showed the focus group alone
             self._draw_cells()
 
     def focus(self, group: int | None) -> None:
