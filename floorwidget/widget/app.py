@@ -410,7 +410,8 @@ class FloorplanWidget(W.VBox):
             self._quiet = False
         regroup = depth is not None or separators is not None
         if regroup:
-            self.canvas.set_groups(int(self.group_depth.value), self.group_seps.value)
+            self.canvas.set_groups(int(self.group_depth.value), self.group_seps.value,
+                                   redraw=False)
         self.canvas.colour_by_groups(on)
         self._refresh_groups(regrouped=regroup)
 

@@ -488,15 +488,19 @@ class Canvas:
             self._draw_heat("cells")
 
     # --- hierarchy --------------------------------------------------------------------------
-    def set_groups(self, depth: int = 1, separators: str = hier.SEPARATORS) -> None:
+    def set_groups(self, depth: int = 1, separators: str = hier.SEPARATORS,
+                   redraw: bool = True) -> None:
         """Group the blocks by hierarchy (:func:`floorwidget.hierarchy.hierarchy_groups`).
 
-        Colours (when shown), the flyline bundles to logic and the focus group follow.
+        Colours (when shown), the flyline bundles to logic and the focus group follow
+        (``redraw=False``: drawn by the caller's next call, e.g. :meth:`colour_by_groups`).
         """
         self._groups = hier.hierarchy_groups(self.design.names, depth, separators)
         self.focus_group = None
         self._target_of = None
         self._bundle_cache = {}
+        if not redraw:
+            return
         if self.colour_groups:
             self.colour_by_groups(True)
         elif self.interactive:
