@@ -34,7 +34,14 @@ from ..design import CELL, CLUSTER, MACRO, MOVABLE, TERMINAL, Design, Floorplan
 from ..metrics import default_channel, hpwl, pinned_illegal
 from .errors import PlacementError, PlacementWarning
 from .legalize import legalize_macros
-from .options import PlacerOptions, check_int, check_range, make_options, net_multipliers
+from .options import (
+    PlacerOptions,
+    anchor_growth_for,
+    check_int,
+    check_range,
+    make_options,
+    net_multipliers,
+)
 from .orient import choose_orientations
 from .periphery import (
     close_channels,
@@ -112,6 +119,8 @@ class _Stage:
         self.cap = capacity_map(self.grid, target, self.obstacles)
         self.wt = density_weight(self.grid, self.w, self.h, target)
         self.soft = design.kind[self.vars] == CLUSTER
+        self.growth = (anchor_growth_for(len(self.vars)) if opts.anchor_growth is None
+                       else opts.anchor_growth)
         self.area = float(np.sum(self.w * self.h * self.wt))
         c = design.core
         self.lo_x = c[0] + self.w / 2
@@ -168,7 +177,7 @@ class _Stage:
         tx = ty = None
         while it < max_it and (ov > target_overflow or it < min_it):
             tx, ty = self.lookahead(cx, cy)
-            alpha = opts.anchor_weight * (1.0 + opts.anchor_growth * (k0 + it))
+            alpha = opts.anchor_weight * (1.0 + self.growth * (k0 + it))
             wx = alpha * self.anchor_scale / np.maximum(np.abs(cx[v] - tx), self.eps_a)
             wy = alpha * self.anchor_scale / np.maximum(np.abs(cy[v] - ty), self.eps_a)
             nx, ny, _ = self.sys.solve(cx, cy, orient, anchor=(tx, ty, wx, wy),

@@ -16,7 +16,8 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["PlacerOptions", "make_options", "net_multipliers", "check_range", "check_int"]
+__all__ = ["PlacerOptions", "make_options", "net_multipliers", "check_range", "check_int",
+           "anchor_growth_for"]
 
 
 def check_range(name: str, value: Any, lo: float, hi: float, *, lo_open: bool = False,
@@ -60,7 +61,7 @@ class PlacerOptions:
         Stop spreading once the density overflow (Σ excess area ÷ movable area, on the placer's
         own bin grid) is at most this.  Default 0.10.
     max_iterations : int
-        Cap on spreading iterations per stage.  Default 60.
+        Cap on spreading iterations per stage.  Default 100.
     initial_iterations : int
         Wirelength-only Bound2Bound iterations before spreading starts.  Default 6.
     refine_iterations : int
@@ -75,9 +76,11 @@ class PlacerOptions:
     anchor_weight : float
         Initial weight of the anchor pseudo-nets to the look-ahead placement, relative to the
         average net weight of an object; it grows linearly with the iteration count.
-    anchor_growth : float
+    anchor_growth : float or None
         Added to the anchor multiplier every iteration (``anchor_weight * (1 + growth * k)``).
-        Default 2.0: at 1.0 the 10^5-cell flow took twice the iterations for 3 % less HPWL.
+        ``None`` (default): :func:`anchor_growth_for` the number of movable objects — slow
+        (0.5) for small designs, where more iterations are cheap and buy wirelength, fast (2.0)
+        from 10^5 objects on, so the flow time grows about linearly.
     bin_size : float or None
         Side of the placer's density bins (µm); ``None`` picks one from the design.
     net_weight_scale : float, mapping or array, optional
@@ -111,14 +114,14 @@ class PlacerOptions:
     """
 
     overflow_target: float = 0.10
-    max_iterations: int = 60
+    max_iterations: int = 100
     initial_iterations: int = 6
     refine_iterations: int = 2
     stall_iterations: int = 6
     cg_tol: float = 1e-4
     cg_maxiter: int = 150
     anchor_weight: float = 0.1
-    anchor_growth: float = 2.0
+    anchor_growth: float | None = None
     bin_size: float | None = None
     net_weight_scale: Any = None
     orient: bool = True
@@ -145,7 +148,8 @@ class PlacerOptions:
         if self.channel is not None:
             check_range("channel", self.channel, 0.0, 1e9)
         check_range("anchor_weight", self.anchor_weight, 0.0, 1e6, lo_open=True)
-        check_range("anchor_growth", self.anchor_growth, 0.0, 1e6)
+        if self.anchor_growth is not None:
+            check_range("anchor_growth", self.anchor_growth, 0.0, 1e6)
         if self.bin_size is not None:
             check_range("bin_size", self.bin_size, 0.0, np.inf, lo_open=True, hi_open=True)
         for name in ("orient", "legalize_macros"):
@@ -171,6 +175,14 @@ class PlacerOptions:
 
 
 _NAMES = frozenset(f.name for f in fields(PlacerOptions))
+
+
+def anchor_growth_for(num_objects: int) -> float:
+    """Default anchor growth: ``2 × n / 10^5`` clipped to [0.5, 2].  Measured (legal HPWL,
+    against growth 2.0): aes_cipher_top 1.091 -> 1.053 × its reference, ibm01-mixed 3.06e6 ->
+    2.95e6–2.98e6, ibm05 1.070e7 -> 1.056e7, at 1.5–2.5 × the global iterations; at 10^5 cells
+    and above the fast schedule stays (10^5: 16 s)."""
+    return float(np.clip(2.0 * num_objects / 1e5, 0.5, 2.0))
 
 
 def make_options(options: Mapping[str, Any] | PlacerOptions | None = None,
