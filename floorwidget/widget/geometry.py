@@ -66,7 +66,7 @@ def notch_rows(design: Design, fp: Floorplan, idx: np.ndarray,
 
 
 def _net_pins(design: Design, nets: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Pins of ``nets`` and the position in ``nets`` of each pin's net (a ragged arange)."""
+    """Pins of ``nets`` and the net of each pin (a ragged arange, no loop)."""
     starts = design.net_start[nets]
     lens = design.net_start[nets + 1] - starts
     offs = np.repeat(starts - np.cumsum(np.concatenate([[0], lens[:-1]])), lens)
