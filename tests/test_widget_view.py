@@ -87,6 +87,10 @@ def test_flylines_of_a_macro_and_of_a_group(hw):
         hw.show_group("nope")
     hw.show_group("top")  # a group with a macro selects it
     assert hw.selection == ["top/ram0"]
+    # dropping it ends the group view: the flylines come from the dropped macro again
+    cx, cy = hw.floorplan.centres()
+    hw.drop(0, cx[0] - 10.0, cy[0])
+    assert c.focus_group is None and hw.selection == ["top/ram0"]
 
 
 def test_colours_by_group_legend_and_logic_picture(hw, hand):
@@ -182,7 +186,7 @@ def test_find_by_name(hw, hand):
     assert hw.selection == ["blk/ram1"]
     hw.find_text.value = " "
     hw.buttons["Find"].click()
-    assert "Type a block name" in hw.message.value
+    assert "Type a block name" in hw.message.value and c.found.size == 0
 
 
 def test_png_decodes_to_the_same_pixels():

@@ -364,7 +364,8 @@ class FloorplanWidget(W.VBox):
         d, c = self.design, self.canvas
         try:
             found, exact = hier.find_blocks(d.names, query)
-        except ValueError as e:
+        except ValueError as e:  # an empty query: also takes the rings away
+            c.mark_found([])
             self.notify(str(e), error=True)
             return []
         found = np.concatenate([found[d.kind[found] == MACRO], found[d.kind[found] != MACRO]])
@@ -859,6 +860,7 @@ class FloorplanWidget(W.VBox):
         moved = []
         # the dropped macros become the selection; the change event below draws it once
         self.canvas.selected = np.unique(grp)
+        self.canvas.focus_group = None
         try:
             with s.batch(label):
                 for j, nm in zip(grp, names):
