@@ -71,24 +71,21 @@ class _Parser(argparse.ArgumentParser):
 _SEED_MAX = 2**32 - 1  # what numpy's seeding takes
 
 
-def _density(text: str) -> float:
-    try:
-        v = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"not a number: {text!r}") from None
-    if not (math.isfinite(v) and 0.0 < v <= 1.0):
-        raise argparse.ArgumentTypeError(f"must be a number in (0, 1], got {text!r}")
-    return v
+def _number(lo: float, hi: float, lo_open: bool, what: str):
+    """An argparse type: a finite float in ``[lo, hi]`` (``(lo, hi]`` when ``lo_open``)."""
+    def parse(text: str) -> float:
+        try:
+            v = float(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"not a number: {text!r}") from None
+        if not (math.isfinite(v) and (v > lo if lo_open else v >= lo) and v <= hi):
+            raise argparse.ArgumentTypeError(f"must be {what}, got {text!r}")
+        return v
+    return parse
 
 
-def _channel(text: str) -> float:
-    try:
-        v = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"not a number: {text!r}") from None
-    if not (math.isfinite(v) and 0.0 <= v <= 1e9):
-        raise argparse.ArgumentTypeError(f"must be a number of µm in [0, 1e9], got {text!r}")
-    return v
+_density = _number(0.0, 1.0, True, "a number in (0, 1]")
+_channel = _number(0.0, 1e9, False, "a number of µm in [0, 1e9]")
 
 
 def _seed(text: str) -> int:

@@ -132,11 +132,7 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
     """
     fmt = None
     if path is not None:
-        path = Path(path)
-        fmt = SUFFIXES.get(path.suffix.lower())
-        if fmt is None:
-            raise DesignError(f"cannot render to a {path.suffix or 'suffix-less'} file: use .png "
-                              "or .svg", file=str(path))
+        path, fmt = _picture_path(path)
         if not (path.parent if str(path.parent) else Path(".")).is_dir():
             raise DesignError(f"folder {path.parent} does not exist", file=str(path))
     if heat not in (None, "density", "congestion"):
@@ -447,17 +443,23 @@ def side_by_side(design: Design, floorplans: dict, path=None, *, heat: str | Non
         ax = fig.add_axes((j / k + 0.04 / k, 0.08, plot_w, 0.72))
         render(design, fp, ax=ax, heat=heat, title=str(title), channel=channel)
     if path is not None:
-        path = Path(path)
-        fmt = SUFFIXES.get(path.suffix.lower())
-        if fmt is None:
-            raise DesignError(f"cannot render to a {path.suffix or 'suffix-less'} file: use .png "
-                              "or .svg", file=str(path))
+        path, fmt = _picture_path(path)
         from .formats._io import atomic_write
 
         meta = {"Date": None} if fmt == "svg" else {}
         with atomic_write(path, "wb") as f:
             fig.savefig(f, format=fmt, dpi=dpi, metadata=meta, bbox_inches="tight")
     return fig
+
+
+def _picture_path(path) -> tuple[Path, str]:
+    """The output path and its picture format; a :class:`DesignError` for another suffix."""
+    path = Path(path)
+    fmt = SUFFIXES.get(path.suffix.lower())
+    if fmt is None:
+        raise DesignError(f"cannot render to a {path.suffix or 'suffix-less'} file: use .png "
+                          "or .svg", file=str(path))
+    return path, fmt
 
 
 class _CallableModule(types.ModuleType):
