@@ -447,7 +447,7 @@ def _gather_unconnected(st: _Stage, cx, cy) -> None:
     if fl.any():
         cx[v[fl]] += centre[0] - np.average(cx[v[fl]], weights=a[fl])
         cy[v[fl]] += centre[1] - np.average(cy[v[fl]], weights=a[fl])
-        st.sys.core_centre = centre
+        st.sys.pull_to = centre
     cx[v[lone]] = centre[0]
     cy[v[lone]] = centre[1]
 

@@ -484,12 +484,23 @@ def _bbox_after(net, N, bx, by, osign, a, ax, ay, asg, b, bxx, byy, bsg):
                 ny1 = max(ny1, y)
         if inside:
             return nx0, nx1, ny0, ny1
+    return _scan_box(net, ns, pb, pdx, pdy, bx, by, osign, -1, a, ax, ay, asg, b, bxx, byy,
+                     bsg)
+
+
+@njit(cache=True)
+def _scan_box(net, ns, pb, pdx, pdy, bx, by, osign, skip, a, ax, ay, asg, b, bxx, byy, bsg):
+    """Bounding box ``x0, x1, y0, y1`` of ``net`` from all its pins, leaving out block
+    ``skip`` and with blocks ``a`` and ``b`` at the centres given (-1: none); an empty box has
+    ``x0 > x1``."""
     x0 = np.inf
     x1 = -np.inf
     y0 = np.inf
     y1 = -np.inf
     for p in range(ns[net], ns[net + 1]):
         k = pb[p]
+        if k == skip:
+            continue
         if k == a:
             x = ax + pdx[p]
             y = ay + asg * pdy[p]
@@ -542,20 +553,8 @@ def _median_target(i, N, bx, by, osign, maxdeg, buf_x, buf_y):
         net = bnets[t]
         if ns[net + 1] - ns[net] > maxdeg:
             continue
-        x0 = np.inf
-        x1 = -np.inf
-        y0 = np.inf
-        y1 = -np.inf
-        for p in range(ns[net], ns[net + 1]):
-            k = pb[p]
-            if k == i:
-                continue
-            x = bx[k] + pdx[p]
-            y = by[k] + osign[k] * pdy[p]
-            x0 = min(x0, x)
-            x1 = max(x1, x)
-            y0 = min(y0, y)
-            y1 = max(y1, y)
+        x0, x1, y0, y1 = _scan_box(net, ns, pb, pdx, pdy, bx, by, osign, i, -1, 0.0, 0.0, 1.0,
+                                   -1, 0.0, 0.0, 1.0)
         if x0 > x1:
             continue
         buf_x[m] = x0

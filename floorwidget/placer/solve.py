@@ -191,7 +191,7 @@ class QuadraticSystem:
         self.pins_of_var = np.bincount(pv[pv >= 0], minlength=nv).astype(np.float64)
         self.floating = self._floating()
         c = design.core
-        self.core_centre = ((c[0] + c[2]) / 2, (c[1] + c[3]) / 2)
+        self.pull_to = ((c[0] + c[2]) / 2, (c[1] + c[3]) / 2)  # floating groups' target
         span = (c[2] - c[0]) + (c[3] - c[1])
         self.eps = 1e-5 * span
 
@@ -255,7 +255,7 @@ class QuadraticSystem:
             base = diag[fl].mean() if (diag[fl] > 0).any() else 1.0
             pull = PULL * np.where(diag[fl] > 0, diag[fl], base)
             diag[fl] += pull
-            rhs[fl] += pull * self.core_centre[axis]
+            rhs[fl] += pull * self.pull_to[axis]
         low = diag <= 0  # only isolated variables without anchor: keep them where they are
         if low.any():
             diag[low] = 1.0

@@ -21,6 +21,7 @@ from __future__ import annotations
 
 import numpy as np
 import scipy.sparse as sp
+from scipy.sparse.csgraph import connected_components
 
 from ..metrics import BinGrid
 
@@ -468,8 +469,6 @@ def _merge(B: np.ndarray) -> tuple[np.ndarray, bool]:
         np.fill_diagonal(hit, False)
         if not hit.any():
             break
-        from scipy.sparse.csgraph import connected_components
-
         k, lab = connected_components(sp.csr_array(hit), directed=False)
         nb = np.empty((k, 4), np.int64)
         for col, fn in ((0, np.minimum), (2, np.minimum), (1, np.maximum), (3, np.maximum)):
