@@ -150,15 +150,20 @@ _HANDLES_JS = """
 """
 
 
-def test_drag_moves_macro_in_real_browser(lab, browser, artifacts):
+def _on_new_page(browser, check, lab, artifacts, failure_png: str) -> None:
+    """Run ``check(page, lab, artifacts)`` on a fresh page; a screenshot when it fails."""
     page = browser.new_page(viewport={"width": 1600, "height": 1100})
     try:
-        _drag_check(page, lab, artifacts)
+        check(page, lab, artifacts)
     except BaseException:
-        page.screenshot(path=str(artifacts / "browser_failure.png"))
+        page.screenshot(path=str(artifacts / failure_png))
         raise
     finally:
         page.close()
+
+
+def test_drag_moves_macro_in_real_browser(lab, browser, artifacts):
+    _on_new_page(browser, _drag_check, lab, artifacts, "browser_failure.png")
 
 
 def _open_notebook(page, lab) -> tuple[dict, list]:
@@ -269,14 +274,7 @@ def _drag_check(page, lab, artifacts):
 
 
 def test_align_and_typed_position_in_real_browser(lab, browser, artifacts):
-    page = browser.new_page(viewport={"width": 1600, "height": 1100})
-    try:
-        _arrange_check(page, lab, artifacts)
-    except BaseException:
-        page.screenshot(path=str(artifacts / "browser_arrange_failure.png"))
-        raise
-    finally:
-        page.close()
+    _on_new_page(browser, _arrange_check, lab, artifacts, "browser_arrange_failure.png")
 
 
 def _arrange_check(page, lab, artifacts):
