@@ -291,9 +291,38 @@ def place(design: Design, floorplan: Floorplan | None = None, *, target_density:
     """
     t_all = time.perf_counter()
     src, target, opts, mult = _start(design, floorplan, target_density, seed, options)
-    out = src.copy()
     info: dict[str, Any] = {"stage_seconds": {}, "stage_iterations": {},
                             "channel": _channel(design, opts)}
+    if use_multilevel(design, src, opts.multilevel):
+        from .multilevel import place_multilevel
+
+        out, legalized, final_ov = place_multilevel(design, src, target, opts, mult, seed,
+                                                    info, progress)
+    else:
+        out, legalized, final_ov = _place_flat(design, src, target, opts, mult, seed, info,
+                                               progress)
+    out = _rows_stage(design, out, src, opts, target, info, progress)
+    return _finish(design, out, src, info, legalized, final_ov, t_all, target, seed)
+
+
+MULTILEVEL_MIN = 200_000  # "auto" places designs of at least this many movable cells multilevel
+
+
+def use_multilevel(design: Design, fp: Floorplan, mode: str) -> bool:
+    """Whether :func:`place` runs the multilevel flow: ``mode`` "on"/"off", or "auto" from
+    :data:`MULTILEVEL_MIN` movable standard cells on (DEVELOPERS.md has the measurements)."""
+    if mode != "auto":
+        return mode == "on"
+    return int(np.count_nonzero((fp.status == MOVABLE) & (design.kind == CELL))) \
+        >= MULTILEVEL_MIN
+
+
+def _place_flat(design: Design, src: Floorplan, target: float, opts: PlacerOptions, mult,
+                seed: int, info: dict, progress: Progress) -> tuple[Floorplan, bool, float]:
+    """Global placement of every movable block, then the macros arranged and legalised and
+    the cells and clusters re-spread around them; returns ``(floorplan, legalized,
+    overflow)``."""
+    out = src.copy()
     movable = (src.status == MOVABLE) & (design.kind != TERMINAL)
     mov_idx = np.flatnonzero(movable)
 
@@ -337,8 +366,7 @@ def place(design: Design, floorplan: Floorplan | None = None, *, target_density:
             info["bins"] = res2["bins"]
         info["stage_seconds"]["cells"] = time.perf_counter() - t0
         _report(progress, "cells", 1.0, {"overflow": final_ov})
-    out = _rows_stage(design, out, src, opts, target, info, progress)
-    return _finish(design, out, src, info, legalized, final_ov, t_all, target, seed)
+    return out, legalized, final_ov
 
 
 AUTO_MAX_MACROS = 128     # "auto" arranges at most this many movable macros on the periphery

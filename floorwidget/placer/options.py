@@ -111,6 +111,11 @@ class PlacerOptions:
     detail_passes : int
         Most passes of detailed placement after row legalisation (0: none); passes stop
         earlier once one saves less than 0.2 % of the HPWL.  Default 8.
+    multilevel : {"auto", "on", "off"}
+        ``"on"`` places a clustered version of the design first (see
+        :mod:`floorwidget.placer.multilevel`) and refines it level by level down to the cells;
+        ``"auto"`` (default) does so for designs of
+        :data:`floorwidget.placer.flow.MULTILEVEL_MIN` movable cells or more.
     """
 
     overflow_target: float = 0.10
@@ -130,6 +135,7 @@ class PlacerOptions:
     macro_layout: str = "auto"
     channel: float | None = None
     detail_passes: int = 8
+    multilevel: str = "auto"
 
     def __post_init__(self):
         check_range("overflow_target", self.overflow_target, 0.0, 1.0)
@@ -142,6 +148,9 @@ class PlacerOptions:
         check_int("detail_passes", self.detail_passes, 0, 100)
         if self.cells not in ("legal", "global"):
             raise ValueError(f"option 'cells' must be 'legal' or 'global', got {self.cells!r}")
+        if self.multilevel not in ("auto", "on", "off"):
+            raise ValueError("option 'multilevel' must be 'auto', 'on' or 'off', "
+                             f"got {self.multilevel!r}")
         if self.macro_layout not in ("auto", "periphery", "free"):
             raise ValueError("option 'macro_layout' must be 'auto', 'periphery' or 'free', "
                              f"got {self.macro_layout!r}")
