@@ -1,14 +1,14 @@
 """Multilevel placement for large designs: place a clustered netlist, then uncoarsen.
 
 The design is coarsened (:func:`~floorwidget.placer.coarsen.coarsen`) to about
-:data:`TOP_BLOCKS` blocks (a quarter of the design at most).  The coarsest level goes through
-the whole flat flow — global placement, macro orientation, arrangement and legalisation, the
-re-spread of the clusters around the macros — so every floorplanning decision is taken on a netlist small enough to
-place in seconds.  Then, level by level, the members of each cluster start at its place and a
-short warm-started spreading run (anchored to the look-ahead positions from the start, so the
-arrangement found above is kept) refines them; the macros stay where the coarsest level put
-them.  The last level is the input design; :func:`~floorwidget.placer.flow.place` then puts the
-cells on rows as in the flat flow.
+:data:`TOP_BLOCKS` blocks (a quarter of the design at most). The coarsest level goes through the
+whole flat flow — global placement, macro orientation, arrangement and legalisation, the
+re-spread of the clusters around the macros — so every floorplanning decision is taken on a
+netlist small enough to place in seconds. Then, level by level, the members of each cluster
+start at its place and a short warm-started spreading run (anchored to the look-ahead positions
+from the start, so the arrangement found above is kept) refines them; the macros stay where the
+coarsest level put them. The last level is the input design;
+:func:`~floorwidget.placer.flow.place` then puts the cells on rows as in the flat flow.
 
 References
 ----------
