@@ -49,6 +49,7 @@ import numpy as np
 
 from . import arrange
 from .design import (
+    CELL,
     FIXED,
     MACRO,
     MOVABLE,
@@ -280,6 +281,27 @@ def _clamp(v: float, size: float, lo: float, hi: float) -> float:
     return float(min(max(v, lo), max(lo, hi - size)))
 
 
+#: A session works on the clustered design (see ``Session(clustered=)``) from this many movable
+#: standard cells on: the multilevel flow's threshold, where a flat refine takes seconds.
+CLUSTER_FROM = 200_000
+
+
+def _large(design: Design, fp: Floorplan) -> bool:
+    """Whether a design is large enough for a session on its clusters."""
+    return int(np.count_nonzero((fp.status == MOVABLE) & (design.kind == CELL))) >= CLUSTER_FROM
+
+
+_EXPAND_POOL = None
+
+
+def _expand_pool():
+    global _EXPAND_POOL
+    if _EXPAND_POOL is None:
+        from concurrent.futures import ThreadPoolExecutor  # noqa: PLC0415
+        _EXPAND_POOL = ThreadPoolExecutor(max_workers=1, thread_name_prefix="floorwidget-expand")
+    return _EXPAND_POOL
+
+
 def _now() -> str:
     return _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds")
 
@@ -298,10 +320,23 @@ class Session:
         Starting floorplan (default: ``design.initial``).  It is copied, never modified.
     target_density : float
         Used by :attr:`report` and as the default of :meth:`place` and :meth:`refine`.
+    clustered : bool, optional
+        Work on a clustered version of the design (:func:`floorwidget.placer.coarsen`):
+        :attr:`design` is then the coarsest level — macros, terminals, pinned and fixed blocks
+        as they are, the standard cells merged into soft clusters of about equal area — so
+        moves, refine and the readouts stay interactive on designs of millions of cells;
+        :meth:`expand` places the cells of the full design.  Default: clustered from
+        :data:`CLUSTER_FROM` movable standard cells on.  A clustered session places with
+        ``cells="global"`` unless told otherwise.
 
     Attributes
     ----------
     design : Design
+        The design edited: the input design, or its clustered version.
+    full_design : Design
+        The input design.
+    clustering : Clustering or None
+        The levels of the clustered version (``None`` for a flat session).
     target_density : float
     progress : callable or None
         Default ``progress(stage, fraction, info)`` for placer calls (e.g. the widget's bar).
@@ -323,13 +358,25 @@ class Session:
     """
 
     def __init__(self, design: Design, floorplan: Floorplan | None = None, *,
-                 target_density: float = 0.8):
+                 target_density: float = 0.8, clustered: bool | None = None):
         if not isinstance(design, Design):
             raise TypeError(f"Session needs a Design, got {type(design).__name__}")
         fp = design.initial if floorplan is None else floorplan
         if fp.design is not design:
             raise DesignError("the floorplan belongs to another design "
                               f"({fp.design.name!r}, not {design.name!r})")
+        self.full_design = design
+        self.clustering = None
+        self._full_floorplan = _freeze(fp.copy())
+        self._expanded: tuple[int, Floorplan] | None = None
+        if clustered is None:
+            clustered = _large(design, fp)
+        if clustered:
+            from .placer.coarsen import coarsen  # noqa: PLC0415
+            from .placer.multilevel import top_blocks  # noqa: PLC0415
+            self.clustering = coarsen(design, fp, target_blocks=top_blocks(design), seed=0)
+            design = self.clustering.coarsest
+            fp = design.initial
         self.design = design
         self.target_density = _density(target_density)
         self.progress: Callable | None = None
@@ -345,7 +392,7 @@ class Session:
         self._reports: OrderedDict[int, dict] = OrderedDict()
         self._batches: list[_Batch] = []
         self._source = os.path.abspath(design.source) if design.source else None
-        self._lef = [os.path.abspath(p) for p in design.lef_files]
+        self._lef = [os.path.abspath(p) for p in self.full_design.lef_files]
         self._lock = threading.RLock()
 
     # --- state ---------------------------------------------------------------------------------
@@ -358,6 +405,53 @@ class Session:
     def initial(self) -> Floorplan:
         """The floorplan the session started from (read-only)."""
         return self._initial
+
+    @property
+    def clustered(self) -> bool:
+        """Whether the session edits the clustered version of its design."""
+        return self.clustering is not None
+
+    @property
+    def expanded(self) -> Floorplan | None:
+        """The full design's floorplan from the last :meth:`expand`, when it was made from the
+        current floorplan (``None`` otherwise, and always for a flat session)."""
+        e = self._expanded
+        return e[1] if e is not None and e[0] == self._state_id else None
+
+    def expand(self, *, target_density: float | None = None, seed: int = 0,
+               progress: Callable | None = None, wait: bool = True, **options):
+        """Place every cell of the full design around the current floorplan of the clusters
+        (:func:`floorwidget.placer.expand`): macros, pinned and fixed blocks stay exactly where
+        they are here; the cells are uncoarsened level by level and put on rows.
+
+        The session's own floorplan does not change (nothing to undo); the result is
+        :attr:`expanded` and is returned.  ``wait=False`` runs it in a background thread and
+        returns a :class:`concurrent.futures.Future` at once (the notebook stays free).
+        ``progress(stage, fraction, info)`` as for :meth:`place`.
+
+        Raises
+        ------
+        DesignError
+            For a flat session (its floorplan already holds every cell).
+        """
+        if self.clustering is None:
+            raise DesignError(f"session of {self.design.name!r} is not clustered; its "
+                              "floorplan already places every block")
+        from .placer.multilevel import expand as _expand  # noqa: PLC0415
+        opts = {"target_density": self.target_density if target_density is None
+                else _density(target_density), "seed": int(seed), **options}
+        opts = {k: _plain(v, f"expand option {k!r}") for k, v in opts.items()}
+        with self._lock:
+            fp, sid = self._fp, self._state_id
+        prog = progress or self.progress
+
+        def run() -> Floorplan:
+            full = _expand(self.clustering, fp, self._full_floorplan, progress=prog, **opts)
+            with self._lock:
+                self._expanded = (sid, full)
+            return full
+
+        return run() if wait else _expand_pool().submit(run)
 
     @property
     def report(self) -> dict:
@@ -776,6 +870,8 @@ class Session:
         from .placer import place as _place  # noqa: PLC0415
         opts = {"target_density": self.target_density if target_density is None
                 else _density(target_density), "seed": int(seed), **options}
+        if self.clustering is not None:
+            opts.setdefault("cells", "global")
         self._run_placer("place", _place, opts, progress or self.progress)
 
     def refine(self, *, target_density: float | None = None, seed: int = 0,
@@ -784,6 +880,8 @@ class Session:
         from .placer import refine as _refine  # noqa: PLC0415
         opts = {"target_density": self.target_density if target_density is None
                 else _density(target_density), "seed": int(seed), **options}
+        if self.clustering is not None:
+            opts.setdefault("cells", "global")
         self._run_placer("refine", _refine, opts, progress or self.progress)
 
     def legalize(self, **options) -> None:

@@ -6,7 +6,7 @@ Session file layout (JSON, version 1)::
       "format": "floorwidget-session", "version": 1, "saved": "2026-...Z",
       "design": {"name": .., "source": "/abs/path.json", "source_relative": "../x.json",
                  "lef": ["/abs/tech.lef", ..], "lef_relative": ["../tech.lef", ..],
-                 "num_blocks": n, "fingerprint": "sha256 hex"},
+                 "num_blocks": n, "fingerprint": "sha256 hex", "clustered": false},
       "target_density": 0.8,
       "codes": {"orient": ["N", "S", ...], "status": ["movable", "pinned", "fixed"]},
       "initial": FLOORPLAN, "current": FLOORPLAN,
@@ -22,6 +22,9 @@ Session file layout (JSON, version 1)::
     (an array longer than 20,000 entries is {"dtype": "<f8" | "|i1", "base64": ".."} instead:
     the raw little-endian bytes, exact and a tenth of the time to write and read)
     STEP = {"action": .., "idx": [..], "old": FLOORPLAN-of-idx, "new": FLOORPLAN-of-idx}
+
+A clustered session (``"clustered": true``) stores floorplans of the clustered design; loading
+clusters the design file again (deterministic) and checks the fingerprint of the result.
 
 Floats are written by :mod:`json` with ``repr``, which round-trips float64 exactly.  Orientation
 and status are the integer codes listed under ``"codes"``.
@@ -145,7 +148,8 @@ def session_document(session: Session, path: Path | None = None) -> dict:
         "design": {"name": d.name, "source": src, "source_relative": rel,
                    "lef": list(session._lef),
                    "lef_relative": [_relative(p, path) for p in session._lef],
-                   "num_blocks": d.num_blocks, "fingerprint": design_fingerprint(d)},
+                   "num_blocks": d.num_blocks, "fingerprint": design_fingerprint(d),
+                   "clustered": session.clustered},
         "target_density": session.target_density,
         "codes": {"orient": list(ORIENTATIONS), "status": list(STATUS_NAMES)},
         "initial": fp_full(session._initial),
@@ -373,6 +377,13 @@ def load_session(cls, path, design: Design | None = None) -> Session:
     ref = doc.obj(doc.get(root, "design", "(top)"), "design")
     if design is None:
         design = _find_design(doc, p, ref)
+    clustered = doc.get(ref, "clustered", "design", False)
+    if not isinstance(clustered, bool):
+        doc.fail("design.clustered", f"expected true or false, got {clustered!r}")
+    base = None
+    if clustered:  # the same clustering again (it is deterministic), then its coarsest level
+        base = cls(design, clustered=True)
+        design = base.design
     n = doc.get(ref, "num_blocks", "design")
     if n != design.num_blocks:
         doc.fail("design.num_blocks", f"the session has {n!r} blocks, design {design.name!r} "
@@ -436,7 +447,12 @@ def load_session(cls, path, design: Design | None = None) -> Session:
             if not ok:
                 doc.fail(f"history.{which}", "does not match the current floorplan")
 
-    s = cls(design, initial, target_density=float(td))
+    if base is None:
+        s = cls(design, initial, target_density=float(td), clustered=False)
+    else:
+        s = base
+        s.target_density = float(td)
+        s._initial = _freeze(initial)
     s._fp = _freeze(current)
     s._alts = {a.label: a for a in alts}
     s._log = log
@@ -478,7 +494,8 @@ def _call(entry: dict, indent: str) -> list[str]:
 
 
 def script_text(session: Session) -> str:
-    d = session.design
+    from .session import _large  # noqa: PLC0415
+    d = session.full_design
     lines = [
         "# Replays a floorwidget session: same design, same actions, same floorplan.",
         f"# Generated {_now()}; figures are early-floorplanning estimates, not sign-off.",
@@ -489,11 +506,14 @@ def script_text(session: Session) -> str:
         f"assert design.num_blocks == {d.num_blocks}, 'the design file has changed'",
     ]
     args = ["design"]
-    if not session._initial.identical(d.initial):
-        lines.append(f"initial = {_lit(session._initial)}")
+    start = session._full_floorplan if session.clustered else session._initial
+    if not start.identical(d.initial):
+        lines.append(f"initial = {_lit(start)}")
         args.append("initial")
     if session.target_density != 0.8:
         args.append(f"target_density={session.target_density!r}")
+    if session.clustered != _large(d, start):
+        args.append(f"clustered={session.clustered!r}")
     lines.append(f"session = fw.Session({', '.join(args)})")
     for e in session._log:
         lines.extend(_call(e, ""))

@@ -137,3 +137,71 @@ def test_multilevel_never_moves_pinned_blocks(small):
     assert np.array_equal(out.x[pinned], fp.x[pinned])
     assert np.array_equal(out.y[pinned], fp.y[pinned])
     assert np.array_equal(out.orient[pinned], fp.orient[pinned])
+
+
+# --- a session on the clustered design ------------------------------------------------------
+
+
+@pytest.fixture(scope="module")
+def clustered_session(small, tmp_path_factory):
+    import floorwidget as fw
+    from floorwidget.session import Session
+
+    path = tmp_path_factory.mktemp("ml") / "small.json"
+    fw.save(small, None, path)
+    design = fw.load(path)
+    s = Session(design, clustered=True)
+    s.place(seed=0)
+    return s
+
+
+def test_clustered_session_edits_the_clusters_and_expands(clustered_session):
+    s = clustered_session
+    full = s.full_design
+    assert s.clustered and s.design is s.clustering.coarsest
+    assert s.design.num_blocks < full.num_blocks
+    assert set(full.macros) == set(s.design.macros)         # macros are never merged
+    m = s.design.macros[0]
+    i = s.design.block(m)
+    s.move(m, s.floorplan.x[i] + 17.0, s.floorplan.y[i] + 9.0)
+    s.pin(m)
+    assert s.expanded is None
+    fut = s.expand(wait=False)                                # background: a Future at once
+    out = fut.result(timeout=300)
+    assert s.expanded is out
+    j = full.block(m)
+    assert (out.x[j], out.y[j], out.orient[j]) == (s.floorplan.x[i], s.floorplan.y[i],
+                                                   s.floorplan.orient[i])
+    rep = metrics.evaluate(full, out)
+    assert rep["legal"], {k: rep[k] for k in ("macro_overlaps", "cell_overlaps",
+                                             "cells_off_row")}
+    s.undo()                       # another state: the expansion is no longer current
+    assert s.expanded is None
+
+
+def test_flat_session_refuses_expand(small):
+    from floorwidget.design import DesignError
+    from floorwidget.session import Session
+
+    s = Session(small)
+    assert not s.clustered and s.design is small
+    with pytest.raises(DesignError, match="not clustered"):
+        s.expand()
+
+
+def test_clustered_session_saves_loads_and_replays(clustered_session, tmp_path):
+    import floorwidget as fw
+    from floorwidget.session import Session
+
+    s = clustered_session
+    s.shift(s.design.macros[:2], 3.0, 0.0)
+    f = tmp_path / "s.fwsession"
+    s.save(f)
+    back = Session.load(f)
+    assert back.clustered and back.design.num_blocks == s.design.num_blocks
+    assert back.floorplan.identical(s.floorplan)
+    ns: dict = {}
+    exec(s.script(), ns)                                     # noqa: S102 - our own script
+    assert ns["session"].clustered
+    assert ns["session"].floorplan.identical(s.floorplan)
+    assert fw.Session is Session

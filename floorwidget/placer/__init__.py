@@ -11,9 +11,11 @@ from __future__ import annotations
 
 from . import legalize as _legalize_module  # noqa: F401  (import the submodules first, so
 from . import orient as _orient_module  # noqa: F401  their names never shadow the functions)
+from .coarsen import Clustering, coarsen
 from .errors import PlacementError, PlacementWarning
 from .flow import legalize, place, refine
+from .multilevel import expand
 from .options import PlacerOptions, make_options
 
-__all__ = ["PlacementError", "PlacementWarning", "PlacerOptions", "legalize", "make_options",
-           "place", "refine"]
+__all__ = ["Clustering", "PlacementError", "PlacementWarning", "PlacerOptions", "coarsen",
+           "expand", "legalize", "make_options", "place", "refine"]

@@ -131,7 +131,7 @@ def _clique_edges(design: Design, free: np.ndarray, max_degree: int):
     on = free[pb]
     pb, net = pb[on], net[on]
     # distinct (net, block) pins: a block with two pins on one net counts once
-    key = np.unique(net.astype(np.int64) * design.num_blocks + pb)
+    key = _unique_sorted(net.astype(np.int64) * design.num_blocks + pb)
     net = key // design.num_blocks
     pb = key % design.num_blocks
     deg = np.bincount(net, minlength=design.num_nets)
@@ -157,15 +157,26 @@ def _clique_edges(design: Design, free: np.ndarray, max_degree: int):
     return np.concatenate(us), np.concatenate(vs), np.concatenate(ws)
 
 
+def _unique_sorted(a: np.ndarray) -> np.ndarray:
+    """Sorted distinct values of an integer array (a sort and a diff: faster than a hash
+    table on millions of keys)."""
+    a = np.sort(a)
+    return a[np.r_[True, a[1:] != a[:-1]]] if len(a) else a
+
+
 def _best(rows, cols, score, n):
-    """Best column of every row (highest score; -1 where a row has no candidate)."""
+    """Best column of every row (highest score, the first one on ties; -1 where a row has no
+    candidate).  ``rows`` must be sorted (as a CSR matrix's expanded rows are)."""
     best = np.full(n, -1, np.int64)
     if not len(rows):
         return best
-    order = np.lexsort((-score, rows))
-    r = rows[order]
-    firsts = np.flatnonzero(np.r_[True, r[1:] != r[:-1]])
-    best[r[firsts]] = cols[order[firsts]]
+    first = np.flatnonzero(np.r_[True, rows[1:] != rows[:-1]])
+    top = np.maximum.reduceat(score, first)
+    seg = np.cumsum(np.r_[True, rows[1:] != rows[:-1]]) - 1   # segment of every entry
+    hit = np.flatnonzero(score == top[seg])
+    keep = np.r_[True, seg[hit[1:]] != seg[hit[:-1]]]
+    hit = hit[keep]
+    best[rows[hit]] = cols[hit]
     return best
 
 
@@ -226,7 +237,7 @@ def coarsen_level(design: Design, fp: Floorplan, max_area: float, *, seed: int =
         j = np.flatnonzero(best >= 0)
         if len(j):
             tgt = best[j]
-            order = np.lexsort((j, tgt))
+            order = np.argsort(tgt, kind="stable")  # j ascending within a target
             j, tgt = j[order], tgt[order]
             cum = np.cumsum(area[j])
             first = np.r_[True, tgt[1:] != tgt[:-1]]
@@ -279,7 +290,7 @@ def contract(design: Design, fp: Floorplan, leader: np.ndarray, level: int
     keep = np.sort(order[~dup])
     net, pb, dx, dy = net[keep], pb[keep], dx[keep], dy[keep]
     # nets that now touch one block only are gone
-    ukey = np.unique(net * nc + pb)
+    ukey = _unique_sorted(net * nc + pb)
     nblk = np.bincount(ukey // nc, minlength=design.num_nets)
     live = nblk >= 2
     on = live[net]
