@@ -205,3 +205,21 @@ def test_clustered_session_saves_loads_and_replays(clustered_session, tmp_path):
     assert ns["session"].clustered
     assert ns["session"].floorplan.identical(s.floorplan)
     assert fw.Session is Session
+
+
+def test_algebraic_distance_separates_loosely_joined_groups():
+    """Two 6-cliques joined by one edge: the algebraic distance across the bridge exceeds
+    every distance inside a clique (the property algebraic distance is built on: Chen, Safro,
+    SIAM J. Sci. Comput. 33(6), 2011)."""
+    from floorwidget.design import CELL, Design
+    from floorwidget.placer.coarsen import algebraic_coordinates
+
+    nets = [(a, b) for g in (range(6), range(6, 12)) for a in g for b in g if a < b]
+    nets.append((5, 6))
+    d = Design("two", (0, 0, 100, 100), [f"c{i}" for i in range(12)], [CELL] * 12,
+               np.ones(12), np.ones(12), np.arange(0, 2 * len(nets) + 1, 2),
+               np.array(nets).ravel(), np.zeros(2 * len(nets)), np.zeros(2 * len(nets)))
+    X = algebraic_coordinates(d, np.ones(12, bool), iterations=30, seed=4)
+    dist = np.abs(X[:, None, :] - X[None, :, :]).max(axis=2)
+    inside = max(dist[np.ix_(g, g)].max() for g in (range(6), range(6, 12)))
+    assert dist[5, 6] > inside

@@ -54,6 +54,7 @@ The format as used by the ISPD placement contests: Nam, Alpert, Villarrubia, Win
 
 from __future__ import annotations
 
+import itertools
 import re
 import warnings
 from concurrent.futures import ThreadPoolExecutor
@@ -972,14 +973,60 @@ def _ni(design: Design) -> np.ndarray:
     return design.kind == TERMINAL
 
 
-def _pl_text(design: Design, fp: Floorplan) -> str:
+CHUNK = 1 << 18  # lines formatted at a time: the text of a 10^7-cell design is never whole
+
+
+def _pl_chunks(design: Design, fp: Floorplan):
     d = design
+    yield "UCLA pl 1.0\n# written by floorwidget\n\n"
     fixed = fp.status != MOVABLE
-    flag = np.where(fixed, np.where(_ni(d), " /FIXED_NI", " /FIXED"), "").tolist()
-    orn = np.array(ORIENTATIONS, dtype=object)[fp.orient].tolist()
-    body = "".join(f"{nm} {x} {y} : {o}{f}\n"
-                   for nm, x, y, o, f in zip(d.names, _r(fp.x), _r(fp.y), orn, flag))
-    return "UCLA pl 1.0\n# written by floorwidget\n\n" + body
+    ni = _ni(d)
+    orn = np.array(ORIENTATIONS, dtype=object)
+    for a in range(0, d.num_blocks, CHUNK):
+        b = min(a + CHUNK, d.num_blocks)
+        flag = np.where(fixed[a:b], np.where(ni[a:b], " /FIXED_NI", " /FIXED"), "").tolist()
+        yield "".join(f"{nm} {x} {y} : {o}{f}\n" for nm, x, y, o, f in
+                      zip(d.names[a:b], _r(fp.x[a:b]), _r(fp.y[a:b]),
+                          orn[fp.orient[a:b]].tolist(), flag))
+
+
+def _pl_text(design: Design, fp: Floorplan) -> str:
+    return "".join(_pl_chunks(design, fp))
+
+
+def _nodes_chunks(d: Design, tflag: np.ndarray):
+    for a in range(0, d.num_blocks, CHUNK):
+        b = min(a + CHUNK, d.num_blocks)
+        yield "".join(f"{nm} {w} {h}{t}\n" for nm, w, h, t in
+                      zip(d.names[a:b], _r(d.width[a:b]), _r(d.height[a:b]),
+                          tflag[a:b].tolist()))
+
+
+def _nets_chunks(d: Design):
+    """The ``.nets`` body, a few hundred thousand nets at a time."""
+    deg = d.net_degree
+    m = d.num_nets
+    for a in range(0, m, CHUNK):
+        b = min(a + CHUNK, m)
+        p0, p1 = int(d.net_start[a]), int(d.net_start[b])
+        names = [d.names[i] for i in d.pin_block[p0:p1].tolist()]
+        pins = [f"  {nm} B : {x} {y}\n" for nm, x, y in
+                zip(names, _r(d.pin_dx[p0:p1]), _r(d.pin_dy[p0:p1]))]
+        out = np.empty((b - a) + (p1 - p0), dtype=object)
+        head = d.net_start[a:b] - p0 + np.arange(b - a)
+        is_head = np.zeros(len(out), bool)
+        is_head[head] = True
+        out[head] = [f"NetDegree : {k} {nm}\n" for k, nm in
+                     zip(deg[a:b].tolist(), d.net_names[a:b])]
+        out[~is_head] = pins
+        yield "".join(out.tolist())
+
+
+def _write_chunks(chunks):
+    def write(f):
+        for c in chunks():
+            f.write(c)
+    return write
 
 
 def write_pl(design: Design, fp: Floorplan, path) -> None:
@@ -1031,24 +1078,10 @@ def write_aux(design: Design, fp: Floorplan | None, target) -> Path:
     tflag = np.where(ni, " terminal_NI",
                      np.where(fixed_macro | (d.kind == TERMINAL), " terminal", ""))
     nterm = int((tflag != "").sum())
-    nodes = [f"UCLA nodes 1.0\n# written by floorwidget\n\nNumNodes : {d.num_blocks}\n"
-             f"NumTerminals : {nterm}\n"]
-    nodes.append("".join(f"{nm} {w} {h}{t}\n" for nm, w, h, t in
-                         zip(d.names, _r(d.width), _r(d.height), tflag.tolist())))
-
-    m, p = d.num_nets, d.num_pins
-    deg = d.net_degree
-    pin_lines = [f"  {nm} B : {x} {y}" for nm, x, y in
-                 zip(np.array(d.names, dtype=object)[d.pin_block].tolist(),
-                     _r(d.pin_dx), _r(d.pin_dy))]
-    lines = np.empty(m + p, dtype=object)
-    head_pos = d.net_start[:-1] + np.arange(m)
-    is_head = np.zeros(m + p, bool)
-    is_head[head_pos] = True
-    lines[head_pos] = [f"NetDegree : {k} {nm}" for k, nm in zip(deg.tolist(), d.net_names)]
-    lines[~is_head] = pin_lines
-    nets = (f"UCLA nets 1.0\n# written by floorwidget\n\nNumNets : {m}\nNumPins : {p}\n"
-            + "\n".join(lines.tolist()) + ("\n" if m else ""))
+    nodes_head = (f"UCLA nodes 1.0\n# written by floorwidget\n\nNumNodes : {d.num_blocks}\n"
+                  f"NumTerminals : {nterm}\n")
+    nets_head = (f"UCLA nets 1.0\n# written by floorwidget\n\nNumNets : {d.num_nets}\n"
+                 f"NumPins : {d.num_pins}\n")
 
     heavy = np.flatnonzero(d.net_weight != 1.0)  # nets not listed weigh 1
     wts = "UCLA wts 1.0\n# written by floorwidget; nets not listed weigh 1\n\n" + "".join(
@@ -1062,11 +1095,13 @@ def write_aux(design: Design, fp: Floorplan | None, target) -> Path:
                    f"  Sitespacing : {sw}\n  Siteorient : {ORIENTATIONS[int(d.row_orient[i])]}\n"
                    f"  Sitesymmetry : Y\n  SubrowOrigin : {float(d.row_x[i])!r} "
                    f"NumSites : {int(d.row_num_sites[i])}\nEnd\n")
-    pl = _pl_text(d, fp)
     aux = (f"RowBasedPlacement : {stem}.nodes {stem}.nets {stem}.wts {stem}.pl "
            f"{stem}.scl\n")
-    texts = {".nodes": "".join(nodes), ".nets": nets, ".wts": wts, ".pl": pl,
-             ".scl": "".join(scl), ".aux": aux}
-    write_files([(directory / f"{stem}{suffix}", lambda f, t=text: f.write(t))
-                 for suffix, text in texts.items()])  # all or nothing
+    # the large files are formatted and written a chunk at a time
+    chunks = {".nodes": lambda: itertools.chain([nodes_head], _nodes_chunks(d, tflag)),
+              ".nets": lambda: itertools.chain([nets_head], _nets_chunks(d)),
+              ".wts": lambda: [wts], ".pl": lambda: _pl_chunks(d, fp),
+              ".scl": lambda: scl, ".aux": lambda: [aux]}
+    write_files([(directory / f"{stem}{suffix}", _write_chunks(make))
+                 for suffix, make in chunks.items()])  # all or nothing
     return directory / f"{stem}.aux"

@@ -34,7 +34,11 @@ __all__ = ["Clustering", "coarsen", "coarsen_level"]
 
 MAX_CLIQUE = 16       # nets of more pins are left out of the matching score (common practice)
 ROUNDS = 3            # mutual-matching rounds per level
-MIN_SHRINK = 0.9      # a level that keeps more than this share of the blocks ends coarsening
+ALG_VECTORS = 8       # algebraic-distance test vectors (Chen, Safro 2011 use 5-10)
+ALG_ITERATIONS = 20   # and Jacobi over-relaxation sweeps
+ALG_EPS = 1e-3        # added to the algebraic distance in the matching score
+ALG_POWER = 1.0       # ... which divides the score raised to this power
+MIN_SHRINK = 0.9      # a level that keeps more than this share of the free blocks ends coarsening
 
 
 @dataclass
@@ -180,9 +184,52 @@ def _best(rows, cols, score, n):
     return best
 
 
+def _weights(design: Design, free: np.ndarray, max_degree: int):
+    """Symmetric clique-expansion weight matrix among the free blocks (COO, row-sorted)."""
+    n = design.num_blocks
+    u, v, w = _clique_edges(design, free, max_degree)
+    W = sp.coo_array((w, (u, v)), shape=(n, n)).tocsr()
+    W.sum_duplicates()
+    return (W + W.T).tocoo()
+
+
+def algebraic_coordinates(design: Design, free: np.ndarray, *, vectors: int | None = None,
+                          iterations: int | None = None, omega: float = 0.5,
+                          seed: int = 0, W=None, start: np.ndarray | None = None) -> np.ndarray:
+    """``(n, vectors)`` coordinates whose differences measure how loosely two blocks connect.
+
+    Random vectors smoothed by Jacobi over-relaxation on the clique-expansion graph, each
+    rescaled to [0, 1] after every sweep; the algebraic distance of two blocks is the largest
+    difference of their coordinates (Chen, Safro, SIAM J. Sci. Comput. 33(6), 2011).  Blocks
+    in one tightly knit group end up close; blocks joined only by a net that also spans far
+    parts of the design stay apart, so matching along it is avoided (the coarsening use:
+    Safro, Sanders, Schulz, Proc. SEA 2012).
+    """
+    n = design.num_blocks
+    vectors = ALG_VECTORS if vectors is None else vectors
+    iterations = ALG_ITERATIONS if iterations is None else iterations
+    if W is None:
+        W = _weights(design, free, MAX_CLIQUE)
+    W = sp.csr_array(W)
+    deg = np.asarray(W.sum(axis=1)).ravel()
+    on = deg > 0
+    dinv = np.where(on, 1.0 / np.where(on, deg, 1.0), 0.0)[:, None]
+    rng = np.random.default_rng(seed)
+    X = rng.random((n, vectors)) if start is None else np.array(start, np.float64)
+    for _ in range(iterations):
+        X = np.where(on[:, None], (1.0 - omega) * X + omega * (W @ X) * dinv, X)
+        lo, hi = X[on].min(axis=0) if on.any() else 0.0, X[on].max(axis=0) if on.any() else 1.0
+        X = (X - lo) / np.where(hi > lo, hi - lo, 1.0)
+    return X.astype(np.float32)
+
+
 def coarsen_level(design: Design, fp: Floorplan, max_area: float, *, seed: int = 0,
-                  max_degree: int = MAX_CLIQUE, rounds: int = ROUNDS) -> np.ndarray:
+                  max_degree: int = MAX_CLIQUE, rounds: int = ROUNDS,
+                  coords: np.ndarray | None = None, W=None) -> np.ndarray:
     """One level of matching.
+
+    ``coords`` (:func:`algebraic_coordinates`, optional) divide each pair's score by
+    ``ALG_EPS + `` their algebraic distance.
 
     Returns
     -------
@@ -193,19 +240,21 @@ def coarsen_level(design: Design, fp: Floorplan, max_area: float, *, seed: int =
     n = design.num_blocks
     free = _free_mask(design, fp)
     area = design.width * design.height
-    u, v, w = _clique_edges(design, free, max_degree)
     leader = np.arange(n, dtype=np.int64)
-    if not len(u):
+    if W is None:
+        W = _weights(design, free, max_degree)
+    if not W.nnz:
         return leader
-    # coalesce parallel edges into one symmetric weight matrix
-    W = sp.coo_array((w, (u, v)), shape=(n, n)).tocsr()
-    W.sum_duplicates()
-    W = (W + W.T).tocoo()
     rows, cols, wt = W.row.astype(np.int64), W.col.astype(np.int64), W.data
     # a symmetric tie-break, so that equal scores still give mutual choices
     lo, hi = np.minimum(rows, cols), np.maximum(rows, cols)
     h = ((lo * 2654435761 + hi * 40503 + seed * 97) % 1000003) / 1000003.0
     score = wt / (area[rows] + area[cols]) * (1.0 + 1e-6 * h)
+    if coords is not None:
+        dist = np.zeros(len(rows), np.float32)
+        for r in range(coords.shape[1]):
+            np.maximum(dist, np.abs(coords[rows, r] - coords[cols, r]), out=dist)
+        score = score / (ALG_EPS + dist) ** ALG_POWER
     matched = ~free
     for _ in range(rounds):
         ok = ~matched[rows] & ~matched[cols] & (area[rows] + area[cols] <= max_area)
@@ -223,8 +272,9 @@ def coarsen_level(design: Design, fp: Floorplan, max_area: float, *, seed: int =
         matched[best[mutual]] = True
     # blocks left alone join the pair they like best, while its area allows
     gsize = np.bincount(leader, weights=area, minlength=n)
-    W = W.tocoo()
     rows, cols, wt = W.row.astype(np.int64), W.col.astype(np.int64), W.data
+    if coords is not None:
+        wt = wt / (ALG_EPS + dist) ** ALG_POWER
     lone = free & ~matched
     ok = lone[rows] & matched[cols] & free[cols]
     rows, cols, wt = rows[ok], cols[ok], wt[ok]
@@ -320,8 +370,8 @@ def contract(design: Design, fp: Floorplan, leader: np.ndarray, level: int
 
 def coarsen(design: Design, floorplan: Floorplan | None = None, *, target_blocks: int = 20000,
             max_cluster_share: float = 0.002, seed: int = 0, max_levels: int = 20) -> Clustering:
-    """Coarsen ``design`` level by level until at most ``target_blocks`` blocks remain (or a
-    level no longer shrinks the design by 10 %).
+    """Coarsen ``design`` level by level until at most ``target_blocks`` movable cells and
+    clusters remain (or a level no longer shrinks the design by 10 %).
 
     Parameters
     ----------
@@ -329,7 +379,8 @@ def coarsen(design: Design, floorplan: Floorplan | None = None, *, target_blocks
     floorplan : Floorplan, optional
         Statuses (PINNED and FIXED blocks never merge) and the positions clusters start from.
     target_blocks : int
-        Stop when the clustered design has at most this many blocks.
+        Stop when the clustered design has at most this many movable cells and clusters
+        (terminals, macros, pinned and fixed blocks are not counted: they never merge).
     max_cluster_share : float
         Area bound of a cluster as a share of the core area (keeps clusters small next to the
         density bins and the macros).
@@ -347,22 +398,32 @@ def coarsen(design: Design, floorplan: Floorplan | None = None, *, target_blocks
     mov_area = float(np.sum(design.width[movable] * design.height[movable]))
     # clusters of about equal area at the target count, bounded by the share of the core
     designs, parents, nets = [design], [], []
+    coords = None
     cur, cur_fp = design, fp
     for level in range(1, max_levels + 1):
-        if cur.num_blocks <= target_blocks:
-            break
         free = _free_mask(cur, cur_fp)
         nfree = int(free.sum())
-        if not nfree:
+        if not nfree or nfree <= target_blocks:
             break
         # area bound: what the target count asks for, at least twice the largest free block
         amax = max(2.0 * mov_area / max(target_blocks, 1), 1e-12)
         amax = min(amax, max_cluster_share * core_area)
         amax = max(amax, 2.0 * float(np.max(cur.width[free] * cur.height[free])))
-        leader = coarsen_level(cur, cur_fp, amax, seed=seed + level)
-        if np.count_nonzero(leader == np.arange(cur.num_blocks)) > MIN_SHRINK * cur.num_blocks:
+        # algebraic coordinates, smoothed further on every level from the members' mean
+        W = _weights(cur, free, MAX_CLIQUE)
+        coords = algebraic_coordinates(cur, free, seed=seed, W=W, start=coords)
+        leader = coarsen_level(cur, cur_fp, amax, seed=seed + level, coords=coords, W=W)
+        left = np.count_nonzero(free & (leader == np.arange(cur.num_blocks)))
+        if left > MIN_SHRINK * nfree:
             break
         nxt, par, kept = contract(cur, cur_fp, leader, level)
+        # a cluster's coordinates: the area-weighted mean of its members'
+        a = cur.width * cur.height
+        ca = np.bincount(par, weights=a, minlength=nxt.num_blocks)
+        nb = nxt.num_blocks
+        coords = np.stack([np.bincount(par, weights=coords[:, r] * a, minlength=nb)
+                           for r in range(coords.shape[1])], axis=1)
+        coords = (coords / np.maximum(ca, 1e-300)[:, None]).astype(np.float32)
         designs.append(nxt)
         parents.append(par)
         nets.append(kept)

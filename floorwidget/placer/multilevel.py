@@ -23,16 +23,32 @@ import time
 
 import numpy as np
 
-from ..design import Design, Floorplan
+from ..design import CELL, Design, Floorplan
 from .coarsen import Clustering, coarsen
 
-__all__ = ["place_multilevel", "TOP_BLOCKS"]
+__all__ = ["TOP_BLOCKS", "expand", "place_multilevel", "top_blocks", "uncoarsen"]
 
-TOP_BLOCKS = 20_000   # the coarsest level has about this many blocks
+TOP_BLOCKS = 20_000   # the coarsest level has about this many movable cells and clusters
 LEVEL_STEP = 4.0      # a finer level is refined when it has this many times the blocks of the
                       # last refined one (and the input level always is)
 LEVEL_ITERATIONS = 12  # most spreading iterations per refined level
 LEVEL_K0 = 20.0        # the anchor schedule of a refined level starts this far in
+EPS_SHARE = 0.5        # ... and its anchors give way over this share of the cluster side
+
+
+def _ancestor_side(clus: Clustering, k: int, up: int) -> np.ndarray:
+    """Side of the level-``up`` cluster that every block of level ``k`` lies in."""
+    m = np.arange(clus.designs[k].num_blocks)
+    for j in range(k, up):
+        m = clus.parent[j][m]
+    d = clus.designs[up]
+    return np.sqrt(d.width * d.height)[m]
+
+
+def top_blocks(design: Design) -> int:
+    """Movable cells and clusters of the coarsest level: :data:`TOP_BLOCKS`, or a quarter of
+    the cells of a smaller design."""
+    return min(TOP_BLOCKS, int(np.count_nonzero(design.kind == CELL)) // 4)
 
 
 def level_multipliers(clus: Clustering, mult) -> list:
@@ -48,12 +64,10 @@ def place_multilevel(design: Design, src: Floorplan, target: float, opts, mult, 
     :func:`~floorwidget.placer.flow.place`; returns ``(floorplan, legalized, overflow)`` with
     the cells at their global positions (not yet on rows).  Adds the stages ``"coarsen"`` and
     ``"uncoarsen"`` and ``info["levels"]`` (blocks per level, finest first)."""
-    from .flow import _place_flat, _report, _soft_mask, _Stage, _write_back
+    from .flow import _place_flat, _report
 
     t0 = time.perf_counter()
-    # (a design smaller than that, asked for "on", is still clustered to a quarter)
-    clus = coarsen(design, src, target_blocks=min(TOP_BLOCKS, design.num_blocks // 4),
-                   seed=seed)
+    clus = coarsen(design, src, target_blocks=top_blocks(design), seed=seed)
     mults = level_multipliers(clus, mult)
     info["levels"] = [d.num_blocks for d in clus.designs]
     info["stage_seconds"]["coarsen"] = time.perf_counter() - t0
@@ -67,19 +81,37 @@ def place_multilevel(design: Design, src: Floorplan, target: float, opts, mult, 
     if top == 0:
         return out, legalized, ov
 
+    out, ov = uncoarsen(clus, out, src, target, opts, mults, seed, info, progress, ov)
+    return out, legalized, ov
+
+
+def uncoarsen(clus: Clustering, out: Floorplan, src: Floorplan, target: float, opts, mults,
+              seed: int, info: dict, progress, ov: float = 0.0) -> tuple[Floorplan, float]:
+    """From a floorplan ``out`` of the coarsest level down to the input design: members start
+    at their cluster, refined levels get a short spreading run (macros and other singletons
+    stay put).  Returns the input design's floorplan (statuses of ``src``) and the overflow;
+    adds the stage ``"uncoarsen"`` to ``info``."""
+    from .flow import _report, _soft_mask, _Stage, _write_back
+
     t0 = time.perf_counter()
     its = 0
-    last = coarse.num_blocks
+    top = clus.num_levels - 1
+    last = top
     for k in range(top - 1, -1, -1):
         d = clus.designs[k]
         out = clus.project(k + 1, out, base=src if k == 0 else None, seed=seed)
-        if k and d.num_blocks < LEVEL_STEP * last:
+        if k and d.num_blocks < LEVEL_STEP * clus.designs[last].num_blocks:
             continue
-        last = d.num_blocks
         soft = _soft_mask(d, out)
         if not soft.any():
+            last = k
             continue
         st = _Stage(d, out, soft, target, opts, mults[k])
+        # the anchors of a block that sits where the look-ahead wants it would be near-rigid
+        # (weight / distance): let blocks move about the extent of the cluster they came from
+        anc = _ancestor_side(clus, k, last)
+        st.eps_a = max(st.eps_a, EPS_SHARE * float(np.median(anc[st.vars])))
+        last = k
         cx, cy = out.centres()
         res = st.spread(cx, cy, out.orient, opts, k0=LEVEL_K0, max_it=LEVEL_ITERATIONS,
                         min_it=2, target_overflow=opts.overflow_target, progress=progress,
@@ -91,4 +123,50 @@ def place_multilevel(design: Design, src: Floorplan, target: float, opts, mult, 
     info["stage_iterations"]["uncoarsen"] = its
     info["stage_seconds"]["uncoarsen"] = time.perf_counter() - t0
     _report(progress, "uncoarsen", 1.0, {"overflow": ov})
-    return out, legalized, ov
+    return out, ov
+
+
+def expand(clustering: Clustering, coarse: Floorplan, floorplan: Floorplan | None = None, *,
+           target_density: float = 0.8, seed: int = 0, progress=None, **options) -> Floorplan:
+    """Every block of the input design placed from a floorplan of the coarsest level.
+
+    Macros and the other singletons (pinned and fixed blocks, cells that never merged) take
+    their position, orientation and status from ``coarse`` — where the engineer put them on
+    the clustered design — and the members of each cluster are uncoarsened level by level
+    around them (:func:`uncoarsen`), then put on rows as by :func:`~floorwidget.placer.place`
+    (option ``cells``).  Macros are not moved.
+
+    Parameters
+    ----------
+    clustering : Clustering
+    coarse : Floorplan
+        Of ``clustering.coarsest``.
+    floorplan : Floorplan, optional
+        Of the input design: the statuses of the blocks inside clusters (default its initial
+        floorplan).
+    target_density, seed, progress, **options : as for :func:`~floorwidget.placer.place`.
+
+    Returns
+    -------
+    Floorplan
+        Of the input design, with ``info`` as from :func:`~floorwidget.placer.place`.
+    """
+    from .flow import _finish, _rows_stage, _start
+
+    t_all = time.perf_counter()
+    top = clustering.num_levels - 1
+    design = clustering.designs[0]
+    if not isinstance(coarse, Floorplan) or coarse.design is not clustering.coarsest:
+        raise ValueError("expand needs a floorplan of the clustering's coarsest design")
+    base = (design.initial if floorplan is None else floorplan).copy()
+    c = clustering.cluster_of(top)
+    single = np.bincount(c, minlength=clustering.coarsest.num_blocks)[c] == 1
+    for f in ("x", "y", "orient", "status"):
+        getattr(base, f)[single] = getattr(coarse, f)[c[single]]
+    src, target, opts, mult = _start(design, base, target_density, seed, options)
+    info: dict = {"stage_seconds": {}, "stage_iterations": {}, "levels":
+                  [d.num_blocks for d in clustering.designs]}
+    out, ov = uncoarsen(clustering, coarse.copy(), src, target, opts,
+                        level_multipliers(clustering, mult), seed, info, progress)
+    out = _rows_stage(design, out, src, opts, target, info, progress)
+    return _finish(design, out, src, info, False, ov, t_all, target, seed)
