@@ -182,6 +182,11 @@ class Design:
         Snap grid for macros (default: site width by row height from the origin of the rows).
     blockages : (k, 4) array, optional
         Placement blockages ``xlo, ylo, xhi, yhi``.
+    blockage_max_density : (k,) array, optional
+        Per blockage, the largest share of its area standard cells and clusters may fill:
+        0.0 (the default) is a full blockage, which keeps macros out too; a value in (0, 1]
+        is a partial one (DEF ``+ PARTIAL`` with the percentage ÷ 100), which only caps the
+        density under it.
     block_type : list of str, optional
         Master (library cell) name per block, for DEF export.
     x, y, orient, status : arrays, optional
@@ -199,7 +204,7 @@ class Design:
                  net_start, pin_block, pin_dx, pin_dy, *, halo=None, orient_allowed=None,
                  net_names: Sequence[str] | None = None, net_weight=None,
                  pin_names: Sequence[str] | None = None, rows: dict | None = None,
-                 grid_pitch=None, grid_origin=None, blockages=None,
+                 grid_pitch=None, grid_origin=None, blockages=None, blockage_max_density=None,
                  block_type: Sequence[str] | None = None,
                  x=None, y=None, orient=None, status=None, dbu: int = 1000,
                  validate: bool = True, source: str | None = None):
@@ -249,6 +254,10 @@ class Design:
         self.grid_pitch = _f64(grid_pitch, (2,))
         self.grid_origin = _f64(self.core[:2] if grid_origin is None else grid_origin, (2,))
         self.blockages = np.zeros((0, 4)) if blockages is None else _f64(blockages, (-1, 4))
+        self.blockage_max_density = (np.zeros(len(self.blockages))
+                                     if blockage_max_density is None
+                                     else _f64(blockage_max_density, (len(self.blockages),)))
+        self._root = self  # the design whose netlist this one shares (see derive)
 
         self._index: dict[str, int] | None = None
         if validate:
@@ -340,6 +349,56 @@ class Design:
         bits = int(self.orient_allowed[self.block(name)])
         return [o for i, o in enumerate(ORIENTATIONS) if bits >> i & 1]
 
+    @property
+    def full_blockages(self) -> np.ndarray:
+        """``(k, 4)`` the blockages that keep everything out (max density 0)."""
+        return self.blockages[self.blockage_max_density <= 0.0]
+
+    def same_netlist(self, other: Design) -> bool:
+        """Whether ``other`` is this design or one derived from the same one (:meth:`derive`):
+        the same blocks and nets, maybe other blockages, halos or cell regions."""
+        return isinstance(other, Design) and other._root is self._root
+
+    def derive(self, **changes) -> Design:
+        """A design sharing this one's netlist and geometry with other *constraints*.
+
+        Parameters
+        ----------
+        **changes
+            Any of ``blockages`` (k, 4), ``blockage_max_density`` (k,), ``halo`` (n, 4).
+            Missing ones are shared with this design (arrays are never written in place).
+
+        Returns
+        -------
+        Design
+            Validated (:class:`DesignError` naming the object at fault); its
+            :attr:`initial` floorplan is this design's, and :meth:`same_netlist` holds.
+        """
+        allowed = {"blockages", "blockage_max_density", "halo"}
+        bad = set(changes) - allowed
+        if bad:
+            raise TypeError(f"derive() takes {', '.join(sorted(allowed))}; got "
+                            f"{', '.join(sorted(bad))}")
+        new = object.__new__(Design)
+        new.__dict__.update(self.__dict__)
+        if "blockages" in changes:
+            new.blockages = _f64(changes["blockages"], (-1, 4))
+            if "blockage_max_density" not in changes:
+                changes["blockage_max_density"] = np.zeros(len(new.blockages))
+        if "blockage_max_density" in changes:
+            new.blockage_max_density = _f64(changes["blockage_max_density"],
+                                            (len(new.blockages),))
+        if "halo" in changes:
+            new.halo = _f64(changes["halo"], (self.num_blocks, 4))
+        for a in ("blockages", "blockage_max_density", "halo"):
+            getattr(new, a).flags.writeable = False
+        probs = new._constraint_problems()
+        if probs:
+            raise DesignError(probs[0][1], file=None, where=probs[0][0])
+        ini = self.initial
+        new.initial = Floorplan(new, ini.x, ini.y, ini.orient, ini.status, ini.info)
+        return new
+
     def __repr__(self) -> str:
         counts = np.bincount(self.kind, minlength=4)
         return (f"<Design {self.name!r}: {counts[MACRO]} macros, {counts[CLUSTER]} clusters, "
@@ -415,7 +474,6 @@ class Design:
         bad_size |= (self.width < 0) | (self.height < 0)
         some(bad_size, "non-positive or non-finite size")
         some(~bad_size & (big(self.width) | big(self.height)), f"size beyond {lim:g} µm")
-        some(big(self.halo) | (self.halo < 0).any(axis=1), "negative or non-finite halo")
         some(self.orient_allowed == 0, "no allowed orientation")
         # a macro larger than the die in every allowed orientation
         dw, dh = d[2] - d[0], d[3] - d[1]
@@ -474,13 +532,34 @@ class Design:
                 or big(self.grid_origin).any():
             add("grid", f"grid pitch {self.grid_pitch.tolist()} must be positive and origin "
                         f"{self.grid_origin.tolist()} finite")
-        bl = self.blockages
-        if len(bl):
-            bad = big(bl) | ~((bl[:, 2] > bl[:, 0]) & (bl[:, 3] > bl[:, 1]))
+        out.extend(self._constraint_problems())
+        return out
+
+    def _constraint_problems(self) -> list[tuple[str, str]]:
+        """``(object, message)`` for halos, blockages and their densities (what
+        :meth:`derive` changes), each naming the object."""
+        out: list[tuple[str, str]] = []
+        with np.errstate(invalid="ignore"):
+            hl = self.halo
+            bad = ~(np.abs(hl) <= COORD_LIMIT).all(axis=1) | (hl < 0).any(axis=1)
+            if bad.any():
+                i = int(np.flatnonzero(bad)[0])
+                out.append((f"block {self.names[i]!r}",
+                            f"block {self.names[i]!r}: halo {hl[i].tolist()} must be four "
+                            "finite numbers >= 0 (left, bottom, right, top)"))
+            bl = self.blockages
+            bad = ~(np.abs(bl) <= COORD_LIMIT).all(axis=1) \
+                | ~((bl[:, 2] > bl[:, 0]) & (bl[:, 3] > bl[:, 1]))
             if bad.any():
                 k = int(np.flatnonzero(bad)[0])
-                add(f"blockage {k}", f"placement blockage {k} {bl[k].tolist()} is not a "
-                                     "finite rectangle of positive size")
+                out.append((f"blockage {k}", f"placement blockage {k} {bl[k].tolist()} is not "
+                                             "a finite rectangle of positive size"))
+            md = self.blockage_max_density
+            bad = ~((md >= 0.0) & (md <= 1.0))
+            if bad.any():
+                k = int(np.flatnonzero(bad)[0])
+                out.append((f"blockage {k}", f"placement blockage {k}: maximum density "
+                                             f"{float(md[k])!r} is not in [0, 1]"))
         return out
 
     def validate(self) -> None:

@@ -496,7 +496,7 @@ def density_map(design: Design, fp: Floorplan, grid: BinGrid | None = None) -> D
     fixed = _nonneg(rect_area_map(grid, rects[fix]))
     c = design.core
     core_area = rect_area_map(grid, c[None, :])
-    bl = design.blockages
+    bl = design.full_blockages
     if len(bl):
         bl = bl.copy()
         bl[:, [0, 2]] = np.clip(bl[:, [0, 2]], c[0], c[2])
@@ -693,7 +693,7 @@ def legality(design: Design, fp: Floorplan) -> dict:
     mr = rects[mac]
     out_core = ((mr[:, 0] < c[0] - TOL) | (mr[:, 1] < c[1] - TOL)
                 | (mr[:, 2] > c[2] + TOL) | (mr[:, 3] > c[3] + TOL))
-    bl = design.blockages
+    bl = design.full_blockages
     if len(bl) and len(mac):
         ox = np.minimum(mr[:, None, 2], bl[None, :, 2]) - np.maximum(mr[:, None, 0], bl[None, :, 0])
         oy = np.minimum(mr[:, None, 3], bl[None, :, 3]) - np.maximum(mr[:, None, 1], bl[None, :, 1])
@@ -786,8 +786,8 @@ def cell_legality(design: Design, fp: Floorplan) -> dict:
     # obstacles: macro halo boxes and blockages
     mac = np.flatnonzero(design.kind == MACRO)
     obs = fp.rects(halo=True)[mac]
-    if len(design.blockages):
-        obs = np.concatenate([obs, design.blockages])
+    if len(design.full_blockages):
+        obs = np.concatenate([obs, design.full_blockages])
     rc = r[cells]
     bad_pairs = _banded_overlaps(rc) + _cross_overlaps(rc, obs)
     res.update(cell_overlaps=bad_pairs, cells_off_row=int(off_row.sum()),
@@ -1280,8 +1280,8 @@ def logic_regions(design: Design, fp: Floorplan) -> LogicRegions:
     c = design.core
     unit = _row_unit(design)
     obs = fp.rects(halo=True)[design.kind == MACRO]
-    if len(design.blockages):
-        obs = np.concatenate([obs, design.blockages])
+    if len(design.full_blockages):
+        obs = np.concatenate([obs, design.full_blockages])
     obs = np.stack([np.clip(obs[:, 0], c[0], c[2]), np.clip(obs[:, 1], c[1], c[3]),
                     np.clip(obs[:, 2], c[0], c[2]), np.clip(obs[:, 3], c[1], c[3])], axis=1)
     obs = obs[(obs[:, 2] > obs[:, 0]) & (obs[:, 3] > obs[:, 1])]

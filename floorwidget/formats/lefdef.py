@@ -96,6 +96,7 @@ import warnings
 from collections import Counter
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
+from decimal import Decimal
 from itertools import repeat
 from pathlib import Path
 
@@ -736,6 +737,7 @@ class _Def:
         self.pins = None
         self.nets = None
         self.blockages: list[tuple[float, float, float, float]] = []
+        self.blockage_density: list[float] = []  # max density per blockage (0: full)
         self.comp_line = 1
 
     # --- locations and errors ----------------------------------------------------------------
@@ -1309,11 +1311,22 @@ class _Def:
                 self.skipped[f"BLOCKAGES {kind}"] += 1
                 continue
             toks = _split_tokens(mt.group(2))
-            pos = mt.start()
+            pos = mt.start(1)  # the statement's line (mt.start() is the newline before it)
             k = 0
+            density = 0.0
+            first = len(self.blockages)
             while k < len(toks):
                 w = toks[k].upper()
-                if w in ("RECT", "POLYGON"):
+                if w == "PARTIAL" and k >= 1 and toks[k - 1] == "+":
+                    if k + 1 >= len(toks):
+                        self.fail("BLOCKAGES: PARTIAL needs a maximum density", pos)
+                    pct = self.number(toks[k + 1], pos, "BLOCKAGES PARTIAL")
+                    if not 0.0 <= pct <= 100.0:
+                        self.fail(f"BLOCKAGES: PARTIAL density {toks[k + 1]} is not a "
+                                  "percentage in [0, 100]", pos)
+                    density = _fraction(toks[k + 1])
+                    k += 2
+                elif w in ("RECT", "POLYGON"):
                     j = k + 1
                     pts = []
                     while j < len(toks) and toks[j] == "(":
@@ -1334,6 +1347,7 @@ class _Def:
                     k = j
                 else:
                     k += 1
+            self.blockage_density.extend([density] * (len(self.blockages) - first))
 
     # --- assembly ----------------------------------------------------------------------------
     def design(self) -> Design:
@@ -1346,9 +1360,12 @@ class _Def:
         pts = np.array(self.die_pts, dtype=np.float64) / dbu
         die = np.array([pts[:, 0].min(), pts[:, 1].min(), pts[:, 0].max(), pts[:, 1].max()])
         blk = [np.array(self.blockages, dtype=np.float64).reshape(-1, 4) / dbu]
+        dens = [np.array(self.blockage_density, dtype=np.float64)]
         if len(pts) > 2:
             blk.insert(0, _polygon_rects(pts, False))
+            dens.insert(0, np.zeros(len(blk[0])))
         blockages = np.concatenate(blk)
+        blockage_density = np.concatenate(dens)
 
         # rows
         rows = {"x": [], "y": [], "height": [], "site_width": [], "num_sites": [], "orient": []}
@@ -1548,7 +1565,8 @@ class _Def:
                 net_start, ci[pin_keep], dx[pin_keep], dy[pin_keep],
                 halo=halo, orient_allowed=np.concatenate([allowed, t_allowed]),
                 net_names=net_names, net_weight=nt["weight"][net_keep], pin_names=pin_names,
-                rows=rows if self.rows else None, blockages=blockages, block_type=block_type,
+                rows=rows if self.rows else None, blockages=blockages,
+                blockage_max_density=blockage_density, block_type=block_type,
                 x=np.concatenate([x, t_x]), y=np.concatenate([y, t_y]),
                 orient=np.concatenate([orient, np.array(t_o, np.int8)]),
                 status=np.concatenate([status, np.array(t_s, np.int8)]),
@@ -1999,8 +2017,9 @@ def _def_text(design: Design, fp: Floorplan, path) -> str:
     if len(d.blockages):
         bl = I(d.blockages)
         out.append(f"BLOCKAGES {len(bl)} ;")
-        for b in bl.tolist():
-            out.append(f"- PLACEMENT RECT ( {b[0]} {b[1]} ) ( {b[2]} {b[3]} ) ;")
+        for b, md in zip(bl.tolist(), d.blockage_max_density.tolist()):
+            part = f"+ PARTIAL {_percent(md)} " if md > 0 else ""
+            out.append(f"- PLACEMENT {part}RECT ( {b[0]} {b[1]} ) ( {b[2]} {b[3]} ) ;")
         out.append("END BLOCKAGES")
         out.append("")
     out.append(f"NETS {d.num_nets} ;")
@@ -2020,6 +2039,17 @@ def _def_text(design: Design, fp: Floorplan, path) -> str:
     out.append("")
     out.append("END DESIGN")
     return "\n".join(out) + "\n"
+
+
+def _percent(fraction: float) -> str:
+    """``fraction`` as a percentage written exactly (decimal), so that :func:`_fraction`
+    reads the same float back."""
+    return format((Decimal(repr(float(fraction))) * 100).normalize(), "f")
+
+
+def _fraction(percent: str) -> float:
+    """A DEF percentage token as a fraction, divided in decimal (exact round trip)."""
+    return float(Decimal(percent) / 100)
 
 
 def write_def_pair(design: Design, fp: Floorplan, def_path: str | Path,

@@ -9,7 +9,8 @@ Layout (version 1)::
       "rows": [{"x": .., "y": .., "height": .., "site_width": .., "num_sites": .., "orient": "N"}],
       "site": "core",
       "grid": {"pitch": [px, py], "origin": [x0, y0]},
-      "blockages": [[xlo, ylo, xhi, yhi], ...],
+      "blockages": [[xlo, ylo, xhi, yhi] or {"rect": [xlo, ylo, xhi, yhi],
+                                               "max_density": d}, ...],
       "blocks": [{"name": .., "kind": "macro|cluster|cell|terminal", "width": .., "height": ..,
                   "halo": [l, b, r, t] or h, "orientations": ["N", "FN", ..], "type": "..",
                   "x": .., "y": .., "orient": "N", "status": "movable|pinned|fixed"}],
@@ -18,7 +19,9 @@ Layout (version 1)::
 
 Pin offsets are from the block centre in the N orientation.  Optional fields take defaults
 (``halo`` 0, ``orientations`` all for macros and N otherwise, ``weight`` 1, ``status`` movable,
-``x``/``y`` 0, ``orient`` N).  Floats are written with ``repr`` so a round trip is exact.
+``x``/``y`` 0, ``orient`` N).  A blockage written as a bare rectangle is a full one; a
+partial one carries its ``max_density`` in (0, 1] (the share of its area cells may fill).
+Floats are written with ``repr`` so a round trip is exact.
 """
 
 from __future__ import annotations
@@ -141,9 +144,18 @@ def parse_json(doc: dict, path) -> Design:
         if "origin" in grid:
             origin = r.nums(grid["origin"], 2, "grid.origin")
 
-    blockages = []
+    blockages, max_density = [], []
     for i, b in enumerate(r.items(doc, "blockages", "", [])):
-        blockages.append(r.nums(b, 4, f"blockages[{i}]"))
+        w = f"blockages[{i}]"
+        if isinstance(b, dict):
+            blockages.append(r.nums(r.get(b, "rect", w), 4, w + ".rect"))
+            md = r.num(r.get(b, "max_density", w, 0.0), w + ".max_density", nonneg=True)
+            if md > 1:
+                r.fail(w + ".max_density", f"must lie in [0, 1], got {md:g}")
+            max_density.append(md)
+        else:
+            blockages.append(r.nums(b, 4, w))
+            max_density.append(0.0)
 
     blocks = r.items(doc, "blocks", "")
     n = len(blocks)
@@ -227,6 +239,7 @@ def parse_json(doc: dict, path) -> Design:
         halo=halo, orient_allowed=allowed, net_names=net_names, net_weight=weights,
         pin_names=pin_names if any_pin_name else None, rows=rows, grid_pitch=pitch,
         grid_origin=origin, blockages=np.array(blockages).reshape(-1, 4),
+        blockage_max_density=np.array(max_density, dtype=np.float64),
         block_type=types if any_type else None, x=x, y=y, orient=orient, status=status,
         dbu=dbu, source=str(path))
 
@@ -289,7 +302,9 @@ def to_document(design: Design, fp: Floorplan) -> dict:
            "die": [_clean(v) for v in d.die], "site": d.site_name, "rows": rows,
            "grid": {"pitch": [_clean(v) for v in d.grid_pitch],
                     "origin": [_clean(v) for v in d.grid_origin]},
-           "blockages": [[_clean(v) for v in b] for b in d.blockages],
+           "blockages": [[_clean(v) for v in b] if md <= 0 else
+                         {"rect": [_clean(v) for v in b], "max_density": _clean(md)}
+                         for b, md in zip(d.blockages, d.blockage_max_density)],
            "blocks": blocks, "nets": nets}
     return doc
 

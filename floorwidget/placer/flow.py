@@ -32,6 +32,7 @@ import numpy as np
 
 from ..design import CELL, CLUSTER, MACRO, MOVABLE, TERMINAL, Design, Floorplan
 from ..metrics import default_channel, hpwl, pinned_illegal
+from .constraints import partial_capacity_loss
 from .errors import PlacementError, PlacementWarning
 from .legalize import legalize_macros
 from .options import (
@@ -91,8 +92,9 @@ def _obstacles(design: Design, fp: Floorplan, fixed_mask: np.ndarray) -> np.ndar
     halos, terminals excluded) and placement blockages."""
     sel = fixed_mask & (design.kind != TERMINAL)
     r = fp.rects(halo=True)[sel]
-    if len(design.blockages):
-        r = np.concatenate([r, design.blockages])
+    full = design.full_blockages
+    if len(full):
+        r = np.concatenate([r, full])
     return r
 
 
@@ -116,7 +118,8 @@ class _Stage:
         fixed[self.vars] = False
         self.grid: Grid = make_grid(design.core, self.w, self.h, opts.bin_size)
         self.obstacles = _obstacles(design, fp, fixed)
-        self.cap = capacity_map(self.grid, target, self.obstacles)
+        self.cap = np.maximum(capacity_map(self.grid, target, self.obstacles)
+                              - partial_capacity_loss(design, self.grid, target), 0.0)
         self.wt = density_weight(self.grid, self.w, self.h, target)
         self.soft = design.kind[self.vars] == CLUSTER
         self.growth = (anchor_growth_for(len(self.vars)) if opts.anchor_growth is None
@@ -562,7 +565,8 @@ def utilisation(design: Design, fp: Floorplan) -> float:
     area = float(np.sum(design.width[movable] * design.height[movable]))
     c = design.core
     grid = make_grid(c, np.ones(1), np.ones(1), bin_size=max(c[2] - c[0], c[3] - c[1]) / 256)
-    free = float(capacity_map(grid, 1.0, _obstacles(design, fp, ~movable)).sum())
+    free = float(np.maximum(capacity_map(grid, 1.0, _obstacles(design, fp, ~movable))
+                            - partial_capacity_loss(design, grid, 1.0), 0.0).sum())
     return area / free if free > 0 else (np.inf if area > 0 else 0.0)
 
 

@@ -227,7 +227,7 @@ class _Problem:
         obst = (design.kind == MACRO) & ~move
         self.obst = fp.rects()[obst]  # footprints of the macros that stay
         self.obst_halo = hl[obst].copy()  # and their halos (left, bottom, right, top)
-        self.blk = np.asarray(design.blockages, dtype=np.float64).reshape(-1, 4)
+        self.blk = np.asarray(design.full_blockages, dtype=np.float64).reshape(-1, 4)
         self.area = (self.w + self.l + self.r) * (self.h + self.b + self.t)
         self._bounds()
 

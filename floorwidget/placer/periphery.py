@@ -118,7 +118,7 @@ def _slide(design: Design, fp: Floorplan, i: int, direction: int, dist: float) -
 
 
 def _obstacles(design: Design) -> np.ndarray:
-    return design.blockages if len(design.blockages) else np.zeros((0, 4))
+    return design.full_blockages
 
 
 def compact(design: Design, fp: Floorplan, idx: np.ndarray, edge: np.ndarray,

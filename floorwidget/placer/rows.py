@@ -54,6 +54,7 @@ from ..design import (
     orient_offsets,
 )
 from ..metrics import bin_grid, hpwl, rect_area_map, row_of
+from .constraints import partial_capacity_loss
 from .errors import PlacementError
 
 __all__ = ["RowSegments", "row_segments", "legalize_cells", "detailed_place", "cell_mask"]
@@ -106,8 +107,9 @@ def _obstacle_rects(design: Design, fp: Floorplan, movable_cells: np.ndarray) ->
     sel = (k != CLUSTER) & (k != TERMINAL) & ~movable_cells
     # movable cells that this module does not place (multi-row) stay where they are
     r = fp.rects(halo=True)[sel]
-    if len(design.blockages):
-        r = np.concatenate([r, design.blockages])
+    full = design.full_blockages  # partial ones only cap the density (detailed placement)
+    if len(full):
+        r = np.concatenate([r, full])
     return r
 
 
@@ -749,7 +751,8 @@ def detailed_place(design: Design, fp: Floorplan, cells: np.ndarray | None = Non
         Stop once a pass lowers the HPWL by less than this fraction.
     target_density : float
         A cell moves into another density bin (the report's grid) only while that bin's cell
-        area stays within this share of its row area, so detailed placement does not pile
+        area stays within this share of its row area (the maximum density under a partial
+        blockage, where lower), so detailed placement does not pile
         cells up where the global placement spread them (swaps of equal widths are always
         allowed: they change no bin's fill).
     max_degree : int
@@ -824,6 +827,7 @@ def detailed_place(design: Design, fp: Floorplan, cells: np.ndarray | None = Non
     segr = np.stack([seg.x0 + seg.lo * seg.site, seg.y, seg.x0 + seg.hi * seg.site,
                      seg.y + seg.height], axis=1)
     cap = target_density * rect_area_map(g, segr)  # the segments hold the cells' sites too
+    cap = np.maximum(cap - partial_capacity_loss(design, g, target_density), 0.0)
     D = (use, cap, g.xlo, g.ylo, g.bw, g.bh)
     hpwl0 = hpwl(design, fp)
     g1 = 0.0
