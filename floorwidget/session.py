@@ -49,13 +49,17 @@ import numpy as np
 
 from . import arrange
 from .design import (
+    CELL,
+    CLUSTER,
     FIXED,
     MACRO,
     MOVABLE,
     ORIENTATIONS,
     PINNED,
+    REGION_TYPES,
     STATUS_NAMES,
     TERMINAL,
+    CellRegions,
     Design,
     DesignError,
     Floorplan,
@@ -87,7 +91,8 @@ class ChangeEvent:
         ``"move"``, ``"pin"``, ``"unpin"``, ``"rotate"``, ``"flip"``, ``"set_orientation"``,
         ``"align"``, ``"distribute"``, ``"array"``, ``"mirror"``, ``"push"``, ``"shift"``,
         ``"add_blockage"``, ``"move_blockage"``, ``"remove_blockage"``,
-        ``"set_blockage_density"``, ``"set_halo"``, ``"place"``, ``"refine"``, ``"legalize"``,
+        ``"set_blockage_density"``, ``"set_halo"``, ``"add_region"``, ``"remove_region"``,
+        ``"assign_group"``, ``"place"``, ``"refine"``, ``"legalize"``,
         ``"restore"``, ``"undo"``, ``"redo"``,
         ``"snapshot"``, ``"add_alternative"``, or the label of a :meth:`Session.batch`.
     blocks : ndarray of int or None
@@ -884,6 +889,114 @@ class Session:
         hl[idx] = h
         self._constrain("set_halo", ((names if isinstance(names, str) else lst,
                                       h if np.ndim(halo) else h[0]),), blocks=idx, halo=hl)
+
+    # --- cell regions: fences and guides for groups of cells -----------------------------------
+    def _regions_with(self, regions: list[dict], member: np.ndarray) -> CellRegions:
+        return CellRegions.build(self.design.num_blocks, regions, member)
+
+    @_locked
+    def add_region(self, name: str, rects, kind: str = "fence") -> None:
+        """Add an empty cell region ``name`` over ``rects`` (one rectangle ``[xlo, ylo, xhi,
+        yhi]`` or a list of non-overlapping ones, inside the die); :meth:`assign_group` gives
+        it cells.  ``kind``: ``"fence"`` (members stay inside, other cells stay out) or
+        ``"guide"`` (members pulled toward it, may spill).  One undo step; the placer honours
+        it on the next :meth:`place` or :meth:`refine`.
+
+        Raises :class:`DesignError` naming the region for a used or empty name, an unknown
+        kind, or a rectangle without area, outside the die or overlapping another of it.
+        """
+        if not isinstance(name, str) or not name.strip():
+            raise DesignError(f"region {name!r}: a region needs a non-empty text name")
+        reg = self.design.regions
+        if name in reg.names:
+            raise DesignError(f"region {name!r}: there is already a region of that name")
+        if kind not in REGION_TYPES:
+            raise DesignError(f"region {name!r}: kind must be one of "
+                              f"{', '.join(REGION_TYPES)}, got {kind!r}")
+        many = isinstance(rects, (list, tuple, np.ndarray)) and len(rects) > 0 \
+            and isinstance(rects[0], (list, tuple, np.ndarray))
+        boxes = [self._blockage_rect(r, f"region {name!r}") for r in (rects if many
+                                                                     else [rects])]
+        regions = reg.to_list() + [{"name": name, "type": kind, "rects": boxes}]
+        self._constrain("add_region", ((name, boxes if many else boxes[0]),
+                                       {} if kind == "fence" else {"kind": kind}),
+                        regions=self._regions_with(regions, reg.member))
+
+    @_locked
+    def remove_region(self, name: str) -> None:
+        """Delete cell region ``name``; its cells belong to no region afterwards."""
+        reg = self.design.regions
+        k = reg.index(name)
+        regions = reg.to_list()
+        del regions[k]
+        m = reg.member.copy()
+        m[m == k] = -1
+        m[m > k] -= 1
+        self._constrain("remove_region", ((name,),), blocks=reg.members(k),
+                        regions=self._regions_with(regions, m))
+
+    @_locked
+    def assign_group(self, region: str | None, names: Iterable[str] | None = None, *,
+                     prefix: str | None = None, depth: int = 1, separators: str = "/."):
+        """Make a group of cells members of ``region`` (``None``: of no region).
+
+        The group is either ``names`` (standard cells and clusters only), or the hierarchy
+        group ``prefix`` at ``depth`` (:func:`floorwidget.hierarchy.hierarchy_groups` with
+        ``separators``; ``""`` is the top level), whose cells and clusters are taken (its
+        macros and terminals are not regions' business).  A block belongs to one region at
+        most: assigning moves it.  One undo step.
+
+        Returns
+        -------
+        int
+            The number of blocks assigned.
+
+        Raises
+        ------
+        DesignError
+            Unknown region, a name that is not a cell or cluster, an unknown or cell-less
+            hierarchy group, or both or neither of ``names`` and ``prefix``; nothing changes.
+        KeyError
+            An unknown block name.
+        """
+        d = self.design
+        reg = d.regions
+        k = -1 if region is None else reg.index(region)
+        if (names is None) == (prefix is None):
+            raise DesignError(f"region {region!r}: give either names or a hierarchy prefix")
+        soft = (d.kind == CELL) | (d.kind == CLUSTER)
+        if names is not None:
+            lst = self._names(names)
+            idx = np.array([d.block(nm) for nm in lst], dtype=np.int64)
+            bad = ~soft[idx]
+            if bad.any():
+                raise DesignError(f"block {lst[int(np.flatnonzero(bad)[0])]!r}: only standard "
+                                  "cells and clusters belong to cell regions")
+            log = ((region, lst), {})
+        else:
+            from .hierarchy import hierarchy_groups  # noqa: PLC0415
+            if isinstance(depth, bool) or not isinstance(depth, (int, np.integer)) \
+                    or depth < 0:
+                raise DesignError(f"region {region!r}: depth must be a whole number >= 0, "
+                                  f"got {depth!r}")
+            g = hierarchy_groups(d.names, int(depth), separators)
+            if prefix not in g.keys:
+                raise DesignError(f"region {region!r}: no hierarchy group {prefix!r} at depth "
+                                  f"{int(depth)}")
+            idx = np.flatnonzero((g.index == g.keys.index(prefix)) & soft)
+            if not len(idx):
+                raise DesignError(f"region {region!r}: hierarchy group {prefix!r} has no "
+                                  "standard cells or clusters")
+            kw = {"prefix": prefix, "depth": int(depth)}
+            if separators != "/.":
+                kw["separators"] = separators
+            log = ((region,), kw)
+        m = reg.member.copy()
+        m[idx] = k
+        self._constrain("assign_group", log, blocks=idx,
+                        regions=CellRegions(reg.names, reg.kind, reg.rect_start, reg.rects, m,
+                                            reg.groups))
+        return int(len(idx))
 
     # --- placer calls --------------------------------------------------------------------------
     def _run_placer(self, action: str, fn: Callable, opts: dict, progress) -> None:

@@ -26,7 +26,9 @@ Session file layout (JSON, version 1)::
     STEP = {"action": .., "idx": [..], "old": FLOORPLAN-of-idx, "new": FLOORPLAN-of-idx,
             "old_constraints": k, "new_constraints": k}     (both only on constraint edits)
     CONSTRAINTS = {"blockages": [[xlo, ylo, xhi, yhi], ..], "max_density": [..],
-                   "halo": {"idx": [..], "values": [[l, b, r, t], ..]}}
+                   "halo": {"idx": [..], "values": [[l, b, r, t], ..]},
+                   "regions": [{"name", "type", "rects", "group"}, ..],
+                   "members": {"idx": [block, ..], "region": [k, ..]}}
 
 Blockages and halos edited in the session (:meth:`Session.add_blockage`, ``set_halo``, ...)
 live on derived designs; ``"constraints"`` lists each distinct one once, its halos as the
@@ -50,7 +52,15 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from .design import ORIENTATIONS, STATUS_NAMES, Design, DesignError, Floorplan
+from .design import (
+    ORIENTATIONS,
+    REGION_TYPES,
+    STATUS_NAMES,
+    CellRegions,
+    Design,
+    DesignError,
+    Floorplan,
+)
 from .formats._io import atomic_write, read_json_file
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -139,9 +149,13 @@ def _relative(src: str | None, path: Path | None) -> str | None:
 
 def _constraints_doc(design: Design, base: Design) -> dict:
     changed = np.flatnonzero((design.halo != base.halo).any(axis=1))
+    mem = np.flatnonzero(design.regions.member >= 0)
     return {"blockages": design.blockages.tolist(),
             "max_density": design.blockage_max_density.tolist(),
-            "halo": {"idx": changed.tolist(), "values": design.halo[changed].tolist()}}
+            "halo": {"idx": changed.tolist(), "values": design.halo[changed].tolist()},
+            "regions": design.regions.to_list(),
+            "members": {"idx": mem.tolist(),
+                        "region": design.regions.member[mem].tolist()}}
 
 
 class _Designs:
@@ -365,8 +379,28 @@ class _Doc:
             self.fail(where + ".halo.values", f"expected {len(idx)} halos, got {len(vals)}")
         halo = base.halo.copy()
         halo[np.array(idx, dtype=np.int64)] = vals
+        regions = self.lst(self.get(v, "regions", where, []), where + ".regions")
+        for k, r in enumerate(regions):
+            w = f"{where}.regions[{k}]"
+            self.text(self.get(r, "name", w), w + ".name")
+            if self.get(r, "type", w) not in REGION_TYPES:
+                self.fail(w + ".type", f"expected one of {', '.join(REGION_TYPES)}")
+            self.rects(self.get(r, "rects", w), w + ".rects")
+            if not isinstance(r.get("group", ""), str):
+                self.fail(w + ".group", "expected text")
+        mem = self.obj(self.get(v, "members", where, {}), where + ".members")
+        midx = self.lst(mem.get("idx", []), where + ".members.idx")
+        mreg = self.lst(mem.get("region", []), where + ".members.region")
+        if len(midx) != len(mreg) or not all(
+                isinstance(i, int) and not isinstance(i, bool) and 0 <= i < base.num_blocks
+                for i in midx) or not all(isinstance(r, int) and not isinstance(r, bool)
+                                          and 0 <= r < len(regions) for r in mreg):
+            self.fail(where + ".members", "expected block indices and region indices")
+        member = np.full(base.num_blocks, -1, np.int32)
+        member[np.array(midx, dtype=np.int64)] = mreg
         try:
-            return base.derive(blockages=bl, blockage_max_density=md, halo=halo)
+            return base.derive(blockages=bl, blockage_max_density=md, halo=halo,
+                               regions=CellRegions.build(base.num_blocks, regions, member))
         except DesignError as e:
             self.fail(where, e.message)
         raise AssertionError  # pragma: no cover
@@ -382,7 +416,8 @@ def _check_log(doc: _Doc, design: Design, entries, where: str, depth: int = 0) -
     known = {"move", "pin", "unpin", "rotate", "flip", "set_orientation", "align",
              "distribute", "array", "mirror", "push", "shift", "place", "refine", "legalize",
              "undo", "redo", "snapshot", "add_alternative", "restore", "add_blockage",
-             "move_blockage", "set_blockage_density", "remove_blockage", "set_halo"}
+             "move_blockage", "set_blockage_density", "remove_blockage", "set_halo",
+             "add_region", "remove_region", "assign_group"}
     out = []
     for k, e in enumerate(doc.lst(entries, where)):
         w = f"{where}[{k}]"

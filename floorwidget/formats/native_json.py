@@ -14,7 +14,9 @@ Layout (version 1)::
       "blocks": [{"name": .., "kind": "macro|cluster|cell|terminal", "width": .., "height": ..,
                   "halo": [l, b, r, t] or h, "orientations": ["N", "FN", ..], "type": "..",
                   "x": .., "y": .., "orient": "N", "status": "movable|pinned|fixed"}],
-      "nets": [{"name": .., "weight": 1.0, "pins": [[block, dx, dy] or [block, dx, dy, pin]]}]
+      "nets": [{"name": .., "weight": 1.0, "pins": [[block, dx, dy] or [block, dx, dy, pin]]}],
+      "regions": [{"name": .., "type": "fence|guide", "rects": [[xlo, ylo, xhi, yhi], ..],
+                   "members": [block, ..], "group": ..}]
     }
 
 Pin offsets are from the block centre in the N orientation.  Optional fields take defaults
@@ -39,7 +41,9 @@ from ..design import (
     MAX_SITES,
     ORIENT_CODE,
     ORIENTATIONS,
+    REGION_TYPES,
     STATUS_NAMES,
+    CellRegions,
     Design,
     DesignError,
     Floorplan,
@@ -51,6 +55,7 @@ FORMAT = "floorwidget-design"
 VERSION = 1
 _KIND = {k: i for i, k in enumerate(KIND_NAMES)}
 _STATUS = {k: i for i, k in enumerate(STATUS_NAMES)}
+_REGION_TYPE = {k: i for i, k in enumerate(REGION_TYPES)}
 
 
 class _Reader:
@@ -234,12 +239,29 @@ def parse_json(doc: dict, path) -> Design:
     dbu = doc.get("dbu", 1000)
     if isinstance(dbu, bool) or not isinstance(dbu, int) or not 0 < dbu <= MAX_DBU:
         r.fail("dbu", f"expected a whole number in 1..{MAX_DBU}")
+    regions, member = [], np.full(n, -1, np.int32)
+    for k, g in enumerate(r.items(doc, "regions", "", [])):
+        w = f"regions[{k}]"
+        rects = r.items(g, "rects", w)
+        if not rects:
+            r.fail(f"{w}.rects", "expected at least one rectangle")
+        regions.append({"name": r.text(r.get(g, "name", w), f"{w}.name"),
+                        "type": REGION_TYPES[r.choice(g.get("type", "fence"), _REGION_TYPE,
+                                                      f"{w}.type")],
+                        "rects": [r.nums(b, 4, f"{w}.rects[{j}]") for j, b in enumerate(rects)],
+                        "group": r.text(g["group"], f"{w}.group") if "group" in g else None})
+        for j, nm in enumerate(r.items(g, "members", w, [])):
+            b = index.get(nm) if isinstance(nm, str) else None
+            if b is None:
+                r.fail(f"{w}.members[{j}]", f"unknown block {json.dumps(nm)[:40]}")
+            member[b] = k
     return Design(
         name, die, names, kind, width, height, starts, pin_block, pin_dx, pin_dy,
         halo=halo, orient_allowed=allowed, net_names=net_names, net_weight=weights,
         pin_names=pin_names if any_pin_name else None, rows=rows, grid_pitch=pitch,
         grid_origin=origin, blockages=np.array(blockages).reshape(-1, 4),
         blockage_max_density=np.array(max_density, dtype=np.float64),
+        regions=CellRegions.build(n, regions, member) if regions else None,
         block_type=types if any_type else None, x=x, y=y, orient=orient, status=status,
         dbu=dbu, source=str(path))
 
@@ -306,6 +328,10 @@ def to_document(design: Design, fp: Floorplan) -> dict:
                          {"rect": [_clean(v) for v in b], "max_density": _clean(md)}
                          for b, md in zip(d.blockages, d.blockage_max_density)],
            "blocks": blocks, "nets": nets}
+    if len(d.regions):
+        doc["regions"] = [{**g, "rects": [[_clean(v) for v in b] for b in g["rects"]],
+                           "members": [d.names[i] for i in d.regions.members(k)]}
+                          for k, g in enumerate(d.regions.to_list())]
     return doc
 
 
