@@ -22,7 +22,7 @@ def w(demo_design):
 
 
 def _brush(w, x, y):
-    b = w.blockage_brush
+    b = w.draw_brush
     b.brushing = True
     b.selected_x, b.selected_y = x, y
     b.brushing = False
@@ -31,7 +31,7 @@ def _brush(w, x, y):
 def test_draw_mode_adds_a_blockage_through_the_session(w, demo_design):
     s = w.session
     w.mode.value = "Draw blockage"
-    assert w.canvas.figure.interaction is w.blockage_brush
+    assert w.canvas.figure.interaction is w.draw_brush
     w.new_density.value = 0.25
     _brush(w, [700.0, 400.0], [900.0, 600.0])  # dragged right to left
     assert s.history[-1] == "add_blockage"
@@ -45,9 +45,9 @@ def test_draw_mode_adds_a_blockage_through_the_session(w, demo_design):
     assert w.blockage_x.value == 400.0 and w.blockage_density.value == 0.25
     # a brush that ends with no rectangle (a click) adds nothing
     n = len(s.history)
-    w.blockage_brush.brushing = True
-    w.blockage_brush.selected_x = None
-    w.blockage_brush.brushing = False
+    w.draw_brush.brushing = True
+    w.draw_brush.selected_x = None
+    w.draw_brush.brushing = False
     assert len(s.history) == n
 
 
@@ -113,3 +113,33 @@ def test_halo_fields_set_the_halo_of_the_selection(w, demo_design):
     assert s.design.halo[i, 0] == 1.0
     w.select([])
     assert w.buttons["Set halo"].disabled
+
+
+def test_draw_region_and_assign_the_picked_group(w, demo_design):
+    s = w.session
+    w.mode.value = "Draw region"
+    w.region_name.value = "dsp_logic"
+    w.region_kind.value = "guide"
+    _brush(w, [200.0, 900.0], [300.0, 1100.0])
+    assert s.history[-1] == "add_region"
+    reg = s.design.regions
+    assert reg.names == ("dsp_logic",) and reg.kind.tolist() == [1]
+    assert reg.rects.tolist() == [[200.0, 300.0, 900.0, 1100.0]]
+    assert w.region_pick.value == "dsp_logic" and w.region_name.value == ""
+    c = w.canvas.element_counts()
+    assert c["regions_guide"] == 1 and c["regions"] == 0 and c["region_labels"] == 1
+    g = w.canvas.groups
+    soft = (demo_design.kind == 1) | (demo_design.kind == 2)
+    k = next(v for _, v in w.group_pick.options if soft[g.index == v].any())
+    w.group_pick.value = k
+    n = w.assign_picked_group()
+    mem = s.design.regions.members(0)
+    want = np.flatnonzero((g.index == k) & soft)
+    assert n == len(want) > 0 and np.array_equal(mem, want)
+    assert w.canvas.marks["region_labels"].text[0] == f" dsp_logic (guide, {n:,d})"
+    w.buttons["Remove region"].click()
+    assert len(s.design.regions) == 0 and w.region_pick.value is None
+    w.buttons["Assign group"].click()
+    assert "Draw a region first" in w.message.value
+    w.undo()
+    assert w.region_pick.value == "dsp_logic"

@@ -138,13 +138,14 @@ class FloorplanWidget(W.VBox):
         self._build_edit_controls()
         self._build_constraint_controls()
         self._build_view_controls()
+        self._build_region_controls()
         self.session.on_change(self._on_change)
         self._refresh_readouts()
         self._refresh_alternatives()
         self._refresh_edit()
         side = W.VBox([self.controls, self.progress, self.message, self.readout, self.legend,
                        self.view_box, self.details, self.edit_box, self.arrange_box,
-                       self.constraint_box],
+                       self.constraint_box, self.region_box],
                       layout=W.Layout(width="360px", margin="0 0 0 10px"))
         top = W.HBox([self.canvas.figure, side], layout=W.Layout(flex_flow="row wrap"))
         super().__init__([top, self.alt_box])
@@ -200,13 +201,15 @@ class FloorplanWidget(W.VBox):
         # what a mouse drag on the canvas does: bqplot's interaction layer lies over the marks,
         # so moving macros and panning cannot share one mode
         self.mode = W.ToggleButtons(options=["Move macros", "Pan / zoom", "Box select",
-                                             "Draw blockage"],
+                                             "Draw blockage", "Draw region"],
                                     value="Move macros", style={"button_width": "116px"},
                                     tooltips=["Drag a macro's (or a blockage's) handle to "
                                               "move it",
                                               "Drag to pan, wheel to zoom",
                                               "Drag a box to select several macros",
-                                              "Drag a rectangle to add a placement blockage"])
+                                              "Drag a rectangle to add a placement blockage",
+                                              "Drag a rectangle to add a cell region (name "
+                                              "and kind in the panel)"])
         self.mode.observe(self._mode_changed, "value")
         self.toggles["Density"].observe(lambda ch: self._heat_toggled("density", ch), "value")
         self.toggles["Congestion"].observe(lambda ch: self._heat_toggled("congestion", ch),
@@ -567,7 +570,8 @@ class FloorplanWidget(W.VBox):
     def _mode_changed(self, change) -> None:
         self.canvas.figure.interaction = {"Move macros": None, "Pan / zoom": self.canvas.panzoom,
                                           "Box select": self.brush,
-                                          "Draw blockage": self.blockage_brush}[change["new"]]
+                                          "Draw blockage": self.draw_brush,
+                                          "Draw region": self.draw_brush}[change["new"]]
 
     # --- blockages and halos --------------------------------------------------------------------
     def _build_constraint_controls(self) -> None:
@@ -576,10 +580,10 @@ class FloorplanWidget(W.VBox):
         import bqplot as bq
 
         small = {"description_width": "initial"}
-        self.blockage_brush = bq.interacts.BrushSelector(
+        self.draw_brush = bq.interacts.BrushSelector(
             x_scale=self.canvas.x_scale, y_scale=self.canvas.y_scale,
             color=ui_colors()["blockage"])
-        self.blockage_brush.observe(self._on_blockage_brush, names=["brushing"])
+        self.draw_brush.observe(self._on_draw_brush, names=["brushing"])
         self.new_density = W.BoundedFloatText(
             value=0.0, min=0.0, max=1.0, step=0.05, description="new: max density",
             style=small, layout=W.Layout(width="170px"),
@@ -629,16 +633,83 @@ class FloorplanWidget(W.VBox):
             W.HBox(self.halo_fields + [halo])])
         self._refresh_blockages()
 
-    def _on_blockage_brush(self, change) -> None:
+    def _on_draw_brush(self, change) -> None:
+        """A drag ended in a drawing mode: its rectangle becomes a blockage or a region."""
         if change["new"] or change["old"] is not True:  # act when a drag ends
             return
-        b = self.blockage_brush
+        b = self.draw_brush
         sx, sy = b.selected_x, b.selected_y
         if sx is None or sy is None or len(sx) != 2 or len(sy) != 2:
             return
-        self._ui(lambda: self.draw_blockage(float(sx[0]), float(sy[0]), float(sx[1]),
-                                            float(sy[1])))
+        draw = self.draw_region if self.mode.value == "Draw region" else self.draw_blockage
+        self._ui(lambda: draw(float(sx[0]), float(sy[0]), float(sx[1]), float(sy[1])))
         b.selected_x, b.selected_y = None, None  # the new blockage is drawn by the canvas
+
+    # --- cell regions -----------------------------------------------------------------------
+    def _build_region_controls(self) -> None:
+        """Cell regions: drawn in the "Draw region" mode with the name and kind typed here;
+        the hierarchy group picked under "Find and hierarchy" is assigned to the chosen region.
+        Session calls only."""
+        self.region_name = W.Text(placeholder="region name", layout=W.Layout(width="150px"))
+        self.region_kind = W.Dropdown(options=[("fence (cells stay inside)", "fence"),
+                                               ("guide (cells pulled toward it)", "guide")],
+                                      value="fence", layout=W.Layout(width="200px"))
+        self.region_pick = W.Dropdown(layout=W.Layout(width="200px"),
+                                      tooltip="The region to give cells or remove")
+        self.region_name.add_class("fw-region-name")
+        assign = self._button("Assign group", self.assign_picked_group,
+                              "Make the cells of the hierarchy group picked above members of "
+                              "this region (one undo step)", width="110px")
+        rm = self._button("Remove region", lambda: self.session.remove_region(
+            self._picked_region()), "Delete the region; its cells belong to none",
+            width="120px")
+        self.region_box = W.VBox([
+            W.HTML("<b>Cell regions</b> <span style='font-size:11px'>(mode Draw region: "
+                   "drag a rectangle; the placer honours them on the next Place all)</span>"),
+            W.HBox([self.region_name, self.region_kind]),
+            W.HBox([self.region_pick, assign]), W.HBox([rm])])
+        self._refresh_regions()
+
+    def _picked_region(self) -> str:
+        if self.region_pick.value is None:
+            raise ValueError("Draw a region first (mode Draw region), or pick one.")
+        return self.region_pick.value
+
+    def draw_region(self, x0: float, y0: float, x1: float, y1: float) -> str:
+        """Add a cell region over the rectangle ``(x0, y0)``–``(x1, y1)`` (clipped to the
+        die) named by the panel (default ``region_k``) of the panel's kind."""
+        self._refuse_if_busy()
+        die, reg = self.design.die, self.design.regions
+        name = self.region_name.value.strip() or next(
+            f"region_{k}" for k in range(len(reg) + 1) if f"region_{k}" not in reg.names)
+        xs = np.clip([x0, x1], die[0], die[2])
+        ys = np.clip([y0, y1], die[1], die[3])
+        self.session.add_region(name, [xs[0], ys[0], xs[1], ys[1]], self.region_kind.value)
+        self.region_pick.value = name
+        self.region_name.value = ""
+        self.notify(f"Added {self.region_kind.value} {name}; pick a hierarchy group above and "
+                    "press Assign group.")
+        return name
+
+    def assign_picked_group(self) -> int:
+        """:meth:`Session.assign_group` of the hierarchy group picked in the view box."""
+        region = self._picked_region()
+        g = self.canvas.groups
+        if self.group_pick.value is None:
+            raise ValueError("Pick a hierarchy group first.")
+        self._refuse_if_busy()
+        key = g.keys[int(self.group_pick.value)]
+        n = self.session.assign_group(region, prefix=key, depth=int(self.group_depth.value),
+                                      separators=self.group_seps.value)
+        self.notify(f"{n:,d} cells of {g.label(int(self.group_pick.value))} now belong to "
+                    f"{region}.")
+        return n
+
+    def _refresh_regions(self) -> None:
+        names = list(self.design.regions.names)
+        keep = self.region_pick.value
+        self.region_pick.options = names
+        self.region_pick.value = keep if keep in names else (names[-1] if names else None)
 
     def draw_blockage(self, x0: float, y0: float, x1: float, y1: float) -> int:
         """Add a placement blockage over the rectangle with corners ``(x0, y0)``, ``(x1, y1)``
@@ -1074,6 +1145,7 @@ class FloorplanWidget(W.VBox):
         self.canvas.update(ev.floorplan)
         if redesign:
             self._refresh_blockages()
+            self._refresh_regions()
         self._last_report = self.session.report
         self._prev_hpwl = prev.get("hpwl") if prev else None
         self._refresh_readouts()

@@ -7,6 +7,7 @@ engineer compares is drawn exactly like what they edit.
 Layer order, bottom to top: heat images (soft clusters / cells, density, RUDY congestion), the
 logic picture by hierarchy group, die and core outlines, placement rows (only when zoomed in),
 blockages (full ones filled, partial ones dashed and lighter, the selected one outlined),
+cell regions (fences solid, guides dashed, with their names),
 halos, macro fills, status outlines, narrow channels (a filled strip with a zigzag
 hatch) and bars on the pin side of macros whose pins face a wall, orientation notches, flylines
 (through one cell, then direct), selection, I/O pins, rings around blocks found by name, labels,
@@ -166,6 +167,13 @@ class Canvas:
             m[name] = bq.Lines(x=px, y=py, scales=sc, fill="inside",
                                colors=[self.ui["blockage"]], stroke_width=1.0,
                                line_style=dash, visible=False)
+        for name, dash in (("regions", "solid"), ("regions_guide", "dashed")):
+            m[name] = bq.Lines(x=px, y=py, scales=sc, colors=[self.ui["region"]],
+                               stroke_width=self.ui["region_width"], line_style=dash,
+                               visible=False)
+        m["region_labels"] = bq.Label(x=[0.0], y=[0.0], text=[""], scales=sc, default_size=11,
+                                      font_unit="px", align="start",
+                                      colors=[self.ui["region"]], visible=False)
         m["blockage_selection"] = bq.Lines(x=px, y=py, scales=sc,
                                            colors=[self.ui["selection"]], stroke_width=3.0,
                                            line_style="dashed", visible=False)
@@ -369,6 +377,34 @@ class Canvas:
                     h.y = (bl[:, 1] + bl[:, 3]) / 2
                 h.visible = bool(len(bl))
 
+    def _draw_regions(self) -> None:
+        """Cell regions of ``self.design``: outlines (fences solid, guides dashed) and each
+        name at the top-left corner of its first rectangle, with the member count."""
+        from ..design import FENCE
+
+        reg, m = self.design.regions, self.marks
+        kind_of = reg.kind[reg.rect_region()] if len(reg) else np.zeros(0)
+        for name, rows in (("regions", kind_of == FENCE), ("regions_guide", kind_of != FENCE)):
+            mk = m[name]
+            if not rows.any():
+                mk.visible = False
+                continue
+            x, y = geo.rect_rows(reg.rects[rows])
+            with mk.hold_sync():
+                mk.x, mk.y = x, y
+                mk.visible = True
+        lab = m["region_labels"]
+        if not len(reg):
+            lab.visible = False
+            return
+        first = reg.rects[reg.rect_start[:-1]]
+        count = np.bincount(reg.member[reg.member >= 0], minlength=len(reg))
+        with lab.hold_sync():
+            lab.x, lab.y = first[:, 0], first[:, 3]
+            lab.text = [f" {nm} ({'fence' if reg.kind[k] == FENCE else 'guide'}, "
+                        f"{count[k]:,d})" for k, nm in enumerate(reg.names)]
+            lab.visible = True
+
     def select_blockage(self, k: int | None) -> None:
         """Outline blockage ``k`` (``None``: no blockage selected)."""
         self.blockage_selected = k
@@ -384,6 +420,7 @@ class Canvas:
         if fp.design is not self._constraints_of:
             self.design = self._constraints_of = fp.design
             self._draw_blockages()
+            self._draw_regions()
         d = self.design
         if illegal is None:
             illegal = illegal_blocks(d, fp)
