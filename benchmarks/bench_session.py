@@ -120,7 +120,23 @@ def bench_constraints(design: Design, repeats: int) -> list[tuple[str, str, str]
     s._reports.clear()
     rows.append(("report after an edit", median_ms(lambda: (s.set_halo(macros[0], next(k) % 5),
                                                              s.report), min(repeats, 5))))
-    return [(op, f"{t:.3f}", "") for op, t in rows]
+    # cell regions: the largest hierarchy group with cells (separators "/._", depth 2)
+    from floorwidget.design import CELL, CLUSTER
+    from floorwidget.hierarchy import hierarchy_groups
+
+    g = hierarchy_groups(design.names, 2, "/._")
+    soft = (design.kind == CELL) | (design.kind == CLUSTER)
+    size = np.bincount(g.index, weights=soft, minlength=len(g))
+    size[g.keys.index("")] = -1 if "" in g.keys else size[g.keys.index("")]
+    key = g.keys[int(np.argmax(size))]
+    names = iter(f"r{j}" for j in range(10**9))
+    rows_r = [("add_region", median_ms(lambda: s.add_region(next(names), rect), repeats))]
+    last = s.design.regions.names[-1]
+    rows_r.append((f"assign_group ({int(size.max())} cells)", median_ms(
+        lambda: s.assign_group(last, prefix=key, depth=2, separators="/._"), repeats)))
+    rows_r.append(("remove_region", median_ms(
+        lambda: s.remove_region(s.design.regions.names[-1]), repeats)))
+    return [(op, f"{t:.3f}", "") for op, t in rows + rows_r]
 
 
 def _ariane() -> Design | None:
