@@ -1308,20 +1308,23 @@ class _Def:
         return True
 
     # --- BLOCKAGES ---------------------------------------------------------------------------
-    def blockage_section(self, start: int, end: int, count: int, hpos: int) -> None:
+    def _statements(self, what: str, start: int, end: int, count: int, hpos: int):
+        """``(first word, tokens, position)`` of each ``- ... ;`` statement of a section (the
+        position is on the statement's line), checked against the header's count."""
         stmts = list(self._STMT.finditer(self.text, start, end))
         for mt in stmts:
             if mt.group(3):
-                self.fail(f"BLOCKAGES: cannot read statement {mt.group(3)[:40]!r}", mt.start(3))
+                self.fail(f"{what}: cannot read statement {mt.group(3)[:40]!r}", mt.start(3))
         if len(stmts) != count:
-            self.fail(f"BLOCKAGES header says {count}, the section has {len(stmts)}", hpos)
-        for mt in stmts:
-            kind = mt.group(1).upper()
+            self.fail(f"{what} header says {count}, the section has {len(stmts)}", hpos)
+        return [(mt.group(1), _split_tokens(mt.group(2)), mt.start(1)) for mt in stmts]
+
+    def blockage_section(self, start: int, end: int, count: int, hpos: int) -> None:
+        for word, toks, pos in self._statements("BLOCKAGES", start, end, count, hpos):
+            kind = word.upper()
             if kind != "PLACEMENT":
                 self.skipped[f"BLOCKAGES {kind}"] += 1
                 continue
-            toks = _split_tokens(mt.group(2))
-            pos = mt.start(1)  # the statement's line (mt.start() is the newline before it)
             k = 0
             density = 0.0
             first = len(self.blockages)
@@ -1360,15 +1363,6 @@ class _Def:
             self.blockage_density.extend([density] * (len(self.blockages) - first))
 
     # --- REGIONS and GROUPS -------------------------------------------------------------------
-    def _statements(self, what: str, start: int, end: int, count: int, hpos: int):
-        stmts = list(self._STMT.finditer(self.text, start, end))
-        for mt in stmts:
-            if mt.group(3):
-                self.fail(f"{what}: cannot read statement {mt.group(3)[:40]!r}", mt.start(3))
-        if len(stmts) != count:
-            self.fail(f"{what} header says {count}, the section has {len(stmts)}", hpos)
-        return [(mt.group(1), _split_tokens(mt.group(2)), mt.start(1)) for mt in stmts]
-
     def region_section(self, start: int, end: int, count: int, hpos: int) -> None:
         """``- name ( x y ) ( x y ) ... [+ TYPE FENCE | GUIDE] ;``: corner pairs."""
         for name, toks, pos in self._statements("REGIONS", start, end, count, hpos):
