@@ -100,7 +100,8 @@ class ChangeEvent:
         (sorted); ``None`` means "assume all"; an empty array means none did (e.g. a snapshot).
     floorplan : Floorplan
         The new current floorplan (read-only).  ``floorplan.design`` carries the constraints
-        in force (blockages, halos); it is another object after a constraint edit.
+        in force (blockages, halos, cell regions); it is another object after a constraint
+        edit.
     label : str or None
         The snapshot / alternative label for ``snapshot``, ``add_alternative`` and ``restore``.
     """
@@ -366,9 +367,10 @@ class Session:
     def design(self) -> Design:
         """The design with the constraints in force now (``floorplan.design``).
 
-        Blockages and halos are edited through the session (:meth:`add_blockage`,
-        :meth:`set_halo`, ...): each edit derives a new :class:`Design` sharing the netlist
-        (:meth:`Design.derive`), so this object changes with them, and with undo and redo."""
+        Blockages, halos and cell regions are edited through the session
+        (:meth:`add_blockage`, :meth:`set_halo`, :meth:`add_region`, ...): each edit derives a
+        new :class:`Design` sharing the netlist (:meth:`Design.derive`), so this object
+        changes with them, and with undo and redo."""
         return self._fp.design
 
     @property
@@ -748,7 +750,7 @@ class Session:
         return self._arrange("shift", names, arrange.shift,
                              (_finite(dx, "dx"), _finite(dy, "dy")))
 
-    # --- constraints: placement blockages and halos --------------------------------------------
+    # --- constraints: placement blockages and halos ---------------------------------------------
     def _constrain(self, action: str, log: tuple, blocks=(), **changes) -> None:
         """Commit a design derived with ``changes`` as one undoable step (positions kept)."""
         fp = self._fp
@@ -763,7 +765,9 @@ class Session:
             raise DesignError(f"blockage {index!r}: no such placement blockage (there are {k})")
         return int(index)
 
-    def _blockage_rect(self, rect, what: str) -> list[float]:
+    def _rect_in_die(self, rect, what: str) -> list[float]:
+        """``rect`` (two corners in any order) as ``[xlo, ylo, xhi, yhi]``, checked: four
+        finite numbers, some area, inside the die (errors name ``what``)."""
         try:
             vals = list(rect)
         except TypeError:
@@ -814,7 +818,7 @@ class Session:
             :meth:`refine`; :attr:`report` counts macros on it at once.
         """
         k = len(self.design.blockages)
-        r = self._blockage_rect(rect, f"blockage {k}")
+        r = self._rect_in_die(rect, f"blockage {k}")
         md = self._max_density(max_density, f"blockage {k}")
         d = self.design
         self._constrain("add_blockage", ((r,), {"max_density": md} if md else {}),
@@ -833,7 +837,7 @@ class Session:
         d = self.design
         b = d.blockages[k]
         fx, fy = _finite(x, f"blockage {k}: x"), _finite(y, f"blockage {k}: y")
-        r = self._blockage_rect([fx, fy, fx + (b[2] - b[0]), fy + (b[3] - b[1])],
+        r = self._rect_in_die([fx, fy, fx + (b[2] - b[0]), fy + (b[3] - b[1])],
                                 f"blockage {k}")
         bl = d.blockages.copy()
         bl[k] = r
@@ -915,7 +919,7 @@ class Session:
                               f"{', '.join(REGION_TYPES)}, got {kind!r}")
         many = isinstance(rects, (list, tuple, np.ndarray)) and len(rects) > 0 \
             and isinstance(rects[0], (list, tuple, np.ndarray))
-        boxes = [self._blockage_rect(r, f"region {name!r}") for r in (rects if many
+        boxes = [self._rect_in_die(r, f"region {name!r}") for r in (rects if many
                                                                      else [rects])]
         regions = reg.to_list() + [{"name": name, "type": kind, "rects": boxes}]
         self._constrain("add_region", ((name, boxes if many else boxes[0]),

@@ -279,3 +279,18 @@ def test_json_region_member_unknown_is_named(rent, tmp_path):
     (tmp_path / "a.json").write_text(json.dumps(doc))
     with pytest.raises(DesignError, match=r"regions\[0\]\.members\[1\]: unknown block"):
         read_json(tmp_path / "a.json")
+
+
+def test_a_region_without_members_changes_nothing_but_its_fence(rent):
+    d, fp0 = rent
+    s = Session(d)
+    s.add_region("idle", _box(d, 0.1, 0.1, 0.3, 0.3), kind="guide")
+    s.place()
+    assert s.floorplan.identical(fp0)  # a guide without members: the same placement, bit for bit
+    s.undo()
+    s.remove_region("idle")
+    s.add_region("empty", _box(d, 0.1, 0.1, 0.3, 0.3))
+    s.place()
+    cells = np.flatnonzero(d.kind == CELL)
+    fence = shapely.box(*_box(d, 0.1, 0.1, 0.3, 0.3))
+    assert shapely.area(shapely.intersection(_rects(s.floorplan, cells), fence)).max() == 0.0

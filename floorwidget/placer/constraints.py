@@ -6,6 +6,12 @@ already takes its area out.  A *partial* blockage with maximum density ``d`` (DE
 so a bin under it holds ``d`` instead of the target density there: its capacity loses
 ``max(0, target − d)`` times the covered area.  The spreading (look-ahead) and the density cap
 of detailed placement both subtract this loss; macros are not kept off partial blockages.
+
+Cell regions (:class:`floorwidget.design.CellRegions`): :class:`RegionPlan` makes the
+spreading keep fence members inside their fence and everyone else out, and pulls guide
+members toward their guide; :func:`row_groups` splits the rows stage so that each fence's
+cells are legalised on the rows inside it and the rest outside all fences;
+:func:`macro_keepouts` keeps macros off full blockages and fences.
 """
 
 from __future__ import annotations
@@ -109,7 +115,9 @@ class RegionPlan:
             idx = np.flatnonzero(self.fence & (self.reg == k))
             if len(idx):
                 self.groups.append((idx, cap * share))
-        self.groups.append((np.flatnonzero(~self.fence), cap * np.clip(1.0 - inside, 0, 1)))
+        rest = np.flatnonzero(~self.fence)
+        if len(rest):
+            self.groups.append((rest, cap * np.clip(1.0 - inside, 0, 1)))
 
     def clamp(self, cx, cy, w, h) -> None:
         """Fence members (positions among the variables) into their fence, in place."""
@@ -135,7 +143,9 @@ class RegionPlan:
     def check(self, w, h, wt, design_name: str) -> None:
         """PlacementError naming the fence whose members do not fit its capacity."""
         from .errors import PlacementError  # noqa: PLC0415
-        for idx, capg in self.groups[:-1]:
+        for idx, capg in self.groups:
+            if not self.fence[idx[0]]:
+                continue  # the objects outside every fence: checked with the whole core
             k = int(self.reg[idx[0]])
             need = float(np.sum(w[idx] * h[idx] * wt[idx]))
             have = float(capg.sum())
