@@ -213,6 +213,14 @@ class CellRegions:
     def __len__(self) -> int:
         return len(self.names)
 
+    def __eq__(self, other) -> bool:
+        return isinstance(other, CellRegions) and self.names == other.names \
+            and self.groups == other.groups and all(
+                np.array_equal(getattr(self, a), getattr(other, a))
+                for a in ("kind", "rect_start", "rects", "member"))
+
+    __hash__ = None  # type: ignore[assignment]  # mutable arrays inside
+
     def index(self, name: str) -> int:
         """Index of region ``name``; :class:`DesignError` naming it when unknown."""
         try:
@@ -397,7 +405,6 @@ class Design:
                                      if blockage_max_density is None
                                      else _f64(blockage_max_density, (len(self.blockages),)))
         self.regions = CellRegions.empty(n) if regions is None else regions
-        self._root = self  # the design whose netlist this one shares (see derive)
 
         self._index: dict[str, int] | None = None
         if validate:
@@ -496,8 +503,10 @@ class Design:
 
     def same_netlist(self, other: Design) -> bool:
         """Whether ``other`` is this design or one derived from the same one (:meth:`derive`):
-        the same blocks and nets, maybe other blockages, halos or cell regions."""
-        return isinstance(other, Design) and other._root is self._root
+        the same blocks and nets, maybe other blockages, halos or cell regions.  Derived
+        designs share the name list and the pin arrays (also through a pickle of both)."""
+        return isinstance(other, Design) and other.names is self.names \
+            and other.pin_block is self.pin_block
 
     def derive(self, **changes) -> Design:
         """A design sharing this one's netlist and geometry with other *constraints*.
