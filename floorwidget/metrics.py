@@ -14,7 +14,8 @@ Conventions
 * **Density**: *movable area* is the footprint area of movable blocks (macros, clusters and
   cells -- never terminals); *fixed area* that of pinned or fixed blocks (again not terminals);
   both are clipped to the core.  *Free area* of a bin is its area inside the core minus the
-  area of the union of placement blockages in it.
+  area of the union of full placement blockages in it (a partial blockage only caps the
+  placer's cell density; it leaves the free area as it is).
 * **Overflow** is ``sum over bins of max(0, movable + fixed - target * free)`` divided by the total
   movable area.  Movable area that lies outside the core is added to the numerator in full
   (outside the core the free area is zero), so pushing blocks out of the core never lowers it.
@@ -434,7 +435,7 @@ class DensityMap:
     ----------
     grid : BinGrid
     movable, fixed, blockage, free, core : ndarray
-        Movable block area, pinned/fixed block area, placement-blockage area (union), free
+        Movable block area, pinned/fixed block area, full placement-blockage area (union), free
         area (bin area inside the core minus blockage) and bin area inside the core, per bin.
     movable_outside : float
         Movable area outside the core (it is in no bin).
