@@ -1,7 +1,9 @@
 """Session speed and history memory: hand edits, undo/redo, batches, files, scripts.
 
-``python benchmarks/bench_session.py [--quick]`` prints one table per design: the demo design
-and a synthetic one with many blocks (100 macros plus soft blocks; ``--quick`` keeps it small).
+``python benchmarks/bench_session.py [--quick] [--real]`` prints one table per design: the demo
+design and a synthetic one with many blocks (100 macros plus soft blocks; ``--quick`` keeps it
+small), then the constraint edits (blockages, halos) on the demo and, with ``--real``, on
+``../shared/realdata/ariane136`` (146k components; median of 10).
 Times are medians over repeats (the machine is shared and noisy); the memory column is the size
 of the undo record kept per step.  Placer and metrics calls are benchmarked by their own areas.
 """
@@ -95,18 +97,84 @@ def bench(design: Design, repeats: int) -> list[tuple[str, str, str]]:
     return rows
 
 
+def bench_constraints(design: Design, repeats: int) -> list[tuple[str, str, str]]:
+    """Blockage and halo edits: each derives a design and records one undo step."""
+    s = Session(design)
+    c = design.core
+    w, h = c[2] - c[0], c[3] - c[1]
+    rect = [c[0] + 0.4 * w, c[1] + 0.4 * h, c[0] + 0.5 * w, c[1] + 0.45 * h]
+    macros = design.macros
+    k = iter(range(10**9))
+    rows = [("add_blockage", median_ms(lambda: s.add_blockage(rect), repeats))]
+    last = len(s.design.blockages) - 1
+    rows.append(("move_blockage", median_ms(
+        lambda: s.move_blockage(last, rect[0] + next(k) % 50, rect[1]), repeats)))
+    rows.append(("set_blockage_density", median_ms(
+        lambda: s.set_blockage_density(last, 0.05 + (next(k) % 10) / 20), repeats)))
+    rows.append(("set_halo (one macro)", median_ms(
+        lambda: s.set_halo(macros[next(k) % len(macros)], [1.0, 2.0, 1.0, 2.0]), repeats)))
+    rows.append(("undo (a constraint edit)", median_ms(s.undo, repeats)))
+    rows.append(("redo (a constraint edit)", median_ms(s.redo, repeats)))
+    rows.append(("remove_blockage", median_ms(
+        lambda: s.remove_blockage(len(s.design.blockages) - 1), min(repeats, last))))
+    s._reports.clear()
+    rows.append(("report after an edit", median_ms(lambda: (s.set_halo(macros[0], next(k) % 5),
+                                                             s.report), min(repeats, 5))))
+    # cell regions: the largest hierarchy group with cells (separators "/._", depth 2)
+    from floorwidget.design import CELL, CLUSTER
+    from floorwidget.hierarchy import hierarchy_groups
+
+    g = hierarchy_groups(design.names, 2, "/._")
+    soft = (design.kind == CELL) | (design.kind == CLUSTER)
+    size = np.bincount(g.index, weights=soft, minlength=len(g))
+    size[g.keys.index("")] = -1 if "" in g.keys else size[g.keys.index("")]
+    key = g.keys[int(np.argmax(size))]
+    names = iter(f"r{j}" for j in range(10**9))
+    rows_r = [("add_region", median_ms(lambda: s.add_region(next(names), rect), repeats))]
+    last = s.design.regions.names[-1]
+    rows_r.append((f"assign_group ({int(size.max())} cells)", median_ms(
+        lambda: s.assign_group(last, prefix=key, depth=2, separators="/._"), repeats)))
+    rows_r.append(("remove_region", median_ms(
+        lambda: s.remove_region(s.design.regions.names[-1]), repeats)))
+    return [(op, f"{t:.3f}", "") for op, t in rows + rows_r]
+
+
+def _ariane() -> Design | None:
+    folder = ROOT.parent / "shared" / "realdata" / "ariane136"
+    defs = sorted(folder.glob("*.def.gz"))
+    if not defs:
+        return None
+    lefs = sorted(str(p) for p in folder.glob("*.lef"))
+    lefs = [p for p in lefs if "tech" in Path(p).name] + [p for p in lefs if "tech" not in
+                                                          Path(p).name]
+    return fw.load(defs[0], lef=lefs)
+
+
+def _table(title: str, rows) -> None:
+    print(f"\n{title}")
+    print(f"{'operation':<30} {'ms':>10}  memory")
+    print("-" * 64)
+    for op, ms, mem in rows:
+        print(f"{op:<30} {ms:>10}  {mem}")
+
+
 def main(argv: list[str]) -> int:
     quick = "--quick" in argv
     repeats = 20 if quick else 200
     designs = [("demo heron_dsp", fw.load(ROOT / "demo_data" / "heron_dsp.json")),
                ("synthetic", synthetic(20_000 if quick else 200_000))]
     for label, d in designs:
-        print(f"\n{label}: {d.num_blocks} blocks ({len(d.macros)} macros), "
-              f"median of {repeats} (files: 3)")
-        print(f"{'operation':<30} {'ms':>10}  memory")
-        print("-" * 64)
-        for op, ms, mem in bench(d, repeats):
-            print(f"{op:<30} {ms:>10}  {mem}")
+        _table(f"{label}: {d.num_blocks} blocks ({len(d.macros)} macros), median of "
+               f"{repeats} (files: 3)", bench(d, repeats))
+    _table(f"constraint edits, demo heron_dsp, median of {repeats}",
+           bench_constraints(designs[0][1], repeats))
+    if "--real" in argv:
+        d = _ariane()
+        if d is None:
+            print("\nariane136 not found under ../shared/realdata; skipped")
+        else:
+            _table(f"constraint edits, ariane136: {d.num_blocks} blocks ({len(d.macros)} "
+                   "macros), median of 10", bench_constraints(d, 10))
     return 0
 
 

@@ -7,6 +7,7 @@
                         [--macro-layout auto|periphery|free] [--channel UM]
     floorwidget convert IN OUT [--lef L ...]
     floorwidget render  FILE -o OUT.png|OUT.svg [--lef L ...] [--heat density|congestion]
+                        [--hierarchy DEPTH]
 
 ``--lef`` takes one or more files and may repeat (``--lef tech.lef cells.lef --lef ram.lef``);
 put it after FILE.  Inputs may be compressed (``x.def.gz``, ``x.aux`` naming ``.nodes.gz`` ...);
@@ -88,15 +89,22 @@ _density = _number(0.0, 1.0, True, "a number in (0, 1]")
 _channel = _number(0.0, 1e9, False, "a number of µm in [0, 1e9]")
 
 
-def _seed(text: str) -> int:
-    try:
-        v = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"not a whole number: {text!r}") from None
-    if not 0 <= v <= _SEED_MAX:
-        raise argparse.ArgumentTypeError(f"must be a whole number in [0, {_SEED_MAX}], "
-                                         f"got {text!r}")
-    return v
+def _whole(lo: int, hi: int):
+    """An argparse type: a whole number in ``[lo, hi]``."""
+    def parse(text: str) -> int:
+        try:
+            v = int(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"not a whole number: {text!r}") from None
+        if not lo <= v <= hi:
+            raise argparse.ArgumentTypeError(f"must be a whole number in [{lo}, {hi}], "
+                                             f"got {text!r}")
+        return v
+    return parse
+
+
+_seed = _whole(0, _SEED_MAX)
+_depth = _whole(0, 64)
 
 
 def _strict(v):
@@ -159,6 +167,9 @@ def _parser() -> argparse.ArgumentParser:
     common(rd)
     rd.add_argument("-o", "--output", required=True, metavar="OUT")
     rd.add_argument("--heat", choices=("density", "congestion"), default=None)
+    rd.add_argument("--hierarchy", type=_depth, default=None, metavar="DEPTH",
+                    help="colour macros and the logic by hierarchy group (instance-name "
+                         "prefix of up to DEPTH levels)")
     return p
 
 
@@ -238,7 +249,7 @@ def _run(args) -> int:
         from .render import render
 
         design = _load(args.file, args)
-        render(design, design.initial, args.output, heat=args.heat)
+        render(design, design.initial, args.output, heat=args.heat, hierarchy=args.hierarchy)
     return 0
 
 

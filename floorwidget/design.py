@@ -20,6 +20,7 @@ from __future__ import annotations
 import warnings
 from collections import Counter
 from collections.abc import Iterable, Sequence
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -37,7 +38,11 @@ __all__ = [
     "TERMINAL",
     "ALL_ORIENTS",
     "COORD_LIMIT",
+    "FENCE",
+    "GUIDE",
     "MAX_SITES",
+    "REGION_TYPES",
+    "CellRegions",
     "Design",
     "DesignError",
     "Floorplan",
@@ -56,6 +61,9 @@ KIND_NAMES = ("macro", "cluster", "cell", "terminal")
 
 MOVABLE, PINNED, FIXED = 0, 1, 2
 STATUS_NAMES = ("movable", "pinned", "fixed")
+
+FENCE, GUIDE = 0, 1
+REGION_TYPES = ("fence", "guide")  # DEF REGIONS + TYPE FENCE | GUIDE
 
 ORIENTATIONS = ("N", "S", "E", "W", "FN", "FS", "FE", "FW")
 ORIENT_CODE = {o: i for i, o in enumerate(ORIENTATIONS)}
@@ -147,6 +155,143 @@ def orient_offsets(dx, dy, orient):
 
 
 # ---------------------------------------------------------------------------------------------
+# cell regions: rectangles that groups of standard cells and clusters must stay in or lean to
+
+
+@dataclass(frozen=True, eq=False)
+class CellRegions:
+    """Named regions (DEF ``REGIONS``) and the blocks assigned to them (DEF ``GROUPS``).
+
+    A *fence* keeps its members inside its rectangles and every other cell out; a *guide*
+    pulls its members toward them and lets them spill.  Only standard cells and soft clusters
+    are members (macros are placed by their own rules).  Not to be confused with the report's
+    ``logic_regions`` (the free areas between macros).
+
+    Attributes
+    ----------
+    names : tuple of str
+        Region names, unique.
+    kind : (r,) int8
+        :data:`FENCE` or :data:`GUIDE`.
+    rect_start : (r + 1,) int64
+        CSR index: the rectangles of region ``k`` are ``rects[rect_start[k]:rect_start[k+1]]``
+        (at least one; they do not overlap each other).
+    rects : (m, 4) float64
+        ``xlo, ylo, xhi, yhi``, µm.
+    member : (n,) int32
+        Region of each block, -1 for none.
+    groups : tuple of str
+        The DEF ``GROUPS`` name that assigns each region its members (default: its name).
+    """
+
+    names: tuple
+    kind: np.ndarray
+    rect_start: np.ndarray
+    rects: np.ndarray
+    member: np.ndarray
+    groups: tuple
+
+    @classmethod
+    def empty(cls, n: int) -> CellRegions:
+        return cls((), np.zeros(0, np.int8), np.zeros(1, np.int64), np.zeros((0, 4)),
+                   np.full(n, -1, np.int32), ())
+
+    @classmethod
+    def build(cls, n: int, regions: Sequence[dict], member=None) -> CellRegions:
+        """From ``[{"name", "type": "fence"|"guide", "rects": [[..4..], ..], "group"}]`` and a
+        ``(n,)`` member array (default: none)."""
+        names = tuple(str(r["name"]) for r in regions)
+        kind = np.array([REGION_TYPES.index(r.get("type", "fence")) for r in regions],
+                        dtype=np.int8)
+        counts = [len(r["rects"]) for r in regions]
+        rects = np.array([b for r in regions for b in r["rects"]], dtype=np.float64)
+        groups = tuple(str(r.get("group") or r["name"]) for r in regions)
+        mem = np.full(n, -1, np.int32) if member is None else np.asarray(member, np.int32)
+        return cls(names, kind, np.concatenate([[0], np.cumsum(counts)]).astype(np.int64),
+                   rects.reshape(-1, 4), mem.reshape(n), groups)
+
+    def __len__(self) -> int:
+        return len(self.names)
+
+    def __eq__(self, other) -> bool:
+        return isinstance(other, CellRegions) and self.names == other.names \
+            and self.groups == other.groups and all(
+                np.array_equal(getattr(self, a), getattr(other, a))
+                for a in ("kind", "rect_start", "rects", "member"))
+
+    __hash__ = None  # type: ignore[assignment]  # mutable arrays inside
+
+    def index(self, name: str) -> int:
+        """Index of region ``name``; :class:`DesignError` naming it when unknown."""
+        try:
+            return self.names.index(name)
+        except ValueError:
+            known = ", ".join(map(repr, self.names)) or "none"
+            raise DesignError(f"region {name!r}: no such cell region (known: {known})",
+                              where=f"region {name!r}") from None
+
+    def rects_of(self, k: int) -> np.ndarray:
+        return self.rects[self.rect_start[k]:self.rect_start[k + 1]]
+
+    def members(self, k: int) -> np.ndarray:
+        return np.flatnonzero(self.member == k)
+
+    def rect_region(self) -> np.ndarray:
+        """Region index of every rectangle."""
+        return np.repeat(np.arange(len(self.names)), np.diff(self.rect_start))
+
+    def to_list(self) -> list[dict]:
+        """Plain description (as :meth:`build` takes), members not included."""
+        return [{"name": nm, "type": REGION_TYPES[int(self.kind[k])],
+                 "rects": self.rects_of(k).tolist(), "group": self.groups[k]}
+                for k, nm in enumerate(self.names)]
+
+    def problems(self, design: Design) -> list[tuple[str, str]]:
+        """``(object, message)`` of every problem, each naming the region or block."""
+        out: list[tuple[str, str]] = []
+        r = len(self.names)
+        if len(set(self.names)) != r or not all(self.names):
+            dup = [k for k, c in Counter(self.names).items() if c > 1 or not k]
+            out.append((f"region {dup[0]!r}", f"region {dup[0]!r}: region names must be "
+                                              "unique and not empty"))
+        rs = self.rect_start
+        if len(rs) != r + 1 or rs[0] != 0 or rs[-1] != len(self.rects) \
+                or (np.diff(rs) < 1).any() or ((self.kind != FENCE) & (self.kind != GUIDE)).any():
+            out.append(("regions", "cell regions: every region needs a type and at least one "
+                                   "rectangle"))
+            return out
+        b = self.rects
+        with np.errstate(invalid="ignore"):
+            bad = ~(np.abs(b) <= COORD_LIMIT).all(axis=1) | ~((b[:, 2] > b[:, 0])
+                                                              & (b[:, 3] > b[:, 1]))
+        if bad.any():
+            nm = self.names[int(self.rect_region()[np.flatnonzero(bad)[0]])]
+            out.append((f"region {nm!r}", f"region {nm!r}: a rectangle is not finite or has "
+                                          "no area"))
+            return out
+        # rectangles of one region must not overlap (rows are cut to their union)
+        reg = self.rect_region()
+        i, j = np.triu_indices(len(b), 1)
+        same = reg[i] == reg[j]
+        i, j = i[same], j[same]
+        ov = (np.minimum(b[i, 2], b[j, 2]) > np.maximum(b[i, 0], b[j, 0])) & \
+            (np.minimum(b[i, 3], b[j, 3]) > np.maximum(b[i, 1], b[j, 1]))
+        if ov.any():
+            nm = self.names[int(reg[i[ov][0]])]
+            out.append((f"region {nm!r}", f"region {nm!r}: its rectangles overlap"))
+        m = self.member
+        if m.shape != (design.num_blocks,) or ((m < -1) | (m >= r)).any():
+            out.append(("regions", "cell regions: a member names no region"))
+            return out
+        wrong = (m >= 0) & (design.kind != CELL) & (design.kind != CLUSTER)
+        if wrong.any():
+            nm = design.names[int(np.flatnonzero(wrong)[0])]
+            out.append((f"block {nm!r}", f"block {nm!r}: only standard cells and clusters "
+                                         "belong to cell regions"))
+        return out
+
+
+# ---------------------------------------------------------------------------------------------
 
 
 def _f64(a, shape=None) -> np.ndarray:
@@ -182,6 +327,13 @@ class Design:
         Snap grid for macros (default: site width by row height from the origin of the rows).
     blockages : (k, 4) array, optional
         Placement blockages ``xlo, ylo, xhi, yhi``.
+    blockage_max_density : (k,) array, optional
+        Per blockage, the largest share of its area standard cells and clusters may fill:
+        0.0 (the default) is a full blockage, which keeps macros out too; a value in (0, 1]
+        is a partial one (DEF ``+ PARTIAL`` with the percentage ÷ 100), which only caps the
+        density under it.
+    regions : CellRegions, optional
+        Fence and guide regions for groups of cells (DEF ``REGIONS`` and ``GROUPS``).
     block_type : list of str, optional
         Master (library cell) name per block, for DEF export.
     x, y, orient, status : arrays, optional
@@ -199,8 +351,8 @@ class Design:
                  net_start, pin_block, pin_dx, pin_dy, *, halo=None, orient_allowed=None,
                  net_names: Sequence[str] | None = None, net_weight=None,
                  pin_names: Sequence[str] | None = None, rows: dict | None = None,
-                 grid_pitch=None, grid_origin=None, blockages=None,
-                 block_type: Sequence[str] | None = None,
+                 grid_pitch=None, grid_origin=None, blockages=None, blockage_max_density=None,
+                 regions: CellRegions | None = None, block_type: Sequence[str] | None = None,
                  x=None, y=None, orient=None, status=None, dbu: int = 1000,
                  validate: bool = True, source: str | None = None):
         self.name = str(name)
@@ -249,6 +401,10 @@ class Design:
         self.grid_pitch = _f64(grid_pitch, (2,))
         self.grid_origin = _f64(self.core[:2] if grid_origin is None else grid_origin, (2,))
         self.blockages = np.zeros((0, 4)) if blockages is None else _f64(blockages, (-1, 4))
+        self.blockage_max_density = (np.zeros(len(self.blockages))
+                                     if blockage_max_density is None
+                                     else _f64(blockage_max_density, (len(self.blockages),)))
+        self.regions = CellRegions.empty(n) if regions is None else regions
 
         self._index: dict[str, int] | None = None
         if validate:
@@ -340,6 +496,61 @@ class Design:
         bits = int(self.orient_allowed[self.block(name)])
         return [o for i, o in enumerate(ORIENTATIONS) if bits >> i & 1]
 
+    @property
+    def full_blockages(self) -> np.ndarray:
+        """``(k, 4)`` the blockages that keep everything out (max density 0)."""
+        return self.blockages[self.blockage_max_density <= 0.0]
+
+    def same_netlist(self, other: Design) -> bool:
+        """Whether ``other`` is this design or one derived from the same one (:meth:`derive`):
+        the same blocks and nets, maybe other blockages, halos or cell regions.  Derived
+        designs share the name list and the pin arrays (also through a pickle of both)."""
+        return isinstance(other, Design) and other.names is self.names \
+            and other.pin_block is self.pin_block
+
+    def derive(self, **changes) -> Design:
+        """A design sharing this one's netlist and geometry with other *constraints*.
+
+        Parameters
+        ----------
+        **changes
+            Any of ``blockages`` (k, 4), ``blockage_max_density`` (k,), ``halo`` (n, 4),
+            ``regions`` (:class:`CellRegions`).
+            Missing ones are shared with this design (arrays are never written in place).
+
+        Returns
+        -------
+        Design
+            Validated (:class:`DesignError` naming the object at fault); its
+            :attr:`initial` floorplan is this design's, and :meth:`same_netlist` holds.
+        """
+        allowed = {"blockages", "blockage_max_density", "halo", "regions"}
+        bad = set(changes) - allowed
+        if bad:
+            raise TypeError(f"derive() takes {', '.join(sorted(allowed))}; got "
+                            f"{', '.join(sorted(bad))}")
+        new = object.__new__(Design)
+        new.__dict__.update(self.__dict__)
+        if "blockages" in changes:
+            new.blockages = _f64(changes["blockages"], (-1, 4))
+            if "blockage_max_density" not in changes:
+                changes["blockage_max_density"] = np.zeros(len(new.blockages))
+        if "blockage_max_density" in changes:
+            new.blockage_max_density = _f64(changes["blockage_max_density"],
+                                            (len(new.blockages),))
+        if "halo" in changes:
+            new.halo = _f64(changes["halo"], (self.num_blocks, 4))
+        if "regions" in changes:
+            new.regions = changes["regions"]
+        for a in ("blockages", "blockage_max_density", "halo"):
+            getattr(new, a).flags.writeable = False
+        probs = new._constraint_problems()
+        if probs:
+            raise DesignError(probs[0][1], file=None, where=probs[0][0])
+        ini = self.initial
+        new.initial = Floorplan(new, ini.x, ini.y, ini.orient, ini.status, ini.info)
+        return new
+
     def __repr__(self) -> str:
         counts = np.bincount(self.kind, minlength=4)
         return (f"<Design {self.name!r}: {counts[MACRO]} macros, {counts[CLUSTER]} clusters, "
@@ -415,7 +626,6 @@ class Design:
         bad_size |= (self.width < 0) | (self.height < 0)
         some(bad_size, "non-positive or non-finite size")
         some(~bad_size & (big(self.width) | big(self.height)), f"size beyond {lim:g} µm")
-        some(big(self.halo) | (self.halo < 0).any(axis=1), "negative or non-finite halo")
         some(self.orient_allowed == 0, "no allowed orientation")
         # a macro larger than the die in every allowed orientation
         dw, dh = d[2] - d[0], d[3] - d[1]
@@ -474,13 +684,34 @@ class Design:
                 or big(self.grid_origin).any():
             add("grid", f"grid pitch {self.grid_pitch.tolist()} must be positive and origin "
                         f"{self.grid_origin.tolist()} finite")
-        bl = self.blockages
-        if len(bl):
-            bad = big(bl) | ~((bl[:, 2] > bl[:, 0]) & (bl[:, 3] > bl[:, 1]))
+        out.extend(self._constraint_problems())
+        return out
+
+    def _constraint_problems(self) -> list[tuple[str, str]]:
+        """``(object, message)`` for halos, blockages and their densities, and cell regions
+        (what :meth:`derive` changes), each naming the object."""
+        out: list[tuple[str, str]] = self.regions.problems(self)
+        with np.errstate(invalid="ignore"):
+            hl = self.halo
+            bad = ~(np.abs(hl) <= COORD_LIMIT).all(axis=1) | (hl < 0).any(axis=1)
+            if bad.any():
+                i = int(np.flatnonzero(bad)[0])
+                out.append((f"block {self.names[i]!r}",
+                            f"block {self.names[i]!r}: halo {hl[i].tolist()} must be four "
+                            "finite numbers >= 0 (left, bottom, right, top)"))
+            bl = self.blockages
+            bad = ~(np.abs(bl) <= COORD_LIMIT).all(axis=1) \
+                | ~((bl[:, 2] > bl[:, 0]) & (bl[:, 3] > bl[:, 1]))
             if bad.any():
                 k = int(np.flatnonzero(bad)[0])
-                add(f"blockage {k}", f"placement blockage {k} {bl[k].tolist()} is not a "
-                                     "finite rectangle of positive size")
+                out.append((f"blockage {k}", f"placement blockage {k} {bl[k].tolist()} is not "
+                                             "a finite rectangle of positive size"))
+            md = self.blockage_max_density
+            bad = ~((md >= 0.0) & (md <= 1.0))
+            if bad.any():
+                k = int(np.flatnonzero(bad)[0])
+                out.append((f"blockage {k}", f"placement blockage {k}: maximum density "
+                                             f"{float(md[k])!r} is not in [0, 1]"))
         return out
 
     def validate(self) -> None:

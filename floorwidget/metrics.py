@@ -14,7 +14,8 @@ Conventions
 * **Density**: *movable area* is the footprint area of movable blocks (macros, clusters and
   cells -- never terminals); *fixed area* that of pinned or fixed blocks (again not terminals);
   both are clipped to the core.  *Free area* of a bin is its area inside the core minus the
-  area of the union of placement blockages in it.
+  area of the union of full placement blockages in it (a partial blockage only caps the
+  placer's cell density; it leaves the free area as it is).
 * **Overflow** is ``sum over bins of max(0, movable + fixed - target * free)`` divided by the total
   movable area.  Movable area that lies outside the core is added to the numerator in full
   (outside the core the free area is zero), so pushing blocks out of the core never lowers it.
@@ -434,7 +435,7 @@ class DensityMap:
     ----------
     grid : BinGrid
     movable, fixed, blockage, free, core : ndarray
-        Movable block area, pinned/fixed block area, placement-blockage area (union), free
+        Movable block area, pinned/fixed block area, full placement-blockage area (union), free
         area (bin area inside the core minus blockage) and bin area inside the core, per bin.
     movable_outside : float
         Movable area outside the core (it is in no bin).
@@ -496,7 +497,7 @@ def density_map(design: Design, fp: Floorplan, grid: BinGrid | None = None) -> D
     fixed = _nonneg(rect_area_map(grid, rects[fix]))
     c = design.core
     core_area = rect_area_map(grid, c[None, :])
-    bl = design.blockages
+    bl = design.full_blockages
     if len(bl):
         bl = bl.copy()
         bl[:, [0, 2]] = np.clip(bl[:, [0, 2]], c[0], c[2])
@@ -693,7 +694,7 @@ def legality(design: Design, fp: Floorplan) -> dict:
     mr = rects[mac]
     out_core = ((mr[:, 0] < c[0] - TOL) | (mr[:, 1] < c[1] - TOL)
                 | (mr[:, 2] > c[2] + TOL) | (mr[:, 3] > c[3] + TOL))
-    bl = design.blockages
+    bl = design.full_blockages
     if len(bl) and len(mac):
         ox = np.minimum(mr[:, None, 2], bl[None, :, 2]) - np.maximum(mr[:, None, 0], bl[None, :, 0])
         oy = np.minimum(mr[:, None, 3], bl[None, :, 3]) - np.maximum(mr[:, None, 1], bl[None, :, 1])
@@ -786,8 +787,8 @@ def cell_legality(design: Design, fp: Floorplan) -> dict:
     # obstacles: macro halo boxes and blockages
     mac = np.flatnonzero(design.kind == MACRO)
     obs = fp.rects(halo=True)[mac]
-    if len(design.blockages):
-        obs = np.concatenate([obs, design.blockages])
+    if len(design.full_blockages):
+        obs = np.concatenate([obs, design.full_blockages])
     rc = r[cells]
     bad_pairs = _banded_overlaps(rc) + _cross_overlaps(rc, obs)
     res.update(cell_overlaps=bad_pairs, cells_off_row=int(off_row.sum()),
@@ -1280,8 +1281,8 @@ def logic_regions(design: Design, fp: Floorplan) -> LogicRegions:
     c = design.core
     unit = _row_unit(design)
     obs = fp.rects(halo=True)[design.kind == MACRO]
-    if len(design.blockages):
-        obs = np.concatenate([obs, design.blockages])
+    if len(design.full_blockages):
+        obs = np.concatenate([obs, design.full_blockages])
     obs = np.stack([np.clip(obs[:, 0], c[0], c[2]), np.clip(obs[:, 1], c[1], c[3]),
                     np.clip(obs[:, 2], c[0], c[2]), np.clip(obs[:, 3], c[1], c[3])], axis=1)
     obs = obs[(obs[:, 2] > obs[:, 0]) & (obs[:, 3] > obs[:, 1])]

@@ -20,6 +20,7 @@ from . import metrics, style
 from .design import (
     CELL,
     CLUSTER,
+    FENCE,
     MACRO,
     STATUS_NAMES,
     TERMINAL,
@@ -219,13 +220,27 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
 
     outline(die, style.DIE, 1).set_gid("die")
     outline(core, style.CORE, 1).set_gid("core")
-    for k, b in enumerate(design.blockages):
+    for k, (b, md) in enumerate(zip(design.blockages, design.blockage_max_density)):
+        # a partial blockage (a density cap) dashed, its fill as light as the share it leaves
         p = Rectangle((b[0], b[1]), b[2] - b[0], b[3] - b[1],
-                      facecolor=(0, 0, 0, style.BLOCKAGE.fill_opacity),
+                      facecolor=(0, 0, 0, style.BLOCKAGE.fill_opacity * (1.0 - md)),
                       edgecolor=style.BLOCKAGE.stroke, linewidth=style.BLOCKAGE.stroke_width,
-                      hatch=style.BLOCKAGE.hatch, zorder=2)
+                      linestyle="--" if md > 0 else "-",
+                      hatch=style.BLOCKAGE.hatch if md <= 0 else "..", zorder=2)
         p.set_gid(f"blockage:{k}")
         ax.add_patch(p)
+    reg = design.regions
+    for k, nm in enumerate(reg.names):  # cell regions: fences solid, guides dashed, named
+        fence = reg.kind[k] == FENCE
+        for j, b in enumerate(reg.rects_of(k)):
+            p = Rectangle((b[0], b[1]), b[2] - b[0], b[3] - b[1], facecolor="none",
+                          edgecolor=style.REDDISH_PURPLE, linewidth=1.6,
+                          linestyle="-" if fence else "--", zorder=6)
+            p.set_gid(f"region:{nm}:{j}")
+            ax.add_patch(p)
+        b = reg.rects_of(k)[0]
+        ax.text(b[0], b[3], f" {nm}", color=style.REDDISH_PURPLE, fontsize=7, va="top",
+                zorder=7)
 
     # --- macros --------------------------------------------------------------------------
     mac = np.flatnonzero(kind == MACRO)
@@ -348,10 +363,18 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
     if len(mac):
         handles.append(Line2D([], [], marker=(3, 0, 45), linestyle="none", color=style.BLACK,
                               markersize=6, label="orientation mark (N lower-left)"))
-    if len(design.blockages):
+    md = design.blockage_max_density
+    if (md <= 0).any():
         handles.append(Patch(facecolor=(0, 0, 0, style.BLOCKAGE.fill_opacity),
                              edgecolor=style.BLACK, hatch=style.BLOCKAGE.hatch,
                              label=style.BLOCKAGE.label))
+    if (md > 0).any():
+        handles.append(Patch(facecolor="none", edgecolor=style.BLACK, hatch="..",
+                             linestyle="--", label="partial blockage (density cap)"))
+    for fence, label in ((True, "fence (cells stay inside)"), (False, "guide (cells pulled in)")):
+        if len(reg) and ((reg.kind == FENCE) == fence).any():
+            handles.append(Patch(facecolor="none", edgecolor=style.REDDISH_PURPLE,
+                                 linestyle="-" if fence else "--", label=label))
     if term.any():
         handles.append(Line2D([], [], marker="s", linestyle="none", color=style.BLACK,
                               markersize=4, label="I/O terminal"))

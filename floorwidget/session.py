@@ -50,13 +50,16 @@ import numpy as np
 from . import arrange
 from .design import (
     CELL,
+    CLUSTER,
     FIXED,
     MACRO,
     MOVABLE,
     ORIENTATIONS,
     PINNED,
+    REGION_TYPES,
     STATUS_NAMES,
     TERMINAL,
+    CellRegions,
     Design,
     DesignError,
     Floorplan,
@@ -87,13 +90,18 @@ class ChangeEvent:
     action : str
         ``"move"``, ``"pin"``, ``"unpin"``, ``"rotate"``, ``"flip"``, ``"set_orientation"``,
         ``"align"``, ``"distribute"``, ``"array"``, ``"mirror"``, ``"push"``, ``"shift"``,
-        ``"place"``, ``"refine"``, ``"legalize"``, ``"restore"``, ``"undo"``, ``"redo"``,
+        ``"add_blockage"``, ``"move_blockage"``, ``"remove_blockage"``,
+        ``"set_blockage_density"``, ``"set_halo"``, ``"add_region"``, ``"remove_region"``,
+        ``"assign_group"``, ``"place"``, ``"refine"``, ``"legalize"``,
+        ``"restore"``, ``"undo"``, ``"redo"``,
         ``"snapshot"``, ``"add_alternative"``, or the label of a :meth:`Session.batch`.
     blocks : ndarray of int or None
         Indices of the blocks whose position, orientation or status may have changed
         (sorted); ``None`` means "assume all"; an empty array means none did (e.g. a snapshot).
     floorplan : Floorplan
-        The new current floorplan (read-only).
+        The new current floorplan (read-only).  ``floorplan.design`` carries the constraints
+        in force (blockages, halos, cell regions); it is another object after a constraint
+        edit.
     label : str or None
         The snapshot / alternative label for ``snapshot``, ``add_alternative`` and ``restore``.
     """
@@ -118,7 +126,8 @@ class Alternative:
 
 @dataclass
 class _Step:
-    """One undoable step: the changed blocks with their old and new values (bit-exact)."""
+    """One undoable step: the changed blocks with their old and new values (bit-exact), and
+    the designs before and after when the step edited constraints (``None`` otherwise)."""
 
     action: str
     idx: np.ndarray
@@ -128,6 +137,8 @@ class _Step:
     new_info: dict
     old_id: int
     new_id: int
+    old_design: Design | None = None
+    new_design: Design | None = None
 
 
 @dataclass
@@ -362,9 +373,11 @@ class Session:
         if not isinstance(design, Design):
             raise TypeError(f"Session needs a Design, got {type(design).__name__}")
         fp = design.initial if floorplan is None else floorplan
-        if fp.design is not design:
+        if not design.same_netlist(fp.design):
             raise DesignError("the floorplan belongs to another design "
                               f"({fp.design.name!r}, not {design.name!r})")
+        if fp.design is not design:
+            fp = Floorplan(design, fp.x, fp.y, fp.orient, fp.status, fp.info)
         self.full_design = design
         self.clustering = None
         self._full_floorplan = _freeze(fp.copy())
@@ -377,7 +390,6 @@ class Session:
             self.clustering = coarsen(design, fp, target_blocks=top_blocks(design), seed=0)
             design = self.clustering.coarsest
             fp = design.initial
-        self.design = design
         self.target_density = _density(target_density)
         self.progress: Callable | None = None
         self._initial = _freeze(fp.copy())
@@ -391,11 +403,22 @@ class Session:
         self._observers: list[Callable[[ChangeEvent], Any]] = []
         self._reports: OrderedDict[int, dict] = OrderedDict()
         self._batches: list[_Batch] = []
+        self._base = design  # as read: session files store constraints relative to it
         self._source = os.path.abspath(design.source) if design.source else None
         self._lef = [os.path.abspath(p) for p in self.full_design.lef_files]
         self._lock = threading.RLock()
 
     # --- state ---------------------------------------------------------------------------------
+    @property
+    def design(self) -> Design:
+        """The design with the constraints in force now (``floorplan.design``).
+
+        Blockages, halos and cell regions are edited through the session
+        (:meth:`add_blockage`, :meth:`set_halo`, :meth:`add_region`, ...): each edit derives a
+        new :class:`Design` sharing the netlist (:meth:`Design.derive`), so this object
+        changes with them, and with undo and redo."""
+        return self._fp.design
+
     @property
     def floorplan(self) -> Floorplan:
         """The current floorplan (read-only arrays; ``.copy()`` it to edit outside the session)."""
@@ -465,7 +488,7 @@ class Session:
         rep = self._reports.get(state_id)
         if rep is None:
             from .metrics import evaluate  # noqa: PLC0415
-            rep = dict(evaluate(self.design, fp, target_density=self.target_density))
+            rep = dict(evaluate(fp.design, fp, target_density=self.target_density))
             self._reports[state_id] = rep
             while len(self._reports) > _REPORT_CACHE:
                 self._reports.popitem(last=False)
@@ -542,6 +565,7 @@ class Session:
                 label: str | None = None, blocks=None) -> np.ndarray:
         """Make ``new`` current as one undoable step, log it and notify; returns changed idx."""
         old = self._fp
+        redesign = new.design is not old.design
         if blocks is not None and new.info == old.info:
             # hand edits name the blocks they touch: diff only those (O(k), not O(n))
             b = np.unique(np.asarray(blocks, dtype=np.int64))
@@ -551,11 +575,11 @@ class Session:
         else:
             idx = _changed(old, new)
         new = _freeze(new)
-        if not len(idx) and old.info != new.info:
+        if not len(idx) and not redesign and old.info != new.info:
             # only the facts in .info changed (e.g. a placer run that moved nothing): take
             # them, but make no undo step that would look like it did nothing
             self._fp = new
-        elif len(idx):
+        elif len(idx) or redesign:
             nid = self._next_id
             self._next_id += 1
             step = _Step(action, idx,
@@ -563,7 +587,8 @@ class Session:
                           old.status[idx].copy()),
                          (new.x[idx].copy(), new.y[idx].copy(), new.orient[idx].copy(),
                           new.status[idx].copy()),
-                         dict(old.info), dict(new.info), self._state_id, nid)
+                         dict(old.info), dict(new.info), self._state_id, nid,
+                         *((old.design, new.design) if redesign else ()))
             if not self._batches:
                 self._undo.append(step)
             self._redo.clear()
@@ -578,6 +603,9 @@ class Session:
         vals, info, sid = ((step.new, step.new_info, step.new_id) if forward
                            else (step.old, step.old_info, step.old_id))
         fp = self._fp.copy()
+        design = step.new_design if forward else step.old_design
+        if design is not None:
+            fp = Floorplan(design, fp.x, fp.y, fp.orient, fp.status)
         i = step.idx
         fp.x[i], fp.y[i], fp.orient[i], fp.status[i] = vals
         fp.info = dict(info)
@@ -815,6 +843,258 @@ class Session:
         return self._arrange("shift", names, arrange.shift,
                              (_finite(dx, "dx"), _finite(dy, "dy")))
 
+    # --- constraints: placement blockages and halos ---------------------------------------------
+    def _constrain(self, action: str, log: tuple, blocks=(), **changes) -> None:
+        """Commit a design derived with ``changes`` as one undoable step (positions kept)."""
+        fp = self._fp
+        design = fp.design.derive(**changes)
+        new = Floorplan(design, fp.x, fp.y, fp.orient, fp.status, fp.info)
+        self._commit(action, new, log=log, blocks=np.asarray(blocks, dtype=np.int64))
+
+    def _blockage_index(self, index) -> int:
+        k = len(self.design.blockages)
+        if isinstance(index, bool) or not isinstance(index, (int, np.integer)) \
+                or not 0 <= int(index) < k:
+            raise DesignError(f"blockage {index!r}: no such placement blockage (there are {k})")
+        return int(index)
+
+    def _rect_in_die(self, rect, what: str) -> list[float]:
+        """``rect`` (two corners in any order) as ``[xlo, ylo, xhi, yhi]``, checked: four
+        finite numbers, some area, inside the die (errors name ``what``)."""
+        try:
+            vals = list(rect)
+        except TypeError:
+            vals = []
+        if len(vals) != 4:
+            raise DesignError(f"{what}: a rectangle is four numbers [xlo, ylo, xhi, yhi], got "
+                              f"{rect!r}")
+        a, b, c, d = (_finite(v, what) for v in vals)
+        r = [min(a, c), min(b, d), max(a, c), max(b, d)]
+        if not (r[2] > r[0] and r[3] > r[1]):
+            raise DesignError(f"{what}: rectangle {r} has no area")
+        die = self.design.die
+        if r[0] < die[0] or r[1] < die[1] or r[2] > die[2] or r[3] > die[3]:
+            raise DesignError(f"{what}: rectangle {r} reaches outside the die {die.tolist()}")
+        return r
+
+    @staticmethod
+    def _max_density(v, what: str) -> float:
+        f = _finite(v, f"{what}: max_density")
+        if not 0.0 <= f <= 1.0:
+            raise DesignError(f"{what}: max_density must lie in [0, 1] (0: a full blockage), "
+                              f"got {v!r}")
+        return f
+
+    @_locked
+    def add_blockage(self, rect, max_density: float = 0.0) -> int:
+        """Add a placement blockage over ``rect = [xlo, ylo, xhi, yhi]`` µm (one undo step).
+
+        Parameters
+        ----------
+        rect : four numbers
+            Two opposite corners (in any order), inside the die.
+        max_density : float
+            0 (default): a full blockage — no macro footprint and no standard cell on it.  A
+            value in (0, 1]: a partial one, where cells and clusters fill at most this share
+            of the area (DEF ``+ PARTIAL`` percentage ÷ 100); macros may sit on it.
+
+        Returns
+        -------
+        int
+            The new blockage's index (the last one).
+
+        Raises
+        ------
+        DesignError
+            A rectangle without area or outside the die, or a density outside [0, 1]; nothing
+            changes.  The placer honours the blockage on the next :meth:`place` or
+            :meth:`refine`; :attr:`report` counts macros on it at once.
+        """
+        k = len(self.design.blockages)
+        r = self._rect_in_die(rect, f"blockage {k}")
+        md = self._max_density(max_density, f"blockage {k}")
+        d = self.design
+        self._constrain("add_blockage", ((r,), {"max_density": md} if md else {}),
+                        blockages=np.vstack([d.blockages, [r]]),
+                        blockage_max_density=np.append(d.blockage_max_density, md))
+        return k
+
+    @_locked
+    def move_blockage(self, index: int, x: float, y: float) -> tuple[float, float]:
+        """Move blockage ``index`` so its lower-left corner is at ``(x, y)`` µm (size kept).
+
+        Raises :class:`DesignError` when it would reach outside the die (nothing changes).
+        Returns the corner taken.
+        """
+        k = self._blockage_index(index)
+        d = self.design
+        b = d.blockages[k]
+        fx, fy = _finite(x, f"blockage {k}: x"), _finite(y, f"blockage {k}: y")
+        r = self._rect_in_die([fx, fy, fx + (b[2] - b[0]), fy + (b[3] - b[1])],
+                                f"blockage {k}")
+        bl = d.blockages.copy()
+        bl[k] = r
+        self._constrain("move_blockage", ((k, fx, fy),), blockages=bl,
+                        blockage_max_density=d.blockage_max_density)
+        return r[0], r[1]
+
+    @_locked
+    def set_blockage_density(self, index: int, max_density: float) -> None:
+        """Make blockage ``index`` full (``max_density=0``) or partial (in (0, 1])."""
+        k = self._blockage_index(index)
+        md = self._max_density(max_density, f"blockage {k}")
+        dens = self.design.blockage_max_density.copy()
+        dens[k] = md
+        self._constrain("set_blockage_density", ((k, md),), blockage_max_density=dens)
+
+    @_locked
+    def remove_blockage(self, index: int) -> None:
+        """Delete blockage ``index`` (later ones move down by one index)."""
+        k = self._blockage_index(index)
+        d = self.design
+        self._constrain("remove_blockage", ((k,),), blockages=np.delete(d.blockages, k, axis=0),
+                        blockage_max_density=np.delete(d.blockage_max_density, k))
+
+    @_locked
+    def set_halo(self, names: str | Iterable[str], halo) -> None:
+        """Give macro(s) a halo (keep-out) of ``halo`` µm: one number for every side, or
+        ``(left, bottom, right, top)`` of the placed footprint (one undo step).
+
+        The halo keeps standard cells and other macros' footprints away (the halo rule in
+        DEVELOPERS.md); the placer honours it on the next :meth:`place`, :meth:`refine` or
+        :meth:`legalize`.  Raises :class:`DesignError` naming the macro for a negative or
+        non-finite value, or a block that is not a macro; nothing changes then.
+        """
+        lst = self._names(names)
+        idx = np.array([self.design.block(nm) for nm in lst], dtype=np.int64)
+        kind = self.design.kind[idx]
+        if (kind != MACRO).any():
+            nm = lst[int(np.flatnonzero(kind != MACRO)[0])]
+            raise DesignError(f"block {nm!r}: halos are set on macros only")
+        try:
+            vals = [halo] * 4 if np.ndim(halo) == 0 else list(halo)
+        except TypeError:
+            vals = []
+        where = f"block {lst[0]!r}" if lst else "set_halo"
+        if len(vals) != 4:
+            raise DesignError(f"{where}: a halo is one number or four (left, bottom, right, "
+                              f"top), got {halo!r}")
+        h = [_finite(v, f"{where}: halo") for v in vals]
+        if min(h) < 0:
+            raise DesignError(f"{where}: halo {h} must not be negative")
+        hl = self.design.halo.copy()
+        hl[idx] = h
+        self._constrain("set_halo", ((names if isinstance(names, str) else lst,
+                                      h if np.ndim(halo) else h[0]),), blocks=idx, halo=hl)
+
+    # --- cell regions: fences and guides for groups of cells -----------------------------------
+    def _regions_with(self, regions: list[dict], member: np.ndarray) -> CellRegions:
+        return CellRegions.build(self.design.num_blocks, regions, member)
+
+    @_locked
+    def add_region(self, name: str, rects, kind: str = "fence") -> None:
+        """Add an empty cell region ``name`` over ``rects`` (one rectangle ``[xlo, ylo, xhi,
+        yhi]`` or a list of non-overlapping ones, inside the die); :meth:`assign_group` gives
+        it cells.  ``kind``: ``"fence"`` (members stay inside, other cells stay out) or
+        ``"guide"`` (members pulled toward it, may spill).  One undo step; the placer honours
+        it on the next :meth:`place` or :meth:`refine`.
+
+        Raises :class:`DesignError` naming the region for a used or empty name, an unknown
+        kind, or a rectangle without area, outside the die or overlapping another of it.
+        """
+        if not isinstance(name, str) or not name.strip():
+            raise DesignError(f"region {name!r}: a region needs a non-empty text name")
+        reg = self.design.regions
+        if name in reg.names:
+            raise DesignError(f"region {name!r}: there is already a region of that name")
+        if kind not in REGION_TYPES:
+            raise DesignError(f"region {name!r}: kind must be one of "
+                              f"{', '.join(REGION_TYPES)}, got {kind!r}")
+        many = isinstance(rects, (list, tuple, np.ndarray)) and len(rects) > 0 \
+            and isinstance(rects[0], (list, tuple, np.ndarray))
+        boxes = [self._rect_in_die(r, f"region {name!r}") for r in (rects if many
+                                                                     else [rects])]
+        regions = reg.to_list() + [{"name": name, "type": kind, "rects": boxes}]
+        self._constrain("add_region", ((name, boxes if many else boxes[0]),
+                                       {} if kind == "fence" else {"kind": kind}),
+                        regions=self._regions_with(regions, reg.member))
+
+    @_locked
+    def remove_region(self, name: str) -> None:
+        """Delete cell region ``name``; its cells belong to no region afterwards."""
+        reg = self.design.regions
+        k = reg.index(name)
+        regions = reg.to_list()
+        del regions[k]
+        m = reg.member.copy()
+        m[m == k] = -1
+        m[m > k] -= 1
+        self._constrain("remove_region", ((name,),), blocks=reg.members(k),
+                        regions=self._regions_with(regions, m))
+
+    @_locked
+    def assign_group(self, region: str | None, names: Iterable[str] | None = None, *,
+                     prefix: str | None = None, depth: int = 1, separators: str = "/."):
+        """Make a group of cells members of ``region`` (``None``: of no region).
+
+        The group is either ``names`` (standard cells and clusters only), or the hierarchy
+        group ``prefix`` at ``depth`` (:func:`floorwidget.hierarchy.hierarchy_groups` with
+        ``separators``; ``""`` is the top level), whose cells and clusters are taken (its
+        macros and terminals are not regions' business).  A block belongs to one region at
+        most: assigning moves it.  One undo step.
+
+        Returns
+        -------
+        int
+            The number of blocks assigned.
+
+        Raises
+        ------
+        DesignError
+            Unknown region, a name that is not a cell or cluster, an unknown or cell-less
+            hierarchy group, or both or neither of ``names`` and ``prefix``; nothing changes.
+        KeyError
+            An unknown block name.
+        """
+        d = self.design
+        reg = d.regions
+        k = -1 if region is None else reg.index(region)
+        if (names is None) == (prefix is None):
+            raise DesignError(f"region {region!r}: give either names or a hierarchy prefix")
+        soft = (d.kind == CELL) | (d.kind == CLUSTER)
+        if names is not None:
+            lst = self._names(names)
+            idx = np.array([d.block(nm) for nm in lst], dtype=np.int64)
+            bad = ~soft[idx]
+            if bad.any():
+                raise DesignError(f"block {lst[int(np.flatnonzero(bad)[0])]!r}: only standard "
+                                  "cells and clusters belong to cell regions")
+            log = ((region, lst), {})
+        else:
+            from .hierarchy import hierarchy_groups  # noqa: PLC0415
+            if isinstance(depth, bool) or not isinstance(depth, (int, np.integer)) \
+                    or depth < 0:
+                raise DesignError(f"region {region!r}: depth must be a whole number >= 0, "
+                                  f"got {depth!r}")
+            g = hierarchy_groups(d.names, int(depth), separators)
+            if prefix not in g.keys:
+                raise DesignError(f"region {region!r}: no hierarchy group {prefix!r} at depth "
+                                  f"{int(depth)}")
+            idx = np.flatnonzero((g.index == g.keys.index(prefix)) & soft)
+            if not len(idx):
+                raise DesignError(f"region {region!r}: hierarchy group {prefix!r} has no "
+                                  "standard cells or clusters")
+            kw = {"prefix": prefix, "depth": int(depth)}
+            if separators != "/.":
+                kw["separators"] = separators
+            log = ((region,), kw)
+        m = reg.member.copy()
+        m[idx] = k
+        self._constrain("assign_group", log, blocks=idx,
+                        regions=CellRegions(reg.names, reg.kind, reg.rect_start, reg.rects, m,
+                                            reg.groups))
+        return int(len(idx))
+
     # --- placer calls --------------------------------------------------------------------------
     def _run_placer(self, action: str, fn: Callable, opts: dict, progress) -> None:
         d = self.design
@@ -964,14 +1244,16 @@ class Session:
             t = np.array(sorted(b.blocks), dtype=np.int64)
             idx = t[_bits_differ(start.x[t], cur.x[t]) | _bits_differ(start.y[t], cur.y[t])
                     | (start.orient[t] != cur.orient[t]) | (start.status[t] != cur.status[t])]
-        if len(idx):
+        redesign = start.design is not cur.design
+        if len(idx) or redesign:
             self._undo.append(_Step(
                 label, idx,
                 (start.x[idx].copy(), start.y[idx].copy(), start.orient[idx].copy(),
                  start.status[idx].copy()),
                 (cur.x[idx].copy(), cur.y[idx].copy(), cur.orient[idx].copy(),
                  cur.status[idx].copy()),
-                dict(start.info), dict(cur.info), b.start_id, self._state_id))
+                dict(start.info), dict(cur.info), b.start_id, self._state_id,
+                *((start.design, cur.design) if redesign else ())))
             self._redo.clear()
         self._log.append(entry)
         self._emit(label, None if b.blocks is None else sorted(b.blocks))
@@ -1003,13 +1285,16 @@ class Session:
                         report: Mapping[str, Any] | None = None) -> Alternative:
         """Keep an outside floorplan of the same design (e.g. a sweep result) as ``label``.
 
-        ``report`` may be given when already computed (it is otherwise evaluated here).
+        It takes the constraints (blockages, halos) in force now.  ``report`` may be given
+        when already computed (it is otherwise evaluated here).
         """
         label = self._check_label(label)
-        if not isinstance(floorplan, Floorplan) or floorplan.design is not self.design:
+        if not isinstance(floorplan, Floorplan) or not self.design.same_netlist(
+                floorplan.design):
             raise DesignError(f"alternative {label!r}: not a floorplan of design "
                               f"{self.design.name!r}")
-        fp = _freeze(floorplan.copy())
+        fp = _freeze(Floorplan(self.design, floorplan.x, floorplan.y, floorplan.orient,
+                               floorplan.status, floorplan.info))
         if report is None:
             from .metrics import evaluate  # noqa: PLC0415
             report = evaluate(self.design, fp, target_density=self.target_density)
@@ -1040,17 +1325,18 @@ class Session:
 
     @_locked
     def restore(self, label: str) -> None:
-        """Make alternative ``label`` the current floorplan (an undoable step)."""
+        """Make alternative ``label`` the current floorplan (an undoable step), with the
+        constraints (blockages, halos) it was kept with."""
         alt = self.alternative(label)
         self._commit("restore", alt.floorplan.copy(), log=((label,),), label=label)
 
     # --- comparison ----------------------------------------------------------------------------
     def _resolve(self, which) -> tuple[str, Floorplan, dict]:
         if isinstance(which, Floorplan):
-            if which.design is not self.design:
+            if not self.design.same_netlist(which.design):
                 raise DesignError("compare: the floorplan belongs to another design")
             from .metrics import evaluate  # noqa: PLC0415
-            return "floorplan", which, dict(evaluate(self.design, which,
+            return "floorplan", which, dict(evaluate(which.design, which,
                                                      target_density=self.target_density))
         if which == "current":
             return "current", self._fp, self.report

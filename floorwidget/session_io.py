@@ -15,13 +15,25 @@ Session file layout (JSON, version 1)::
       "log": [{"op": "move", "args": ["ram0", 10.0, 20.0], "kwargs": {}},
               {"op": "batch", "label": "drag", "actions": [...]},
               {"op": "add_alternative", "args": ["a", {"floorplan": FLOORPLAN}], ...}],
-      "history": {"undo": [STEP, ...], "redo": [STEP, ...]}
+      "history": {"undo": [STEP, ...], "redo": [STEP, ...]},
+      "constraints": [CONSTRAINTS, ...]
     }
 
-    FLOORPLAN = {"x": [..], "y": [..], "orient": [codes], "status": [codes], "info": {..}}
+    FLOORPLAN = {"x": [..], "y": [..], "orient": [codes], "status": [codes], "info": {..},
+                 "constraints": k}
     (an array longer than 20,000 entries is {"dtype": "<f8" | "|i1", "base64": ".."} instead:
     the raw little-endian bytes, exact and a tenth of the time to write and read)
-    STEP = {"action": .., "idx": [..], "old": FLOORPLAN-of-idx, "new": FLOORPLAN-of-idx}
+    STEP = {"action": .., "idx": [..], "old": FLOORPLAN-of-idx, "new": FLOORPLAN-of-idx,
+            "old_constraints": k, "new_constraints": k}     (both only on constraint edits)
+    CONSTRAINTS = {"blockages": [[xlo, ylo, xhi, yhi], ..], "max_density": [..],
+                   "halo": {"idx": [..], "values": [[l, b, r, t], ..]},
+                   "regions": [{"name", "type", "rects", "group"}, ..],
+                   "members": {"idx": [block, ..], "region": [k, ..]}}
+
+Blockages and halos edited in the session (:meth:`Session.add_blockage`, ``set_halo``, ...)
+live on derived designs; ``"constraints"`` lists each distinct one once, its halos as the
+rows that differ from the design file, and a floorplan or step names its entry by index
+(``"constraints"`` absent: the design file's own).
 
 A clustered session (``"clustered": true``) stores floorplans of the clustered design; loading
 clusters the design file again (deterministic) and checks the fingerprint of the result.
@@ -43,7 +55,15 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from .design import ORIENTATIONS, STATUS_NAMES, Design, DesignError, Floorplan
+from .design import (
+    ORIENTATIONS,
+    REGION_TYPES,
+    STATUS_NAMES,
+    CellRegions,
+    Design,
+    DesignError,
+    Floorplan,
+)
 from .formats._io import atomic_write, read_json_file
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -130,14 +150,54 @@ def _relative(src: str | None, path: Path | None) -> str | None:
         return None
 
 
+def _constraints_doc(design: Design, base: Design) -> dict:
+    changed = np.flatnonzero((design.halo != base.halo).any(axis=1))
+    mem = np.flatnonzero(design.regions.member >= 0)
+    return {"blockages": design.blockages.tolist(),
+            "max_density": design.blockage_max_density.tolist(),
+            "halo": {"idx": changed.tolist(), "values": design.halo[changed].tolist()},
+            "regions": design.regions.to_list(),
+            "members": {"idx": mem.tolist(),
+                        "region": design.regions.member[mem].tolist()}}
+
+
+class _Designs:
+    """Distinct constraint sets met while writing, numbered in order of first use."""
+
+    def __init__(self, base: Design):
+        self.base = base
+        self.index: dict[int, int] = {}
+        self.docs: list[dict] = []
+
+    def ref(self, design: Design) -> int | None:
+        if design is self.base:
+            return None
+        k = self.index.get(id(design))
+        if k is None:
+            k = self.index[id(design)] = len(self.docs)
+            self.docs.append(_constraints_doc(design, self.base))
+        return k
+
+
 def session_document(session: Session, path: Path | None = None) -> dict:
     d = session.design
     src = session._source
     rel = _relative(src, path)
+    designs = _Designs(session._base)
 
     def fp_full(fp: Floorplan) -> dict:
         doc = _fp_doc(fp)
         doc["info"] = _info_doc(fp.info)
+        k = designs.ref(fp.design)
+        if k is not None:
+            doc["constraints"] = k
+        return doc
+
+    def step_doc(step) -> dict:
+        doc = _step_doc(step)
+        if step.old_design is not None:
+            doc["old_constraints"] = designs.ref(step.old_design)
+            doc["new_constraints"] = designs.ref(step.new_design)
         return doc
 
     return {
@@ -158,8 +218,9 @@ def session_document(session: Session, path: Path | None = None) -> dict:
                           "params": _jsonable(a.params), "report": _jsonable(dict(a.report)),
                           "floorplan": fp_full(a.floorplan)} for a in session._alts.values()],
         "log": _jsonable(session._log),
-        "history": {"undo": [_step_doc(s) for s in session._undo],
-                    "redo": [_step_doc(s) for s in session._redo]},
+        "history": {"undo": [step_doc(s) for s in session._undo],
+                    "redo": [step_doc(s) for s in session._redo]},
+        "constraints": designs.docs,
     }
 
 
@@ -281,10 +342,72 @@ class _Doc:
         s = self.codes(self.get(v, "status", where), m, len(STATUS_NAMES), where + ".status")
         return x, y, o, s
 
-    def floorplan(self, design: Design, v, where: str) -> Floorplan:
+    def floorplan(self, design: Design, v, where: str, designs: list | None = None
+                  ) -> Floorplan:
         x, y, o, s = self.fp_arrays(v, design.num_blocks, where)
         info = self.get(v, "info", where, {})
+        if designs is not None:
+            design = self.design_ref(designs, design, v.get("constraints"),
+                                     where + ".constraints")
         return Floorplan(design, x, y, o, s, self.obj(info, where + ".info"))
+
+    def design_ref(self, designs: list, base: Design, k, where: str) -> Design:
+        """The design a ``"constraints"`` index names (``None``: the design file's own)."""
+        if k is None:
+            return base
+        if isinstance(k, bool) or not isinstance(k, int) or not 0 <= k < len(designs):
+            self.fail(where, f"expected an index into constraints (0..{len(designs) - 1}), "
+                             f"got {k!r}")
+        return designs[k]
+
+    def rects(self, v, where: str) -> np.ndarray:
+        rows = self.lst(v, where)
+        out = np.zeros((len(rows), 4))
+        for i, r in enumerate(rows):
+            out[i] = self.floats(r, 4, f"{where}[{i}]")
+        return out
+
+    def constraints(self, base: Design, v, where: str) -> Design:
+        """A derived design from a CONSTRAINTS entry (validated, naming the entry)."""
+        self.obj(v, where)
+        bl = self.rects(self.get(v, "blockages", where, []), where + ".blockages")
+        md = self.floats(self.get(v, "max_density", where, [0.0] * len(bl)), len(bl),
+                         where + ".max_density")
+        h = self.obj(self.get(v, "halo", where, {}), where + ".halo")
+        idx = self.lst(h.get("idx", []), where + ".halo.idx")
+        if not all(isinstance(i, int) and not isinstance(i, bool)
+                   and 0 <= i < base.num_blocks for i in idx):
+            self.fail(where + ".halo.idx", "expected block indices")
+        vals = self.rects(h.get("values", []), where + ".halo.values")
+        if len(vals) != len(idx):
+            self.fail(where + ".halo.values", f"expected {len(idx)} halos, got {len(vals)}")
+        halo = base.halo.copy()
+        halo[np.array(idx, dtype=np.int64)] = vals
+        regions = self.lst(self.get(v, "regions", where, []), where + ".regions")
+        for k, r in enumerate(regions):
+            w = f"{where}.regions[{k}]"
+            self.text(self.get(r, "name", w), w + ".name")
+            if self.get(r, "type", w) not in REGION_TYPES:
+                self.fail(w + ".type", f"expected one of {', '.join(REGION_TYPES)}")
+            self.rects(self.get(r, "rects", w), w + ".rects")
+            if not isinstance(r.get("group", ""), str):
+                self.fail(w + ".group", "expected text")
+        mem = self.obj(self.get(v, "members", where, {}), where + ".members")
+        midx = self.lst(mem.get("idx", []), where + ".members.idx")
+        mreg = self.lst(mem.get("region", []), where + ".members.region")
+        if len(midx) != len(mreg) or not all(
+                isinstance(i, int) and not isinstance(i, bool) and 0 <= i < base.num_blocks
+                for i in midx) or not all(isinstance(r, int) and not isinstance(r, bool)
+                                          and 0 <= r < len(regions) for r in mreg):
+            self.fail(where + ".members", "expected block indices and region indices")
+        member = np.full(base.num_blocks, -1, np.int32)
+        member[np.array(midx, dtype=np.int64)] = mreg
+        try:
+            return base.derive(blockages=bl, blockage_max_density=md, halo=halo,
+                               regions=CellRegions.build(base.num_blocks, regions, member))
+        except DesignError as e:
+            self.fail(where, e.message)
+        raise AssertionError  # pragma: no cover
 
 
 MAX_BATCH_DEPTH = 32  # batches inside batches; deeper logs are refused, not recursed into
@@ -296,7 +419,9 @@ def _check_log(doc: _Doc, design: Design, entries, where: str, depth: int = 0) -
         doc.fail(where, f"batches nested more than {MAX_BATCH_DEPTH} deep")
     known = {"move", "pin", "unpin", "rotate", "flip", "set_orientation", "align",
              "distribute", "array", "mirror", "push", "shift", "place", "refine", "legalize",
-             "undo", "redo", "snapshot", "add_alternative", "restore"}
+             "undo", "redo", "snapshot", "add_alternative", "restore", "add_blockage",
+             "move_blockage", "set_blockage_density", "remove_blockage", "set_halo",
+             "add_region", "remove_region", "assign_group"}
     out = []
     for k, e in enumerate(doc.lst(entries, where)):
         w = f"{where}[{k}]"
@@ -360,6 +485,15 @@ def _find_design(doc: _Doc, p: Path, ref: dict) -> Design:
     raise AssertionError  # pragma: no cover
 
 
+def _step_designs(doc: _Doc, designs: list, base: Design, sd: dict, where: str
+                  ) -> tuple[Design | None, Design | None]:
+    """``(old, new)`` designs of a constraint edit in the history, else ``(None, None)``."""
+    if "old_constraints" not in sd and "new_constraints" not in sd:
+        return None, None
+    return (doc.design_ref(designs, base, sd.get("old_constraints"), where + ".old_constraints"),
+            doc.design_ref(designs, base, sd.get("new_constraints"), where + ".new_constraints"))
+
+
 def load_session(cls, path, design: Design | None = None) -> Session:
     """Read a session file (see the module docstring); :class:`DesignError` naming the file
     and the JSON path (or line, for a syntax error) when anything is wrong."""
@@ -400,8 +534,10 @@ def load_session(cls, path, design: Design | None = None) -> Session:
     if isinstance(td, bool) or not isinstance(td, (int, float)) or not math.isfinite(td) \
             or not 0 < td <= 1:
         doc.fail("target_density", f"expected a number in (0, 1], got {td!r}")
+    designs = [doc.constraints(design, c, f"constraints[{k}]") for k, c in
+               enumerate(doc.lst(doc.get(root, "constraints", "(top)", []), "constraints"))]
     initial = doc.floorplan(design, doc.get(root, "initial", "(top)"), "initial")
-    current = doc.floorplan(design, doc.get(root, "current", "(top)"), "current")
+    current = doc.floorplan(design, doc.get(root, "current", "(top)"), "current", designs)
     alts = []
     labels = set()
     for k, a in enumerate(doc.lst(doc.get(root, "alternatives", "(top)", []), "alternatives")):
@@ -410,7 +546,8 @@ def load_session(cls, path, design: Design | None = None) -> Session:
         if label in labels:
             doc.fail(w + ".label", f"duplicate label {label!r}")
         labels.add(label)
-        fp = _freeze(doc.floorplan(design, doc.get(a, "floorplan", w), w + ".floorplan"))
+        fp = _freeze(doc.floorplan(design, doc.get(a, "floorplan", w), w + ".floorplan",
+                                   designs))
         rep = doc.obj(doc.get(a, "report", w, {}), w + ".report")
         params = doc.get(a, "params", w, None)
         if params is not None:
@@ -435,12 +572,13 @@ def load_session(cls, path, design: Design | None = None) -> Session:
             new = doc.fp_arrays(doc.get(sd, "new", w), len(idx), w + ".new")
             steps.append((action, idx, old, new,
                           doc.obj(sd.get("old_info", {}), w + ".old_info"),
-                          doc.obj(sd.get("new_info", {}), w + ".new_info")))
+                          doc.obj(sd.get("new_info", {}), w + ".new_info"),
+                          *_step_designs(doc, designs, design, sd, w)))
         stacks[which] = steps
     # check the undo chain ends at the current floorplan, and the redo chain starts there
     for which, pick in (("undo", 3), ("redo", 2)):
         if stacks[which]:
-            action, idx, old, new, _, _ = stacks[which][-1]
+            action, idx, old, new = stacks[which][-1][:4]
             vals = (new if pick == 3 else old)
             ok = all(np.array_equal(np.asarray(getattr(current, f))[idx], v)
                      for f, v in zip(("x", "y", "orient", "status"), vals))
@@ -461,11 +599,11 @@ def load_session(cls, path, design: Design | None = None) -> Session:
     ids = list(range(nid, nid + len(stacks["undo"]) + len(stacks["redo"]) + 1))
     s._next_id = ids[-1] + 1
     K = len(stacks["undo"])
-    s._undo = [_Step(a, i, o, nw, oi, ni, ids[k], ids[k + 1])
-               for k, (a, i, o, nw, oi, ni) in enumerate(stacks["undo"])]
+    s._undo = [_Step(a, i, o, nw, oi, ni, ids[k], ids[k + 1], od, nd)
+               for k, (a, i, o, nw, oi, ni, od, nd) in enumerate(stacks["undo"])]
     redo_steps = stacks["redo"][::-1]  # next to redo first
-    s._redo = [_Step(a, i, o, nw, oi, ni, ids[K + k], ids[K + k + 1])
-               for k, (a, i, o, nw, oi, ni) in enumerate(redo_steps)][::-1]
+    s._redo = [_Step(a, i, o, nw, oi, ni, ids[K + k], ids[K + k + 1], od, nd)
+               for k, (a, i, o, nw, oi, ni, od, nd) in enumerate(redo_steps)][::-1]
     s._state_id = ids[K]
     return s
 

@@ -277,6 +277,54 @@ def test_align_and_typed_position_in_real_browser(lab, browser, artifacts):
     _on_new_page(browser, _arrange_check, lab, artifacts, "browser_arrange_failure.png")
 
 
+def test_draw_blockage_in_real_browser(lab, browser, artifacts):
+    _on_new_page(browser, _blockage_check, lab, artifacts, "browser_blockage_failure.png")
+
+
+def _blockage_check(page, lab, artifacts):
+    """Type a maximum density, pick "Draw blockage", drag a rectangle on the canvas: the
+    Session gets the partial blockage, its corners where the mouse went (screen scale from two
+    handles, as in the drag test)."""
+    import numpy as np
+
+    state_path = lab["root"] / "state.json"
+    st0, _ = _open_notebook(page, lab)
+    n = len(st0["macros"])
+    field = page.locator(".fw-new-density input")
+    field.fill("0.35")
+    field.press("Enter")
+    page.get_by_role("button", name="Draw blockage", exact=True).click()
+    # typing scrolled the panel: bring the canvas back and measure the handles again
+    page.evaluate(_HANDLES_JS, [n, True])
+    page.wait_for_timeout(500)
+    px = np.array(page.evaluate(_HANDLES_JS, [n, False]), dtype=float)
+    c = np.array(st0["centres"], dtype=float)
+    i, j = int(np.argmin(c[:, 0] + c[:, 1])), int(np.argmax(c[:, 0] + c[:, 1]))
+    sx = (px[j, 0] - px[i, 0]) / (c[j, 0] - c[i, 0])
+    sy = (px[j, 1] - px[i, 1]) / (c[j, 1] - c[i, 1])
+    core = np.array(st0["core"], dtype=float)
+    # from 30 % to 45 % of the core (data), as screen points
+    lo_d = core[:2] + 0.30 * (core[2:] - core[:2])
+    hi_d = core[:2] + 0.45 * (core[2:] - core[:2])
+    to_px = lambda p: (px[i, 0] + (p[0] - c[i, 0]) * sx, px[i, 1] + (p[1] - c[i, 1]) * sy)  # noqa: E731
+    a, b = to_px(lo_d), to_px(hi_d)
+    page.mouse.move(*a)
+    page.mouse.down()
+    for t in np.linspace(0, 1, 10)[1:]:
+        page.mouse.move(a[0] + t * (b[0] - a[0]), a[1] + t * (b[1] - a[1]))
+        page.wait_for_timeout(30)
+    page.mouse.up()
+    n0 = len(st0["blockages"])
+    st1 = _wait_state(state_path, lambda s: len(s["blockages"]) > n0, 60, "the new blockage")
+    assert st1["undo"][-1] == "add_blockage"
+    got = np.array(st1["blockages"][-1])
+    tol = 3.0 / abs(sx)  # a few pixels
+    assert np.allclose(got, [lo_d[0], lo_d[1], hi_d[0], hi_d[1]], atol=tol), (got, lo_d, hi_d)
+    assert st1["max_density"][-1] == 0.35
+    page.wait_for_timeout(500)
+    page.screenshot(path=str(artifacts / "browser_blockage.png"), full_page=False)
+
+
 def _arrange_check(page, lab, artifacts):
     """Box-select two macros, press Align (left edges), then type one macro's x and Set."""
     import numpy as np

@@ -177,3 +177,16 @@ def test_unwritable_output_folder_names_out(demo_path, tmp_path, capsys):
     assert main(["convert", str(demo_path), str(out)]) == 2
     err = capsys.readouterr().err
     assert f"{out}: cannot write" in err and ".tmp" not in err
+
+
+def test_render_colours_by_hierarchy_and_refuses_a_bad_depth(demo_path, tmp_path):
+    out = tmp_path / "h.svg"
+    r = run("render", demo_path, "-o", out, "--hierarchy", "1")
+    assert r.returncode == 0, r.stderr
+    plain = tmp_path / "p.svg"
+    assert run("render", demo_path, "-o", plain).returncode == 0
+    assert out.read_text() != plain.read_text()  # the hierarchy colours changed the picture
+    bad = tmp_path / "bad.svg"
+    r = run("render", demo_path, "-o", bad, "--hierarchy", "-1")
+    assert r.returncode == 2 and "--hierarchy" in r.stderr and "[0, 64]" in r.stderr
+    assert len(r.stderr.strip().splitlines()) == 1 and not bad.exists()

@@ -218,7 +218,13 @@ def _run_in(files: dict[str, bytes], main: str, load):
 BOOKSHELF = {f"tiny{s}": (DATA / "bookshelf" / f"tiny{s}").read_bytes()
              for s in (".aux", ".nodes", ".nets", ".wts", ".pl", ".scl")}
 LEFDEF = DATA / "lefdef"
-DEF_SEED = (LEFDEF / "kestrel.def").read_bytes()
+# the invented block, with a partial blockage, a fence and a group added for the new readers
+DEF_SEED = (LEFDEF / "kestrel.def").read_bytes().replace(
+    b"END BLOCKAGES", b"- PLACEMENT + PARTIAL 40 RECT ( 0 0 ) ( 50000 50000 ) ;\nEND BLOCKAGES"
+).replace(b"BLOCKAGES 2 ;", b"BLOCKAGES 3 ;").replace(
+    b"COMPONENTS 12 ;", b"REGIONS 1 ;\n- r_inv ( 0 0 ) ( 100000 100000 ) + TYPE FENCE ;\n"
+    b"END REGIONS\n\nCOMPONENTS 12 ;").replace(
+    b"END DESIGN", b"GROUPS 1 ;\n- g_inv u_inv* + REGION r_inv ;\nEND GROUPS\n\nEND DESIGN")
 TECH_LEF = (LEFDEF / "kestrel_tech.lef").read_bytes()
 CELL_LEF = (LEFDEF / "kestrel_cells.lef").read_bytes()
 
@@ -242,6 +248,11 @@ def session_seed(tiny_design, tmp_path_factory) -> bytes:
     s.pin("m1")
     s.snapshot("first")
     s.rotate("m1")
+    s.undo()
+    s.add_blockage([1.0, 1.0, 4.0, 3.0], max_density=0.5)
+    s.set_halo("m1", [0.5, 0.0, 0.5, 0.0])
+    s.add_region("left", [0.0, 0.0, 10.0, 8.0])
+    s.assign_group("left", ["a", "b"])
     s.undo()
     p = tmp_path_factory.mktemp("seed") / "tiny.session.json"
     s.save(p)

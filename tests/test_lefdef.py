@@ -478,8 +478,8 @@ def test_validation_problems_name_the_file(tmp_path):
 
 
 def test_unknown_def_statement_warns(tmp_path):
-    p = _broken(tmp_path, "DIEAREA", "REGIONS 1 ;\n- rg ( 0 0 ) ( 10 10 ) ;\nEND REGIONS\nDIEAREA")
-    with pytest.warns(LefDefWarning, match="REGIONS x1"):
+    p = _broken(tmp_path, "DIEAREA", "SHAPEHINT 1 ( 0 0 ) ;\nDIEAREA")
+    with pytest.warns(LefDefWarning, match="SHAPEHINT x1"):
         d = read_def(p, lef=LEFS)
     assert d.num_blocks == 14
 

@@ -20,7 +20,7 @@ import numpy as np
 import pytest
 
 from floorwidget import metrics
-from floorwidget.design import CLUSTER, MACRO, MOVABLE, PINNED
+from floorwidget.design import CELL, CLUSTER, MACRO, MOVABLE, PINNED
 from floorwidget.placer import place
 from floorwidget.placer.coarsen import coarsen, coarsen_level
 from floorwidget.synth import rent_design
@@ -177,6 +177,26 @@ def test_clustered_session_edits_the_clusters_and_expands(clustered_session):
                                              "cells_off_row")}
     s.undo()                       # another state: the expansion is no longer current
     assert s.expanded is None
+
+
+def test_expansion_honours_a_blockage_drawn_on_the_clusters(clustered_session):
+    import shapely
+
+    s = clustered_session
+    c = s.design.core
+    w, h = c[2] - c[0], c[3] - c[1]
+    rect = [c[0] + 0.4 * w, c[1] + 0.4 * h, c[0] + 0.6 * w, c[1] + 0.6 * h]
+    s.add_blockage(rect)
+    s.refine()
+    out = s.expand()
+    full = s.full_design
+    cells = np.flatnonzero(full.kind == CELL)
+    r = out.rects()[cells]
+    box = shapely.box(*rect)
+    hit = shapely.intersection(shapely.box(r[:, 0], r[:, 1], r[:, 2], r[:, 3]), box)
+    assert float(shapely.area(hit).sum()) < 1e-6          # shapely: no cell area on it
+    s.undo()
+    s.undo()
 
 
 def test_flat_session_refuses_expand(small):

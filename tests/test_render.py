@@ -154,3 +154,21 @@ def test_title_gives_overflow_at_the_target_used(demo_design):
         title = fig.axes[0].get_title(loc="left")
         ov = metrics.evaluate(demo_design, fp, target_density=td)["density_overflow"]
         assert f"overflow {ov:.3f} at {td:g} " in title
+
+
+def test_partial_blockages_and_cell_regions_are_drawn(demo_design, tmp_path):
+    import floorwidget as fw
+
+    s = fw.Session(demo_design)
+    s.add_blockage([100.0, 100.0, 300.0, 200.0], max_density=0.3)
+    s.add_region("south", [400.0, 100.0, 900.0, 400.0])
+    s.add_region("north", [[400.0, 1500.0, 600.0, 1700.0], [700.0, 1500.0, 900.0, 1700.0]],
+                 kind="guide")
+    out = tmp_path / "r.svg"
+    render(s.design, s.floorplan, out)
+    svg = out.read_text()
+    # one shape per blockage and per region rectangle, by their ids
+    assert svg.count('id="blockage:') == 2
+    for gid in ("region:south:0", "region:north:0", "region:north:1"):
+        assert f'id="{gid}"' in svg
+    assert "partial blockage" in svg and "guide (cells pulled in)" in svg

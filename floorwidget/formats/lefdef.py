@@ -16,14 +16,17 @@ DEF (:func:`read_def`)
     ``DIEAREA`` (a rectangle, or a rectilinear polygon whose notches become placement
     blockages), ``ROW``, ``COMPONENTS`` (``PLACED``/``FIXED``/``COVER``/``UNPLACED``, ``HALO``,
     and our own ``FW_STATUS`` property), ``PINS`` (first ``LAYER`` shape and placement),
-    ``NETS`` (component and ``PIN`` connections, ``WEIGHT``) and placement ``BLOCKAGES``
-    (``RECT`` and ``POLYGON``).  Skipped and counted: ``TRACKS``, ``GCELLGRID``, ``VIAS``,
-    ``SPECIALNETS``, ``REGIONS``, ``GROUPS``, ``PROPERTYDEFINITIONS``, routing blockages,
-    routing and other options in ``NETS``, ``MUSTJOIN`` entries and ``( * pin )`` global
-    connections, nets left without pins, and any statement not listed here.  A warning
-    summarises the counts when something of floorplan interest (an unknown statement,
-    ``REGIONS``, ``GROUPS``, ...) was dropped; pure routing and technology content is skipped
-    quietly.
+    ``NETS`` (component and ``PIN`` connections, ``WEIGHT``), placement ``BLOCKAGES``
+    (``RECT`` and ``POLYGON``, ``+ PARTIAL`` maximum density), ``REGIONS`` (corner pairs,
+    ``+ TYPE FENCE | GUIDE``; no type reads as a guide, the reading that never makes a
+    placement infeasible) and ``GROUPS`` (component names and ``*``/``?`` patterns,
+    ``+ REGION``; only standard cells and clusters become members).  Skipped and counted:
+    ``TRACKS``, ``GCELLGRID``, ``VIAS``, ``SPECIALNETS``, ``PROPERTYDEFINITIONS``, routing
+    blockages, routing and other options in ``NETS``, ``MUSTJOIN`` entries and ``( * pin )``
+    global connections, nets left without pins, ``COMPONENTS + REGION``, groups without a
+    region, and any statement not listed here.  A warning summarises the counts when
+    something of floorplan interest (an unknown statement, a group member that is not a
+    standard cell, ...) was dropped; pure routing and technology content is skipped quietly.
 
 Speed
 -----
@@ -96,6 +99,7 @@ import warnings
 from collections import Counter
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
+from decimal import Decimal
 from itertools import repeat
 from pathlib import Path
 
@@ -105,7 +109,9 @@ from ..design import (
     CELL,
     CLUSTER,
     COORD_LIMIT,
+    FENCE,
     FIXED,
+    GUIDE,
     KIND_NAMES,
     MACRO,
     MAX_SITES,
@@ -113,7 +119,9 @@ from ..design import (
     ORIENT_CODE,
     ORIENTATIONS,
     PINNED,
+    REGION_TYPES,
     TERMINAL,
+    CellRegions,
     Design,
     DesignError,
     Floorplan,
@@ -585,7 +593,7 @@ _QUIET_SKIPS = {
 
 def _warn_skipped(where: str, counts: Counter) -> None:
     """One warning per file read, and only when something of floorplan interest was dropped
-    (unknown statements, REGIONS, GROUPS, ...); routing and technology content is skipped
+    (unknown statements, COMPONENTS + REGION, ...); routing and technology content is skipped
     quietly but still counted in the message when the warning is given."""
     if all(k in _QUIET_SKIPS for k in counts):
         return
@@ -599,8 +607,8 @@ def _warn_skipped(where: str, counts: Counter) -> None:
 
 _TOK = re.compile(r'\s*("[^"]*"|[();]|[^\s();"]+)')
 _COMMENT = re.compile(r"(?:^|(?<=[\s;]))#[^\n]*", re.M)
-_DEF_SECTIONS_SKIP = {"VIAS", "STYLES", "NONDEFAULTRULES", "REGIONS", "PINPROPERTIES", "SLOTS",
-                      "FILLS", "SPECIALNETS", "SCANCHAINS", "GROUPS"}
+_DEF_SECTIONS_SKIP = {"VIAS", "STYLES", "NONDEFAULTRULES", "PINPROPERTIES", "SLOTS",
+                      "FILLS", "SPECIALNETS", "SCANCHAINS"}
 _DEF_QUIET = {"VERSION", "DIVIDERCHAR", "BUSBITCHARS", "NAMESCASESENSITIVE", "TECHNOLOGY",
               "HISTORY"}
 
@@ -736,6 +744,9 @@ class _Def:
         self.pins = None
         self.nets = None
         self.blockages: list[tuple[float, float, float, float]] = []
+        self.blockage_density: list[float] = []  # max density per blockage (0: full)
+        self.regions: list[tuple[str, list, int, int]] = []  # name, points (dbu), type, pos
+        self.groups: list[tuple[str, list[str], str | None, int]] = []  # name, patterns, region
         self.comp_line = 1
 
     # --- locations and errors ----------------------------------------------------------------
@@ -815,7 +826,8 @@ class _Def:
     # --- top level ---------------------------------------------------------------------------
     def parse(self) -> None:
         sections = {"COMPONENTS": self.components, "PINS": self.io_pins,
-                    "NETS": self.net_section, "BLOCKAGES": self.blockage_section}
+                    "NETS": self.net_section, "BLOCKAGES": self.blockage_section,
+                    "REGIONS": self.region_section, "GROUPS": self.group_section}
         while True:
             t, p = self.tok()
             if t is None:  # a file cut short must not read as a smaller design
@@ -1296,24 +1308,38 @@ class _Def:
         return True
 
     # --- BLOCKAGES ---------------------------------------------------------------------------
-    def blockage_section(self, start: int, end: int, count: int, hpos: int) -> None:
+    def _statements(self, what: str, start: int, end: int, count: int, hpos: int):
+        """``(first word, tokens, position)`` of each ``- ... ;`` statement of a section (the
+        position is on the statement's line), checked against the header's count."""
         stmts = list(self._STMT.finditer(self.text, start, end))
         for mt in stmts:
             if mt.group(3):
-                self.fail(f"BLOCKAGES: cannot read statement {mt.group(3)[:40]!r}", mt.start(3))
+                self.fail(f"{what}: cannot read statement {mt.group(3)[:40]!r}", mt.start(3))
         if len(stmts) != count:
-            self.fail(f"BLOCKAGES header says {count}, the section has {len(stmts)}", hpos)
-        for mt in stmts:
-            kind = mt.group(1).upper()
+            self.fail(f"{what} header says {count}, the section has {len(stmts)}", hpos)
+        return [(mt.group(1), _split_tokens(mt.group(2)), mt.start(1)) for mt in stmts]
+
+    def blockage_section(self, start: int, end: int, count: int, hpos: int) -> None:
+        for word, toks, pos in self._statements("BLOCKAGES", start, end, count, hpos):
+            kind = word.upper()
             if kind != "PLACEMENT":
                 self.skipped[f"BLOCKAGES {kind}"] += 1
                 continue
-            toks = _split_tokens(mt.group(2))
-            pos = mt.start()
             k = 0
+            density = 0.0
+            first = len(self.blockages)
             while k < len(toks):
                 w = toks[k].upper()
-                if w in ("RECT", "POLYGON"):
+                if w == "PARTIAL" and k >= 1 and toks[k - 1] == "+":
+                    if k + 1 >= len(toks):
+                        self.fail("BLOCKAGES: PARTIAL needs a maximum density", pos)
+                    pct = self.number(toks[k + 1], pos, "BLOCKAGES PARTIAL")
+                    if not 0.0 <= pct <= 100.0:
+                        self.fail(f"BLOCKAGES: PARTIAL density {toks[k + 1]} is not a "
+                                  "percentage in [0, 100]", pos)
+                    density = _fraction(toks[k + 1])
+                    k += 2
+                elif w in ("RECT", "POLYGON"):
                     j = k + 1
                     pts = []
                     while j < len(toks) and toks[j] == "(":
@@ -1334,6 +1360,105 @@ class _Def:
                     k = j
                 else:
                     k += 1
+            self.blockage_density.extend([density] * (len(self.blockages) - first))
+
+    # --- REGIONS and GROUPS -------------------------------------------------------------------
+    def region_section(self, start: int, end: int, count: int, hpos: int) -> None:
+        """``- name ( x y ) ( x y ) ... [+ TYPE FENCE | GUIDE] ;``: corner pairs."""
+        for name, toks, pos in self._statements("REGIONS", start, end, count, hpos):
+            pts, kind, k = [], None, 0
+            while k < len(toks):
+                if toks[k] == "(":
+                    if k + 3 >= len(toks) or toks[k + 3] != ")":
+                        self.fail("REGIONS: a point is written ( x y )", pos)
+                    pts.append((self.number(toks[k + 1], pos, "REGIONS"),
+                                self.number(toks[k + 2], pos, "REGIONS")))
+                    k += 4
+                elif toks[k] == "+" and k + 2 < len(toks) and toks[k + 1].upper() == "TYPE":
+                    kind = toks[k + 2].upper()
+                    if kind not in ("FENCE", "GUIDE"):
+                        self.fail(f"REGIONS: region {name!r}: TYPE {toks[k + 2]} is not FENCE "
+                                  "or GUIDE", pos)
+                    k += 3
+                elif toks[k] == "+":  # PROPERTY and others: skipped to the next +
+                    self.skipped[f"REGIONS +{toks[k + 1] if k + 1 < len(toks) else ''}"] += 1
+                    k += 2
+                    while k < len(toks) and toks[k] != "+":
+                        k += 1
+                else:
+                    self.fail(f"REGIONS: region {name!r}: unexpected {toks[k]!r}", pos)
+            if not pts or len(pts) % 2:
+                self.fail(f"REGIONS: region {name!r} needs pairs of corner points", pos)
+            # no TYPE: read as a guide, the reading that never makes a placement infeasible
+            self.regions.append((name, pts, FENCE if kind == "FENCE" else GUIDE, pos))
+
+    def group_section(self, start: int, end: int, count: int, hpos: int) -> None:
+        """``- name component-pattern ... [+ REGION region] ;``."""
+        for name, toks, pos in self._statements("GROUPS", start, end, count, hpos):
+            pats, region, k = [], None, 0
+            while k < len(toks) and toks[k] != "+":
+                pats.append(toks[k])
+                k += 1
+            while k < len(toks):
+                w = toks[k + 1].upper() if k + 1 < len(toks) else ""
+                if w == "REGION" and k + 2 < len(toks) and toks[k + 2] != "(":
+                    region = toks[k + 2]
+                else:  # + SOFT, + PROPERTY, an inline REGION rectangle (DEF before 5.5)
+                    self.skipped[f"GROUPS +{w}"] += 1
+                k += 2
+                while k < len(toks) and toks[k] != "+":
+                    k += 1
+            self.groups.append((name, pats, region, pos))
+
+    def cell_regions(self, names: list[str], kind: np.ndarray, dbu: float) -> CellRegions:
+        """The regions with the members their groups name (cells and clusters only; other
+        components are counted as skipped)."""
+        n = len(names)
+        if not self.regions:
+            if self.groups:
+                self.skipped["GROUPS without a REGION"] += len(self.groups)
+            return CellRegions.empty(n)
+        index = {r[0]: k for k, r in enumerate(self.regions)}
+        if len(index) != len(self.regions):
+            dup = next(r for k, r in enumerate(self.regions) if index[r[0]] != k)
+            self.fail(f"REGIONS: region {dup[0]!r} is defined twice", dup[3])
+        group_of = ["" for _ in self.regions]
+        member = np.full(n, -1, np.int32)
+        lookup = {nm: i for i, nm in enumerate(names)}
+        text = "\n".join(names)
+        starts = np.concatenate([[0], np.cumsum([len(nm) + 1 for nm in names])[:-1]])
+        for gname, pats, region, pos in self.groups:
+            if region is None:
+                self.skipped["GROUPS without a REGION"] += 1
+                continue
+            if region not in index:
+                self.fail(f"GROUPS: group {gname!r} names region {region!r}, which REGIONS "
+                          "does not define", pos)
+            k = index[region]
+            group_of[k] = group_of[k] or gname
+            hit = np.zeros(n, bool)
+            for pat in pats:
+                if pat in lookup:
+                    hit[lookup[pat]] = True
+                elif "*" in pat or "?" in pat:  # one regular-expression scan of all names
+                    rx = re.compile("^" + re.escape(pat).replace(r"\*", "[^\n]*")
+                                    .replace(r"\?", "[^\n]") + "$", re.M)
+                    at = np.fromiter((m.start() for m in rx.finditer(text)), np.int64)
+                    hit[np.searchsorted(starts, at)] = True
+                else:
+                    self.fail(f"GROUPS: group {gname!r}: no component named {pat!r}", pos)
+            soft = (kind == CELL) | (kind == CLUSTER)
+            if (hit & ~soft).any():
+                self.skipped["GROUPS members that are not standard cells"] += int(
+                    (hit & ~soft).sum())
+            member[hit & soft] = k
+        regs = [{"name": nm, "type": REGION_TYPES[t],
+                 "rects": [[min(a[0], b[0]) / dbu, min(a[1], b[1]) / dbu,
+                            max(a[0], b[0]) / dbu, max(a[1], b[1]) / dbu]
+                           for a, b in zip(pts[::2], pts[1::2])],
+                 "group": group_of[k] or nm}
+                for k, (nm, pts, t, _) in enumerate(self.regions)]
+        return CellRegions.build(n, regs, member)
 
     # --- assembly ----------------------------------------------------------------------------
     def design(self) -> Design:
@@ -1346,9 +1471,12 @@ class _Def:
         pts = np.array(self.die_pts, dtype=np.float64) / dbu
         die = np.array([pts[:, 0].min(), pts[:, 1].min(), pts[:, 0].max(), pts[:, 1].max()])
         blk = [np.array(self.blockages, dtype=np.float64).reshape(-1, 4) / dbu]
+        dens = [np.array(self.blockage_density, dtype=np.float64)]
         if len(pts) > 2:
             blk.insert(0, _polygon_rects(pts, False))
+            dens.insert(0, np.zeros(len(blk[0])))
         blockages = np.concatenate(blk)
+        blockage_density = np.concatenate(dens)
 
         # rows
         rows = {"x": [], "y": [], "height": [], "site_width": [], "num_sites": [], "orient": []}
@@ -1538,6 +1666,8 @@ class _Def:
         fixed = status == FIXED
         allowed[fixed] |= (np.uint8(1) << orient[fixed].astype(np.uint8)).astype(np.uint8)
         t_allowed = (np.uint8(1) << np.array(t_o, np.uint8)).astype(np.uint8)
+        regions = self.cell_regions(names, np.concatenate([kind, np.full(nt_, TERMINAL,
+                                                                            np.int8)]), dbu)
         if self.skipped:
             _warn_skipped(self.path, self.skipped)
         try:
@@ -1548,7 +1678,8 @@ class _Def:
                 net_start, ci[pin_keep], dx[pin_keep], dy[pin_keep],
                 halo=halo, orient_allowed=np.concatenate([allowed, t_allowed]),
                 net_names=net_names, net_weight=nt["weight"][net_keep], pin_names=pin_names,
-                rows=rows if self.rows else None, blockages=blockages, block_type=block_type,
+                rows=rows if self.rows else None, blockages=blockages,
+                blockage_max_density=blockage_density, regions=regions, block_type=block_type,
                 x=np.concatenate([x, t_x]), y=np.concatenate([y, t_y]),
                 orient=np.concatenate([orient, np.array(t_o, np.int8)]),
                 status=np.concatenate([status, np.array(t_s, np.int8)]),
@@ -1955,6 +2086,17 @@ def _def_text(design: Design, fp: Floorplan, path) -> str:
     has_halo = halo_a.any(axis=1).tolist()
     halo = halo_a.tolist()
     stl, orl, bml = fp.status.tolist(), fp.orient.tolist(), ab.block_master.tolist()
+    reg = d.regions
+    if len(reg):
+        _check_names(reg.names, "region", path)
+        _check_names(reg.groups, "group", path)
+        out.append(f"REGIONS {len(reg)} ;")
+        for k, nm in enumerate(reg.names):
+            pts = " ".join(f"( {r[0]} {r[1]} ) ( {r[2]} {r[3]} )"
+                           for r in I(reg.rects_of(k)).tolist())
+            out.append(f"- {nm} {pts} + TYPE {REGION_TYPES[int(reg.kind[k])].upper()} ;")
+        out.append("END REGIONS")
+        out.append("")
     out.append(f"COMPONENTS {len(comp)} ;")
     st_word = {MOVABLE: "PLACED", PINNED: "FIXED", FIXED: "FIXED"}
     for i in comp.tolist():
@@ -1999,8 +2141,9 @@ def _def_text(design: Design, fp: Floorplan, path) -> str:
     if len(d.blockages):
         bl = I(d.blockages)
         out.append(f"BLOCKAGES {len(bl)} ;")
-        for b in bl.tolist():
-            out.append(f"- PLACEMENT RECT ( {b[0]} {b[1]} ) ( {b[2]} {b[3]} ) ;")
+        for b, md in zip(bl.tolist(), d.blockage_max_density.tolist()):
+            part = f"+ PARTIAL {_percent(md)} " if md > 0 else ""
+            out.append(f"- PLACEMENT {part}RECT ( {b[0]} {b[1]} ) ( {b[2]} {b[3]} ) ;")
         out.append("END BLOCKAGES")
         out.append("")
     out.append(f"NETS {d.num_nets} ;")
@@ -2018,8 +2161,28 @@ def _def_text(design: Design, fp: Floorplan, path) -> str:
         out.append(line + " ;")
     out.append("END NETS")
     out.append("")
+    if len(reg):
+        out.append(f"GROUPS {len(reg)} ;")
+        for k, g in enumerate(reg.groups):
+            mem = [names[i] for i in reg.members(k)]
+            out.append(f"- {g}")
+            out.extend("   " + " ".join(mem[j:j + 8]) for j in range(0, len(mem), 8))
+            out.append(f"   + REGION {reg.names[k]} ;")
+        out.append("END GROUPS")
+        out.append("")
     out.append("END DESIGN")
     return "\n".join(out) + "\n"
+
+
+def _percent(fraction: float) -> str:
+    """``fraction`` as a percentage written exactly (decimal), so that :func:`_fraction`
+    reads the same float back."""
+    return format((Decimal(repr(float(fraction))) * 100).normalize(), "f")
+
+
+def _fraction(percent: str) -> float:
+    """A DEF percentage token as a fraction, divided in decimal (exact round trip)."""
+    return float(Decimal(percent) / 100)
 
 
 def write_def_pair(design: Design, fp: Floorplan, def_path: str | Path,

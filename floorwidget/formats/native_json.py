@@ -9,16 +9,21 @@ Layout (version 1)::
       "rows": [{"x": .., "y": .., "height": .., "site_width": .., "num_sites": .., "orient": "N"}],
       "site": "core",
       "grid": {"pitch": [px, py], "origin": [x0, y0]},
-      "blockages": [[xlo, ylo, xhi, yhi], ...],
+      "blockages": [[xlo, ylo, xhi, yhi] or {"rect": [xlo, ylo, xhi, yhi],
+                                               "max_density": d}, ...],
       "blocks": [{"name": .., "kind": "macro|cluster|cell|terminal", "width": .., "height": ..,
                   "halo": [l, b, r, t] or h, "orientations": ["N", "FN", ..], "type": "..",
                   "x": .., "y": .., "orient": "N", "status": "movable|pinned|fixed"}],
-      "nets": [{"name": .., "weight": 1.0, "pins": [[block, dx, dy] or [block, dx, dy, pin]]}]
+      "nets": [{"name": .., "weight": 1.0, "pins": [[block, dx, dy] or [block, dx, dy, pin]]}],
+      "regions": [{"name": .., "type": "fence|guide", "rects": [[xlo, ylo, xhi, yhi], ..],
+                   "members": [block, ..], "group": ..}]
     }
 
 Pin offsets are from the block centre in the N orientation.  Optional fields take defaults
 (``halo`` 0, ``orientations`` all for macros and N otherwise, ``weight`` 1, ``status`` movable,
-``x``/``y`` 0, ``orient`` N).  Floats are written with ``repr`` so a round trip is exact.
+``x``/``y`` 0, ``orient`` N).  A blockage written as a bare rectangle is a full one; a
+partial one carries its ``max_density`` in (0, 1] (the share of its area cells may fill).
+Floats are written with ``repr`` so a round trip is exact.
 """
 
 from __future__ import annotations
@@ -36,7 +41,9 @@ from ..design import (
     MAX_SITES,
     ORIENT_CODE,
     ORIENTATIONS,
+    REGION_TYPES,
     STATUS_NAMES,
+    CellRegions,
     Design,
     DesignError,
     Floorplan,
@@ -48,6 +55,7 @@ FORMAT = "floorwidget-design"
 VERSION = 1
 _KIND = {k: i for i, k in enumerate(KIND_NAMES)}
 _STATUS = {k: i for i, k in enumerate(STATUS_NAMES)}
+_REGION_TYPE = {k: i for i, k in enumerate(REGION_TYPES)}
 
 
 class _Reader:
@@ -141,9 +149,18 @@ def parse_json(doc: dict, path) -> Design:
         if "origin" in grid:
             origin = r.nums(grid["origin"], 2, "grid.origin")
 
-    blockages = []
+    blockages, max_density = [], []
     for i, b in enumerate(r.items(doc, "blockages", "", [])):
-        blockages.append(r.nums(b, 4, f"blockages[{i}]"))
+        w = f"blockages[{i}]"
+        if isinstance(b, dict):
+            blockages.append(r.nums(r.get(b, "rect", w), 4, w + ".rect"))
+            md = r.num(r.get(b, "max_density", w, 0.0), w + ".max_density", nonneg=True)
+            if md > 1:
+                r.fail(w + ".max_density", f"must lie in [0, 1], got {md:g}")
+            max_density.append(md)
+        else:
+            blockages.append(r.nums(b, 4, w))
+            max_density.append(0.0)
 
     blocks = r.items(doc, "blocks", "")
     n = len(blocks)
@@ -222,11 +239,29 @@ def parse_json(doc: dict, path) -> Design:
     dbu = doc.get("dbu", 1000)
     if isinstance(dbu, bool) or not isinstance(dbu, int) or not 0 < dbu <= MAX_DBU:
         r.fail("dbu", f"expected a whole number in 1..{MAX_DBU}")
+    regions, member = [], np.full(n, -1, np.int32)
+    for k, g in enumerate(r.items(doc, "regions", "", [])):
+        w = f"regions[{k}]"
+        rects = r.items(g, "rects", w)
+        if not rects:
+            r.fail(f"{w}.rects", "expected at least one rectangle")
+        regions.append({"name": r.text(r.get(g, "name", w), f"{w}.name"),
+                        "type": REGION_TYPES[r.choice(g.get("type", "fence"), _REGION_TYPE,
+                                                      f"{w}.type")],
+                        "rects": [r.nums(b, 4, f"{w}.rects[{j}]") for j, b in enumerate(rects)],
+                        "group": r.text(g["group"], f"{w}.group") if "group" in g else None})
+        for j, nm in enumerate(r.items(g, "members", w, [])):
+            b = index.get(nm) if isinstance(nm, str) else None
+            if b is None:
+                r.fail(f"{w}.members[{j}]", f"unknown block {json.dumps(nm)[:40]}")
+            member[b] = k
     return Design(
         name, die, names, kind, width, height, starts, pin_block, pin_dx, pin_dy,
         halo=halo, orient_allowed=allowed, net_names=net_names, net_weight=weights,
         pin_names=pin_names if any_pin_name else None, rows=rows, grid_pitch=pitch,
         grid_origin=origin, blockages=np.array(blockages).reshape(-1, 4),
+        blockage_max_density=np.array(max_density, dtype=np.float64),
+        regions=CellRegions.build(n, regions, member) if regions else None,
         block_type=types if any_type else None, x=x, y=y, orient=orient, status=status,
         dbu=dbu, source=str(path))
 
@@ -289,8 +324,14 @@ def to_document(design: Design, fp: Floorplan) -> dict:
            "die": [_clean(v) for v in d.die], "site": d.site_name, "rows": rows,
            "grid": {"pitch": [_clean(v) for v in d.grid_pitch],
                     "origin": [_clean(v) for v in d.grid_origin]},
-           "blockages": [[_clean(v) for v in b] for b in d.blockages],
+           "blockages": [[_clean(v) for v in b] if md <= 0 else
+                         {"rect": [_clean(v) for v in b], "max_density": _clean(md)}
+                         for b, md in zip(d.blockages, d.blockage_max_density)],
            "blocks": blocks, "nets": nets}
+    if len(d.regions):
+        doc["regions"] = [{**g, "rects": [[_clean(v) for v in b] for b in g["rects"]],
+                           "members": [d.names[i] for i in d.regions.members(k)]}
+                          for k, g in enumerate(d.regions.to_list())]
     return doc
 
 

@@ -92,6 +92,29 @@ class Clustering:
         start = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
         return start, order.astype(np.int64)
 
+    def with_constraints(self, top: Design) -> Clustering:
+        """These levels with the blockages of ``top`` (a design with the netlist of the
+        coarsest level, e.g. after hand edits) and the halos of its singletons on every
+        level.  Cell regions stay those of each level (clusters cannot take members')."""
+        c = self.coarsest
+        if top is c:
+            return self
+        if not top.same_netlist(c):
+            raise ValueError("the design is not the clustering's coarsest level")
+        single_top = np.bincount(self.cluster_of(0), minlength=c.num_blocks) == 1
+        designs = []
+        for k, d in enumerate(self.designs):
+            m = np.arange(d.num_blocks)
+            for j in range(k, self.num_levels - 1):
+                m = self.parent[j][m]
+            halo = d.halo.copy()
+            s = single_top[m]
+            halo[s] = top.halo[m[s]]
+            designs.append(top if k == self.num_levels - 1 else
+                           d.derive(blockages=top.blockages,
+                                    blockage_max_density=top.blockage_max_density, halo=halo))
+        return Clustering(designs, self.parent, self.nets)
+
     def project(self, level: int, fp: Floorplan, base: Floorplan | None = None,
                 seed: int = 0) -> Floorplan:
         """Floorplan of level ``level - 1`` from ``fp`` of level ``level``: singletons keep
@@ -363,8 +386,9 @@ def contract(design: Design, fp: Floorplan, leader: np.ndarray, level: int
                dx, dy, halo=halo, orient_allowed=allowed, net_names=net_names,
                net_weight=design.net_weight[kept_nets], rows=rows,
                grid_pitch=design.grid_pitch, grid_origin=design.grid_origin,
-               blockages=design.blockages, block_type=btype, x=x, y=y, orient=orient,
-               status=status, dbu=design.dbu, validate=False, source=design.source)
+               blockages=design.blockages,
+               blockage_max_density=design.blockage_max_density, block_type=btype, x=x, y=y,
+               orient=orient, status=status, dbu=design.dbu, validate=False, source=design.source)
     return d, parent, kept_nets
 
 

@@ -32,6 +32,7 @@ import numpy as np
 
 from ..design import CELL, CLUSTER, MACRO, MOVABLE, TERMINAL, Design, Floorplan
 from ..metrics import default_channel, hpwl, pinned_illegal
+from .constraints import RegionPlan, partial_capacity_loss, row_groups
 from .errors import PlacementError, PlacementWarning
 from .legalize import legalize_macros
 from .options import (
@@ -91,8 +92,9 @@ def _obstacles(design: Design, fp: Floorplan, fixed_mask: np.ndarray) -> np.ndar
     halos, terminals excluded) and placement blockages."""
     sel = fixed_mask & (design.kind != TERMINAL)
     r = fp.rects(halo=True)[sel]
-    if len(design.blockages):
-        r = np.concatenate([r, design.blockages])
+    full = design.full_blockages
+    if len(full):
+        r = np.concatenate([r, full])
     return r
 
 
@@ -116,8 +118,10 @@ class _Stage:
         fixed[self.vars] = False
         self.grid: Grid = make_grid(design.core, self.w, self.h, opts.bin_size)
         self.obstacles = _obstacles(design, fp, fixed)
-        self.cap = capacity_map(self.grid, target, self.obstacles)
+        self.cap = np.maximum(capacity_map(self.grid, target, self.obstacles)
+                              - partial_capacity_loss(design, self.grid, target), 0.0)
         self.wt = density_weight(self.grid, self.w, self.h, target)
+        self.regions = RegionPlan(design, self.vars, self.grid, self.cap)
         self.soft = design.kind[self.vars] == CLUSTER
         self.growth = (anchor_growth_for(len(self.vars)) if opts.anchor_growth is None
                        else opts.anchor_growth)
@@ -138,19 +142,30 @@ class _Stage:
                 f"design {self.design.name!r}: movable area {self.area:.6g} µm² exceeds "
                 f"target density {target:g} × free core area ({cap:.6g} µm²); raise "
                 f"target_density or free some area")
+        self.regions.check(self.w, self.h, self.wt, self.design.name)
 
     def clamp(self, cx, cy):
         v = self.vars
         cx[v] = np.clip(cx[v], self.lo_x, self.hi_x)
         cy[v] = np.clip(cy[v], self.lo_y, self.hi_y)
+        if self.regions.active:  # fence members into their fence (bounds)
+            x, y = cx[v], cy[v]
+            self.regions.clamp(x, y, self.w, self.h)
+            cx[v], cy[v] = x, y
 
     def lookahead(self, cx, cy):
-        """Look-ahead positions: only the overfilled regions are spread (density-driven)."""
+        """Look-ahead positions: only the overfilled regions are spread (density-driven);
+        with fences, each fence's members against its own capacity and the rest outside."""
         v = self.vars
-        regions = overfilled_regions(self.grid, self.cap, cx[v], cy[v], self.w, self.h,
-                                     weight=self.wt)
-        return lookahead(self.grid, self.cap, cx[v], cy[v], self.w, self.h, regions=regions,
-                         weight=self.wt, scale=self.soft)
+        groups = self.regions.groups or [(slice(None), self.cap)]
+        tx, ty = np.empty(len(v)), np.empty(len(v))
+        x, y = cx[v], cy[v]
+        for idx, cap in groups:
+            w, h, wt = self.w[idx], self.h[idx], self.wt[idx]
+            regions = overfilled_regions(self.grid, cap, x[idx], y[idx], w, h, weight=wt)
+            tx[idx], ty[idx] = lookahead(self.grid, cap, x[idx], y[idx], w, h,
+                                         regions=regions, weight=wt, scale=self.soft[idx])
+        return tx, ty
 
     def overflow(self, cx, cy) -> float:
         v = self.vars
@@ -180,6 +195,9 @@ class _Stage:
             alpha = opts.anchor_weight * (1.0 + self.growth * (k0 + it))
             wx = alpha * self.anchor_scale / np.maximum(np.abs(cx[v] - tx), self.eps_a)
             wy = alpha * self.anchor_scale / np.maximum(np.abs(cy[v] - ty), self.eps_a)
+            if self.regions.active:  # guide members outside their guide: pulled toward it
+                self.regions.pull(cx[v], cy[v], self.w, self.h, tx, ty, wx, wy,
+                                  alpha * self.anchor_scale)
             nx, ny, _ = self.sys.solve(cx, cy, orient, anchor=(tx, ty, wx, wy),
                                        rtol=opts.cg_tol, maxiter=opts.cg_maxiter)
             cx[v] = nx
@@ -205,6 +223,8 @@ class _Stage:
             if ov_la < ov:
                 cx[v] = tx
                 cy[v] = ty
+                if self.regions.active:
+                    self.clamp(cx, cy)
                 ov = ov_la
                 used_lookahead = True
         return {"iterations": it, "overflow": ov, "history": history,
@@ -495,18 +515,38 @@ def _rows_stage(design: Design, out: Floorplan, src: Floorplan, opts: PlacerOpti
                       "their global positions", PlacementWarning, stacklevel=4)
         return out
     t0 = time.perf_counter()
-    out, facts = legalize_cells(design, out, cells)
-    info.update(facts)
+    groups = row_groups(design, cells)  # one, or each fence and the rest apart
+    got = []
+    for grp, keep, avoid in groups:
+        out, facts = legalize_cells(design, out, grp, keep=keep, avoid=avoid, free=cells)
+        got.append(facts)
+    info.update(_merge_facts(got, "cells_legalized", "cell_displacement",
+                             "cell_max_displacement"))
     info["stage_seconds"]["rows"] = time.perf_counter() - t0
     _report(progress, "rows", 1.0, {})
     if opts.detail_passes:
         t0 = time.perf_counter()
-        out, facts = detailed_place(design, out, cells, passes=opts.detail_passes,
-                                    target_density=min(1.0, target + DP_SLACK))
-        info.update(facts)
+        got = []
+        for grp, keep, avoid in groups:
+            out, facts = detailed_place(design, out, grp, passes=opts.detail_passes,
+                                        target_density=min(1.0, target + DP_SLACK),
+                                        keep=keep, avoid=avoid)
+            got.append(facts)
+        info.update({"dp_gain": float(sum(f["dp_gain"] for f in got)),
+                     "dp_swaps": int(sum(f["dp_swaps"] for f in got))})
         info["stage_seconds"]["detail"] = time.perf_counter() - t0
         _report(progress, "detail", 1.0, {})
     return out
+
+
+def _merge_facts(facts: list[dict], count: str, mean: str, peak: str) -> dict:
+    """Facts of row legalisation over several groups: counts summed, the mean weighted by
+    count, the maximum of maxima (one group: its facts unchanged)."""
+    if len(facts) == 1:
+        return facts[0]
+    n = sum(f[count] for f in facts)
+    return {count: n, mean: sum(f[mean] * f[count] for f in facts) / max(n, 1),
+            peak: max(f[peak] for f in facts)}
 
 
 def refine(design: Design, floorplan: Floorplan, *, target_density: float = 0.8, seed: int = 0,
@@ -590,7 +630,8 @@ def utilisation(design: Design, fp: Floorplan) -> float:
     area = float(np.sum(design.width[movable] * design.height[movable]))
     c = design.core
     grid = make_grid(c, np.ones(1), np.ones(1), bin_size=max(c[2] - c[0], c[3] - c[1]) / 256)
-    free = float(capacity_map(grid, 1.0, _obstacles(design, fp, ~movable)).sum())
+    free = float(np.maximum(capacity_map(grid, 1.0, _obstacles(design, fp, ~movable))
+                            - partial_capacity_loss(design, grid, 1.0), 0.0).sum())
     return area / free if free > 0 else (np.inf if area > 0 else 0.0)
 
 

@@ -91,6 +91,7 @@ from scipy.optimize import linprog
 
 from ..design import MACRO, MOVABLE, Design, Floorplan, off_grid, orient_offsets
 from ._select import movable_macros
+from .constraints import macro_keepouts
 from .errors import PlacementError
 
 __all__ = ["legalize_macros", "is_legal"]
@@ -227,7 +228,7 @@ class _Problem:
         obst = (design.kind == MACRO) & ~move
         self.obst = fp.rects()[obst]  # footprints of the macros that stay
         self.obst_halo = hl[obst].copy()  # and their halos (left, bottom, right, top)
-        self.blk = np.asarray(design.blockages, dtype=np.float64).reshape(-1, 4)
+        self.blk = np.asarray(macro_keepouts(design), dtype=np.float64).reshape(-1, 4)
         self.area = (self.w + self.l + self.r) * (self.h + self.b + self.t)
         self._bounds()
 

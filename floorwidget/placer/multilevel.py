@@ -131,7 +131,8 @@ def expand(clustering: Clustering, coarse: Floorplan, floorplan: Floorplan | Non
     """Every block of the input design placed from a floorplan of the coarsest level.
 
     Macros and the other singletons (pinned and fixed blocks, cells that never merged) take
-    their position, orientation and status from ``coarse`` — where the engineer put them on
+    their position, orientation, status and halo from ``coarse``, every level the blockages of
+    its design — where the engineer put them on
     the clustered design — and the members of each cluster are uncoarsened level by level
     around them (:func:`uncoarsen`), then put on rows as by :func:`~floorwidget.placer.place`
     (option ``cells``).  Macros are not moved.
@@ -154,11 +155,13 @@ def expand(clustering: Clustering, coarse: Floorplan, floorplan: Floorplan | Non
     from .flow import _finish, _rows_stage, _start
 
     t_all = time.perf_counter()
+    if not isinstance(coarse, Floorplan):
+        raise ValueError("expand needs a floorplan of the clustering's coarsest design")
+    clustering = clustering.with_constraints(coarse.design)  # hand-drawn blockages, halos
     top = clustering.num_levels - 1
     design = clustering.designs[0]
-    if not isinstance(coarse, Floorplan) or coarse.design is not clustering.coarsest:
-        raise ValueError("expand needs a floorplan of the clustering's coarsest design")
-    base = (design.initial if floorplan is None else floorplan).copy()
+    given = design.initial if floorplan is None else floorplan
+    base = Floorplan(design, given.x, given.y, given.orient, given.status)  # (copies)
     c = clustering.cluster_of(top)
     single = np.bincount(c, minlength=clustering.coarsest.num_blocks)[c] == 1
     for f in ("x", "y", "orient", "status"):

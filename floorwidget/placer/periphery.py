@@ -27,6 +27,7 @@ import numpy as np
 
 from ..design import MACRO, Design, Floorplan, orient_offsets, orient_size
 from ..metrics import channel_gaps
+from .constraints import macro_keepouts
 from .legalize import legalize_macros
 
 __all__ = ["edge_of", "push_to_edges", "close_channels", "orient_mask_inward", "compact",
@@ -118,7 +119,7 @@ def _slide(design: Design, fp: Floorplan, i: int, direction: int, dist: float) -
 
 
 def _obstacles(design: Design) -> np.ndarray:
-    return design.blockages if len(design.blockages) else np.zeros((0, 4))
+    return macro_keepouts(design)
 
 
 def compact(design: Design, fp: Floorplan, idx: np.ndarray, edge: np.ndarray,

@@ -54,6 +54,7 @@ from ..design import (
     orient_offsets,
 )
 from ..metrics import bin_grid, hpwl, rect_area_map, row_of
+from .constraints import partial_capacity_loss
 from .errors import PlacementError
 
 __all__ = ["RowSegments", "row_segments", "legalize_cells", "detailed_place", "cell_mask"]
@@ -98,28 +99,53 @@ class RowSegments:
         return float(np.sum((self.hi - self.lo) * self.site * self.height))
 
 
-def _obstacle_rects(design: Design, fp: Floorplan, movable_cells: np.ndarray) -> np.ndarray:
+def _obstacle_rects(design: Design, fp: Floorplan, movable_cells: np.ndarray,
+                    avoid: np.ndarray | None = None) -> np.ndarray:
     """What standard cells may not overlap: macro halo boxes, cells that are not being placed
-    (fixed, pinned), and placement blockages.  Soft clusters and I/O terminals are no
-    obstacles."""
+    (fixed, pinned), full placement blockages, and the rectangles ``avoid`` (other cells'
+    fences).  Soft clusters and I/O terminals are no obstacles."""
     k = design.kind
     sel = (k != CLUSTER) & (k != TERMINAL) & ~movable_cells
     # movable cells that this module does not place (multi-row) stay where they are
     r = fp.rects(halo=True)[sel]
-    if len(design.blockages):
-        r = np.concatenate([r, design.blockages])
-    return r
+    full = design.full_blockages  # partial ones only cap the density (detailed placement)
+    extra = [a for a in (full, avoid) if a is not None and len(a)]
+    return np.concatenate([r, *extra]) if extra else r
 
 
-def row_segments(design: Design, fp: Floorplan, movable_cells: np.ndarray | None = None
+def _keep_inside(seg: RowSegments, keep: np.ndarray) -> RowSegments:
+    """The parts of the segments inside the rectangles ``keep`` (disjoint; rows wholly
+    inside one vertically), in whole sites."""
+    s, k = np.divmod(np.arange(len(seg.y) * len(keep)), len(keep))
+    b = keep[k]
+    ok = (seg.y[s] >= b[:, 1] - TOL) & (seg.y[s] + seg.height[s] <= b[:, 3] + TOL)
+    lo = np.maximum(seg.lo[s], np.ceil((b[:, 0] - seg.x0[s]) / seg.site[s] - 1e-9))
+    hi = np.minimum(seg.hi[s], np.floor((b[:, 2] - seg.x0[s]) / seg.site[s] + 1e-9))
+    ok &= hi > lo
+    s, lo, hi = s[ok], lo[ok].astype(np.int64), hi[ok].astype(np.int64)
+    srt = np.lexsort((seg.x0[s] + lo * seg.site[s], seg.y[s]))
+    s, lo, hi = s[srt], lo[srt], hi[srt]
+    y = seg.y[s]
+    level_y, level_first = np.unique(y, return_index=True)
+    return RowSegments(y=y, height=seg.height[s], x0=seg.x0[s], site=seg.site[s], lo=lo, hi=hi,
+                       orient=seg.orient[s], level_y=level_y,
+                       level_start=np.concatenate([level_first, [len(y)]]).astype(np.int64))
+
+
+def row_segments(design: Design, fp: Floorplan, movable_cells: np.ndarray | None = None, *,
+                 keep: np.ndarray | None = None, avoid: np.ndarray | None = None
                  ) -> RowSegments:
-    """Cut the rows around the obstacles (see :func:`_obstacle_rects`), vectorised."""
+    """Cut the rows around the obstacles (see :func:`_obstacle_rects`), vectorised; with
+    ``keep`` (a fence's rectangles), only the parts of the rows inside them."""
     if movable_cells is None:
         movable_cells = cell_mask(design, fp)
+    if keep is not None:
+        return _keep_inside(row_segments(design, fp, movable_cells, avoid=avoid),
+                            np.asarray(keep, np.float64).reshape(-1, 4))
     ry, rh = design.row_y, design.row_height
     rx, sw, ns = design.row_x, design.row_site_width, design.row_num_sites
     nr = len(ry)
-    obs = _obstacle_rects(design, fp, movable_cells)
+    obs = _obstacle_rects(design, fp, movable_cells, avoid)
     # (row, obstacle) pairs that overlap vertically, through rows sorted by bottom
     order = np.lexsort((rx, ry))
     ys, tops = ry[order], (ry + rh)[order]
@@ -358,7 +384,9 @@ def _row_spread(design: Design, seg: RowSegments, x, y, w, h):
 
 
 def legalize_cells(design: Design, fp: Floorplan, cells: np.ndarray | None = None, *,
-                   spread: bool = True) -> tuple[Floorplan, dict]:
+                   spread: bool = True, keep: np.ndarray | None = None,
+                   avoid: np.ndarray | None = None, free: np.ndarray | None = None
+                   ) -> tuple[Floorplan, dict]:
     """Put the movable standard cells on rows and sites with minimum displacement (Abacus).
 
     Parameters
@@ -375,6 +403,12 @@ def legalize_cells(design: Design, fp: Floorplan, cells: np.ndarray | None = Non
         each in its row when it has room there (on a 100 %-full known-optimum instance of
         10^4 cells this cut the mean displacement from 2.8 to 0.2 sites; on a 40 %-full design
         it cost 2 % HPWL, hence the threshold).  ``False``: Abacus straight from the input.
+    keep, avoid : (k, 4) arrays, optional
+        Only the rows inside ``keep`` (a fence of these cells), or only outside ``avoid``
+        (the fences of other cells); see :func:`floorwidget.placer.constraints.row_groups`.
+    free : (n,) bool, optional
+        Cells that are no obstacles though not legalised here (the other groups of a fenced
+        design, still at their global positions); default ``cells``.
 
     Returns
     -------
@@ -397,12 +431,13 @@ def legalize_cells(design: Design, fp: Floorplan, cells: np.ndarray | None = Non
     if not len(design.row_y):
         raise PlacementError(f"design {design.name!r} has standard cells but no rows; "
                              "use cells='global'")
-    seg = row_segments(design, fp, cells)
+    seg = row_segments(design, fp, cells if free is None else free, keep=keep, avoid=avoid)
     w = design.width[idx]
     need = float(np.sum(w * design.height[idx]))
     if need > seg.capacity_um2 * (1 + 1e-9):
-        raise PlacementError(f"standard cells need {need:.6g} µm² but the free row area is "
-                             f"{seg.capacity_um2:.6g} µm²")
+        where = "" if keep is None else " inside their fence"
+        raise PlacementError(f"standard cells need {need:.6g} µm² but the free row area"
+                             f"{where} is {seg.capacity_um2:.6g} µm²")
     tx = fp.x[idx].astype(np.float64)
     ty = fp.y[idx].astype(np.float64)
     full = need > FULL_ROWS * seg.capacity_um2
@@ -733,7 +768,8 @@ def _adjacent_swap(seq_start, seq, wum, bx, by, osign, N, passes):
 
 def detailed_place(design: Design, fp: Floorplan, cells: np.ndarray | None = None, *,
                    passes: int = 8, max_degree: int = 64, min_gain: float = 0.002,
-                   target_density: float = 1.0) -> tuple[Floorplan, dict]:
+                   target_density: float = 1.0, keep: np.ndarray | None = None,
+                   avoid: np.ndarray | None = None) -> tuple[Floorplan, dict]:
     """Lower the HPWL of a row-legal placement by cell swaps that keep it legal.
 
     Parameters
@@ -749,12 +785,16 @@ def detailed_place(design: Design, fp: Floorplan, cells: np.ndarray | None = Non
         Stop once a pass lowers the HPWL by less than this fraction.
     target_density : float
         A cell moves into another density bin (the report's grid) only while that bin's cell
-        area stays within this share of its row area, so detailed placement does not pile
+        area stays within this share of its row area (the maximum density under a partial
+        blockage, where lower), so detailed placement does not pile
         cells up where the global placement spread them (swaps of equal widths are always
         allowed: they change no bin's fill).
     max_degree : int
         Nets with more pins are left out of the optimal-region estimate (their gains are still
         counted exactly).
+    keep, avoid : (k, 4) arrays, optional
+        Free sites only inside ``keep`` or only outside ``avoid`` (cell regions; as
+        :func:`legalize_cells`).
 
     Returns
     -------
@@ -792,7 +832,7 @@ def detailed_place(design: Design, fp: Floorplan, cells: np.ndarray | None = Non
                    np.minimum.reduceat(py, st), np.maximum.reduceat(py, st)], axis=1)
     N = (ns, pb, pdx, pdy, bnet_s, bnets, o.astype(np.int64), np.ascontiguousarray(bb))
     # every site of every row: the cell on it, -1 free, -2 blocked
-    seg = row_segments(design, fp, cells)
+    seg = row_segments(design, fp, cells, keep=keep, avoid=avoid)
     nsites = design.row_num_sites.astype(np.int64)
     row_off = np.concatenate([[0], np.cumsum(nsites)]).astype(np.int64)
     if row_off[-1] > MAX_SITES:
@@ -824,6 +864,7 @@ def detailed_place(design: Design, fp: Floorplan, cells: np.ndarray | None = Non
     segr = np.stack([seg.x0 + seg.lo * seg.site, seg.y, seg.x0 + seg.hi * seg.site,
                      seg.y + seg.height], axis=1)
     cap = target_density * rect_area_map(g, segr)  # the segments hold the cells' sites too
+    cap = np.maximum(cap - partial_capacity_loss(design, g, target_density), 0.0)
     D = (use, cap, g.xlo, g.ylo, g.bw, g.bh)
     hpwl0 = hpwl(design, fp)
     g1 = 0.0

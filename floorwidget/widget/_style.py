@@ -48,6 +48,8 @@ def ui_colors() -> dict:
         "wall": _st.PINS_TO_WALL.fill, "wall_opacity": _st.PINS_TO_WALL.fill_opacity,
         "wall_stroke": _st.PINS_TO_WALL.stroke, "wall_dash": _st.PINS_TO_WALL.bq_line_style,
         "wall_label": _st.PINS_TO_WALL.label,
+        # cell regions: fences solid, guides dashed, both outlined with their name
+        "region": _st.REDDISH_PURPLE, "region_width": 2.0,
     }
 
 

@@ -109,7 +109,7 @@ class FloorplanWidget(W.VBox):
                  pin_on_drop: bool = True, target_density: float = 0.8):
         self.session = session if session is not None else Session(
             design, floorplan, target_density=target_density)
-        self.design = design = self.session.design
+        design = self.session.design
         self.canvas = Canvas(design, self.session.floorplan, size=size, interactive=True)
         self.macro_idx = self.canvas.macro_idx
         self._busy = threading.Lock()
@@ -129,19 +129,31 @@ class FloorplanWidget(W.VBox):
         h.on_drag_end(lambda _m, ev: self.drop(ev["index"], ev["point"]["x"], ev["point"]["y"]))
         h.on_element_click(lambda _m, ev: self.select([int(self.macro_idx[ev["index"]])]))
         h.observe(self._on_brush, names=["selected"])
+        bh = self.canvas.marks["blockage_handles"]
+        bh.on_drag_end(lambda _m, ev: self._ui(lambda: self.drop_blockage(
+            ev["index"], ev["point"]["x"], ev["point"]["y"])))
+        bh.on_element_click(lambda _m, ev: self._ui(lambda: self.select_blockage(ev["index"])))
 
         self._build_controls(live, pin_on_drop)
         self._build_edit_controls()
+        self._build_constraint_controls()
         self._build_view_controls()
+        self._build_region_controls()
         self.session.on_change(self._on_change)
         self._refresh_readouts()
         self._refresh_alternatives()
         self._refresh_edit()
         side = W.VBox([self.controls, self.progress, self.message, self.readout, self.legend,
-                       self.view_box, self.details, self.edit_box, self.arrange_box],
+                       self.view_box, self.details, self.edit_box, self.arrange_box,
+                       self.constraint_box, self.region_box],
                       layout=W.Layout(width="360px", margin="0 0 0 10px"))
         top = W.HBox([self.canvas.figure, side], layout=W.Layout(flex_flow="row wrap"))
         super().__init__([top, self.alt_box])
+
+    @property
+    def design(self) -> Design:
+        """The design with the constraints in force (:attr:`Session.design`)."""
+        return self.session.design
 
     # --- controls -------------------------------------------------------------------------------
     def _button(self, label: str, fn: Callable, tip: str = "", width: str = "112px"):
@@ -188,11 +200,16 @@ class FloorplanWidget(W.VBox):
                 self._button("Zoom in", lambda: self.canvas.zoom(0.5), "Halve the view")]
         # what a mouse drag on the canvas does: bqplot's interaction layer lies over the marks,
         # so moving macros and panning cannot share one mode
-        self.mode = W.ToggleButtons(options=["Move macros", "Pan / zoom", "Box select"],
-                                    value="Move macros", style={"button_width": "110px"},
-                                    tooltips=["Drag a macro's handle to move it",
+        self.mode = W.ToggleButtons(options=["Move macros", "Pan / zoom", "Box select",
+                                             "Draw blockage", "Draw region"],
+                                    value="Move macros", style={"button_width": "116px"},
+                                    tooltips=["Drag a macro's (or a blockage's) handle to "
+                                              "move it",
                                               "Drag to pan, wheel to zoom",
-                                              "Drag a box to select several macros"])
+                                              "Drag a box to select several macros",
+                                              "Drag a rectangle to add a placement blockage",
+                                              "Drag a rectangle to add a cell region (name "
+                                              "and kind in the panel)"])
         self.mode.observe(self._mode_changed, "value")
         self.toggles["Density"].observe(lambda ch: self._heat_toggled("density", ch), "value")
         self.toggles["Congestion"].observe(lambda ch: self._heat_toggled("congestion", ch),
@@ -552,7 +569,237 @@ class FloorplanWidget(W.VBox):
 
     def _mode_changed(self, change) -> None:
         self.canvas.figure.interaction = {"Move macros": None, "Pan / zoom": self.canvas.panzoom,
-                                          "Box select": self.brush}[change["new"]]
+                                          "Box select": self.brush,
+                                          "Draw blockage": self.draw_brush,
+                                          "Draw region": self.draw_brush}[change["new"]]
+
+    # --- blockages and halos --------------------------------------------------------------------
+    def _build_constraint_controls(self) -> None:
+        """Placement blockages (drawn in the "Draw blockage" mode, a handle each to select and
+        move them) and the halo of the selected macros: Session calls only."""
+        import bqplot as bq
+
+        small = {"description_width": "initial"}
+        self.draw_brush = bq.interacts.BrushSelector(
+            x_scale=self.canvas.x_scale, y_scale=self.canvas.y_scale,
+            color=ui_colors()["blockage"])
+        self.draw_brush.observe(self._on_draw_brush, names=["brushing"])
+        self.new_density = W.BoundedFloatText(
+            value=0.0, min=0.0, max=1.0, step=0.05, description="new: max density",
+            style=small, layout=W.Layout(width="170px"),
+            tooltip="0: a full blockage (no macro, no cell); above 0: a partial one where "
+                    "cells fill at most this share of the area")
+        self.blockage_pick = W.Dropdown(layout=W.Layout(width="200px"),
+                                        tooltip="The selected placement blockage")
+        self.blockage_pick.observe(
+            lambda ch: None if self._quiet_blockage else self._ui(
+                lambda: self.select_blockage(ch["new"])), "value")
+        self._quiet_blockage = False
+        self.blockage_x = W.FloatText(description="x", style=small,
+                                      layout=W.Layout(width="104px"),
+                                      tooltip="Lower-left corner x, µm")
+        self.blockage_y = W.FloatText(description="y", style=small,
+                                      layout=W.Layout(width="104px"),
+                                      tooltip="Lower-left corner y, µm")
+        self.blockage_density = W.BoundedFloatText(
+            value=0.0, min=0.0, max=1.0, step=0.05, description="max density", style=small,
+            layout=W.Layout(width="140px"), tooltip="0: full; above 0: partial")
+        for wdg, cls in ((self.new_density, "fw-new-density"),
+                         (self.blockage_x, "fw-blockage-x"), (self.blockage_y, "fw-blockage-y"),
+                         (self.blockage_density, "fw-blockage-density")):
+            wdg.add_class(cls)
+        put = self._button("Apply", self._apply_blockage, "Move the selected blockage to x, y "
+                           "and give it this density (one undo step)", width="64px")
+        rm = self._button("Delete blockage", self._remove_selected_blockage,
+                          "Remove the selected blockage", width="130px")
+        self.halo_fields = [W.FloatText(description=s, style=small,
+                                        layout=W.Layout(width="80px"),
+                                        tooltip=f"Halo {t} of the placed footprint, µm")
+                            for s, t in (("L", "left"), ("B", "bottom"), ("R", "right"),
+                                         ("T", "top"))]
+        for f, cls in zip(self.halo_fields, ("l", "b", "r", "t")):
+            f.add_class(f"fw-halo-{cls}")
+        halo = self._button("Set halo", self._apply_halo, "Give the selected macros this "
+                            "keep-out on each side (one undo step)", width="80px")
+        self.constraint_box = W.VBox([
+            W.HTML("<b>Blockages and halos</b> <span style='font-size:11px'>(the placer "
+                   "honours them on the next Place all or Refine)</span>"),
+            W.HBox([self.new_density,
+                    W.HTML("<span style='font-size:11px;margin-left:6px'>mode Draw "
+                           "blockage: drag a rectangle</span>")]),
+            W.HBox([self.blockage_pick, rm]),
+            W.HBox([self.blockage_x, self.blockage_y]),
+            W.HBox([self.blockage_density, put]),
+            W.HBox(self.halo_fields + [halo])])
+        self._refresh_blockages()
+
+    def _on_draw_brush(self, change) -> None:
+        """A drag ended in a drawing mode: its rectangle becomes a blockage or a region."""
+        if change["new"] or change["old"] is not True:  # act when a drag ends
+            return
+        b = self.draw_brush
+        sx, sy = b.selected_x, b.selected_y
+        if sx is None or sy is None or len(sx) != 2 or len(sy) != 2:
+            return
+        draw = self.draw_region if self.mode.value == "Draw region" else self.draw_blockage
+        self._ui(lambda: draw(float(sx[0]), float(sy[0]), float(sx[1]), float(sy[1])))
+        b.selected_x, b.selected_y = None, None  # the new blockage is drawn by the canvas
+
+    # --- cell regions -----------------------------------------------------------------------
+    def _build_region_controls(self) -> None:
+        """Cell regions: drawn in the "Draw region" mode with the name and kind typed here;
+        the hierarchy group picked under "Find and hierarchy" is assigned to the chosen region.
+        Session calls only."""
+        self.region_name = W.Text(placeholder="region name", layout=W.Layout(width="150px"))
+        self.region_kind = W.Dropdown(options=[("fence (cells stay inside)", "fence"),
+                                               ("guide (cells pulled toward it)", "guide")],
+                                      value="fence", layout=W.Layout(width="200px"))
+        self.region_pick = W.Dropdown(layout=W.Layout(width="200px"),
+                                      tooltip="The region to give cells or remove")
+        self.region_name.add_class("fw-region-name")
+        assign = self._button("Assign group", self.assign_picked_group,
+                              "Make the cells of the hierarchy group picked above members of "
+                              "this region (one undo step)", width="110px")
+        rm = self._button("Remove region", lambda: self.session.remove_region(
+            self._picked_region()), "Delete the region; its cells belong to none",
+            width="120px")
+        self.region_box = W.VBox([
+            W.HTML("<b>Cell regions</b> <span style='font-size:11px'>(mode Draw region: "
+                   "drag a rectangle; the placer honours them on the next Place all)</span>"),
+            W.HBox([self.region_name, self.region_kind]),
+            W.HBox([self.region_pick, assign]), W.HBox([rm])])
+        self._refresh_regions()
+
+    def _picked_region(self) -> str:
+        if self.region_pick.value is None:
+            raise ValueError("Draw a region first (mode Draw region), or pick one.")
+        return self.region_pick.value
+
+    def draw_region(self, x0: float, y0: float, x1: float, y1: float) -> str:
+        """Add a cell region over the rectangle ``(x0, y0)``–``(x1, y1)`` (clipped to the
+        die) named by the panel (default ``region_k``) of the panel's kind."""
+        self._refuse_if_busy()
+        die, reg = self.design.die, self.design.regions
+        name = self.region_name.value.strip() or next(
+            f"region_{k}" for k in range(len(reg) + 1) if f"region_{k}" not in reg.names)
+        xs = np.clip([x0, x1], die[0], die[2])
+        ys = np.clip([y0, y1], die[1], die[3])
+        self.session.add_region(name, [xs[0], ys[0], xs[1], ys[1]], self.region_kind.value)
+        self.region_pick.value = name
+        self.region_name.value = ""
+        self.notify(f"Added {self.region_kind.value} {name}; pick a hierarchy group above and "
+                    "press Assign group.")
+        return name
+
+    def assign_picked_group(self) -> int:
+        """:meth:`Session.assign_group` of the hierarchy group picked in the view box."""
+        region = self._picked_region()
+        g = self.canvas.groups
+        if self.group_pick.value is None:
+            raise ValueError("Pick a hierarchy group first.")
+        self._refuse_if_busy()
+        key = g.keys[int(self.group_pick.value)]
+        n = self.session.assign_group(region, prefix=key, depth=int(self.group_depth.value),
+                                      separators=self.group_seps.value)
+        self.notify(f"{n:,d} cells of {g.label(int(self.group_pick.value))} now belong to "
+                    f"{region}.")
+        return n
+
+    def _refresh_regions(self) -> None:
+        names = list(self.design.regions.names)
+        keep = self.region_pick.value
+        self.region_pick.options = names
+        self.region_pick.value = keep if keep in names else (names[-1] if names else None)
+
+    def draw_blockage(self, x0: float, y0: float, x1: float, y1: float) -> int:
+        """Add a placement blockage over the rectangle with corners ``(x0, y0)``, ``(x1, y1)``
+        (clipped to the die) with the panel's "new: max density"; it becomes the selected
+        blockage.  What the mouse does in the "Draw blockage" mode, and what tests call."""
+        self._refuse_if_busy()
+        die = self.design.die
+        xs = np.clip([x0, x1], die[0], die[2])
+        ys = np.clip([y0, y1], die[1], die[3])
+        k = self.session.add_blockage([xs[0], ys[0], xs[1], ys[1]],
+                                      max_density=float(self.new_density.value))
+        self.select_blockage(k)
+        r = self.design.blockages[k]
+        self.notify(f"Added blockage {k}: {r[2] - r[0]:.1f} × {r[3] - r[1]:.1f} µm at "
+                    f"({r[0]:.1f}, {r[1]:.1f}).")
+        return k
+
+    def select_blockage(self, k) -> None:
+        """Select placement blockage ``k`` (``None``: none) for the editor."""
+        n = len(self.design.blockages)
+        if k is not None and (isinstance(k, bool) or not isinstance(k, (int, np.integer))
+                              or not 0 <= int(k) < n):
+            raise ValueError(f"blockage {k!r}: no such placement blockage (there are {n})")
+        self.canvas.select_blockage(None if k is None else int(k))
+        self._refresh_blockages()
+
+    def drop_blockage(self, k: int, x: float, y: float) -> None:
+        """A blockage handle dropped at centre ``(x, y)``: :meth:`Session.move_blockage` (a
+        click, less than half a pixel, only selects it)."""
+        self._refuse_if_busy()
+        b = self.design.blockages[int(k)]
+        cx, cy = (b[0] + b[2]) / 2, (b[1] + b[3]) / 2
+        ppu = self.canvas.px_per_um
+        self.select_blockage(int(k))
+        if abs(x - cx) * ppu < 0.5 and abs(y - cy) * ppu < 0.5:
+            return
+        try:
+            self.session.move_blockage(int(k), b[0] + x - cx, b[1] + y - cy)
+        finally:
+            self.canvas._draw_blockages()  # put the handle back when the move is refused
+
+    def _apply_blockage(self) -> None:
+        k = self.canvas.blockage_selected
+        if k is None:
+            raise ValueError("Select a blockage first (click its square handle, or pick it "
+                             "from the list).")
+        self._refuse_if_busy()
+        s = self.session
+        b, md = s.design.blockages[k], float(s.design.blockage_max_density[k])
+        x, y, dens = (float(w.value) for w in (self.blockage_x, self.blockage_y,
+                                               self.blockage_density))
+        with s.batch(f"edit blockage {k}"):
+            if (x, y) != (float(b[0]), float(b[1])):
+                s.move_blockage(k, x, y)
+            if dens != md:
+                s.set_blockage_density(k, dens)
+
+    def _remove_selected_blockage(self) -> None:
+        k = self.canvas.blockage_selected
+        if k is None:
+            raise ValueError("Select a blockage first.")
+        self._refuse_if_busy()
+        self.canvas.blockage_selected = None
+        self.session.remove_blockage(k)
+
+    def _apply_halo(self) -> None:
+        names = self._selected_names()
+        self._refuse_if_busy()
+        self.session.set_halo(names, [float(f.value) for f in self.halo_fields])
+        self.notify(f"Halo set on {names[0] if len(names) == 1 else f'{len(names)} macros'}.")
+
+    def _refresh_blockages(self) -> None:
+        """The blockage list and editor from the session's design and the canvas selection."""
+        d, k = self.design, self.canvas.blockage_selected
+        bl, md = d.blockages, d.blockage_max_density
+        opts = [(f"{j}: {'full' if md[j] <= 0 else f'≤ {md[j]:.0%}'} "
+                 f"{bl[j, 2] - bl[j, 0]:.0f}×{bl[j, 3] - bl[j, 1]:.0f} µm", j)
+                for j in range(len(bl))]
+        self._quiet_blockage = True
+        try:
+            self.blockage_pick.options = [("(no blockage selected)", None)] + opts
+            self.blockage_pick.value = k
+        finally:
+            self._quiet_blockage = False
+        for w in (self.blockage_x, self.blockage_y, self.blockage_density,
+                  self.buttons["Apply"], self.buttons["Delete blockage"]):
+            w.disabled = k is None
+        if k is not None:
+            self.blockage_x.value, self.blockage_y.value = float(bl[k, 0]), float(bl[k, 1])
+            self.blockage_density.value = float(md[k])
 
     # --- selection --------------------------------------------------------------------------------
     @property
@@ -600,6 +847,10 @@ class FloorplanWidget(W.VBox):
         one = sel.size == 1
         for wdg in (self.edit_x, self.edit_y, self.edit_orient, self.buttons["Set"]):
             wdg.disabled = not one
+        # the halo editor shows the first selected macro's halo
+        for f, v in zip(self.halo_fields, self.design.halo[sel[0]] if sel.size else np.zeros(4)):
+            f.value = float(v)
+        self.buttons["Set halo"].disabled = not sel.size
         if one:
             i, fp = int(sel[0]), self.session.floorplan
             cur = ORIENTATIONS[fp.orient[i]]
@@ -890,7 +1141,11 @@ class FloorplanWidget(W.VBox):
             self._refresh_alternatives()
             return
         prev = self._last_report
+        redesign = ev.floorplan.design is not self.canvas.design
         self.canvas.update(ev.floorplan)
+        if redesign:
+            self._refresh_blockages()
+            self._refresh_regions()
         self._last_report = self.session.report
         self._prev_hpwl = prev.get("hpwl") if prev else None
         self._refresh_readouts()

@@ -6,10 +6,12 @@ engineer compares is drawn exactly like what they edit.
 
 Layer order, bottom to top: heat images (soft clusters / cells, density, RUDY congestion), the
 logic picture by hierarchy group, die and core outlines, placement rows (only when zoomed in),
-blockages, halos, macro fills, status outlines, narrow channels (a filled strip with a zigzag
+blockages (full ones filled, partial ones dashed and lighter, the selected one outlined),
+cell regions (fences solid, guides dashed, with their names),
+halos, macro fills, status outlines, narrow channels (a filled strip with a zigzag
 hatch) and bars on the pin side of macros whose pins face a wall, orientation notches, flylines
 (through one cell, then direct), selection, I/O pins, rings around blocks found by name, labels,
-drag handles.  Every layer
+blockage handles, drag handles.  Every layer
 is a single mark, so the number of marks does not grow with the design; each mark holds at most
 a few thousand elements.
 """
@@ -160,13 +162,24 @@ class Canvas:
         px, py = _placeholder()
         m["rows"] = bq.Lines(x=px, y=py, scales=sc, colors=[self.ui["rows"]], stroke_width=0.5,
                              opacities=[0.5], visible=False)
-        if len(design.blockages):
-            bx, by = geo.rect_rows(design.blockages)
-            m["blockages"] = bq.Lines(x=bx, y=by, scales=sc, fill="inside",
-                                      colors=[self.ui["blockage"]],
-                                      fill_colors=[self.ui["blockage_fill"]] * len(bx),
-                                      fill_opacities=[self.ui["blockage_opacity"]] * len(bx),
-                                      stroke_width=1.0)
+        # blockages: full ones filled, partial ones (a density cap) dashed with a lighter fill
+        for name, dash in (("blockages", "solid"), ("blockages_partial", "dashed")):
+            m[name] = bq.Lines(x=px, y=py, scales=sc, fill="inside",
+                               colors=[self.ui["blockage"]], stroke_width=1.0,
+                               line_style=dash, visible=False)
+        for name, dash in (("regions", "solid"), ("regions_guide", "dashed")):
+            m[name] = bq.Lines(x=px, y=py, scales=sc, colors=[self.ui["region"]],
+                               stroke_width=self.ui["region_width"], line_style=dash,
+                               visible=False)
+        m["region_labels"] = bq.Label(x=[0.0], y=[0.0], text=[""], scales=sc, default_size=11,
+                                      font_unit="px", align="start",
+                                      colors=[self.ui["region"]], visible=False)
+        m["blockage_selection"] = bq.Lines(x=px, y=py, scales=sc,
+                                           colors=[self.ui["selection"]], stroke_width=3.0,
+                                           line_style="dashed", visible=False)
+        #: index of the selected placement blockage (None: none)
+        self.blockage_selected: int | None = None
+        self._constraints_of: Design | None = None  # the design whose blockages are drawn
         m["halos"] = bq.Lines(x=px, y=py, scales=sc, colors=[self.ui["halo"]],
                               stroke_width=self.ui["halo_width"], line_style=self.ui["halo_dash"],
                               visible=False)
@@ -218,6 +231,11 @@ class Canvas:
             m["labels"] = bq.Label(x=[0.0], y=[0.0], text=[""], scales=sc, default_size=10,
                                    font_unit="px", align="middle", colors=[self.ui["label"]],
                                    visible=False)
+            # a handle at each blockage's centre: click selects it, a drag moves it
+            m["blockage_handles"] = bq.Scatter(
+                x=[0.0], y=[0.0], scales=sc, enable_move=True, update_on_move=False,
+                marker="square", default_size=48, colors=[self.ui["blockage_fill"]],
+                stroke=self.ui["blockage"], stroke_width=1.5, visible=False)
             cx, cy = floorplan.centres()
             m["handles"] = bq.Scatter(
                 x=cx[self.macro_idx], y=cy[self.macro_idx], scales=sc, enable_move=True,
@@ -322,10 +340,87 @@ class Canvas:
             mk.text = names[sel].tolist()
             mk.visible = True
 
+    # --- blockages -------------------------------------------------------------------------------
+    def _draw_blockages(self) -> None:
+        """The blockages of ``self.design``: full and partial marks, handles, the selection."""
+        d, m = self.design, self.marks
+        bl, md = d.blockages, d.blockage_max_density
+        if self.blockage_selected is not None and self.blockage_selected >= len(bl):
+            self.blockage_selected = None
+        for name, rows in (("blockages", md <= 0), ("blockages_partial", md > 0)):
+            mk = m[name]
+            if not rows.any():
+                mk.visible = False
+                continue
+            x, y = geo.rect_rows(bl[rows])
+            # a partial blockage's fill is as opaque as the share it keeps free of cells
+            op = np.where(md[rows] > 0, (1.0 - md[rows]), 1.0) * self.ui["blockage_opacity"]
+            with mk.hold_sync():
+                mk.x, mk.y = x, y
+                _set_list(mk, "fill_colors", [self.ui["blockage_fill"]] * len(x))
+                _set_list(mk, "fill_opacities", [float(v) for v in op])
+                mk.visible = True
+        k = self.blockage_selected
+        sel = m["blockage_selection"]
+        if k is None:
+            sel.visible = False
+        else:
+            x, y = geo.rect_rows(bl[k][None, :])
+            with sel.hold_sync():
+                sel.x, sel.y = x, y
+                sel.visible = True
+        h = m.get("blockage_handles")
+        if h is not None:
+            with h.hold_sync():
+                if len(bl):
+                    h.x = (bl[:, 0] + bl[:, 2]) / 2
+                    h.y = (bl[:, 1] + bl[:, 3]) / 2
+                h.visible = bool(len(bl))
+
+    def _draw_regions(self) -> None:
+        """Cell regions of ``self.design``: outlines (fences solid, guides dashed) and each
+        name at the top-left corner of its first rectangle, with the member count."""
+        from ..design import FENCE
+
+        reg, m = self.design.regions, self.marks
+        kind_of = reg.kind[reg.rect_region()] if len(reg) else np.zeros(0)
+        for name, rows in (("regions", kind_of == FENCE), ("regions_guide", kind_of != FENCE)):
+            mk = m[name]
+            if not rows.any():
+                mk.visible = False
+                continue
+            x, y = geo.rect_rows(reg.rects[rows])
+            with mk.hold_sync():
+                mk.x, mk.y = x, y
+                mk.visible = True
+        lab = m["region_labels"]
+        if not len(reg):
+            lab.visible = False
+            return
+        first = reg.rects[reg.rect_start[:-1]]
+        count = np.bincount(reg.member[reg.member >= 0], minlength=len(reg))
+        with lab.hold_sync():
+            lab.x, lab.y = first[:, 0], first[:, 3]
+            lab.text = [f" {nm} ({'fence' if reg.kind[k] == FENCE else 'guide'}, "
+                        f"{count[k]:,d})" for k, nm in enumerate(reg.names)]
+            lab.visible = True
+
+    def select_blockage(self, k: int | None) -> None:
+        """Outline blockage ``k`` (``None``: no blockage selected)."""
+        self.blockage_selected = k
+        self._draw_blockages()
+
     # --- state --------------------------------------------------------------------------------
     def update(self, fp: Floorplan, illegal: np.ndarray | None = None) -> None:
-        """Redraw every floorplan-dependent layer for ``fp`` (the marks are reused)."""
+        """Redraw every floorplan-dependent layer for ``fp`` (the marks are reused).
+
+        ``fp.design`` may be another object than the canvas's design with the same netlist
+        (a Session constraint edit): its blockages and halos are drawn."""
         self.fp = fp
+        if fp.design is not self._constraints_of:
+            self.design = self._constraints_of = fp.design
+            self._draw_blockages()
+            self._draw_regions()
         d = self.design
         if illegal is None:
             illegal = illegal_blocks(d, fp)
@@ -369,6 +464,8 @@ class Canvas:
                     with m["halos"].hold_sync():
                         m["halos"].x, m["halos"].y = hx, hy
                         m["halos"].visible = True
+                else:
+                    m["halos"].visible = False
                 nx_, ny_ = geo.notch_rows(d, fp, idx)
                 with m["notches"].hold_sync():
                     m["notches"].x, m["notches"].y = nx_, ny_

@@ -72,6 +72,8 @@ def write_state(ev=None):
         "pitch": design.grid_pitch.tolist(),
         "core": design.core.tolist(),
         "undo": w.session.history,
+        "blockages": w.session.design.blockages.tolist(),
+        "max_density": w.session.design.blockage_max_density.tolist(),
     }
     tmp = STATE.with_suffix(".tmp")
     tmp.write_text(json.dumps(st, default=float))
