@@ -243,3 +243,16 @@ def test_algebraic_distance_separates_loosely_joined_groups():
     dist = np.abs(X[:, None, :] - X[None, :, :]).max(axis=2)
     inside = max(dist[np.ix_(g, g)].max() for g in (range(6), range(6, 12)))
     assert dist[5, 6] > inside
+
+
+def test_widget_expands_a_clustered_session_in_the_background(clustered_session):
+    pytest.importorskip("bqplot")
+    from floorwidget.widget import FloorplanWidget
+
+    w = FloorplanWidget(None, session=clustered_session)
+    assert "Expand cells" in w.buttons
+    assert w.expand(wait=False)                 # returns at once, the bar runs
+    assert w.wait(timeout=300)
+    full = clustered_session.expanded
+    assert full is not None and full.design.num_blocks == clustered_session.full_design.num_blocks
+    assert "Expand done" in w.message.value

@@ -184,6 +184,11 @@ class FloorplanWidget(W.VBox):
             [self._button("Flip", lambda: self._on_selection("flip"), "Mirror about the y axis"),
              self._button("Undo", self.undo), self._button("Redo", self.redo)],
         ]
+        if self.session.clustered:  # a large design shown as clusters: the cells on request
+            rows[-1].append(self._button(
+                "Expand cells", lambda: self.expand(wait=False),
+                "Place every standard cell of the full design around these macros (runs in "
+                "the background; the canvas keeps showing the clusters)"))
         self.toggles: dict[str, W.ToggleButton] = {}
 
         def toggle(label, value, tip):
@@ -1321,6 +1326,17 @@ class FloorplanWidget(W.VBox):
     def legalize(self, *, wait: bool = True, **options) -> bool:
         """Macro legalisation (:meth:`Session.legalize`)."""
         return self._run("Legalise", lambda: self.session.legalize(**options), wait)
+
+    def expand(self, *, wait: bool = True, **options) -> bool:
+        """Every cell of the full design placed around the current macros
+        (:meth:`Session.expand`, clustered sessions only), with the progress bar; the result
+        is ``session.expanded``.  ``wait=False`` runs it in the background."""
+        if not self.session.clustered:
+            self.notify("This design is shown cell by cell already; nothing to expand.",
+                        error=True)
+            return False
+        return self._run("Expand", lambda: self.session.expand(progress=self._progress,
+                                                                **options), wait)
 
     def move(self, name: str, x: float, y: float):
         """:meth:`Session.move`."""
