@@ -235,15 +235,19 @@ def algebraic_coordinates(design: Design, free: np.ndarray, *, vectors: int | No
         W = _weights(design, free, MAX_CLIQUE)
     W = sp.csr_array(W)
     deg = np.asarray(W.sum(axis=1)).ravel()
-    on = deg > 0
-    dinv = np.where(on, 1.0 / np.where(on, deg, 1.0), 0.0)[:, None]
+    on = np.flatnonzero(deg > 0)
+    # single precision: the coordinates only rank neighbours, and the sweeps are memory-bound
+    Won = sp.csr_array(W[on][:, on], dtype=np.float32)
+    dinv = (omega / deg[on]).astype(np.float32)[:, None]
     rng = np.random.default_rng(seed)
-    X = rng.random((n, vectors)) if start is None else np.array(start, np.float64)
+    X = (rng.random((n, vectors)) if start is None else np.array(start)).astype(np.float32)
+    Y = X[on]
     for _ in range(iterations):
-        X = np.where(on[:, None], (1.0 - omega) * X + omega * (W @ X) * dinv, X)
-        lo, hi = X[on].min(axis=0) if on.any() else 0.0, X[on].max(axis=0) if on.any() else 1.0
-        X = (X - lo) / np.where(hi > lo, hi - lo, 1.0)
-    return X.astype(np.float32)
+        Y = (1.0 - omega) * Y + (Won @ Y) * dinv
+        lo, hi = Y.min(axis=0), Y.max(axis=0)
+        Y = (Y - lo) / np.where(hi > lo, hi - lo, 1.0)
+    X[on] = Y
+    return X
 
 
 def coarsen_level(design: Design, fp: Floorplan, max_area: float, *, seed: int = 0,

@@ -69,6 +69,8 @@ Progress = Callable[[str, float, dict], Any] | None
 STALL_FROM = 0.3  # overflow below which a spreading loop that stops improving is stopped
 REFINE_DETAIL_PASSES = 1  # refine is the quick clean-up after a hand edit (aes: 0.63 -> 0.24 s)
 DP_SLACK = 0.1  # detailed placement may fill a density bin this far above the target
+DETAIL_PASSES = 8             # most detailed-placement passes by default ...
+MULTILEVEL_DETAIL_PASSES = 2  # ... and in the multilevel flow (DEVELOPERS.md: 10^6 cells)
 
 
 # ---------------------------------------------------------------------------------------------
@@ -524,11 +526,14 @@ def _rows_stage(design: Design, out: Floorplan, src: Floorplan, opts: PlacerOpti
                              "cell_max_displacement"))
     info["stage_seconds"]["rows"] = time.perf_counter() - t0
     _report(progress, "rows", 1.0, {})
-    if opts.detail_passes:
+    passes = opts.detail_passes
+    if passes is None:
+        passes = MULTILEVEL_DETAIL_PASSES if "levels" in info else DETAIL_PASSES
+    if passes:
         t0 = time.perf_counter()
         got = []
         for grp, keep, avoid in groups:
-            out, facts = detailed_place(design, out, grp, passes=opts.detail_passes,
+            out, facts = detailed_place(design, out, grp, passes=passes,
                                         target_density=min(1.0, target + DP_SLACK),
                                         keep=keep, avoid=avoid)
             got.append(facts)

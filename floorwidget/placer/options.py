@@ -108,9 +108,11 @@ class PlacerOptions:
         Two facing macros are either abutted (halos only) or at least this far apart (µm);
         ``None`` (default): :func:`floorwidget.metrics.default_channel` (four row heights).
         0 turns the rule off.
-    detail_passes : int
+    detail_passes : int or None
         Most passes of detailed placement after row legalisation (0: none); passes stop
-        earlier once one saves less than 0.2 % of the HPWL.  Default 8.
+        earlier once one saves less than 0.2 % of the HPWL.  ``None`` (default): 8, or 2 in
+        the multilevel flow (at 10^6 cells the passes beyond two cost 15 s for 0.8 % of the
+        wirelength; DEVELOPERS.md).
     multilevel : {"auto", "on", "off"}
         ``"on"`` places a clustered version of the design first (see
         :mod:`floorwidget.placer.multilevel`) and refines it level by level down to the cells;
@@ -134,7 +136,7 @@ class PlacerOptions:
     cells: str = "legal"
     macro_layout: str = "auto"
     channel: float | None = None
-    detail_passes: int = 8
+    detail_passes: int | None = None
     multilevel: str = "auto"
 
     def __post_init__(self):
@@ -145,7 +147,8 @@ class PlacerOptions:
         check_int("stall_iterations", self.stall_iterations, 1, 100000)
         check_range("cg_tol", self.cg_tol, 0.0, 1.0, lo_open=True, hi_open=True)
         check_int("cg_maxiter", self.cg_maxiter, 1)
-        check_int("detail_passes", self.detail_passes, 0, 100)
+        if self.detail_passes is not None:
+            check_int("detail_passes", self.detail_passes, 0, 100)
         if self.cells not in ("legal", "global"):
             raise ValueError(f"option 'cells' must be 'legal' or 'global', got {self.cells!r}")
         if self.multilevel not in ("auto", "on", "off"):
