@@ -48,6 +48,7 @@ from typing import Any
 import numpy as np
 
 from . import arrange
+from ._threads import pool
 from .design import (
     CELL,
     CLUSTER,
@@ -302,17 +303,6 @@ def _large(design: Design, fp: Floorplan) -> bool:
     return int(np.count_nonzero((fp.status == MOVABLE) & (design.kind == CELL))) >= CLUSTER_FROM
 
 
-_EXPAND_POOL = None
-
-
-def _expand_pool():
-    global _EXPAND_POOL
-    if _EXPAND_POOL is None:
-        from concurrent.futures import ThreadPoolExecutor  # noqa: PLC0415
-        _EXPAND_POOL = ThreadPoolExecutor(max_workers=1, thread_name_prefix="floorwidget-expand")
-    return _EXPAND_POOL
-
-
 def _now() -> str:
     return _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds")
 
@@ -474,7 +464,7 @@ class Session:
                 self._expanded = (sid, full)
             return full
 
-        return run() if wait else _expand_pool().submit(run)
+        return run() if wait else pool("expand", 1).submit(run)
 
     @property
     def report(self) -> dict:

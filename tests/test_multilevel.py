@@ -199,6 +199,17 @@ def test_expansion_honours_a_blockage_drawn_on_the_clusters(clustered_session):
     s.undo()
 
 
+def test_expand_that_cannot_fit_is_refused_with_the_figures(clustered_session, monkeypatch):
+    from floorwidget.placer import PlacementError, multilevel
+
+    s = clustered_session
+    before = s.floorplan
+    monkeypatch.setattr(multilevel, "available_memory", lambda: 1e6)   # 1 MB left
+    with pytest.raises(PlacementError, match=r"needs about .* GB of memory .* available"):
+        s.expand()
+    assert s.floorplan is before
+
+
 def test_flat_session_refuses_expand(small):
     from floorwidget.design import DesignError
     from floorwidget.session import Session

@@ -25,8 +25,10 @@ import numpy as np
 
 from ..design import CELL, Design, Floorplan
 from .coarsen import Clustering, coarsen
+from .errors import PlacementError
 
-__all__ = ["TOP_BLOCKS", "expand", "place_multilevel", "top_blocks", "uncoarsen"]
+__all__ = ["TOP_BLOCKS", "check_memory", "expand", "place_multilevel", "top_blocks",
+           "uncoarsen"]
 
 TOP_BLOCKS = 20_000   # the coarsest level has about this many movable cells and clusters
 LEVEL_STEP = 4.0      # a finer level is refined when it has this many times the blocks of the
@@ -34,6 +36,41 @@ LEVEL_STEP = 4.0      # a finer level is refined when it has this many times the
 LEVEL_ITERATIONS = 12  # most spreading iterations per refined level
 LEVEL_K0 = 20.0        # the anchor schedule of a refined level starts this far in
 EPS_SHARE = 0.5        # ... and its anchors give way over this share of the cluster side
+
+
+#: Working memory of the placement of the input level, per pin (measured at 10^6 cells: 3.3 GB
+#: peak for 4.1e6 pins, the design included; DEVELOPERS.md); a run that cannot fit is refused.
+BYTES_PER_PIN = 800
+
+
+def available_memory() -> float | None:
+    """Bytes of memory the system can still give (``MemAvailable``; ``None`` where unknown)."""
+    try:
+        with open("/proc/meminfo", encoding="ascii") as f:
+            for line in f:
+                if line.startswith("MemAvailable:"):
+                    return float(line.split()[1]) * 1024
+    except OSError:
+        return None
+    return None
+
+
+def check_memory(design: Design, what: str) -> None:
+    """Refuse, with the figures, a placement of every cell of ``design`` that would not fit in
+    the memory left (rather than be killed halfway by the operating system).
+
+    Raises
+    ------
+    PlacementError
+    """
+    need = BYTES_PER_PIN * design.num_pins
+    have = available_memory()
+    if have is not None and need > have:
+        raise PlacementError(
+            f"design {design.name!r}: {what} of all {design.num_blocks:,} blocks needs about "
+            f"{need / 2**30:.1f} GB of memory ({design.num_pins:,} pins), {have / 2**30:.1f} GB "
+            "are available; work on the clustered design (Session clustered=True) or use a "
+            "machine with more memory")
 
 
 def _ancestor_side(clus: Clustering, k: int, up: int) -> np.ndarray:
@@ -66,6 +103,7 @@ def place_multilevel(design: Design, src: Floorplan, target: float, opts, mult, 
     ``"uncoarsen"`` and ``info["levels"]`` (blocks per level, finest first)."""
     from .flow import _place_flat, _report
 
+    check_memory(design, "placing")
     t0 = time.perf_counter()
     clus = coarsen(design, src, target_blocks=top_blocks(design), seed=seed)
     mults = level_multipliers(clus, mult)
@@ -151,6 +189,12 @@ def expand(clustering: Clustering, coarse: Floorplan, floorplan: Floorplan | Non
     -------
     Floorplan
         Of the input design, with ``info`` as from :func:`~floorwidget.placer.place`.
+
+    Raises
+    ------
+    PlacementError
+        When the placement would need more memory than the machine has left
+        (:func:`check_memory`), before anything is done.
     """
     from .flow import _finish, _rows_stage, _start
 
@@ -167,6 +211,7 @@ def expand(clustering: Clustering, coarse: Floorplan, floorplan: Floorplan | Non
     for f in ("x", "y", "orient", "status"):
         getattr(base, f)[single] = getattr(coarse, f)[c[single]]
     src, target, opts, mult = _start(design, base, target_density, seed, options)
+    check_memory(design, "placing")
     info: dict = {"stage_seconds": {}, "stage_iterations": {}, "levels":
                   [d.num_blocks for d in clustering.designs]}
     out, ov = uncoarsen(clustering, coarse.copy(), src, target, opts,

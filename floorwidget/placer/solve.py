@@ -23,6 +23,7 @@ import scipy.sparse as sp
 from scipy.sparse.csgraph import connected_components
 from scipy.sparse.linalg import LinearOperator, cg, spsolve
 
+from .._threads import pool
 from ..design import TERMINAL, orient_offsets
 from .netmodel import NetTopology, b2b_edges
 
@@ -30,16 +31,6 @@ __all__ = ["QuadraticSystem", "assemble_axis", "solve_spd"]
 
 PULL = 1e-3  # weak pull of floating groups, relative to their mean diagonal
 THREADED_MIN = 20000  # systems from this many variables solve x and y in two threads
-_POOL = None
-
-
-def _executor():
-    global _POOL
-    if _POOL is None:
-        from concurrent.futures import ThreadPoolExecutor
-
-        _POOL = ThreadPoolExecutor(max_workers=2, thread_name_prefix="floorwidget-solve")
-    return _POOL
 
 
 DIRECT_MAX = 0  # systems up to this many variables are solved directly (SuperLU); 0: never
@@ -235,7 +226,7 @@ class QuadraticSystem:
         if self.nv >= THREADED_MIN:
             # the two axes are independent: solve them side by side (numpy and scipy.sparse
             # release the GIL in their kernels); results do not depend on the threading
-            res = list(_executor().map(lambda j: self._solve_axis(*j, anchor, rtol, maxiter),
+            res = list(pool("solve", 2).map(lambda j: self._solve_axis(*j, anchor, rtol, maxiter),
                                        jobs))
         else:
             res = [self._solve_axis(*j, anchor, rtol, maxiter) for j in jobs]
