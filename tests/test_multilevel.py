@@ -53,6 +53,14 @@ def test_area_is_kept_and_every_block_is_in_one_cluster(small):
         sizes = np.add.reduceat((small.width * small.height)[block], start[:-1])
         assert np.allclose(sizes, d.width * d.height)
     assert cl.coarsest.num_blocks < small.num_blocks / 3
+    # net weight is kept: a coarse net weighs what the fine nets it stands for weighed (nets
+    # inside one cluster are gone, parallel two-pin nets are one net of their summed weight)
+    c = cl.cluster_of(cl.num_levels - 1)
+    k = c[small.pin_block]
+    spans = np.minimum.reduceat(k, small.net_start[:-1]) != np.maximum.reduceat(
+        k, small.net_start[:-1])
+    assert cl.coarsest.net_weight.sum() == pytest.approx(small.net_weight[spans].sum())
+    assert cl.coarsest.num_nets < int(spans.sum())          # some were merged
 
 
 def test_coarse_netlist_is_the_networkx_quotient(small):

@@ -324,10 +324,41 @@ def coarsen_level(design: Design, fp: Floorplan, max_area: float, *, seed: int =
     return leader
 
 
+def _merge_parallel(net, pb, dx, dy, kept, weight, nc):
+    """Two-pin nets between the same two blocks, both pins at the blocks' centres, become one
+    net weighing their sum (the quadratic model is unchanged; a clustered netlist has many:
+    fewer rows to build on every solve).  Pins must be grouped by net, nets numbered 0..m-1;
+    returns the arrays without the merged-away nets (each kept net remembers its first
+    origin in ``kept``)."""
+    m = len(kept)
+    deg = np.bincount(net, minlength=m)
+    first = np.concatenate([[0], np.cumsum(deg)[:-1]])
+    off = np.bincount(net, weights=(dx != 0) | (dy != 0), minlength=m)
+    cand = np.flatnonzero((deg == 2) & (off == 0))
+    if len(cand) < 2:
+        return net, pb, dx, dy, kept, weight
+    a, b = pb[first[cand]], pb[first[cand] + 1]
+    key = np.minimum(a, b) * nc + np.maximum(a, b)
+    order = np.argsort(key, kind="stable")
+    ks = key[order]
+    head = np.r_[True, ks[1:] != ks[:-1]]
+    srt = cand[order]
+    rep = srt[np.flatnonzero(head)][np.cumsum(head) - 1]   # the first net of each group
+    weight = weight.copy()
+    dup = ~head
+    np.add.at(weight, rep[dup], weight[srt[dup]])
+    alive = np.ones(m, bool)
+    alive[srt[dup]] = False
+    on = alive[net]
+    new_id = np.cumsum(alive) - 1
+    return (new_id[net[on]], pb[on], dx[on], dy[on], kept[alive], weight[alive])
+
+
 def contract(design: Design, fp: Floorplan, leader: np.ndarray, level: int
              ) -> tuple[Design, np.ndarray, np.ndarray]:
     """The clustered design of one level, the parent map (fine block → coarse block) and the
-    fine net each coarse net comes from."""
+    fine net each coarse net comes from (the first one, where parallel two-pin nets were
+    merged into one of their summed weight)."""
     n = design.num_blocks
     roots = leader == np.arange(n)
     cid = np.cumsum(roots) - 1
@@ -339,14 +370,17 @@ def contract(design: Design, fp: Floorplan, leader: np.ndarray, level: int
     rep = np.flatnonzero(roots)                 # the leader block of every coarse block
     merged = counts > 1
     kind = design.kind[rep].copy()
-    kind[merged] = CLUSTER
+    # a movable cell left on its own is a cluster of one here: the clustered design has no
+    # standard cells to put on rows, and its pins sit at its centre like every cluster's
+    soft = merged | ((kind == CELL) & (fp.status[rep] == MOVABLE))
+    kind[soft] = CLUSTER
     side = np.sqrt(carea)
     width = np.where(merged, side, design.width[rep])
     height = np.where(merged, side, design.height[rep])
     halo = design.halo[rep].copy()
-    halo[merged] = 0.0
+    halo[soft] = 0.0
     allowed = design.orient_allowed[rep].copy()
-    allowed[merged] = 1
+    allowed[soft] = 1
     names = [design.names[i] if not merged[k] else f"~L{level}.{k}"
              for k, i in enumerate(rep)]
     btype = None
@@ -355,7 +389,7 @@ def contract(design: Design, fp: Floorplan, leader: np.ndarray, level: int
                  for k, i in enumerate(rep)]
     # pins: cluster pins at the cluster centre, one per (net, cluster)
     pb = parent[design.pin_block]
-    single = ~merged[pb]
+    single = ~soft[pb]
     dx = np.where(single, design.pin_dx, 0.0)
     dy = np.where(single, design.pin_dy, 0.0)
     net = np.repeat(np.arange(design.num_nets, dtype=np.int64), np.diff(design.net_start))
@@ -372,9 +406,13 @@ def contract(design: Design, fp: Floorplan, leader: np.ndarray, level: int
     live = nblk >= 2
     on = live[net]
     net, pb, dx, dy = net[on], pb[on], dx[on], dy[on]
-    deg = np.bincount(net, minlength=design.num_nets)[live]
-    start = np.concatenate([[0], np.cumsum(deg)]).astype(np.int64)
     kept_nets = np.flatnonzero(live)
+    weight = design.net_weight[kept_nets]
+    net = np.cumsum(live)[net] - 1  # renumbered 0..kept-1
+    net, pb, dx, dy, kept_nets, weight = _merge_parallel(net, pb, dx, dy, kept_nets, weight,
+                                                         nc)
+    deg = np.bincount(net, minlength=len(kept_nets))
+    start = np.concatenate([[0], np.cumsum(deg)]).astype(np.int64)
     net_names = list(map(design.net_names.__getitem__, kept_nets.tolist()))
     rows = {"x": design.row_x, "y": design.row_y, "height": design.row_height,
             "site_width": design.row_site_width, "num_sites": design.row_num_sites,
@@ -388,7 +426,7 @@ def contract(design: Design, fp: Floorplan, leader: np.ndarray, level: int
     status = np.where(merged, MOVABLE, fp.status[rep])
     d = Design(f"{design.name}~L{level}", design.die, names, kind, width, height, start, pb,
                dx, dy, halo=halo, orient_allowed=allowed, net_names=net_names,
-               net_weight=design.net_weight[kept_nets], rows=rows,
+               net_weight=weight, rows=rows,
                grid_pitch=design.grid_pitch, grid_origin=design.grid_origin,
                blockages=design.blockages,
                blockage_max_density=design.blockage_max_density, block_type=btype, x=x, y=y,
