@@ -1185,6 +1185,13 @@ class FloorplanWidget(W.VBox):
                               f"{_pct(r.get('largest_logic_region'))} of the free area"),
             ("Last solve", "–" if solve is None else f"{float(solve):.2f} s"),
         ]
+        ses = self.session
+        if ses.clustered:  # the figures are those of the clusters: say so, and what stands
+            full = ses.full_design
+            rows.insert(0, ("Showing", f"{ses.design.num_blocks:,} blocks for "
+                                       f"{full.num_blocks:,} (clustered)"))
+            rows.append(("Cells placed", "yes (Expand cells)" if ses.expanded is not None
+                         else "no — Expand cells"))
         body = "".join(f"<tr><td style='padding-right:10px'>{k}</td>"
                        f"<td style='text-align:right' class='fw-{k.split()[0].lower()}'>{v}</td>"
                        f"</tr>" for k, v in rows)
