@@ -2,8 +2,10 @@
 
 ``python benchmarks/bench_session.py [--quick] [--real]`` prints one table per design: the demo
 design and a synthetic one with many blocks (100 macros plus soft blocks; ``--quick`` keeps it
-small), then the constraint edits (blockages, halos) on the demo and, with ``--real``, on
-``../shared/realdata/ariane136`` (146k components; median of 10).
+small), then the constraint edits (blockages, halos, cell regions) on the demo and, with
+``--real``, those and the hand arrangement of eight macros (align, distribute, array, mirror,
+push, shift, typed position and orientation) on ``../shared/realdata/ariane136`` (146k
+components; median of 10).
 Times are medians over repeats (the machine is shared and noisy); the memory column is the size
 of the undo record kept per step.  Placer and metrics calls are benchmarked by their own areas.
 """
@@ -139,6 +141,37 @@ def bench_constraints(design: Design, repeats: int) -> list[tuple[str, str, str]
     return [(op, f"{t:.3f}", "") for op, t in rows + rows_r]
 
 
+def bench_arrange(design: Design, repeats: int) -> list[tuple[str, str, str]]:
+    """Hand arrangement of eight macros (made movable), each action timed and undone."""
+    from floorwidget.design import MOVABLE
+
+    fp = design.initial.copy()
+    fp.status[design.kind == MACRO] = MOVABLE
+    s = Session(design, fp)
+    group = design.macros[:8]
+    one = group[0]
+    i = design.block(one)
+    x0, y0 = float(s.floorplan.x[i]), float(s.floorplan.y[i])
+    acts = [("align (8 macros, left edges)", lambda: s.align(group, "left")),
+            ("distribute (8, x)", lambda: s.distribute(group, "x")),
+            ("array 2 x 4 (abutted)", lambda: s.array(group, 2, 4)),
+            ("mirror (8, x)", lambda: s.mirror(group, "x")),
+            ("push (8, nearest edge)", lambda: s.push(group)),
+            ("shift (8, typed offset)", lambda: s.shift(group, 5.0, 0.0)),
+            ("typed x, y (move one)", lambda: s.move(one, x0 + 7.0, y0)),
+            ("typed orientation (FN)", lambda: s.set_orientation(one, "FN"))]
+    rows = []
+    for op, fn in acts:
+        ts = []
+        for _ in range(repeats):
+            t0 = time.perf_counter()
+            fn()
+            ts.append((time.perf_counter() - t0) * 1e3)
+            s.undo()
+        rows.append((op, f"{statistics.median(ts):.3f}", ""))
+    return rows
+
+
 def _ariane() -> Design | None:
     folder = ROOT.parent / "shared" / "realdata" / "ariane136"
     defs = sorted(folder.glob("*.def.gz"))
@@ -175,6 +208,7 @@ def main(argv: list[str]) -> int:
         else:
             _table(f"constraint edits, ariane136: {d.num_blocks} blocks ({len(d.macros)} "
                    "macros), median of 10", bench_constraints(d, 10))
+            _table("hand arrangement, ariane136, median of 10", bench_arrange(d, 10))
     return 0
 
 
