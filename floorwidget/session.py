@@ -298,6 +298,11 @@ def _clamp(v: float, size: float, lo: float, hi: float) -> float:
 CLUSTER_FROM = 200_000
 
 
+#: ... whose clustered netlist keeps coarsening while it has more pins than this (a refine
+#: on it costs about 0.3 s per 700,000 pins: DEVELOPERS.md).
+SESSION_MAX_PINS = 1_000_000
+
+
 def _large(design: Design, fp: Floorplan) -> bool:
     """Whether a design is large enough for a session on its clusters."""
     return int(np.count_nonzero((fp.status == MOVABLE) & (design.kind == CELL))) >= CLUSTER_FROM
@@ -377,7 +382,8 @@ class Session:
         if clustered:
             from .placer.coarsen import coarsen  # noqa: PLC0415
             from .placer.multilevel import top_blocks  # noqa: PLC0415
-            self.clustering = coarsen(design, fp, target_blocks=top_blocks(design), seed=0)
+            self.clustering = coarsen(design, fp, target_blocks=top_blocks(design), seed=0,
+                                      max_pins=SESSION_MAX_PINS)
             design = self.clustering.coarsest
             fp = design.initial
         self.target_density = _density(target_density)

@@ -276,3 +276,12 @@ def test_widget_expands_a_clustered_session_in_the_background(clustered_session)
     assert full is not None and full.design.num_blocks == clustered_session.full_design.num_blocks
     assert "Expand done" in w.message.value
     assert "(clustered)" in w.readout.value and "Expand cells)" in w.readout.value
+
+
+def test_a_pin_budget_coarsens_further(small):
+    loose = coarsen(small, target_blocks=800)
+    tight = coarsen(small, target_blocks=800, max_pins=loose.coarsest.num_pins // 2)
+    assert tight.coarsest.num_pins < loose.coarsest.num_pins
+    assert tight.coarsest.num_blocks < loose.coarsest.num_blocks
+    a = small.width * small.height
+    assert np.sum(tight.coarsest.width * tight.coarsest.height) == pytest.approx(a.sum())

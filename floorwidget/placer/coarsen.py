@@ -38,6 +38,8 @@ ALG_VECTORS = 8       # algebraic-distance test vectors (Chen, Safro 2011 use 5-
 ALG_ITERATIONS = 20   # and Jacobi over-relaxation sweeps
 ALG_EPS = 1e-3        # added to the algebraic distance in the matching score
 ALG_POWER = 1.0       # ... which divides the score raised to this power
+MIN_TARGET = 2000      # max_pins never asks for fewer clusters than this (or a quarter of
+                       # the target)
 MIN_SHRINK = 0.9      # a level that keeps more than this share of the free blocks ends coarsening
 
 
@@ -435,7 +437,8 @@ def contract(design: Design, fp: Floorplan, leader: np.ndarray, level: int
 
 
 def coarsen(design: Design, floorplan: Floorplan | None = None, *, target_blocks: int = 20000,
-            max_cluster_share: float = 0.002, seed: int = 0, max_levels: int = 20) -> Clustering:
+            max_cluster_share: float = 0.002, seed: int = 0, max_levels: int = 20,
+            max_pins: int | None = None) -> Clustering:
     """Coarsen ``design`` level by level until at most ``target_blocks`` movable cells and
     clusters remain (or a level no longer shrinks the design by 10 %).
 
@@ -452,6 +455,10 @@ def coarsen(design: Design, floorplan: Floorplan | None = None, *, target_blocks
         density bins and the macros).
     seed : int
         Seeds the tie-break of equal scores.
+    max_pins : int, optional
+        Keep coarsening (into fewer, larger clusters, down to :data:`MIN_TARGET` or a quarter
+        of ``target_blocks``) while the clustered netlist has more pins than this: what an
+        interactive refine costs grows with the pins.
 
     Returns
     -------
@@ -469,10 +476,14 @@ def coarsen(design: Design, floorplan: Floorplan | None = None, *, target_blocks
     for level in range(1, max_levels + 1):
         free = _free_mask(cur, cur_fp)
         nfree = int(free.sum())
-        if not nfree or nfree <= target_blocks:
+        want = target_blocks
+        if max_pins is not None and cur.num_pins > max_pins:  # fewer, larger clusters
+            floor = min(MIN_TARGET, target_blocks // 4)
+            want = min(want, max(int(nfree * max_pins / cur.num_pins), floor))
+        if not nfree or nfree <= want:
             break
         # area bound: what the target count asks for, at least twice the largest free block
-        amax = max(2.0 * mov_area / max(target_blocks, 1), 1e-12)
+        amax = max(2.0 * mov_area / max(want, 1), 1e-12)
         amax = min(amax, max_cluster_share * core_area)
         amax = max(amax, 2.0 * float(np.max(cur.width[free] * cur.height[free])))
         # algebraic coordinates, smoothed further on every level from the members' mean
