@@ -3,15 +3,18 @@
 A level merges standard cells and soft clusters that share nets: heavy-edge matching on the
 clique expansion of the small nets (Karypis, Kumar, SIAM J. Sci. Comput. 20(1), 1998), with the
 best-choice score ``w(u, v) / (area(u) + area(v))`` that keeps cluster areas even (Nam, Reda,
-Alpert, Villarrubia, Kahng, Proc. ISPD 2005).  Each round matches every free block with its best
-free neighbour when the choice is mutual; the blocks left over then join the pair they like best
-when the area bound allows.  Macros, terminals and every PINNED or FIXED block stay singletons
-at every level.
+Alpert, Villarrubia, Kahng, Proc. ISPD 2005), divided by the pair's algebraic distance (Chen,
+Safro, SIAM J. Sci. Comput. 33(6), 2011) so that a net spanning far parts of the design does not
+pull its ends together.  Each round matches every free block with its best free neighbour when
+the choice is mutual; the blocks left over then join the pair they like best when the area
+bound allows.  Macros, terminals and every PINNED or FIXED block stay singletons at every
+level.
 
 The clustered design is an ordinary :class:`~floorwidget.design.Design`: merged blocks are soft
 clusters (kind :data:`~floorwidget.design.CLUSTER`, square, of the members' total area) and
-carry their members through :attr:`Clustering.members`; pins of a cluster sit at its centre,
-nets inside one block vanish, and a net's pins on one cluster become one pin.
+carry their members through :meth:`Clustering.members`; pins of a cluster sit at its centre,
+nets inside one block vanish, a net's pins on one cluster become one pin, parallel two-pin nets
+become one of their summed weight, and a movable cell left alone is a cluster of one.
 
 References
 ----------
@@ -36,11 +39,9 @@ MAX_CLIQUE = 16       # nets of more pins are left out of the matching score (co
 ROUNDS = 3            # mutual-matching rounds per level
 ALG_VECTORS = 8       # algebraic-distance test vectors (Chen, Safro 2011 use 5-10)
 ALG_ITERATIONS = 20   # and Jacobi over-relaxation sweeps
-ALG_EPS = 1e-3        # added to the algebraic distance in the matching score
-ALG_POWER = 1.0       # ... which divides the score raised to this power
-MIN_TARGET = 2000      # max_pins never asks for fewer clusters than this (or a quarter of
-                       # the target)
-MIN_SHRINK = 0.9      # a level that keeps more than this share of the free blocks ends coarsening
+ALG_EPS = 1e-3        # added to the algebraic distance that divides the matching score
+MIN_TARGET = 2000     # max_pins never asks for fewer clusters than this (or target / 4)
+MIN_SHRINK = 0.9      # a level keeping more than this share of the free blocks ends it
 
 
 @dataclass
@@ -283,7 +284,7 @@ def coarsen_level(design: Design, fp: Floorplan, max_area: float, *, seed: int =
         dist = np.zeros(len(rows), np.float32)
         for r in range(coords.shape[1]):
             np.maximum(dist, np.abs(coords[rows, r] - coords[cols, r]), out=dist)
-        score = score / (ALG_EPS + dist) ** ALG_POWER
+        score = score / (ALG_EPS + dist)
     matched = ~free
     for _ in range(rounds):
         ok = ~matched[rows] & ~matched[cols] & (area[rows] + area[cols] <= max_area)
@@ -303,7 +304,7 @@ def coarsen_level(design: Design, fp: Floorplan, max_area: float, *, seed: int =
     gsize = np.bincount(leader, weights=area, minlength=n)
     rows, cols, wt = W.row.astype(np.int64), W.col.astype(np.int64), W.data
     if coords is not None:
-        wt = wt / (ALG_EPS + dist) ** ALG_POWER
+        wt = wt / (ALG_EPS + dist)
     lone = free & ~matched
     ok = lone[rows] & matched[cols] & free[cols]
     rows, cols, wt = rows[ok], cols[ok], wt[ok]
