@@ -332,8 +332,8 @@ class Session:
         as they are, the standard cells merged into soft clusters of about equal area — so
         moves, refine and the readouts stay interactive on designs of millions of cells;
         :meth:`expand` places the cells of the full design.  Default: clustered from
-        :data:`CLUSTER_FROM` movable standard cells on.  A clustered session places with
-        ``cells="global"`` unless told otherwise.
+        :data:`CLUSTER_FROM` movable standard cells on.  (The clustered design has no
+        movable standard cells: a cell left on its own is a cluster of one.)
 
     Attributes
     ----------
@@ -1146,8 +1146,6 @@ class Session:
         from .placer import place as _place  # noqa: PLC0415
         opts = {"target_density": self.target_density if target_density is None
                 else _density(target_density), "seed": int(seed), **options}
-        if self.clustering is not None:
-            opts.setdefault("cells", "global")
         self._run_placer("place", _place, opts, progress or self.progress)
 
     def refine(self, *, target_density: float | None = None, seed: int = 0,
@@ -1156,8 +1154,6 @@ class Session:
         from .placer import refine as _refine  # noqa: PLC0415
         opts = {"target_density": self.target_density if target_density is None
                 else _density(target_density), "seed": int(seed), **options}
-        if self.clustering is not None:
-            opts.setdefault("cells", "global")
         self._run_placer("refine", _refine, opts, progress or self.progress)
 
     def legalize(self, **options) -> None:
