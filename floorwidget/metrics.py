@@ -1155,8 +1155,15 @@ def facing_wall(design: Design, fp: Floorplan) -> np.ndarray:
     -------
     int array
     """
+    mac, _, hit = _wall_hits(design, fp)
+    return mac[hit]
+
+
+def _wall_hits(design: Design, fp: Floorplan):
+    """Macro indices, their pin sides, and the mask of those whose pins face the wall."""
     mac = np.flatnonzero(design.kind == MACRO)
-    return mac[pin_side(design, fp) == nearest_wall(design, fp)]
+    side = pin_side(design, fp)
+    return mac, side, (side == nearest_wall(design, fp)) & (side >= 0)
 
 
 def wall_bars(design: Design, fp: Floorplan, depth: float = 0.12) -> tuple[np.ndarray,
@@ -1169,9 +1176,7 @@ def wall_bars(design: Design, fp: Floorplan, depth: float = 0.12) -> tuple[np.nd
     blocks : int array
     bars : (k, 4) array of ``xlo, ylo, xhi, yhi``
     """
-    mac = np.flatnonzero(design.kind == MACRO)
-    side = pin_side(design, fp)
-    hit = (side == nearest_wall(design, fp)) & (side >= 0)
+    mac, side, hit = _wall_hits(design, fp)
     r = fp.rects()[mac[hit]]
     side = side[hit]
     t = depth * np.minimum(r[:, 2] - r[:, 0], r[:, 3] - r[:, 1])

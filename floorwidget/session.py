@@ -293,19 +293,16 @@ def _clamp(v: float, size: float, lo: float, hi: float) -> float:
     return float(min(max(v, lo), max(lo, hi - size)))
 
 
-#: A session works on the clustered design (see ``Session(clustered=)``) from this many movable
-#: standard cells on: the multilevel flow's threshold, where a flat refine takes seconds.
-CLUSTER_FROM = 200_000
-
-
-#: ... whose clustered netlist keeps coarsening while it has more pins than this (a refine
-#: on it costs about 0.3 s per 700,000 pins: DEVELOPERS.md).
+#: A clustered session keeps coarsening while its clustered netlist has more pins than this
+#: (a refine on it costs about 0.3 s per 700,000 pins: DEVELOPERS.md).
 SESSION_MAX_PINS = 1_000_000
 
 
 def _large(design: Design, fp: Floorplan) -> bool:
-    """Whether a design is large enough for a session on its clusters."""
-    return int(np.count_nonzero((fp.status == MOVABLE) & (design.kind == CELL))) >= CLUSTER_FROM
+    """Whether a session works on the clusters: where ``place`` would go multilevel
+    (:func:`floorwidget.placer.flow.use_multilevel`; a flat refine takes seconds there)."""
+    from .placer.flow import use_multilevel  # noqa: PLC0415
+    return use_multilevel(design, fp, "auto")
 
 
 def _now() -> str:
@@ -331,9 +328,10 @@ class Session:
         :attr:`design` is then the coarsest level — macros, terminals, pinned and fixed blocks
         as they are, the standard cells merged into soft clusters of about equal area — so
         moves, refine and the readouts stay interactive on designs of millions of cells;
-        :meth:`expand` places the cells of the full design.  Default: clustered from
-        :data:`CLUSTER_FROM` movable standard cells on.  (The clustered design has no
-        movable standard cells: a cell left on its own is a cluster of one.)
+        :meth:`expand` places the cells of the full design.  Default: clustered where
+        :func:`floorwidget.placer.place` goes multilevel
+        (:data:`floorwidget.placer.flow.MULTILEVEL_MIN` movable standard cells).  (The
+        clustered design has no movable standard cells: a lone cell is a cluster of one.)
 
     Attributes
     ----------
