@@ -522,7 +522,8 @@ def test_any_sequence_pair_packs_without_conflicts(seed, n, halo):
     # its constraint graphs is free of overlaps; with our separations (footprint plus the
     # larger facing halo) the halo rule holds too.  Checked with shapely on random pairs, and
     # the O(n log n) evaluation (prefix maxima) agrees with the O(n²) one where it applies.
-    from floorwidget.placer.legalize import _Packer, _Problem, _sp_pack
+    from floorwidget.placer.legalize.packer import _Packer, _sp_pack
+    from floorwidget.placer.legalize.problem import _Problem
 
     rng = np.random.default_rng(seed)
     w, h = rng.integers(5, 60, (2, n)).astype(float)

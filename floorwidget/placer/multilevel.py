@@ -26,6 +26,8 @@ import numpy as np
 from ..design import CELL, Design, Floorplan
 from .coarsen import Clustering, coarsen
 from .errors import PlacementError
+from .flat import place_flat
+from .stages import SpreadStage, finish, report, rows_stage, soft_mask, start, write_back
 
 __all__ = ["TOP_BLOCKS", "check_memory", "expand", "place_multilevel", "top_blocks",
            "uncoarsen"]
@@ -101,20 +103,18 @@ def place_multilevel(design: Design, src: Floorplan, target: float, opts, mult, 
     :func:`~floorwidget.placer.flow.place`; returns ``(floorplan, legalized, overflow)`` with
     the cells at their global positions (not yet on rows).  Adds the stages ``"coarsen"`` and
     ``"uncoarsen"`` and ``info["levels"]`` (blocks per level, finest first)."""
-    from .flow import _place_flat, _report
-
     check_memory(design, "placing")
     t0 = time.perf_counter()
     clus = coarsen(design, src, target_blocks=top_blocks(design), seed=seed)
     mults = level_multipliers(clus, mult)
     info["levels"] = [d.num_blocks for d in clus.designs]
     info["stage_seconds"]["coarsen"] = time.perf_counter() - t0
-    _report(progress, "coarsen", 1.0, {"levels": info["levels"]})
+    report(progress, "coarsen", 1.0, {"levels": info["levels"]})
 
     top = clus.num_levels - 1
     coarse = clus.designs[top]
     base = src if top == 0 else coarse.initial
-    out, legalized, ov = _place_flat(coarse, base, target, opts, mults[top], seed, info,
+    out, legalized, ov = place_flat(coarse, base, target, opts, mults[top], seed, info,
                                      progress)
     if top == 0:
         return out, legalized, ov
@@ -129,8 +129,6 @@ def uncoarsen(clus: Clustering, out: Floorplan, src: Floorplan, target: float, o
     at their cluster, refined levels get a short spreading run (macros and other singletons
     stay put).  Returns the input design's floorplan (statuses of ``src``) and the overflow;
     adds the stage ``"uncoarsen"`` to ``info``."""
-    from .flow import _report, _soft_mask, _Stage, _write_back
-
     t0 = time.perf_counter()
     its = 0
     top = clus.num_levels - 1
@@ -140,11 +138,11 @@ def uncoarsen(clus: Clustering, out: Floorplan, src: Floorplan, target: float, o
         out = clus.project(k + 1, out, base=src if k == 0 else None, seed=seed)
         if k and d.num_blocks < LEVEL_STEP * clus.designs[last].num_blocks:
             continue
-        soft = _soft_mask(d, out)
+        soft = soft_mask(d, out)
         if not soft.any():
             last = k
             continue
-        st = _Stage(d, out, soft, target, opts, mults[k])
+        st = SpreadStage(d, out, soft, target, opts, mults[k])
         # the anchors of a block that sits where the look-ahead wants it would be near-rigid
         # (weight / distance): let blocks move about the extent of the cluster they came from
         anc = _ancestor_side(clus, k, last)
@@ -154,13 +152,13 @@ def uncoarsen(clus: Clustering, out: Floorplan, src: Floorplan, target: float, o
         res = st.spread(cx, cy, out.orient, opts, k0=LEVEL_K0, max_it=LEVEL_ITERATIONS,
                         min_it=2, target_overflow=opts.overflow_target, progress=progress,
                         stage="uncoarsen")
-        _write_back(out, cx, cy, st.vars)
+        write_back(out, cx, cy, st.vars)
         its += res["iterations"]
         ov = res["overflow"]
         info["bins"] = res["bins"]
     info["stage_iterations"]["uncoarsen"] = its
     info["stage_seconds"]["uncoarsen"] = time.perf_counter() - t0
-    _report(progress, "uncoarsen", 1.0, {"overflow": ov})
+    report(progress, "uncoarsen", 1.0, {"overflow": ov})
     return out, ov
 
 
@@ -196,8 +194,6 @@ def expand(clustering: Clustering, coarse: Floorplan, floorplan: Floorplan | Non
         When the placement would need more memory than the machine has left
         (:func:`check_memory`), before anything is done.
     """
-    from .flow import _finish, _rows_stage, _start
-
     t_all = time.perf_counter()
     if not isinstance(coarse, Floorplan):
         raise ValueError("expand needs a floorplan of the clustering's coarsest design")
@@ -210,11 +206,11 @@ def expand(clustering: Clustering, coarse: Floorplan, floorplan: Floorplan | Non
     single = np.bincount(c, minlength=clustering.coarsest.num_blocks)[c] == 1
     for f in ("x", "y", "orient", "status"):
         getattr(base, f)[single] = getattr(coarse, f)[c[single]]
-    src, target, opts, mult = _start(design, base, target_density, seed, options)
+    src, target, opts, mult = start(design, base, target_density, seed, options)
     check_memory(design, "placing")
     info: dict = {"stage_seconds": {}, "stage_iterations": {}, "levels":
                   [d.num_blocks for d in clustering.designs]}
     out, ov = uncoarsen(clustering, coarse.copy(), src, target, opts,
                         level_multipliers(clustering, mult), seed, info, progress)
-    out = _rows_stage(design, out, src, opts, target, info, progress)
-    return _finish(design, out, src, info, False, ov, t_all, target, seed)
+    out = rows_stage(design, out, src, opts, target, info, progress)
+    return finish(design, out, src, info, False, ov, t_all, target, seed)

@@ -1,0 +1,129 @@
+"""The flat global stage of :func:`~floorwidget.placer.flow.place`: every movable block
+(macros included) placed by Bound2Bound quadratic placement with look-ahead spreading, the
+movable macros arranged and legalised (:mod:`~floorwidget.placer.macro_layout`), and the cells
+and clusters spread again around them.  The multilevel flow runs it on its coarsest level.
+
+References
+----------
+P. Spindler, U. Schlichtmann, F. M. Johannes, IEEE Trans. Computer-Aided Design of Integrated
+Circuits and Systems 27(8), 2008 (Bound2Bound net model).
+M.-C. Kim, D.-J. Lee, I. L. Markov, Proc. IEEE/ACM ICCAD 2010 (look-ahead legalisation with
+anchor pseudo-nets).
+K. M. Hall, Management Science 17(3), 1970 (spectral placement).
+"""
+
+from __future__ import annotations
+
+import time
+
+import numpy as np
+
+from ..design import MOVABLE, TERMINAL, Design, Floorplan
+from .macro_layout import arrange_macros
+from .options import PlacerOptions
+from .solve import spectral_coordinates
+from .stages import (
+    Progress,
+    SpreadStage,
+    movable_macro_indices,
+    report,
+    soft_mask,
+    write_back,
+)
+
+__all__ = ["place_flat"]
+
+
+def place_flat(design: Design, src: Floorplan, target: float, opts: PlacerOptions, mult,
+                seed: int, info: dict, progress: Progress) -> tuple[Floorplan, bool, float]:
+    """Global placement of every movable block, then the macros arranged and legalised and
+    the cells and clusters re-spread around them; returns ``(floorplan, legalized,
+    overflow)``."""
+    out = src.copy()
+    movable = (src.status == MOVABLE) & (design.kind != TERMINAL)
+    mov_idx = np.flatnonzero(movable)
+
+    # --- global: every movable block, macros included --------------------------------------
+    t0 = time.perf_counter()
+    st = SpreadStage(design, out, movable, target, opts, mult)
+    st.check_capacity(target)
+    cx, cy = out.centres()
+    initial_positions(st, cx, cy, mov_idx, seed)
+    st.wirelength(cx, cy, out.orient, opts, opts.initial_iterations, progress, "global")
+    gather_unconnected(st, cx, cy)
+    res = st.spread(cx, cy, out.orient, opts, k0=0, max_it=opts.max_iterations, min_it=0,
+                    target_overflow=opts.overflow_target, progress=progress, stage="global")
+    write_back(out, cx, cy, mov_idx)
+    info["stage_iterations"]["global"] = res["iterations"]
+    info["global_overflow"] = res["overflow"]
+    info["bins"] = res["bins"]
+    info["stage_seconds"]["global"] = time.perf_counter() - t0
+    report(progress, "global", 1.0, {"overflow": res["overflow"]})
+
+    macros = movable_macro_indices(design, src)
+    legalized = False
+    final_ov = res["overflow"]
+    if len(macros) and opts.legalize_macros:
+        out = arrange_macros(design, out, macros, opts, info, progress)
+        legalized = True
+        # --- cells and clusters around the placed macros --------------------------------------
+        t0 = time.perf_counter()
+        soft = soft_mask(design, src)
+        if soft.any():
+            st2 = SpreadStage(design, out, soft, target, opts, mult)
+            st2.check_capacity(target)
+            cx, cy = out.centres()
+            k0 = 0.0  # weak anchors first: strong ones drag cells to the rough look-ahead spots
+            res2 = st2.spread(cx, cy, out.orient, opts, k0=k0, max_it=opts.max_iterations,
+                              min_it=2, target_overflow=opts.overflow_target,
+                              progress=progress, stage="cells")
+            write_back(out, cx, cy, st2.vars)
+            info["stage_iterations"]["cells"] = res2["iterations"]
+            final_ov = res2["overflow"]
+            info["bins"] = res2["bins"]
+        info["stage_seconds"]["cells"] = time.perf_counter() - t0
+        report(progress, "cells", 1.0, {"overflow": final_ov})
+    return out, legalized, final_ov
+
+
+def initial_positions(st: SpreadStage, cx, cy, mov_idx: np.ndarray, seed: int) -> None:
+    """Start of the global placement: every movable block at the core centre with a small
+    seeded jitter, where fixed pins will pull them apart; blocks whose connected group reaches
+    no fixed pin start from spectral coordinates instead (the eigenvectors of the net
+    Laplacian for its second and third smallest eigenvalues, Hall, Management Science 17(3),
+    1970), scaled to the core, so a design without fixed I/O does not collapse to one point."""
+    c = st.design.core
+    rng = np.random.default_rng(seed)
+    span = np.array([c[2] - c[0], c[3] - c[1]])
+    jit = rng.standard_normal((len(mov_idx), 2)) * 1e-3 * span
+    cx[mov_idx] = (c[0] + c[2]) / 2 + jit[:, 0]
+    cy[mov_idx] = (c[1] + c[3]) / 2 + jit[:, 1]
+    fl = st.sys.floating
+    if fl.sum() >= 3:
+        u, v = spectral_coordinates(st.sys, fl, seed)
+        blk = st.vars[fl]
+        cx[blk] = c[0] + span[0] * (0.25 + 0.5 * u)
+        cy[blk] = c[1] + span[1] * (0.25 + 0.5 * v)
+    st.clamp(cx, cy)
+
+
+def gather_unconnected(st: SpreadStage, cx, cy) -> None:
+    """Blocks on no net, and groups that reach no fixed pin, have no place of their own: put
+    them at the area-weighted centre of the anchored movable blocks (the spreading then finds
+    them room), not wherever they started or at the core centre."""
+    lone = st.sys.pins_of_var == 0
+    fl = st.sys.floating & ~lone
+    k = ~(lone | st.sys.floating)
+    if not k.any():
+        return
+    v = st.vars
+    a = st.w * st.h
+    centre = (float(np.average(cx[v[k]], weights=a[k])),
+              float(np.average(cy[v[k]], weights=a[k])))
+    # groups that reach no fixed pin: moved as a whole, and pulled there from now on
+    if fl.any():
+        cx[v[fl]] += centre[0] - np.average(cx[v[fl]], weights=a[fl])
+        cy[v[fl]] += centre[1] - np.average(cy[v[fl]], weights=a[fl])
+        st.sys.pull_to = centre
+    cx[v[lone]] = centre[0]
+    cy[v[lone]] = centre[1]
