@@ -18,7 +18,7 @@ import time
 
 import numpy as np
 
-from ..design import MOVABLE, TERMINAL, Design, Floorplan
+from ..design import MACRO, MOVABLE, TERMINAL, Design, Floorplan
 from .macro_layout import arrange_macros
 from .options import PlacerOptions
 from .solve import spectral_coordinates
@@ -31,21 +31,37 @@ from .stages import (
     write_back,
 )
 
-__all__ = ["place_flat"]
+__all__ = ["cells_stage", "global_stage", "place_flat"]
 
 
 def place_flat(design: Design, src: Floorplan, target: float, opts: PlacerOptions, mult,
-                seed: int, info: dict, progress: Progress) -> tuple[Floorplan, bool, float]:
+               seed: int, info: dict, progress: Progress) -> tuple[Floorplan, bool, float]:
     """Global placement of every movable block, then the macros arranged and legalised and
     the cells and clusters re-spread around them; returns ``(floorplan, legalized,
     overflow)``."""
+    out, final_ov = global_stage(design, src, target, opts, mult, seed, info, progress)
+    macros = movable_macro_indices(design, src)
+    legalized = False
+    if len(macros) and opts.legalize_macros:
+        out = arrange_macros(design, out, macros, opts, info, progress)
+        legalized = True
+        out, final_ov = cells_stage(design, out, src, target, opts, mult, info, progress)
+    return out, legalized, final_ov
+
+
+def global_stage(design: Design, src: Floorplan, target: float, opts: PlacerOptions, mult,
+                 seed: int, info: dict, progress: Progress, macro_area: float = 1.0
+                 ) -> tuple[Floorplan, float]:
+    """Every movable block, macros included, by quadratic placement with look-ahead spreading
+    from :func:`initial_positions`; returns the floorplan and its overflow (stage
+    ``"global"``)."""
     out = src.copy()
     movable = (src.status == MOVABLE) & (design.kind != TERMINAL)
     mov_idx = np.flatnonzero(movable)
-
-    # --- global: every movable block, macros included --------------------------------------
     t0 = time.perf_counter()
     st = SpreadStage(design, out, movable, target, opts, mult)
+    if macro_area != 1.0:
+        st.scale_area(design.kind[st.vars] == MACRO, macro_area)
     st.check_capacity(target)
     cx, cy = out.centres()
     initial_positions(st, cx, cy, mov_idx, seed)
@@ -59,31 +75,32 @@ def place_flat(design: Design, src: Floorplan, target: float, opts: PlacerOption
     info["bins"] = res["bins"]
     info["stage_seconds"]["global"] = time.perf_counter() - t0
     report(progress, "global", 1.0, {"overflow": res["overflow"]})
+    return out, res["overflow"]
 
-    macros = movable_macro_indices(design, src)
-    legalized = False
-    final_ov = res["overflow"]
-    if len(macros) and opts.legalize_macros:
-        out = arrange_macros(design, out, macros, opts, info, progress)
-        legalized = True
-        # --- cells and clusters around the placed macros --------------------------------------
-        t0 = time.perf_counter()
-        soft = soft_mask(design, src)
-        if soft.any():
-            st2 = SpreadStage(design, out, soft, target, opts, mult)
-            st2.check_capacity(target)
-            cx, cy = out.centres()
-            k0 = 0.0  # weak anchors first: strong ones drag cells to the rough look-ahead spots
-            res2 = st2.spread(cx, cy, out.orient, opts, k0=k0, max_it=opts.max_iterations,
-                              min_it=2, target_overflow=opts.overflow_target,
-                              progress=progress, stage="cells")
-            write_back(out, cx, cy, st2.vars)
-            info["stage_iterations"]["cells"] = res2["iterations"]
-            final_ov = res2["overflow"]
-            info["bins"] = res2["bins"]
-        info["stage_seconds"]["cells"] = time.perf_counter() - t0
-        report(progress, "cells", 1.0, {"overflow": final_ov})
-    return out, legalized, final_ov
+
+def cells_stage(design: Design, out: Floorplan, src: Floorplan, target: float,
+                opts: PlacerOptions, mult, info: dict, progress: Progress
+                ) -> tuple[Floorplan, float]:
+    """Cells and clusters spread again around the placed macros (stage ``"cells"``); returns
+    the floorplan and the overflow."""
+    t0 = time.perf_counter()
+    soft = soft_mask(design, src)
+    ov = float(info.get("global_overflow", 0.0))
+    if soft.any():
+        st = SpreadStage(design, out, soft, target, opts, mult)
+        st.check_capacity(target)
+        cx, cy = out.centres()
+        # weak anchors first (k0 = 0): strong ones drag cells to the rough look-ahead spots
+        res = st.spread(cx, cy, out.orient, opts, k0=0.0, max_it=opts.max_iterations,
+                        min_it=2, target_overflow=opts.overflow_target, progress=progress,
+                        stage="cells")
+        write_back(out, cx, cy, st.vars)
+        info["stage_iterations"]["cells"] = res["iterations"]
+        ov = res["overflow"]
+        info["bins"] = res["bins"]
+    info["stage_seconds"]["cells"] = time.perf_counter() - t0
+    report(progress, "cells", 1.0, {"overflow": ov})
+    return out, ov
 
 
 def initial_positions(st: SpreadStage, cx, cy, mov_idx: np.ndarray, seed: int) -> None:

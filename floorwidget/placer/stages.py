@@ -126,6 +126,12 @@ class SpreadStage:
         self.anchor_scale = np.maximum(s, 1.0)
         self.eps_a = 0.25 * min(self.grid.bw, self.grid.bh)
 
+    def scale_area(self, sel: np.ndarray, factor: float) -> None:
+        """Count the objects ``sel`` (a mask over :attr:`vars`) with ``factor`` times their
+        area in the density (0: they take no room and are not spread)."""
+        self.wt = np.where(sel, self.wt * factor, self.wt)
+        self.area = float(np.sum(self.w * self.h * self.wt))
+
     def check_capacity(self, target: float) -> None:
         cap = float(self.cap.sum())
         if self.area > cap * (1 + 1e-9):
