@@ -30,6 +30,7 @@ import time
 
 from .design import DesignError
 from .formats import load, save
+from .kernels import fmt
 
 CAUTION = ("early-floorplanning estimates; timing, power and physical sign-off belong to the "
            "full implementation flow")
@@ -181,17 +182,7 @@ def _print_report(rep: dict, as_json: bool, out=None) -> None:
         return
     width = max(len(label) for _, label in _LABELS)
     for key, label in _LABELS:
-        v = rep[key]
-        if isinstance(v, float) and not math.isfinite(v):
-            text = "n/a"
-        elif isinstance(v, bool):
-            text = "yes" if v else "no"
-        elif isinstance(v, float):
-            text = f"{v:,.4g}" if abs(v) < 1e4 else f"{v:,.0f}"
-        elif isinstance(v, str):
-            text = v or "none"
-        else:
-            text = f"{v:,}"
+        text = fmt.value(rep[key], digits=4, big=1e4)
         out.write(f"{label:<{width}}  {text}\n")
     out.write(f"({CAUTION})\n")
 

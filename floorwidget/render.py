@@ -29,13 +29,17 @@ from .design import (
     Floorplan,
     orient_offsets,
 )
+from .kernels import fmt as numfmt
 
 __all__ = ["render", "side_by_side", "SUFFIXES"]
 
 #: Output formats by file suffix.
 SUFFIXES = {".png": "png", ".svg": "svg"}
-#: Above this many macros the names are not written (they would not be readable).
-MAX_LABELS = 300
+#: Macro label font size, points, and the smallest one a label may shrink to.
+LABEL_PT, MIN_LABEL_PT = 8.0, 4.0
+#: Average character width and line height of the label font, in ems (DejaVu Sans, measured
+#: on instance names: letters, digits, brackets and separators average about 0.6 em).
+LABEL_CHAR_EM, LABEL_LINE_EM = 0.62, 1.2
 
 
 def _nice_length(span: float) -> float:
@@ -48,14 +52,25 @@ def _nice_length(span: float) -> float:
     return p
 
 
-def _illegal_mask(design: Design, fp: Floorplan) -> np.ndarray:
-    leg = metrics.legality(design, fp)
-    bad = np.zeros(design.num_blocks, bool)
-    bad[leg["overlap_pairs"].ravel()] = True
-    for key in ("out_of_core", "on_blockage", "off_grid"):
-        bad[leg[key]] = True
-    bad[leg["out_of_die"]] = True
-    return bad & (design.kind == MACRO)
+def _draw_labels(ax, design: Design, mac: np.ndarray, rects: np.ndarray) -> None:
+    """Macro names that fit inside their macros, never two overlapping
+    (:func:`floorwidget.style.place_labels`): the part of each name that tells it apart
+    (:func:`floorwidget.style.short_labels`), at up to :data:`LABEL_PT` points (down to
+    :data:`MIN_LABEL_PT`) and up to four lines; a name that fits nowhere is left out (the SVG
+    ids keep the full names)."""
+    ax.apply_aspect()
+    box = ax.get_position().transformed(ax.figure.transFigure)  # display units at fig.dpi
+    x0, x1 = ax.get_xlim()
+    pt_per_um = box.width / ax.figure.dpi * 72.0 / (x1 - x0)
+    texts = style.short_labels([design.names[i] for i in mac])
+    keep, lines, scale, _ = style.place_labels(
+        texts, rects * pt_per_um, LABEL_CHAR_EM * LABEL_PT, LABEL_LINE_EM * LABEL_PT,
+        max_lines=4, scales=np.arange(LABEL_PT, MIN_LABEL_PT - 0.5, -1.0) / LABEL_PT)
+    cx, cy = (rects[:, 0] + rects[:, 2]) / 2, (rects[:, 1] + rects[:, 3]) / 2
+    for i in np.flatnonzero(keep):
+        ax.text(cx[i], cy[i], "\n".join(lines[i]), ha="center", va="center",
+                fontsize=LABEL_PT * scale[i], linespacing=1.0, zorder=6, clip_on=True,
+                color=style.BLACK, gid=f"label:{design.names[mac[i]]}")
 
 
 def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str | None = None,
@@ -91,8 +106,9 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
         Heat layer: bin utilisation (:func:`floorwidget.metrics.density_map`) or RUDY demand
         (:func:`floorwidget.metrics.rudy_map`).
     show_labels : bool
-        Write macro names (skipped above :data:`MAX_LABELS` macros), long hierarchical ones
-        shortened by :func:`floorwidget.style.short_labels`; the SVG ids keep the full names.
+        Write macro names: the part that tells each apart, inside its macro or not at all,
+        never two overlapping (:func:`floorwidget.style.place_labels`); the SVG ids keep the
+        full names.
     ax : matplotlib Axes, optional
         Draw into these axes instead of a new figure.
     figsize : (float, float), optional
@@ -244,7 +260,7 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
 
     # --- macros --------------------------------------------------------------------------
     mac = np.flatnonzero(kind == MACRO)
-    bad = _illegal_mask(design, fp)
+    bad = metrics.illegal_blocks(design, fp)
     hrects = fp.rects(halo=True)
     has_halo = (design.halo[mac] > 0).any(axis=1)
     ill = style.STATUS_STYLES["illegal"]
@@ -301,12 +317,6 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
                                zorder=5)
         notch.set_gid("orientation-marks")
         ax.add_collection(notch)
-        if show_labels and len(mac) <= MAX_LABELS:
-            fs = float(np.clip(700.0 / max(dw, dh) * np.sqrt(np.median(w0 * h0)) / 8.0, 4.0, 8.0))
-            labels = style.short_labels([design.names[i] for i in mac])
-            for lab, x, y in zip(labels, cx, cy):
-                ax.text(x, y, lab, ha="center", va="center", fontsize=fs,
-                        zorder=6, clip_on=True, color=style.BLACK)
 
     # --- terminals -----------------------------------------------------------------------
     term = kind == TERMINAL
@@ -322,6 +332,8 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
     ax.set_xlim(die[0] - pad, die[2] + pad)
     ax.set_ylim(die[1] - 2.5 * pad, die[3] + pad)
     ax.set_aspect("equal")
+    if show_labels and len(mac):
+        _draw_labels(ax, design, mac, rects[mac])
     ax.set_xlabel("x (µm)")
     ax.set_ylabel("y (µm)")
     ax.tick_params(labelsize=7)
@@ -351,8 +363,9 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
                              linestyle=ill.mpl_linestyle(), hatch=ill.hatch,
                              label="breaks a rule (overlap, die, core, blockage or grid)"))
     if len(chans):
+        below = numfmt.number(chans.channel, unit=" µm")
         handles.append(Patch(facecolor=(*_rgb(nc.fill), nc.fill_opacity), edgecolor=nc.stroke,
-                             hatch=nc.hatch, label=f"{nc.label} (< {chans.channel:.3g} µm)"))
+                             hatch=nc.hatch, label=f"{nc.label} (< {below})"))
     if len(walled):
         handles.append(Patch(facecolor=(*_rgb(wc.fill), wc.fill_opacity), edgecolor=wc.stroke,
                              linestyle=wc.mpl_linestyle(), hatch=wc.hatch, label=wc.label))
@@ -401,13 +414,16 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
     names = np.bincount(status[mac], minlength=3) if len(mac) else np.zeros(3, int)
     counts = ", ".join(f"{int(c)} {STATUS_NAMES[k]}" for k, c in enumerate(names) if c)
     head = title if title is not None else f"{design.name}: {len(mac)} macros ({counts or 'none'})"
-    sub = (f"HPWL {rep['hpwl']:.4g} µm · overflow {rep['density_overflow']:.3f} at "
-           f"{rep['target_density']:g} · "
-           f"RUDY peak {rep['congestion_peak']:.3g} · "
-           f"{'legal' if rep['legal'] else str(rep['macro_overlaps']) + ' macro overlaps'}"
+    state = ("legal" if rep["legal"]
+             else f"{numfmt.value(rep['macro_overlaps'])} macro overlaps")
+    sub = (f"HPWL {numfmt.number(rep['hpwl'], digits=4, unit=' µm')} · overflow "
+           f"{numfmt.number(rep['density_overflow'])} at "
+           f"{numfmt.number(rep['target_density'])} · "
+           f"RUDY peak {numfmt.number(rep['congestion_peak'])} · "
+           f"{state}"
            f"\n{rep['narrow_channels']} narrow channels · {rep['macros_facing_wall']} macros "
            f"with pins to a wall · {rep['logic_regions']} logic regions (largest "
-           f"{rep['largest_logic_region']:.0%} of the free area)"
+           f"{numfmt.percent(rep['largest_logic_region'])} of the free area)"
            f"\nearly floorplanning estimates; sign-off belongs to the implementation flow")
     ax.set_title(f"{head}\n{sub}", fontsize=8.5, loc="left")
 

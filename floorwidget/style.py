@@ -24,6 +24,8 @@ import re
 from collections.abc import Sequence
 from dataclasses import dataclass
 
+import numpy as np
+
 from .design import CELL, CLUSTER, FIXED, MACRO, MOVABLE, PINNED, TERMINAL
 
 __all__ = [
@@ -57,6 +59,7 @@ __all__ = [
     "heat_scale",
     "status_style",
     "mpl_colormap",
+    "place_labels",
     "short_labels",
 ]
 
@@ -216,50 +219,28 @@ def mpl_colormap(kind: str):
 
 # --- labels -----------------------------------------------------------------------------------
 
-_HIER = re.compile(r"([/|.])")  # hierarchy separators kept in labels
-_ELLIPSIS = "\u2026"
+_SPLIT = re.compile(r"([/|._])")  # hierarchy separators, and "_" of flattened names
+_ESCAPE = re.compile(r"\\(.)")    # a backslash escapes the next character (DEF, Verilog)
 
 
-def _label(name: str, keep: set[int], max_len: int) -> str:
-    """``name`` shortened to its first component, its leaf and the components ``keep``
-    (counted from the end, the leaf being 1), with an ellipsis for each run left out; the full
-    name when that is not shorter.  A name without separators keeps its start and end, or is
-    shown in full once ``keep`` holds anything."""
-    parts = _HIER.split(name)  # components at even indices, separators at odd ones
-    comps, seps = parts[0::2], parts[1::2]
-    n = len(comps)
-    if n == 1:
-        if keep:
-            return name
-        room = max(max_len - 1, 4)
-        return name[: room // 3] + _ELLIPSIS + name[len(name) - (room - room // 3):]
-    idx = sorted({0, n - 1} | {n - k for k in keep if 0 < n - k < n})
-    out = comps[0] if len(comps[0]) <= 12 or idx[1] == 1 else comps[0][:11] + _ELLIPSIS
-    for prev, i in zip(idx, idx[1:]):
-        out += (seps[i - 1] if i == prev + 1 else seps[prev] + _ELLIPSIS + seps[i - 1]) + comps[i]
-    return out if len(out) < len(name) else name
+def _tokens(name: str) -> tuple[list[str], list[str]]:
+    """A name's tokens and the separator before each (empty before the first)."""
+    parts = _SPLIT.split(_ESCAPE.sub(r"\1", name))
+    return parts[0::2], [""] + parts[1::2]
 
 
-def _tell_apart(names: list[str]) -> int | None:
-    """The component (counted from the end, above the leaf) nearest the leaf in which
-    ``names`` do not all agree, or None."""
-    comps = [_HIER.split(nm)[0::2] for nm in names]
-    for k in range(2, max(len(c) for c in comps)):
-        if len({c[-k] if k < len(c) else None for c in comps}) > 1:
-            return k
-    return None
+def short_labels(names: Sequence[str], max_len: int = 16) -> list[str]:
+    """Display labels for (hierarchical) block names: the part that tells them apart.
 
-
-def short_labels(names: Sequence[str], max_len: int = 24) -> list[str]:
-    """Display labels for (hierarchical) block names: short, readable and all different.
-
-    A name of at most ``max_len`` characters is its own label.  A longer one keeps its first
-    component (cut to 12 characters) and its leaf, with an ellipsis for what lies between
-    (``top/…/sram_0``); hierarchy separators are ``/``, ``|`` and ``.``.  A name without a
-    separator keeps its start and end.  Where labels would be equal, each of them also keeps
-    the component nearest the leaf in which those names differ (``soc/cpu/…/bank_3`` and
-    ``soc/dsp/…/bank_3``), and so on; a name that cannot be told apart otherwise is shown in
-    full.  Names are assumed different (as block names are).
+    A name of at most ``max_len`` characters is its own label (escapes removed).  A longer one
+    is cut into tokens at the hierarchy separators ``/ | .`` and at ``_`` (flattened names
+    join their hierarchy with it), and keeps only the tokens where the names branch: the
+    token after a prefix of tokens that other names share but continue differently.  Runs of
+    tokens every name under that prefix has in common (``i_cache_subsystem``, a trailing
+    ``.i_ram``) drop out, so ``i_cache_subsystem_i_icache_sram_block\\[0\\].data_sram_macro_mem
+    \\[3\\].i_ram`` among its siblings reads ``icache_block[0].data_mem[3]``.  Each kept token
+    keeps the separator that stood before it.  A label that would equal another one, or not be
+    shorter than the name, is the name itself.
 
     Parameters
     ----------
@@ -274,27 +255,125 @@ def short_labels(names: Sequence[str], max_len: int = 24) -> list[str]:
 
     Examples
     --------
-    >>> short_labels(["soc/mem_subsystem/bank0/sram_64k", "soc/mem_subsystem/bank1/sram_64k",
-    ...               "soc/io/pads"])
-    ['soc/\u2026/bank0/sram_64k', 'soc/\u2026/bank1/sram_64k', 'soc/io/pads']
+    >>> short_labels(["soc/mem/bank0/sram_64k", "soc/mem/bank1/sram_64k", "pll"], 8)
+    ['bank0', 'bank1', 'pll']
     """
-    keep: list[set[int]] = [set() for _ in names]
-    labels = [nm if len(nm) <= max_len else _label(nm, keep[i], max_len)
-              for i, nm in enumerate(names)]
-    while True:
-        groups: dict[str, list[int]] = {}
-        for i, lab in enumerate(labels):
-            groups.setdefault(lab, []).append(i)
-        clashes = [[i for i in g if labels[i] != names[i]] for g in groups.values()
-                   if len(g) > 1]
-        clashes = [g for g in clashes if g]
-        if not clashes:
-            return labels
-        for g in clashes:
-            k = _tell_apart([names[i] for i in g])
-            for i in g:
-                if k is None or k in keep[i]:
-                    labels[i] = names[i]  # nothing left to tell them apart by: in full
-                else:
-                    keep[i].add(k)
-                    labels[i] = _label(names[i], keep[i], max_len)
+    toks = [_tokens(nm) for nm in names]
+    branches: dict[tuple[str, ...], set] = {}  # prefix -> the tokens that follow it (None: end)
+    for t, _ in toks:
+        for k in range(len(t) + 1):
+            branches.setdefault(tuple(t[:k]), set()).add(t[k] if k < len(t) else None)
+    labels, plains = [], []
+    for t, sep in toks:
+        plain = "".join(s + x for s, x in zip(sep, t))
+        plains.append(plain)
+        keep = [k for k in range(len(t)) if len(branches[tuple(t[:k])]) > 1]
+        lab = "".join((sep[k] if n else "") + t[k] for n, k in enumerate(keep))
+        short = len(plain) > max_len and lab and len(lab) < len(plain)
+        labels.append(lab if short else plain)
+    seen: dict[str, int] = {}
+    for lab in labels:
+        seen[lab] = seen.get(lab, 0) + 1
+    return [lab if seen[lab] == 1 else plain for plain, lab in zip(plains, labels)]
+
+
+def _wrap(text: str, lines: int) -> list[str]:
+    """``text`` in at most ``lines`` lines, cut after separators, the longest line as short as
+    it can be (greedy filling for each width from the longest piece up)."""
+    parts = _SPLIT.split(text)
+    pieces = [a + b for a, b in zip(parts[0::2], parts[1::2] + [""])]
+    for width in range(max(len(p) for p in pieces), len(text) + 1):
+        out = [""]
+        for p in pieces:
+            if out[-1] and len(out[-1]) + len(p) > width:
+                out.append(p)
+            else:
+                out[-1] += p
+        if len(out) <= lines:
+            return out
+    return [text]
+
+
+def place_labels(texts: Sequence[str], boxes, char_px: float, line_px: float, *,
+                 max_lines: int = 1, lift: float = 0.0, pad: float = 1.0,
+                 scales: Sequence[float] = (1.0,)):
+    """Which labels to draw, at what size and in how many lines, so that each lies inside its
+    box and no two overlap.
+
+    Each label is centred on its box (raised by ``lift``); at each font scale in turn
+    (largest first) it is tried on one line, then cut before separators into up to
+    ``max_lines`` shorter ones; the first layout that fits inside the box less ``pad`` on every
+    side is taken, else the label is dropped.  Labels that still overlap each other (over
+    macros that overlap) are dropped, smaller box first.  Sizes are screen units at scale 1: a
+    character is ``char_px`` wide on average, a line ``line_px`` high.
+
+    Parameters
+    ----------
+    texts : sequence of str
+    boxes : (n, 4) array of ``xlo, ylo, xhi, yhi``, screen units, y up
+    char_px, line_px : float
+    max_lines : int
+    lift : float
+        Raise each label's centre by this much (above a handle drawn at the centre).
+    pad : float
+    scales : sequence of float
+        Font scales to try, largest first.
+
+    Returns
+    -------
+    keep : (n,) bool array
+    lines : list of list of str
+        The lines of every label (empty where dropped).
+    scale : (n,) float array
+        The font scale taken (0 where dropped).
+    extents : (n, 4) float array
+        Every label's box, screen units (meaningful where kept).
+    """
+    from .kernels.rects import overlap_pairs
+
+    b = np.asarray(boxes, np.float64).reshape(-1, 4)
+    n = len(b)
+    cx, cy = (b[:, 0] + b[:, 2]) / 2, (b[:, 1] + b[:, 3]) / 2 + lift
+    room_w = b[:, 2] - b[:, 0] - 2 * pad
+    # inside the box around a raised centre: the room is twice the distance to the nearer edge
+    room_h = 2 * np.minimum(b[:, 3] - cy, cy - b[:, 1]) - 2 * pad
+    nchar = np.fromiter((len(t) for t in texts), np.float64, n)
+    keep = np.zeros(n, bool)
+    lines: list[list[str]] = [[] for _ in range(n)]
+    scale, width, height = np.zeros(n), np.zeros(n), np.zeros(n)
+    for f in scales:
+        cw, lh = char_px * f, line_px * f
+        one = ~keep & (nchar * cw <= room_w) & (lh <= room_h)
+        for i in np.flatnonzero(one):
+            lines[i] = [texts[i]]
+        keep |= one
+        scale[one], width[one], height[one] = f, nchar[one] * cw, lh
+        for i in np.flatnonzero(~keep & (room_h >= 2 * lh) & (room_w > 0)) if max_lines > 1 \
+                else ():
+            for k in range(2, min(max_lines, int(room_h[i] // lh)) + 1):
+                cut = _wrap(texts[i], k)
+                wi = max(len(t) for t in cut) * cw
+                if wi <= room_w[i]:
+                    keep[i], lines[i] = True, cut
+                    scale[i], width[i], height[i] = f, wi, len(cut) * lh
+                    break
+    ext = np.stack([cx - width / 2, cy - height / 2, cx + width / 2, cy + height / 2], axis=1)
+    idx = np.flatnonzero(keep)
+    a, c = overlap_pairs(ext[idx])
+    if len(a):  # greedy, largest box first: a label survives unless a survivor overlaps it
+        area = (b[idx, 2] - b[idx, 0]) * (b[idx, 3] - b[idx, 1])
+        rank = np.empty(len(idx), np.intp)
+        rank[np.lexsort((idx, -area))] = np.arange(len(idx))
+        nbr: dict[int, list[int]] = {}
+        for p, q in zip(a.tolist(), c.tolist()):
+            nbr.setdefault(p, []).append(q)
+            nbr.setdefault(q, []).append(p)
+        alive = np.ones(len(idx), bool)
+        for p in sorted(nbr, key=lambda v: rank[v]):  # only the labels in conflict
+            if alive[p]:
+                alive[[q for q in nbr[p] if rank[q] > rank[p]]] = False
+        for i in idx[~alive]:
+            keep[i], lines[i], scale[i] = False, [], 0.0
+    return keep, lines, scale, ext
+
+

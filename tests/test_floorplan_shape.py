@@ -15,6 +15,8 @@ from shapely.geometry import box
 
 from floorwidget import metrics as M
 from floorwidget.design import MACRO, ORIENT_CODE, ORIENTATIONS, Design, Floorplan
+from floorwidget.metrics import shape as shape_mod
+from floorwidget.metrics.shape import _SIDES as SIDES
 
 
 def macro_design(sizes, pins=None, core=(0.0, 0.0, 40.0, 30.0), halo=None, blockages=None,
@@ -155,8 +157,8 @@ def test_facing_wall_eight_orientations(orient, wall):
           "bottom": (50 - w / 2, 2), "top": (50 - w / 2, 78 - h)}[wall]
     fp = Floorplan(d, [at[0], 49], [at[1], 39], [o, 0])
     sides = M.pin_side(d, fp)
-    assert M._SIDES[sides[0]] == PIN_SIDE[orient] and sides[1] == -1  # no pins: no side
-    assert M._SIDES[M.nearest_wall(d, fp)[0]] == wall
+    assert SIDES[sides[0]] == PIN_SIDE[orient] and sides[1] == -1  # no pins: no side
+    assert SIDES[M.nearest_wall(d, fp)[0]] == wall
     expect = PIN_SIDE[orient] == wall
     assert M.facing_wall(d, fp).tolist() == ([0] if expect else [])
     assert M.evaluate(d, fp)["macros_facing_wall"] == int(expect)
@@ -199,7 +201,7 @@ def test_logic_regions_match_shapely(case, exact):
     # row (0.25 µm) too, since the edges here lie on a 0.5 µm grid
     with pytest.MonkeyPatch.context() as mp:
         if not exact:
-            mp.setattr(M, "EXACT_MAX_CELLS", 0)
+            mp.setattr(shape_mod, "EXACT_MAX_CELLS", 0)
         check_regions(case, exact)
 
 
@@ -237,10 +239,10 @@ def test_logic_regions_off_grid_within_raster_tolerance(monkeypatch):
         d = macro_design(list(zip(w, h)), core=core)
         free = box(*core).difference(shapely.union_all(
             [box(a, b, a + c, b + e) for a, b, c, e in zip(x, y, w, h)]))
-        monkeypatch.setattr(M, "EXACT_MAX_CELLS", 2**20)
+        monkeypatch.setattr(shape_mod, "EXACT_MAX_CELLS", 2**20)
         lr = M.logic_regions(d, Floorplan(d, x, y))
         assert lr.exact and lr.areas.sum() == pytest.approx(free.area, rel=1e-9)
-        monkeypatch.setattr(M, "EXACT_MAX_CELLS", 0)
+        monkeypatch.setattr(shape_mod, "EXACT_MAX_CELLS", 0)
         lr = M.logic_regions(d, Floorplan(d, x, y))
         tol = 0.5 * np.diff(lr.x_edges).max() * float(np.sum(2 * (w + h)))
         assert not lr.exact and lr.areas.sum() == pytest.approx(free.area, abs=tol)

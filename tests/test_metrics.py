@@ -22,6 +22,7 @@ from floorwidget.design import (
     Design,
     Floorplan,
 )
+from floorwidget.kernels.rects import overlap_area, overlap_pairs
 
 
 def make_design(widths, heights, kinds, nets, die=(0.0, 0.0, 100.0, 100.0), halo=0.0,
@@ -405,13 +406,13 @@ def test_overlap_broad_phase_matches_all_pairs():
     r = np.stack([x0, y0, x0 + rng.uniform(1, 40, n), y0 + rng.uniform(1, 40, n)], 1)
     # rectangles whose left edge is another's right edge, same rows: touching only
     r[100:110] = np.stack([r[90:100, 2], r[90:100, 1], r[90:100, 2] + 10, r[90:100, 3]], 1)
-    a, b, area = M._overlap_pairs(r)
+    a, b = overlap_pairs(r, tol=M.TOL)
     ox = np.minimum(r[:, None, 2], r[None, :, 2]) - np.maximum(r[:, None, 0], r[None, :, 0])
     oy = np.minimum(r[:, None, 3], r[None, :, 3]) - np.maximum(r[:, None, 1], r[None, :, 1])
     hit = np.triu((ox > M.TOL) & (oy > M.TOL), 1)
     ea, eb = np.nonzero(hit)
     assert set(zip(a.tolist(), b.tolist())) == set(zip(ea.tolist(), eb.tolist()))
-    np.testing.assert_allclose(np.sort(area), np.sort((ox * oy)[hit]))
+    np.testing.assert_allclose(np.sort(overlap_area(r[a], r[b])), np.sort((ox * oy)[hit]))
 
 
 def test_default_bins_are_not_smaller_than_the_soft_clusters(demo_design):
@@ -433,7 +434,7 @@ def test_default_bins_are_not_smaller_than_the_soft_clusters(demo_design):
 def test_cell_overlap_counts_match_all_pairs(seed):
     # the banded sweep (cells) and the per-obstacle search (cells against macros/blockages)
     # count exactly the pairs that a brute-force all-pairs test of positive overlap finds
-    from floorwidget.metrics import _banded_overlaps, _cross_overlaps
+    from floorwidget.metrics.legality import _banded_overlaps, _cross_overlaps
 
     rng = np.random.default_rng(seed)
     n, m = 300, 5

@@ -146,6 +146,7 @@ def test_status_style_dicts_for_the_canvas():
 def test_title_gives_overflow_at_the_target_used(demo_design):
     # the title said "at 0.8" whatever the target; the figure must match evaluate() at that target
     from floorwidget import metrics
+    from floorwidget.kernels import fmt
 
     fp = demo_design.initial.copy()
     fp.info["target_density"] = 0.65  # as the placer records it
@@ -153,7 +154,7 @@ def test_title_gives_overflow_at_the_target_used(demo_design):
         fig = render(demo_design, fp, **kw)
         title = fig.axes[0].get_title(loc="left")
         ov = metrics.evaluate(demo_design, fp, target_density=td)["density_overflow"]
-        assert f"overflow {ov:.3f} at {td:g} " in title
+        assert f"overflow {fmt.number(ov)} at {fmt.number(td)} " in title
 
 
 def test_partial_blockages_and_cell_regions_are_drawn(demo_design, tmp_path):

@@ -434,7 +434,7 @@ def test_pin_and_select_take_indices_and_refuse_junk(widget, demo_design):
 def test_illegal_marking_follows_the_halo_rule():
     # the halo rule (common practice): halos may overlap; a footprint in another's halo may not
     from floorwidget.design import Design, Floorplan
-    from floorwidget.widget.canvas import illegal_blocks
+    from floorwidget.metrics import illegal_blocks
 
     d = Design("pair", (0, 0, 100, 100), ["a", "b"], [MACRO, MACRO], [20, 20], [10, 10],
                [0, 2], [0, 1], [0.0, 0.0], [0.0, 0.0], halo=np.full((2, 4), 2.0),

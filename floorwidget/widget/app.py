@@ -19,6 +19,7 @@ import numpy as np
 
 from .. import hierarchy as hier
 from ..design import FIXED, MACRO, ORIENTATIONS, STATUS_NAMES, Design, DesignError, Floorplan
+from ..kernels import fmt
 from ..session import ChangeEvent, Session
 from ._style import status_style, ui_colors
 from .canvas import Canvas, thumbnail
@@ -55,21 +56,8 @@ def _block_names(design: Design, blocks, what: str) -> list[str]:
     return out
 
 
-def _fmt(v: Any, unit: str = "") -> str:
-    if v is None:
-        return "–"
-    if isinstance(v, (bool, np.bool_)):
-        return "yes" if v else "no"
-    if isinstance(v, (int, np.integer)):
-        return f"{int(v):,d}{unit}"
-    f = float(v)
-    if abs(f) >= 1000:
-        return f"{f:,.0f}{unit}"
-    return f"{f:.3g}{unit}"
-
-
-def _pct(v: Any) -> str:
-    return "–" if v is None else f"{float(v):.0%}"
+def _figure(key: str, v: Any) -> str:
+    return fmt.percent(v) if key == "largest_logic_region" else fmt.value(v)
 
 
 class FloorplanWidget(W.VBox):
@@ -909,7 +897,7 @@ class FloorplanWidget(W.VBox):
         parts = [f"{verb} {what}."] + [f"{n[:1].upper()}{n[1:]}." for n in notes]
         rep = self._last_report
         if not rep.get("legal", True):
-            parts.append(f"Not legal now: {_fmt(rep.get('macro_overlaps'))} macro conflict "
+            parts.append(f"Not legal now: {fmt.value(rep.get('macro_overlaps'))} macro conflict "
                          "pair(s) under the halo rule; see the readouts.")
         self.notify(" ".join(parts))
 
@@ -1166,23 +1154,24 @@ class FloorplanWidget(W.VBox):
         info = self.session.floorplan.info
         solve = self.last_solve_s if self.last_solve_s is not None else info.get("seconds")
         rows = [
-            ("HPWL", f"{_fmt(hp, ' µm')}"),
+            ("HPWL", f"{fmt.value(hp, unit=' µm')}"),
             ("Δ HPWL (last change)", "–" if delta is None else f"{delta:+,.1f} µm"),
         ]
         if drag_delta is not None:
             rows.append(("Δ HPWL while dragging", f"{drag_delta:+,.1f} µm (its nets)"))
         rows += [
-            ("Density overflow", _fmt(r.get("density_overflow"))),
-            ("Congestion peak / p99", f"{_fmt(r.get('congestion_peak'))} / "
-                                      f"{_fmt(r.get('congestion_p99'))}"),
-            ("Macro overlaps", f"{_fmt(r.get('macro_overlaps'))} pairs, "
-                               f"{_fmt(r.get('macro_overlap_area'), ' µm²')}"),
-            ("Out of die / off grid", f"{_fmt(r.get('out_of_die'))} / {_fmt(r.get('off_grid'))}"),
-            ("Legal", _fmt(r.get("legal"))),
-            ("Narrow channels", f"{_fmt(r.get('narrow_channels'))} pairs"),
-            ("Pins to a wall", f"{_fmt(r.get('macros_facing_wall'))} macros"),
-            ("Logic regions", f"{_fmt(r.get('logic_regions'))}, largest "
-                              f"{_pct(r.get('largest_logic_region'))} of the free area"),
+            ("Density overflow", fmt.value(r.get("density_overflow"))),
+            ("Congestion peak / p99", f"{fmt.value(r.get('congestion_peak'))} / "
+                                      f"{fmt.value(r.get('congestion_p99'))}"),
+            ("Macro overlaps", f"{fmt.value(r.get('macro_overlaps'))} pairs, "
+                               f"{fmt.value(r.get('macro_overlap_area'), unit=' µm²')}"),
+            ("Out of die / off grid",
+             f"{fmt.value(r.get('out_of_die'))} / {fmt.value(r.get('off_grid'))}"),
+            ("Legal", fmt.value(r.get("legal"))),
+            ("Narrow channels", f"{fmt.value(r.get('narrow_channels'))} pairs"),
+            ("Pins to a wall", f"{fmt.value(r.get('macros_facing_wall'))} macros"),
+            ("Logic regions", f"{fmt.value(r.get('logic_regions'))}, largest "
+                              f"{fmt.percent(r.get('largest_logic_region'))} of the free area"),
             ("Last solve", "–" if solve is None else f"{float(solve):.2f} s"),
         ]
         ses = self.session
@@ -1217,7 +1206,7 @@ class FloorplanWidget(W.VBox):
         cur = self.session.report
         for lab, rep in [("current", cur)] + [(a.label, a.report) for a in alts]:
             cells = "".join(f"<td style='text-align:right;padding:0 8px'>"
-                            f"{(_pct if k == 'largest_logic_region' else _fmt)(rep.get(k))}"
+                            f"{_figure(k, rep.get(k))}"
                             "</td>" for k, _ in cols)
             rows.append(f"<tr><td>{html.escape(lab)}</td>{cells}</tr>")
         return (f"<table style='font-size:12px'><tr><th>label</th>{head}</tr>"

@@ -22,11 +22,12 @@ import numpy as np
 
 from .. import hierarchy as hier
 from ..design import CELL, CLUSTER, MACRO, STATUS_NAMES, TERMINAL, Design, Floorplan
+from ..metrics import illegal_blocks
 from ..style import GROUP_PALETTE, OTHER_GROUP, short_labels
 from . import geometry as geo
 from ._style import heat_colors, status_style, ui_colors
 
-__all__ = ["Canvas", "illegal_blocks", "thumbnail"]
+__all__ = ["Canvas", "thumbnail"]
 
 #: most blocks ringed after a search by name
 FOUND_LIMIT = 200
@@ -34,25 +35,6 @@ FOUND_LIMIT = 200
 BUNDLE_LIMIT = 100
 _HEAT_BINS = 64          # bins along the longer core side for the heat images
 _LABEL_PX_PER_CHAR = 6.0  # approximate width of one label character at 10 px (bold)
-
-
-def illegal_blocks(design: Design, fp: Floorplan) -> np.ndarray:
-    """Mask of macros that :func:`floorwidget.metrics.legality` finds at fault.
-
-    In conflict with another macro under the halo rule (a footprint inside the other's halo
-    box; halos may overlap each other), outside the die or core, on a placement blockage, or
-    (movable and pinned macros only) off the snap grid.
-    """
-    from .. import metrics
-
-    leg = metrics.legality(design, fp)
-    bad = np.zeros(design.num_blocks, bool)
-    pairs = np.asarray(leg["overlap_pairs"], dtype=np.intp).reshape(-1, 2)
-    bad[pairs.ravel()] = True
-    for key in ("out_of_die", "out_of_core", "on_blockage", "off_grid"):
-        bad[np.asarray(leg[key], dtype=np.intp)] = True
-    bad &= design.kind == MACRO
-    return bad
 
 
 def _set_list(mark, name: str, values: list) -> None:

@@ -16,13 +16,13 @@ from __future__ import annotations
 
 import html
 from collections.abc import Callable, Sequence
-from typing import Any
 
 import bqplot as bq
 import ipywidgets as widgets
 import numpy as np
 
 from ..explore import SweepResult, pareto_front, result_points, sweep
+from ..kernels import fmt
 
 __all__ = ["ParetoView", "SweepProgress", "overflow_colors", "run_sweep_with_bar"]
 
@@ -87,17 +87,6 @@ def _staircase(x: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     sx[0::2], sy[0::2] = xs, ys
     sx[1::2], sy[1::2] = xs[1:], ys[:-1]
     return sx, sy
-
-
-def _fmt(v: Any) -> str:
-    if isinstance(v, float):
-        return f"{v:.5g}"
-    if isinstance(v, dict):
-        return ", ".join(f"{k}: {_fmt(x)}" for k, x in v.items())
-    if isinstance(v, (set, frozenset, list, tuple)):
-        items = sorted(map(str, v)) if isinstance(v, (set, frozenset)) else list(map(_fmt, v))
-        return ", ".join(items) or "none"
-    return str(v)
 
 
 class ParetoView(widgets.VBox):
@@ -229,11 +218,13 @@ class ParetoView(widgets.VBox):
         """HTML of result ``index`` (into ``results``): parameters and figures."""
         r = self.results[index]
         rows = [f"<b>run {r.index}</b>"]
-        rows += [f"{html.escape(str(k))} = {html.escape(_fmt(v))}" for k, v in r.params.items()]
+        rows += [f"{html.escape(str(k))} = {html.escape(fmt.value(v, digits=5, big=1e5))}"
+                 for k, v in r.params.items()]
         if r.report:
             for k in dict.fromkeys(self.figure_keys):
                 if k in r.report:
-                    rows.append(f"{html.escape(_LABELS.get(k, k))}: {r.report[k]:.5g}")
+                    v = fmt.number(r.report[k], digits=5, big=1e5)
+                    rows.append(f"{html.escape(_LABELS.get(k, k))}: {v}")
         pos = self._pos_of.get(int(index))
         if pos is not None and self.front[pos]:
             rows.append("<i>non-dominated</i>")

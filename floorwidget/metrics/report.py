@@ -1,0 +1,102 @@
+"""The report: every figure of a floorplan as plain JSON values (:func:`evaluate`).
+
+The figures are early-floorplanning estimates for comparing alternatives; sign-off belongs to
+the implementation flow's timing, power and physical checks.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from ..design import Design, Floorplan
+from .congestion import congestion_stats, rudy_of_boxes
+from .density import bin_grid, density_map
+from .legality import cell_legality, legality, pinned_illegal
+from .shape import logic_regions, macros_facing_wall, narrow_channels
+from .wirelength import net_boxes
+
+__all__ = ["REPORT_KEYS", "evaluate"]
+
+REPORT_KEYS = (
+    "hpwl", "hpwl_weighted", "density_overflow", "peak_density", "congestion_peak",
+    "congestion_p99", "macro_overlaps", "macro_overlap_area", "out_of_die", "off_grid", "legal",
+    "num_blocks", "num_nets", "target_density", "cell_overlaps", "cells_off_row",
+    "cells_off_site", "narrow_channels", "macros_facing_wall", "logic_regions",
+    "largest_logic_region", "pinned_illegal",
+)
+
+
+def evaluate(design: Design, fp: Floorplan | None = None, target_density: float | None = None,
+             bin_size: float | None = None, channel: float | None = None) -> dict:
+    """Every report figure of a floorplan, as plain JSON-serialisable Python values.
+
+    These are early-floorplanning estimates for comparing alternatives; sign-off belongs to the
+    implementation flow's timing, power and physical checks.
+
+    Parameters
+    ----------
+    design : Design
+    fp : Floorplan, optional
+        Default ``design.initial``.
+    target_density : float, optional
+        For the overflow figure; default the value the placer used (``fp.info``), else 0.8.
+    bin_size : float, optional
+        Bin side, µm (default from :func:`bin_grid`).
+    channel : float, optional
+        Smallest open channel between facing macros, µm, for ``narrow_channels``; default the
+        one the placer used (``fp.info["channel"]``), else :func:`default_channel`.
+
+    Returns
+    -------
+    dict
+        Keys :data:`REPORT_KEYS`: ``hpwl`` and ``hpwl_weighted`` (µm), ``density_overflow``,
+        ``peak_density``, ``congestion_peak`` and ``congestion_p99`` (RUDY, µm/µm²),
+        ``macro_overlaps`` (pairs in conflict under the halo rule), ``macro_overlap_area`` (µm²),
+        ``out_of_die`` (blocks), ``off_grid`` (macros), ``legal``, ``num_blocks``, ``num_nets``;
+        the floorplan's shape: ``narrow_channels`` (:func:`channel_gaps`),
+        ``macros_facing_wall`` (:func:`facing_wall`), ``logic_regions`` and
+        ``largest_logic_region`` (:func:`logic_regions`).
+
+    Examples
+    --------
+    >>> import floorwidget as fw
+    >>> d = fw.load("demo_data/heron_dsp.json")   # doctest: +SKIP
+    >>> sorted(fw.evaluate(d))[:3]                 # doctest: +SKIP
+    ['congestion_p99', 'congestion_peak', 'density_overflow']
+    """
+    fp = design.initial if fp is None else fp
+    if target_density is None:
+        target_density = float(fp.info.get("target_density", 0.8))
+    grid = bin_grid(design, bin_size)
+    box = net_boxes(design, fp)
+    per = (box[:, 2] - box[:, 0]) + (box[:, 3] - box[:, 1])
+    dm = density_map(design, fp, grid)
+    peak, p99 = congestion_stats(rudy_of_boxes(grid, box))
+    leg = legality(design, fp)
+    cl = cell_legality(design, fp)
+    lr = logic_regions(design, fp)
+    return {
+        "hpwl": float(per.sum()),
+        "hpwl_weighted": float(np.dot(per, design.net_weight)),
+        "density_overflow": dm.overflow(target_density),
+        "peak_density": float(dm.utilisation.max()),
+        "congestion_peak": peak,
+        "congestion_p99": p99,
+        "macro_overlaps": int(leg["macro_overlaps"]),
+        "macro_overlap_area": float(leg["macro_overlap_area"]),
+        "out_of_die": int(len(leg["out_of_die"])),
+        "off_grid": int(len(leg["off_grid"])),
+        "legal": bool(leg["legal"]) and cl["cells_legal"],
+        "num_blocks": int(design.num_blocks),
+        "num_nets": int(design.num_nets),
+        "target_density": float(target_density),
+        "cell_overlaps": cl["cell_overlaps"],
+        "cells_off_row": cl["cells_off_row"],
+        "cells_off_site": cl["cells_off_site"],
+        "narrow_channels": narrow_channels(
+            design, fp, fp.info.get("channel") if channel is None else channel),
+        "macros_facing_wall": macros_facing_wall(design, fp),
+        "logic_regions": lr.count,
+        "largest_logic_region": lr.largest,
+        "pinned_illegal": ", ".join(pinned_illegal(design, fp, leg)),
+    }
