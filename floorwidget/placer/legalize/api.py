@@ -9,9 +9,9 @@ from collections.abc import Callable, Iterable
 import numpy as np
 
 from ...design import MACRO, MOVABLE, Design, Floorplan
+from ...kernels import rects
 from .._select import movable_macros
 from ..errors import PlacementError
-from .geometry import _conflicts, _grow, _union_area
 from .packer import _Packer
 from .problem import _Problem
 
@@ -25,7 +25,7 @@ def _check_obstacles(design: Design, fp: Floorplan) -> None:
     stay = np.flatnonzero((design.kind == MACRO) & (fp.status != MOVABLE))
     if len(stay) < 2:
         return
-    i, j = _conflicts(fp.rects()[stay], fp.rects(halo=True)[stay])
+    i, j = rects.halo_conflicts(fp.rects()[stay], fp.rects(halo=True)[stay])[:2]
     if len(i):
         a, b = stay[i[0]], stay[j[0]]
         st = ("movable", "pinned", "fixed")
@@ -46,8 +46,8 @@ def _check_capacity(prob: _Problem) -> None:
             f"does not fit inside the core {prob.core.tolist()} on the placement grid")
     c = prob.core
     core_area = (c[2] - c[0]) * (c[3] - c[1])
-    blocked = np.concatenate([prob.blk, _grow(prob.obst, prob.obst_halo)])
-    free = core_area - _union_area(blocked, c)
+    blocked = np.concatenate([prob.blk, rects.grow(prob.obst, prob.obst_halo)])
+    free = core_area - rects.union_area(blocked, c)
     need = float((prob.w * prob.h).sum())
     if need > free * (1 + 1e-12):
         raise PlacementError(

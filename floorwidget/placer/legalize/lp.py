@@ -8,7 +8,8 @@ import numpy as np
 from scipy import sparse
 from scipy.optimize import linprog
 
-from .geometry import _EPS, _grow, _pairs
+from ...kernels import rects
+from .tuning import _EPS
 
 
 class _LPMixin:
@@ -52,7 +53,7 @@ class _LPMixin:
         for _ in range(rounds):
             hb = self.halo_boxes(x, y)
             fb = self.foot_boxes(x, y)
-            i, j = _pairs(fb, hb)  # footprint i against halo box j
+            i, j = rects.overlap_pairs(fb, hb)  # footprint i against halo box j
             keep = i != j
             i, j = i[keep], j[keep]
             if not len(i):
@@ -93,7 +94,7 @@ class _LPMixin:
         grow = np.array([-trust, -trust, trust, trust])
         w, h, lf, b, r, t = self.w, self.h, self.l, self.b, self.r, self.t
         # --- macro pairs that could meet: choose one satisfied separation per pair
-        i, j = _pairs(hb + grow)
+        i, j = rects.overlap_pairs(hb + grow)
         if len(i):
             sep = np.stack([  # bodies apart by the larger facing halo (the halo rule)
                 np.ceil((w[i] + np.maximum(r[i], lf[j])) / px - _EPS),  # i left of j
@@ -119,7 +120,7 @@ class _LPMixin:
         # --- macro-obstacle and macro-blockage pairs become bounds
         boxes, halos, is_blk = self.obstacles()
         if len(boxes):
-            a, o = _pairs(hb + grow, _grow(boxes, halos))
+            a, o = rects.overlap_pairs(hb + grow, rects.grow(boxes, halos))
         else:
             a = o = np.zeros(0, np.intp)
         if len(a):

@@ -10,7 +10,8 @@ import numpy as np
 from numba import njit
 
 from ...design import orient_offsets
-from .geometry import (
+from .lp import _solve_axis
+from .tuning import (
     _DISP_WEIGHT,
     _EPS,
     _POLISH_PER_MACRO,
@@ -19,7 +20,6 @@ from .geometry import (
     _SWAP_WINDOW,
     _T0,
 )
-from .lp import _solve_axis
 
 if TYPE_CHECKING:
     from .problem import _Problem

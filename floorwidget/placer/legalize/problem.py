@@ -6,9 +6,10 @@ from __future__ import annotations
 import numpy as np
 
 from ...design import MACRO, Design, Floorplan, off_grid
+from ...kernels import rects
 from ..constraints import macro_keepouts
-from .geometry import _EPS, _GRID_TOL, _conflicts, _grow, _pairs
 from .lp import _LPMixin
+from .tuning import _EPS, _GRID_TOL
 
 # ---------------------------------------------------------------------------------------------
 # the problem: movable macros (the set M) against obstacles
@@ -99,14 +100,14 @@ class _Problem(_LPMixin):
         bad |= (hb[:, 0] < d[0]) | (hb[:, 1] < d[1]) | (hb[:, 2] > d[2]) | (hb[:, 3] > d[3])
         bad |= off_grid(x, self.ox, self.px, _GRID_TOL) | off_grid(y, self.oy, self.py, _GRID_TOL)
         if len(self.blk):
-            i, _ = _pairs(fb, self.blk)
+            i, _ = rects.overlap_pairs(fb, self.blk)
             bad[i] = True
         if len(self.obst):
-            i, _ = _pairs(fb, _grow(self.obst, self.obst_halo))
+            i, _ = rects.overlap_pairs(fb, rects.grow(self.obst, self.obst_halo))
             bad[i] = True
-            i, _ = _pairs(hb, self.obst)
+            i, _ = rects.overlap_pairs(hb, self.obst)
             bad[i] = True
-        i, j = _conflicts(fb, hb)
+        i, j, _ = rects.halo_conflicts(fb, hb)
         return bad, i, j
 
     # --- nearest free spot ---------------------------------------------------------------
