@@ -358,6 +358,10 @@ class Design:
         self.name = str(name)
         self.source = source
         self.lef_files: list[str] = []
+        #: Routing layers ``(name, "H" | "V", pitch µm)`` from the LEF or the DEF TRACKS; the
+        #: congestion figures divide routing demand by their supply (empty: an assumed stack,
+        #: :func:`floorwidget.metrics.routing_supply`).
+        self.routing_layers: list[tuple[str, str, float]] = []
         self.dbu = int(dbu)
         self.die = _f64(die, (4,))
         self.names = list(names)

@@ -103,8 +103,8 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
     path : str or Path, optional
         ``.png`` or ``.svg``; written atomically (a temporary file beside it, then renamed).
     heat : {None, "density", "congestion"}
-        Heat layer: bin utilisation (:func:`floorwidget.metrics.density_map`) or RUDY demand
-        (:func:`floorwidget.metrics.rudy_map`).
+        Heat layer: bin utilisation (:func:`floorwidget.metrics.density_map`) or routing
+        demand over supply (:func:`floorwidget.metrics.congestion_map`, 1.0 = full).
     show_labels : bool
         Write macro names: the part that tells each apart, inside its macro or not at all,
         never two overlapping (:func:`floorwidget.style.place_labels`); the SVG ids keep the
@@ -197,8 +197,9 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
         data = metrics.density_map(design, fp, grid).utilisation
         cmap, raster_label = style.mpl_colormap("density"), "bin utilisation (movable + fixed)"
     elif heat == "congestion":
-        data = metrics.rudy_map(design, fp, grid)
-        cmap, raster_label = style.mpl_colormap("congestion"), "RUDY demand, µm of wire per µm²"
+        data = metrics.congestion_map(design, fp, grid)
+        cmap, raster_label = (style.mpl_colormap("congestion"),
+                              "congestion: routing demand / supply (1.0 = full)")
     else:
         soft = (kind == CLUSTER) | (kind == CELL)
         data = metrics.rect_area_map(grid, rects[soft]) / grid.bin_area if soft.any() else None
@@ -419,7 +420,7 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
     sub = (f"HPWL {numfmt.number(rep['hpwl'], digits=4, unit=' µm')} · overflow "
            f"{numfmt.number(rep['density_overflow'])} at "
            f"{numfmt.number(rep['target_density'])} · "
-           f"RUDY peak {numfmt.number(rep['congestion_peak'])} · "
+           f"congestion p99 {numfmt.number(rep['congestion_p99'])} of supply · "
            f"{state}"
            f"\n{rep['narrow_channels']} narrow channels · {rep['macros_facing_wall']} macros "
            f"with pins to a wall · {rep['logic_regions']} logic regions (largest "

@@ -27,7 +27,15 @@ with the macro legaliser.  Every public name of the modules is importable from h
 from __future__ import annotations
 
 from ..kernels.rects import TOL
-from .congestion import congestion_stats, rudy_map, rudy_of_boxes
+from .congestion import (
+    ASSUMED_TRACKS,
+    congestion_map,
+    congestion_of_boxes,
+    congestion_stats,
+    routing_supply,
+    rudy_map,
+    rudy_of_boxes,
+)
 from .density import (
     MAX_BINS,
     BinGrid,
@@ -67,7 +75,11 @@ __all__ = [
     "bin_grid",
     "cell_legality",
     "channel_gaps",
+    "ASSUMED_TRACKS",
+    "congestion_map",
+    "congestion_of_boxes",
     "congestion_stats",
+    "routing_supply",
     "default_channel",
     "density_map",
     "density_overflow",

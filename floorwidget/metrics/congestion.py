@@ -1,10 +1,20 @@
-"""Congestion: RUDY routing demand per bin and its summary figures.
+"""Congestion: RUDY routing demand per bin, the routing supply of the layers, and their ratio.
 
 **RUDY** (Spindler and Johannes, DATE 2007): each net spreads a demand density
 ``(w + h) / (w * h)`` uniformly over its bounding box, so that the box holds ``w + h`` = its
 HPWL in total.  A box thinner than one bin in x (or y) is widened, about its centre, to one bin
 width (height) while the net's total demand stays ``w + h``.  The map is *wire length per unit
 area*, µm / µm² (= 1/µm), per bin; multiply by a bin's area for µm of wire in it.
+
+**Congestion** as an engineer reads it is demand over supply, 1.0 = full: the horizontal part
+of each net's RUDY (``w / (w h)``) over the horizontal tracks per µm of the routing layers
+(``Σ 1 / pitch`` over the layers whose preferred direction is horizontal), likewise vertical,
+and the larger of the two per bin (:func:`congestion_map`).  The lowest routing layer is left
+out of the supply: it carries the standard cells' own pins and wiring (common practice).  A
+design without layer data gets an assumed stack (:data:`ASSUMED_TRACKS`), said so in
+:func:`routing_supply`'s answer.  RUDY is a wirelength estimate; detours, vias and pin access
+take more, so a map near 1.0 is already tight: an early-floorplanning estimate, not a routing
+result.
 
 References
 ----------
@@ -20,7 +30,12 @@ from ..design import Design, Floorplan
 from .density import BinGrid, bin_grid, rect_area_map
 from .wirelength import net_boxes
 
-__all__ = ["congestion_stats", "rudy_map", "rudy_of_boxes"]
+__all__ = ["ASSUMED_TRACKS", "congestion_map", "congestion_of_boxes", "congestion_stats",
+           "routing_supply", "rudy_map", "rudy_of_boxes"]
+
+#: Without layer data: this many tracks per row height in each direction (two horizontal and
+#: two vertical layers of a ten-track row; an assumption, not a technology figure).
+ASSUMED_TRACKS = 20.0
 
 
 
@@ -52,14 +67,15 @@ def rudy_map(design: Design, fp: Floorplan, grid: BinGrid | None = None) -> np.n
     return rudy_of_boxes(grid, net_boxes(design, fp))
 
 
-def rudy_of_boxes(grid: BinGrid, box: np.ndarray) -> np.ndarray:
+def rudy_of_boxes(grid: BinGrid, box: np.ndarray, part: str = "hv") -> np.ndarray:
     """RUDY map (as :func:`rudy_map`) of given net boxes, ``(m, 4)`` rows ``xlo, ylo, xhi, yhi``.
 
     For a caller that has the boxes already (the report computes them once for HPWL too).
+    ``part`` "h" keeps only the horizontal demand ``w``, "v" the vertical ``h``, "hv" both.
     """
     w = box[:, 2] - box[:, 0]
     h = box[:, 3] - box[:, 1]
-    demand = w + h
+    demand = (w if "h" in part else 0.0) + (h if "v" in part else 0.0)
     ew = np.maximum(w, grid.bw)
     eh = np.maximum(h, grid.bh)
     cx = (box[:, 0] + box[:, 2]) / 2
@@ -72,8 +88,55 @@ def rudy_of_boxes(grid: BinGrid, box: np.ndarray) -> np.ndarray:
     return m
 
 
+def routing_supply(design: Design) -> tuple[float, float, bool]:
+    """Routing supply ``(horizontal, vertical, assumed)``: tracks per µm across each direction
+    (µm of wire per µm² of area), from ``design.routing_layers`` without the lowest layer, or
+    :data:`ASSUMED_TRACKS` per median row height (per 1 % of the shorter core side without
+    rows) in each direction when the design has no layer data (``assumed`` True)."""
+    layers = list(design.routing_layers)[1:]
+    sh = sum(1.0 / p for _, d, p in layers if d == "H" and p > 0)
+    sv = sum(1.0 / p for _, d, p in layers if d == "V" and p > 0)
+    if sh > 0 and sv > 0:
+        return sh, sv, False
+    if len(design.row_height):
+        unit = float(np.median(design.row_height))
+    else:
+        c = design.core
+        unit = 0.01 * float(min(c[2] - c[0], c[3] - c[1]))
+    s = ASSUMED_TRACKS / max(unit, 1e-12)
+    return s, s, True
+
+
+def congestion_of_boxes(design: Design, grid: BinGrid, box: np.ndarray) -> np.ndarray:
+    """Demand over supply per bin (1.0 = full): the larger of the horizontal RUDY over the
+    horizontal supply and the vertical over the vertical (:func:`routing_supply`)."""
+    sh, sv, _ = routing_supply(design)
+    return np.maximum(rudy_of_boxes(grid, box, "h") / sh, rudy_of_boxes(grid, box, "v") / sv)
+
+
+def congestion_map(design: Design, fp: Floorplan, grid: BinGrid | None = None) -> np.ndarray:
+    """Routing demand over supply per bin (:func:`congestion_of_boxes`), 1.0 = full.
+
+    Parameters
+    ----------
+    design : Design
+    fp : Floorplan
+    grid : BinGrid, optional
+
+    Returns
+    -------
+    (nx, ny) float64 array
+
+    References
+    ----------
+    P. Spindler and F. M. Johannes, DATE 2007 (RUDY, the demand).
+    """
+    grid = bin_grid(design) if grid is None else grid
+    return congestion_of_boxes(design, grid, net_boxes(design, fp))
+
+
 def congestion_stats(rudy: np.ndarray) -> tuple[float, float]:
-    """``(peak, 99th percentile)`` of a RUDY map."""
+    """``(peak, 99th percentile)`` of a map (RUDY or congestion)."""
     if rudy.size == 0:
         return 0.0, 0.0
     v = rudy.ravel()

@@ -9,7 +9,7 @@ from __future__ import annotations
 import numpy as np
 
 from ..design import Design, Floorplan
-from .congestion import congestion_stats, rudy_of_boxes
+from .congestion import congestion_of_boxes, congestion_stats, rudy_of_boxes
 from .density import bin_grid, density_map
 from .legality import cell_legality, legality, pinned_illegal
 from .shape import logic_regions, macros_facing_wall, narrow_channels
@@ -19,7 +19,8 @@ __all__ = ["REPORT_KEYS", "evaluate"]
 
 REPORT_KEYS = (
     "hpwl", "hpwl_weighted", "density_overflow", "peak_density", "congestion_peak",
-    "congestion_p99", "macro_overlaps", "macro_overlap_area", "out_of_die", "off_grid", "legal",
+    "congestion_p99", "rudy_peak", "rudy_p99", "macro_overlaps", "macro_overlap_area",
+    "out_of_die", "off_grid", "legal",
     "num_blocks", "num_nets", "target_density", "cell_overlaps", "cells_off_row",
     "cells_off_site", "narrow_channels", "macros_facing_wall", "logic_regions",
     "largest_logic_region", "pinned_illegal",
@@ -50,7 +51,9 @@ def evaluate(design: Design, fp: Floorplan | None = None, target_density: float 
     -------
     dict
         Keys :data:`REPORT_KEYS`: ``hpwl`` and ``hpwl_weighted`` (µm), ``density_overflow``,
-        ``peak_density``, ``congestion_peak`` and ``congestion_p99`` (RUDY, µm/µm²),
+        ``peak_density``, ``congestion_peak`` and ``congestion_p99`` (routing demand over
+        supply, 1.0 = full: :func:`congestion_map`), ``rudy_peak`` and ``rudy_p99`` (the raw
+        RUDY demand, µm/µm²),
         ``macro_overlaps`` (pairs in conflict under the halo rule), ``macro_overlap_area`` (µm²),
         ``out_of_die`` (blocks), ``off_grid`` (macros), ``legal``, ``num_blocks``, ``num_nets``;
         the floorplan's shape: ``narrow_channels`` (:func:`channel_gaps`),
@@ -71,7 +74,8 @@ def evaluate(design: Design, fp: Floorplan | None = None, target_density: float 
     box = net_boxes(design, fp)
     per = (box[:, 2] - box[:, 0]) + (box[:, 3] - box[:, 1])
     dm = density_map(design, fp, grid)
-    peak, p99 = congestion_stats(rudy_of_boxes(grid, box))
+    rpeak, rp99 = congestion_stats(rudy_of_boxes(grid, box))
+    peak, p99 = congestion_stats(congestion_of_boxes(design, grid, box))
     leg = legality(design, fp)
     cl = cell_legality(design, fp)
     lr = logic_regions(design, fp)
@@ -82,6 +86,8 @@ def evaluate(design: Design, fp: Floorplan | None = None, target_density: float 
         "peak_density": float(dm.utilisation.max()),
         "congestion_peak": peak,
         "congestion_p99": p99,
+        "rudy_peak": rpeak,
+        "rudy_p99": rp99,
         "macro_overlaps": int(leg["macro_overlaps"]),
         "macro_overlap_area": float(leg["macro_overlap_area"]),
         "out_of_die": int(len(leg["out_of_die"])),

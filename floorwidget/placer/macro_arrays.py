@@ -26,10 +26,11 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ..design import FIXED, MACRO, MOVABLE, Design, Floorplan
+from ..design import FIXED, MACRO, MOVABLE, Design, Floorplan, orient_offsets
+from ..metrics import routing_supply
 from .constraints import macro_keepouts
 
-__all__ = ["ArrayPlan", "array_key", "macro_arrays"]
+__all__ = ["ArrayPlan", "array_key", "macro_arrays", "pin_channel", "side_pins"]
 
 _INDEX = re.compile(r"\\?\[\s*\d+\s*\\?\]|(?<=_)\d+(?=$|[./_])|<\d+>")
 MAX_ARRAY = 16  # members of one array at most; a larger bank is cut by position
@@ -50,6 +51,37 @@ def array_key(name: str) -> str:
     if last is None:
         return name
     return name[:last.start()] + "*" + name[last.end():]
+
+
+def side_pins(design: Design, fp: Floorplan, idx: np.ndarray) -> np.ndarray:
+    """``(len(idx), 4)`` pins of each block on its left, bottom, right and top side, in its
+    orientation in ``fp``: a pin belongs to the side its offset is nearest to (relative to
+    the half sizes, so a pin on the bottom edge of a tall macro counts there)."""
+    idx = np.asarray(idx, dtype=np.intp)
+    where = np.full(design.num_blocks, -1, np.intp)
+    where[idx] = np.arange(len(idx))
+    pins = np.flatnonzero(where[design.pin_block] >= 0)
+    b = design.pin_block[pins]
+    ox, oy = orient_offsets(design.pin_dx[pins], design.pin_dy[pins], fp.orient[b])
+    w, h = fp.sizes()
+    hw, hh = np.maximum(w[b] / 2, 1e-12), np.maximum(h[b] / 2, 1e-12)
+    side = np.argmax(np.stack([-ox / hw, -oy / hh, ox / hw, oy / hh], axis=1), axis=1)
+    out = np.zeros((len(idx), 4), np.int64)
+    np.add.at(out, (where[b], side), 1)
+    return out
+
+
+def pin_channel(design: Design, pins: np.ndarray) -> np.ndarray:
+    """Room (µm) that ``pins`` (per side: left, bottom, right, top) need on each side of a
+    macro or array: every pin's wire takes a track along the channel, so a vertical channel
+    (left and right sides) needs ``pins / vertical tracks per µm`` and a horizontal one
+    ``pins / horizontal tracks per µm`` (:func:`floorwidget.metrics.routing_supply`).  Two
+    facing sides share their channel; the halo rule keeps facing blocks apart by the larger
+    of their two halos, so each side asks for twice its own share:
+    ``2 × pins / supply`` ≥ ``(pins_a + pins_b) / supply``."""
+    sh, sv, _ = routing_supply(design)
+    per = np.array([sv, sh, sv, sh])
+    return 2.0 * np.asarray(pins, np.float64) / per
 
 
 def _bisect(members: np.ndarray, x: np.ndarray, y: np.ndarray, max_size: int) -> list:
@@ -105,6 +137,23 @@ def _shape(n: int, pitch_x: float, pitch_y: float, aspect: float) -> tuple[int, 
     return shape
 
 
+def slot_order(mem: np.ndarray, cx: np.ndarray, cy: np.ndarray, cols: int) -> np.ndarray:
+    """Members in slot order for ``cols`` columns: rows of ``cols`` by their centres' y (the
+    bottom row first), each row left to right by x, so the array keeps the order they were
+    placed in."""
+    by_y = mem[np.argsort(cy[mem], kind="stable")]
+    rows = [by_y[s:s + cols] for s in range(0, len(by_y), cols)]
+    return np.concatenate([r[np.argsort(cx[r], kind="stable")] for r in rows])
+
+
+def shape_options(n: int) -> list[tuple[int, int]]:
+    """Shapes (rows, cols) an array of ``n`` may take: one row, one column, and two rows or
+    two columns -- strips that line the logic rather than blocks that reach into it."""
+    half = -(-n // 2)
+    return list(dict.fromkeys([(1, n), (n, 1), (2, half) if n > 2 else (1, n),
+                               (half, 2) if n > 2 else (n, 1)]))
+
+
 @dataclass
 class ArrayPlan:
     """Arrays as rectangles on a design of their own.
@@ -118,9 +167,10 @@ class ArrayPlan:
     pitch : (k, 2) array
         Distance between neighbouring members' lower-left corners, µm (on the grid).
     design : Design
-        One MACRO block per array (footprint: the members' bounding box; halo: ``spacing``
-        where that exceeds the members' own) then one FIXED block per macro that does not
-        move (footprint and halo as in the input); the rows, grid and keep-outs of the input.
+        One MACRO block per array (footprint: the members' bounding box; halo per side: the
+        members' own, ``spacing``, or what the pins on that side need, :func:`pin_channel`,
+        whichever is largest) then one FIXED block per macro that does not move (footprint
+        and halo as in the input); the rows, grid and keep-outs of the input.
     floorplan : Floorplan
         The arrays centred on their members' centroid, on the grid.
     """
@@ -131,6 +181,10 @@ class ArrayPlan:
     pitch: np.ndarray
     design: Design
     floorplan: Floorplan
+    spacing: float
+    pins: np.ndarray  # (num_blocks, 4) pins per side of every macro (0 elsewhere)
+    member_halo: np.ndarray  # (k, 4) the halo of each array's members
+    per_pin: np.ndarray  # (4,) room one pin needs on each side (pin_channel of one pin), µm
 
     @classmethod
     def build(cls, design: Design, fp: Floorplan, arrays: list, spacing: float,
@@ -142,9 +196,8 @@ class ArrayPlan:
         cx, cy = fp.centres()
         gx, gy = design.grid_pitch
         k = len(arrays)
-        rows, cols = np.ones(k, np.int64), np.ones(k, np.int64)
+        cols = np.ones(k, np.int64)
         pitch = np.zeros((k, 2))
-        aw, ah, ahalo = np.zeros(k), np.zeros(k), np.zeros((k, 4))
         members = []
         for a, mem in enumerate(arrays):
             i = int(mem[0])
@@ -152,51 +205,82 @@ class ArrayPlan:
             px = np.ceil((w[i] + max(hl[0], hl[2])) / gx - 1e-9) * gx
             py = np.ceil((h[i] + max(hl[1], hl[3])) / gy - 1e-9) * gy
             if shapes is not None:
-                r, c = shapes[a]
+                c = shapes[a][1]
             else:
                 sx = max(float(np.ptp(cx[mem])), px)
                 sy = max(float(np.ptp(cy[mem])), py)
-                r, c = _shape(len(mem), px, py, sy / sx)
-            # slots: rows by the members' global y, each row left to right by x
-            by_y = mem[np.argsort(cy[mem], kind="stable")]
-            slots = [row[np.argsort(cx[row], kind="stable")]
-                     for row in np.array_split(by_y, r) if len(row)]
-            members.append(np.concatenate(slots))
-            rows[a], cols[a] = len(slots), max(len(s) for s in slots)
+                c = _shape(len(mem), px, py, sy / sx)[1]
+            members.append(slot_order(mem, cx, cy, c))
+            cols[a] = c
             pitch[a] = px, py
-            aw[a] = (cols[a] - 1) * px + w[i]
-            ah[a] = (rows[a] - 1) * py + h[i]
-            ahalo[a] = np.maximum(hl, spacing)
         stay = np.flatnonzero((design.kind == MACRO) & (fp.status != MOVABLE))
         names = [f"array{a}" for a in range(k)] + [design.names[i] for i in stay]
         n = len(names)
-        kinds = np.full(n, MACRO, np.int8)
-        sw, sh = fp.sizes()
-        width = np.concatenate([aw, sw[stay]])
-        height = np.concatenate([ah, sh[stay]])
-        halo = np.concatenate([ahalo, design.halo[stay]])
-        cxa = np.array([np.mean(cx[m]) for m in members]) if k else np.zeros(0)
-        cya = np.array([np.mean(cy[m]) for m in members]) if k else np.zeros(0)
-        x = np.concatenate([cxa - aw / 2, fp.x[stay]])
-        y = np.concatenate([cya - ah / 2, fp.y[stay]])
-        status = np.concatenate([np.full(k, MOVABLE, np.int8), np.full(len(stay), FIXED,
-                                                                      np.int8)])
-        orient = np.zeros(n, np.int8)
-        orient[k:] = 0  # footprints of the fixed ones are given in place (sizes above)
+        first = np.array([int(m[0]) for m in members], np.intp)
+        width = np.concatenate([w[first], w[stay]])
+        height = np.concatenate([h[first], h[stay]])
+        halo = np.concatenate([design.halo[first], design.halo[stay]])
         rows_d = {"x": design.row_x, "y": design.row_y, "height": design.row_height,
                   "site_width": design.row_site_width, "num_sites": design.row_num_sites,
                   "orient": design.row_orient}
-        small = Design(f"{design.name}:arrays", design.die, names, kinds, width, height,
-                       np.zeros(1, np.int64), np.zeros(0, np.int64), np.zeros(0), np.zeros(0),
-                       halo=halo, orient_allowed=np.ones(n, np.uint8), rows=rows_d,
+        status = np.concatenate([np.full(k, MOVABLE, np.int8),
+                                 np.full(len(stay), FIXED, np.int8)])
+        small = Design(f"{design.name}:arrays", design.die, names, np.full(n, MACRO, np.int8),
+                       width, height, np.zeros(1, np.int64), np.zeros(0, np.int64),
+                       np.zeros(0), np.zeros(0), halo=halo,
+                       orient_allowed=np.ones(n, np.uint8), rows=rows_d,
                        grid_pitch=design.grid_pitch, grid_origin=design.grid_origin,
-                       blockages=macro_keepouts(design), x=x, y=y, orient=orient,
+                       blockages=macro_keepouts(design), x=np.zeros(n), y=np.zeros(n),
                        status=status, validate=False)
-        sfp = small.initial
+        small.initial.x[k:], small.initial.y[k:] = fp.x[stay], fp.y[stay]
+        mac = np.flatnonzero(design.kind == MACRO)
+        pins = np.zeros((design.num_blocks, 4), np.int64)
+        pins[mac] = side_pins(design, fp, mac)
+        plan = cls(members, np.ones(k, np.int64), cols, pitch, small, small.initial, spacing,
+                   pins, design.halo[first].copy(), pin_channel(design, np.ones(4)))
+        for a in range(k):
+            plan._size(a, w[first[a]], h[first[a]])
         g0 = design.grid_origin
-        sfp.x[:k] = g0[0] + np.round((sfp.x[:k] - g0[0]) / gx) * gx
-        sfp.y[:k] = g0[1] + np.round((sfp.y[:k] - g0[1]) / gy) * gy
-        return cls(members, rows, cols, pitch, small, sfp)
+        sfp = plan.floorplan
+        for a, mem in enumerate(members):
+            sfp.x[a] = g0[0] + np.round((np.mean(cx[mem]) - small.width[a] / 2 - g0[0]) / gx) * gx
+            sfp.y[a] = g0[1] + np.round((np.mean(cy[mem]) - small.height[a] / 2 - g0[1]) / gy) \
+                * gy
+        return plan
+
+    def _size(self, a: int, mw: float, mh: float) -> None:
+        """Footprint and halo of array ``a`` in its current shape, from one member's
+        footprint ``mw × mh``: the halo per side is the largest of the members' own,
+        :attr:`spacing` and :func:`pin_channel` of the pins on that side of the array."""
+        mem = self.members[a]
+        n, c = len(mem), int(self.cols[a])
+        r = -(-n // c)
+        self.rows[a] = r
+        slot = np.arange(n)
+        col, row = slot % c, slot // c
+        last_row = n - (r - 1) * c  # members in the top row
+        outer = [col == 0, row == 0, (col == c - 1) | (slot == n - 1),
+                 (row == r - 1) | ((row == r - 2) & (col >= last_row))]
+        pins = np.array([self.pins[mem[m], s].sum() for s, m in enumerate(outer)])
+        d = self.design
+        d.width[a] = (c - 1) * self.pitch[a, 0] + mw
+        d.height[a] = (r - 1) * self.pitch[a, 1] + mh
+        d.halo[a] = np.maximum(np.maximum(self.member_halo[a], self.spacing),
+                               pins * self.per_pin)
+
+    def reshape(self, a: int, cols: int, cx: np.ndarray, cy: np.ndarray) -> None:
+        """Array ``a`` with ``cols`` columns (slots ordered by the centres ``cx, cy``)."""
+        mw, mh = self.member_size(a)
+        self.members[a] = slot_order(self.members[a], cx, cy, cols)
+        self.cols[a] = cols
+        self._size(a, mw, mh)
+
+    def member_size(self, a: int) -> np.ndarray:
+        """Footprint of one member of array ``a`` (all are alike), µm."""
+        d = self.design
+        c, r = int(self.cols[a]), int(self.rows[a])
+        return np.array([d.width[a] - (c - 1) * self.pitch[a, 0],
+                         d.height[a] - (r - 1) * self.pitch[a, 1]])
 
     def expand(self, fp: Floorplan, arranged: Floorplan) -> Floorplan:
         """The macros of ``fp`` moved to their slots in the arrays as ``arranged`` (a

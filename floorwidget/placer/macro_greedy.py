@@ -29,7 +29,7 @@ import numpy as np
 
 from ..design import CELL, CLUSTER, MACRO, MOVABLE, Design, Floorplan, orient_offsets
 from ..metrics import pin_positions
-from .macro_arrays import ArrayPlan
+from .macro_arrays import ArrayPlan, shape_options
 
 __all__ = ["MAX_NET_PINS", "greedy_arrays"]
 
@@ -38,7 +38,8 @@ LATTICE = 160        # candidate corners along the longer core side (at least th
 
 
 def _member_offsets(design: Design, fp: Floorplan, plan: ArrayPlan, a: int):
-    """Pins of array ``a``: their block, net and offset from the array's lower-left corner."""
+    """Pins of array ``a`` in its current shape: their indices and offsets from the array's
+    lower-left corner."""
     mem = plan.members[a]
     c = int(plan.cols[a])
     slot = np.arange(len(mem))
@@ -80,9 +81,101 @@ def _box_sums(area: np.ndarray, kx: int, ky: int) -> np.ndarray:
     return s[i1][:, j1] - s[i][:, j1] - s[i1][:, j] + s[i][:, j]
 
 
+class _Lattice:
+    """Candidate lower-left corners on the placement grid, about :data:`LATTICE` along the
+    longer core side, and the standard-cell area per lattice cell."""
+
+    def __init__(self, design: Design, fp: Floorplan):
+        c = design.core
+        gx, gy = design.grid_pitch
+        g0 = design.grid_origin
+        side = max(c[2] - c[0], c[3] - c[1]) / LATTICE
+        self.step = np.array([max(np.ceil(side / gx), 1) * gx, max(np.ceil(side / gy), 1) * gy])
+        x0 = g0[0] + np.ceil((c[0] - g0[0]) / gx - 1e-9) * gx
+        y0 = g0[1] + np.ceil((c[1] - g0[1]) / gy - 1e-9) * gy
+        self.xs = x0 + self.step[0] * np.arange(int((c[2] - x0) // self.step[0]) + 1)
+        self.ys = y0 + self.step[1] * np.arange(int((c[3] - y0) // self.step[1]) + 1)
+        soft = ((design.kind == CELL) | (design.kind == CLUSTER)) & (fp.status == MOVABLE)
+        w, h = fp.sizes()
+        cx, cy = fp.centres()
+        ix = np.clip(((cx[soft] - x0) // self.step[0]).astype(np.intp), 0, len(self.xs) - 1)
+        iy = np.clip(((cy[soft] - y0) // self.step[1]).astype(np.intp), 0, len(self.ys) - 1)
+        self.area = np.zeros((len(self.xs), len(self.ys)))
+        np.add.at(self.area, (ix, iy), w[soft] * h[soft])
+
+    def span(self, rect: np.ndarray, sep: np.ndarray, w: float, h: float) -> tuple[int, ...]:
+        """Index ranges of the corners where a ``w × h`` footprint would come within ``sep``
+        (left, bottom, right, top of ``rect``) of ``rect``."""
+        xs, ys = self.xs, self.ys
+        i0 = int(np.searchsorted(xs, rect[0] - sep[0] - w, "right"))
+        i1 = int(np.searchsorted(xs, rect[2] + sep[2], "left"))
+        j0 = int(np.searchsorted(ys, rect[1] - sep[1] - h, "right"))
+        j1 = int(np.searchsorted(ys, rect[3] + sep[3], "left"))
+        return i0, i1, j0, j1
+
+
+def _mask(design: Design, lat: _Lattice, w: float, h: float, halo: np.ndarray,
+          obstacles: list) -> np.ndarray:
+    """Corners where a ``w × h`` footprint with ``halo`` is illegal: outside the core (its
+    halo outside the die), or against an obstacle ``(rect, halo)`` under the halo rule (the
+    larger facing halo), or on a keep-out (``halo`` None)."""
+    c, die = design.core, design.die
+    xs, ys = lat.xs, lat.ys
+    mask = np.zeros((len(xs), len(ys)), bool)
+    mask[(xs + w > c[2] + 1e-9) | (xs - halo[0] < die[0] - 1e-9)
+         | (xs + w + halo[2] > die[2] + 1e-9), :] = True
+    mask[:, (ys + h > c[3] + 1e-9) | (ys - halo[1] < die[1] - 1e-9)
+         | (ys + h + halo[3] > die[3] + 1e-9)] = True
+    for rect, hl in obstacles:
+        # room kept on each side of ``rect``: the larger of its halo and our facing one
+        sep = np.zeros(4) if hl is None else np.maximum(halo[[2, 3, 0, 1]], hl)
+        i0, i1, j0, j1 = lat.span(rect, sep, w, h)
+        mask[i0:i1, j0:j1] = True
+    return mask
+
+
+def _wire_cost(design: Design, fp: Floorplan, plan: ArrayPlan, a: int, lat: _Lattice,
+               px: np.ndarray, py: np.ndarray, live: np.ndarray):
+    """ΔHPWL of array ``a`` (its current shape) at every lattice corner, and its pins with
+    their offsets."""
+    pins, ox, oy = _member_offsets(design, fp, plan, a)
+    deg = np.diff(design.net_start)
+    pin_net = design.pin_net[pins]
+    nets = np.unique(pin_net)
+    nets = nets[deg[nets] <= MAX_NET_PINS]
+    cost = np.zeros((len(lat.xs), len(lat.ys)))
+    if not len(nets):
+        return cost, pins, ox, oy
+    counts = deg[nets]
+    first = np.cumsum(counts) - counts
+    allp = np.repeat(design.net_start[nets] - first, counts) + np.arange(int(counts.sum()))
+    seg = np.repeat(np.arange(len(nets)), counts)
+    own = np.zeros(design.num_pins, bool)
+    own[pins] = True
+    oth = live[allp] & ~own[allp]
+
+    def seg_range(vals, idx, n):
+        lo, hi = np.full(n, np.inf), np.full(n, -np.inf)
+        np.minimum.at(lo, idx, vals)
+        np.maximum.at(hi, idx, vals)
+        return lo, hi
+
+    lo_x, hi_x = seg_range(px[allp[oth]], seg[oth], len(nets))
+    lo_y, hi_y = seg_range(py[allp[oth]], seg[oth], len(nets))
+    kn = np.searchsorted(nets, pin_net)
+    ok = (kn < len(nets)) & (nets[np.minimum(kn, len(nets) - 1)] == pin_net)
+    omin_x, omax_x = seg_range(ox[ok], kn[ok], len(nets))
+    omin_y, omax_y = seg_range(oy[ok], kn[ok], len(nets))
+    wt = design.net_weight[nets]
+    cost += _axis_cost(lat.xs, lo_x, hi_x, omin_x, omax_x, wt)[:, None]
+    cost += _axis_cost(lat.ys, lo_y, hi_y, omin_y, omax_y, wt)[None, :]
+    return cost, pins, ox, oy
+
+
 def greedy_arrays(design: Design, fp: Floorplan, plan: ArrayPlan, *, displace: float,
-                  order: np.ndarray | None = None) -> Floorplan:
-    """Place the arrays of ``plan`` one by one (:mod:`module docstring <.macro_greedy>`).
+                  order: np.ndarray | None = None, reshape: bool = True) -> Floorplan:
+    """Place the arrays of ``plan`` one by one (see the module docstring), each in the shape of
+    :func:`~floorwidget.placer.macro_arrays.shape_options` and at the corner that cost least.
 
     Parameters
     ----------
@@ -90,11 +183,13 @@ def greedy_arrays(design: Design, fp: Floorplan, plan: ArrayPlan, *, displace: f
     fp : Floorplan
         The global placement: cells, clusters and terminals stay where it has them.
     plan : ArrayPlan
-        The arrays (their rectangles, halos and members).
+        The arrays (their rectangles, halos and members); reshaped in place.
     displace : float
         Wirelength (µm) charged per µm² of standard-cell area an array covers.
     order : int array, optional
         The order in which arrays are placed (default: largest first, then most pins).
+    reshape : bool
+        Try every shape option (else keep each array's shape).
 
     Returns
     -------
@@ -104,122 +199,49 @@ def greedy_arrays(design: Design, fp: Floorplan, plan: ArrayPlan, *, displace: f
     """
     sd, sfp = plan.design, plan.floorplan.copy()
     k = len(plan.members)
-    c, die = design.core, design.die
-    gx, gy = design.grid_pitch
-    g0 = design.grid_origin
-    side = max(c[2] - c[0], c[3] - c[1]) / LATTICE
-    step = np.array([max(np.ceil(side / gx), 1) * gx, max(np.ceil(side / gy), 1) * gy])
-    x0 = g0[0] + np.ceil((c[0] - g0[0]) / gx - 1e-9) * gx
-    y0 = g0[1] + np.ceil((c[1] - g0[1]) / gy - 1e-9) * gy
-    xs = x0 + step[0] * np.arange(int((c[2] - x0) // step[0]) + 1)
-    ys = y0 + step[1] * np.arange(int((c[3] - y0) // step[1]) + 1)
-    # standard-cell and cluster area per lattice cell (the cost of covering logic)
-    soft = ((design.kind == CELL) | (design.kind == CLUSTER)) & (fp.status == MOVABLE)
-    w, h = fp.sizes()
-    cx, cy = fp.centres()
-    ix = np.clip(((cx[soft] - x0) // step[0]).astype(np.intp), 0, len(xs) - 1)
-    iy = np.clip(((cy[soft] - y0) // step[1]).astype(np.intp), 0, len(ys) - 1)
-    area = np.zeros((len(xs), len(ys)))
-    np.add.at(area, (ix, iy), w[soft] * h[soft])
-    # pins: positions now; those of movable macros count once their array is placed
+    lat = _Lattice(design, fp)
     px, py = pin_positions(design, fp)
     live = np.ones(design.num_pins, bool)
     mov_mac = (design.kind == MACRO) & (fp.status == MOVABLE)
     live[mov_mac[design.pin_block]] = False
-    deg = np.diff(design.net_start)
-    pin_net = design.pin_net
-    # obstacles for the mask: fixed arrays (the plan's FIXED blocks) and keep-outs
-    blocked = np.zeros((len(xs), len(ys)), bool)
-    aw, ah = sd.width[:k], sd.height[:k]
-    ahl = sd.halo[:k]
-
-    def block(rect: np.ndarray, sep: np.ndarray, a: int) -> np.ndarray:
-        """Lattice corners where array ``a`` would come within ``sep`` (l, b, r, t) of
-        ``rect``."""
-        lo_x = rect[0] - sep[2] - aw[a]
-        hi_x = rect[2] + sep[0]
-        lo_y = rect[1] - sep[3] - ah[a]
-        hi_y = rect[3] + sep[1]
-        i0, i1 = np.searchsorted(xs, lo_x, "right"), np.searchsorted(xs, hi_x, "left")
-        j0, j1 = np.searchsorted(ys, lo_y, "right"), np.searchsorted(ys, hi_y, "left")
-        return np.array([i0, i1, j0, j1])
-
+    cx, cy = fp.centres()
     fixed = np.arange(k, sd.num_blocks)
-    frects = sfp.rects()[fixed]
-    keep = sd.blockages
+    obstacles = [(r, sd.halo[j]) for j, r in zip(fixed, sfp.rects()[fixed])]
+    obstacles += [(r, None) for r in sd.blockages]
     if order is None:
         npins = np.array([len(_member_offsets(design, fp, plan, a)[0]) for a in range(k)])
-        order = np.lexsort((-npins, -(aw * ah)))
-    placed_rects: list[tuple[np.ndarray, np.ndarray]] = []
+        order = np.lexsort((-npins, -(sd.width[:k] * sd.height[:k])))
     for a in order:
         a = int(a)
-        mask = blocked.copy()
-        # footprint in the core, halo in the die
-        mask[xs + aw[a] > c[2] + 1e-9, :] = True
-        mask[:, ys + ah[a] > c[3] + 1e-9] = True
-        mask[xs - ahl[a, 0] < die[0] - 1e-9, :] = True
-        mask[xs + aw[a] + ahl[a, 2] > die[2] + 1e-9, :] = True
-        mask[:, ys - ahl[a, 1] < die[1] - 1e-9] = True
-        mask[:, ys + ah[a] + ahl[a, 3] > die[3] + 1e-9] = True
-        for j, r in zip(fixed, frects):
-            hl = sd.halo[j]
-            sep = np.maximum(ahl[a], hl[[2, 3, 0, 1]])
-            i0, i1, j0, j1 = block(r, sep, a)
-            mask[i0:i1, j0:j1] = True
-        for r in keep:
-            i0, i1, j0, j1 = block(r, np.zeros(4), a)
-            mask[i0:i1, j0:j1] = True
-        for r, hl in placed_rects:
-            sep = np.maximum(ahl[a], hl[[2, 3, 0, 1]])
-            i0, i1, j0, j1 = block(r, sep, a)
-            mask[i0:i1, j0:j1] = True
-        if mask.all():
+        shapes = [int(plan.cols[a])]
+        if reshape:
+            shapes = [c for _, c in shape_options(len(plan.members[a]))]
+        best = None
+        for cols in shapes:
+            plan.reshape(a, cols, cx, cy)
+            w, h = float(sd.width[a]), float(sd.height[a])
+            mask = _mask(design, lat, w, h, sd.halo[a], obstacles)
+            if mask.all():
+                continue
+            cost, pins, ox, oy = _wire_cost(design, fp, plan, a, lat, px, py, live)
+            if displace > 0:
+                kx = max(int(np.ceil(w / lat.step[0])), 1)
+                ky = max(int(np.ceil(h / lat.step[1])), 1)
+                cost += displace * _box_sums(lat.area, kx, ky)
+            cost[mask] = np.inf
+            i, j = np.unravel_index(int(np.argmin(cost)), cost.shape)
+            if best is None or cost[i, j] < best[0]:
+                best = (float(cost[i, j]), cols, int(i), int(j), pins, ox, oy)
+        if best is None:
             continue
-        pins, ox, oy = _member_offsets(design, fp, plan, a)
-        nets = np.unique(pin_net[pins])
-        nets = nets[deg[nets] <= MAX_NET_PINS]
-        cost = np.zeros((len(xs), len(ys)))
-        if len(nets):
-            # the other live pins of these nets, and this array's offsets per net
-            starts, counts = design.net_start[nets], deg[nets]
-            allp = np.repeat(starts - np.cumsum(np.r_[0, counts[:-1]]), counts) + \
-                np.arange(counts.sum())
-            seg = np.repeat(np.arange(len(nets)), counts)
-            own = np.zeros(design.num_pins, bool)
-            own[pins] = True
-            oth = live[allp] & ~own[allp]
-            big = np.inf
-            lo_x = np.full(len(nets), big)
-            hi_x = np.full(len(nets), -big)
-            lo_y, hi_y = lo_x.copy(), hi_x.copy()
-            np.minimum.at(lo_x, seg[oth], px[allp[oth]])
-            np.maximum.at(hi_x, seg[oth], px[allp[oth]])
-            np.minimum.at(lo_y, seg[oth], py[allp[oth]])
-            np.maximum.at(hi_y, seg[oth], py[allp[oth]])
-            k_net = np.searchsorted(nets, pin_net[pins])
-            ok = (k_net < len(nets)) & (nets[np.minimum(k_net, len(nets) - 1)] == pin_net[pins])
-            kn, oxs, oys = k_net[ok], ox[ok], oy[ok]
-            omin_x = np.full(len(nets), big)
-            omax_x = np.full(len(nets), -big)
-            omin_y, omax_y = omin_x.copy(), omax_x.copy()
-            np.minimum.at(omin_x, kn, oxs)
-            np.maximum.at(omax_x, kn, oxs)
-            np.minimum.at(omin_y, kn, oys)
-            np.maximum.at(omax_y, kn, oys)
-            wt = design.net_weight[nets]
-            cost += _axis_cost(xs, lo_x, hi_x, omin_x, omax_x, wt)[:, None]
-            cost += _axis_cost(ys, lo_y, hi_y, omin_y, omax_y, wt)[None, :]
-        if displace > 0:
-            kx = max(int(np.ceil(aw[a] / step[0])), 1)
-            ky = max(int(np.ceil(ah[a] / step[1])), 1)
-            cost += displace * _box_sums(area, kx, ky)
-        cost[mask] = np.inf
-        i, j = np.unravel_index(int(np.argmin(cost)), cost.shape)
-        sfp.x[a], sfp.y[a] = xs[i], ys[j]
-        r = np.array([xs[i], ys[j], xs[i] + aw[a], ys[j] + ah[a]])
-        placed_rects.append((r, ahl[a]))
+        _, cols, i, j, pins, ox, oy = best
+        plan.reshape(a, cols, cx, cy)
+        sfp.x[a], sfp.y[a] = lat.xs[i], lat.ys[j]
+        rect = np.array([lat.xs[i], lat.ys[j], lat.xs[i] + sd.width[a],
+                         lat.ys[j] + sd.height[a]])
+        obstacles.append((rect, sd.halo[a]))
         # this array's pins now count for the arrays after it
-        px[pins] = xs[i] + ox
-        py[pins] = ys[j] + oy
+        px[pins] = lat.xs[i] + ox
+        py[pins] = lat.ys[j] + oy
         live[pins] = True
     return sfp

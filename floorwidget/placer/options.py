@@ -113,6 +113,17 @@ class PlacerOptions:
         earlier once one saves less than 0.2 % of the HPWL.  ``None`` (default): 8, or 2 in
         the multilevel flow (at 10^6 cells the passes beyond two cost 15 s for 0.8 % of the
         wirelength; DEVELOPERS.md).
+    congestion_target : float
+        Routability-driven spreading: once the cells are spread (overflow below 0.25),
+        every few iterations the cells in bins whose routing demand exceeds this share of the
+        supply (:func:`floorwidget.metrics.congestion_map`) are inflated by the ratio, up to
+        ``max_inflation`` in all, so the look-ahead spreads them apart (cell inflation from
+        routing demand: Kim, Hu, Lee, Markov, ICCAD 2011; Hsu, Chou, Lin, Chang, ICCAD 2011;
+        both from memory).  Default 0.7 (RUDY reads low: detours and pin access take the
+        rest, common practice).
+    max_inflation : float
+        Largest factor a cell's area may be inflated by; 1 turns routability-driven spreading
+        off.  Default 2.
     multilevel : {"auto", "on", "off"}
         ``"on"`` places a clustered version of the design first (see
         :mod:`floorwidget.placer.multilevel`) and refines it level by level down to the cells;
@@ -138,6 +149,8 @@ class PlacerOptions:
     channel: float | None = None
     detail_passes: int | None = None
     multilevel: str = "auto"
+    congestion_target: float = 0.7
+    max_inflation: float = 2.0
 
     def __post_init__(self):
         check_range("overflow_target", self.overflow_target, 0.0, 1.0)
@@ -154,9 +167,11 @@ class PlacerOptions:
         if self.multilevel not in ("auto", "on", "off"):
             raise ValueError("option 'multilevel' must be 'auto', 'on' or 'off', "
                              f"got {self.multilevel!r}")
-        if self.macro_layout not in ("auto", "periphery", "free"):
-            raise ValueError("option 'macro_layout' must be 'auto', 'periphery' or 'free', "
-                             f"got {self.macro_layout!r}")
+        if self.macro_layout not in ("auto", "periphery", "free", "arrays"):
+            raise ValueError("option 'macro_layout' must be 'auto', 'periphery', 'free' or "
+                             f"'arrays', got {self.macro_layout!r}")
+        check_range("congestion_target", self.congestion_target, 0.0, 1e3, lo_open=True)
+        check_range("max_inflation", self.max_inflation, 1.0, 10.0)
         if self.channel is not None:
             check_range("channel", self.channel, 0.0, 1e9)
         check_range("anchor_weight", self.anchor_weight, 0.0, 1e6, lo_open=True)

@@ -769,7 +769,8 @@ def _adjacent_swap(seq_start, seq, wum, bx, by, osign, N, passes):
 def detailed_place(design: Design, fp: Floorplan, cells: np.ndarray | None = None, *,
                    passes: int = 8, max_degree: int = 64, min_gain: float = 0.002,
                    target_density: float = 1.0, keep: np.ndarray | None = None,
-                   avoid: np.ndarray | None = None) -> tuple[Floorplan, dict]:
+                   avoid: np.ndarray | None = None, frozen: np.ndarray | None = None
+                   ) -> tuple[Floorplan, dict]:
     """Lower the HPWL of a row-legal placement by cell swaps that keep it legal.
 
     Parameters
@@ -795,6 +796,9 @@ def detailed_place(design: Design, fp: Floorplan, cells: np.ndarray | None = Non
     keep, avoid : (k, 4) arrays, optional
         Free sites only inside ``keep`` or only outside ``avoid`` (cell regions; as
         :func:`legalize_cells`).
+    frozen : bool array of the report's bin grid, optional
+        Bins whose cell area may not grow (routing hot spots the spreading opened up: the
+        moves that lower wirelength would fill them again).
 
     Returns
     -------
@@ -865,6 +869,8 @@ def detailed_place(design: Design, fp: Floorplan, cells: np.ndarray | None = Non
                      seg.y + seg.height], axis=1)
     cap = target_density * rect_area_map(g, segr)  # the segments hold the cells' sites too
     cap = np.maximum(cap - partial_capacity_loss(design, g, target_density), 0.0)
+    if frozen is not None:
+        cap = np.where(frozen, np.minimum(cap, use), cap)
     D = (use, cap, g.xlo, g.ylo, g.bw, g.bh)
     hpwl0 = hpwl(design, fp)
     g1 = 0.0

@@ -24,7 +24,7 @@ from typing import Any
 import numpy as np
 
 from ..design import CELL, CLUSTER, MACRO, MOVABLE, TERMINAL, Design, Floorplan
-from ..metrics import hpwl, pinned_illegal
+from ..metrics import bin_grid, congestion_map, hpwl, pinned_illegal
 from .constraints import RegionPlan, partial_capacity_loss, row_groups
 from .errors import PlacementError, PlacementWarning
 from .legalize import legalize_macros
@@ -51,6 +51,8 @@ from .spread import (
 Progress = Callable[[str, float, dict], Any] | None
 
 
+INFLATE_FROM = 0.25  # overflow below which routability-driven inflation starts ...
+INFLATE_EVERY = 3    # ... and it is updated every this many spreading iterations
 STALL_FROM = 0.3  # overflow below which a spreading loop that stops improving is stopped
 
 
@@ -125,6 +127,41 @@ class SpreadStage:
         s = self.sys.pins_of_var
         self.anchor_scale = np.maximum(s, 1.0)
         self.eps_a = 0.25 * min(self.grid.bw, self.grid.bh)
+        kind = design.kind[self.vars]
+        self.cellish = (kind == CELL) | (kind == CLUSTER)
+        self.infl = None  # routability inflation per object (inflate)
+        self.cgrid = bin_grid(design)
+
+    def inflate(self, cx, cy, orient, opts: PlacerOptions) -> float:
+        """Routability-driven inflation (option ``congestion_target``): the cells and
+        clusters in bins whose routing demand over supply exceeds the target grow by the
+        ratio (at most 1.5 per call, ``max_inflation`` in all), while the inflated area fits
+        the capacity; returns the congestion peak seen.  Cell inflation from routing demand:
+        Kim, Hu, Lee, Markov, ICCAD 2011; Hsu, Chou, Lin, Chang, ICCAD 2011 (from memory)."""
+        d = self.design
+        if self.infl is None:
+            self.infl = np.ones(len(self.vars))
+            self.base_wt = self.wt.copy()
+        fp = Floorplan(d, cx, cy, orient)  # centres; corners from the oriented sizes
+        bw, bh = fp.sizes()
+        fp.x, fp.y = cx - bw / 2, cy - bh / 2
+        grid = self.cgrid
+        cmap = congestion_map(d, fp, grid)
+        v = self.vars
+        i = np.clip(((cx[v] - grid.xlo) / grid.bw).astype(np.intp), 0, grid.nx - 1)
+        j = np.clip(((cy[v] - grid.ylo) / grid.bh).astype(np.intp), 0, grid.ny - 1)
+        ratio = np.clip(cmap[i, j] / opts.congestion_target, 1.0, 1.5)
+        ratio[~self.cellish] = 1.0
+        infl = np.minimum(self.infl * ratio, opts.max_inflation)
+        # the inflated area must fit the capacity: shrink the extra where it would not
+        base = self.w * self.h * self.base_wt
+        room = 0.97 * float(self.cap.sum()) - float(base.sum())
+        extra = float(np.sum(base * (infl - 1.0)))
+        if extra > room:
+            infl = 1.0 + (infl - 1.0) * max(room, 0.0) / extra
+        self.infl = infl
+        self.wt = self.base_wt * infl
+        return float(cmap.max())
 
     def scale_area(self, sel: np.ndarray, factor: float) -> None:
         """Count the objects ``sel`` (a mask over :attr:`vars`) with ``factor`` times their
@@ -201,6 +238,9 @@ class SpreadStage:
             cy[v] = ny
             self.clamp(cx, cy)
             it += 1
+            if (opts.max_inflation > 1.0 and it % INFLATE_EVERY == 0 and ov < INFLATE_FROM
+                    and self.cellish.any()):
+                self.inflate(cx, cy, orient, opts)
             ov = self.overflow(cx, cy)
             history.append(ov)
             report(progress, stage, 0.1 + 0.9 * it / max(max_it, 1),
@@ -325,11 +365,14 @@ def rows_stage(design: Design, out: Floorplan, src: Floorplan, opts: PlacerOptio
         passes = MULTILEVEL_DETAIL_PASSES if "levels" in info else DETAIL_PASSES
     if passes:
         t0 = time.perf_counter()
+        frozen = None
+        if opts.max_inflation > 1.0:  # keep the hot spots the spreading opened up open
+            frozen = congestion_map(design, out) > opts.congestion_target
         got = []
         for grp, keep, avoid in groups:
             out, facts = detailed_place(design, out, grp, passes=passes,
                                         target_density=min(1.0, target + DP_SLACK),
-                                        keep=keep, avoid=avoid)
+                                        keep=keep, avoid=avoid, frozen=frozen)
             got.append(facts)
         info.update({"dp_gain": float(sum(f["dp_gain"] for f in got)),
                      "dp_swaps": int(sum(f["dp_swaps"] for f in got))})
