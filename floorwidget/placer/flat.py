@@ -19,7 +19,7 @@ import time
 import numpy as np
 
 from ..design import MACRO, MOVABLE, TERMINAL, Design, Floorplan
-from .macro_layout import arrange_macros
+from .macro_layout import ARRAY_ROUNDS, arrange_macros, choose_layout, place_arrays
 from .options import PlacerOptions
 from .solve import spectral_coordinates
 from .stages import (
@@ -39,8 +39,19 @@ def place_flat(design: Design, src: Floorplan, target: float, opts: PlacerOption
     """Global placement of every movable block, then the macros arranged and legalised and
     the cells and clusters re-spread around them; returns ``(floorplan, legalized,
     overflow)``."""
-    out, final_ov = global_stage(design, src, target, opts, mult, seed, info, progress)
     macros = movable_macro_indices(design, src)
+    if len(macros) and opts.legalize_macros and \
+            choose_layout(design, src, macros, opts.macro_layout) == "arrays":
+        # the logic placed as if the macros took no room, then the arrays around it, and the
+        # logic spread again: ARRAY_ROUNDS times, each from the last
+        out, ov = global_stage(design, src, target, opts, mult, seed, info, progress,
+                               macro_area=0.0)
+        info["macro_layout"] = "arrays"
+        for _ in range(ARRAY_ROUNDS):
+            out = place_arrays(design, out, macros, opts, info, progress)
+            out, ov = cells_stage(design, out, src, target, opts, mult, info, progress)
+        return out, True, ov
+    out, final_ov = global_stage(design, src, target, opts, mult, seed, info, progress)
     legalized = False
     if len(macros) and opts.legalize_macros:
         out = arrange_macros(design, out, macros, opts, info, progress)
