@@ -343,6 +343,9 @@ class Design:
     lef_files : list of str
         The LEF libraries a DEF design was read with (empty otherwise); DEF export refers to
         them instead of writing abstracts of its own.
+    def_source : DefSource or None
+        Set by the DEF reader: the source text and the state it described, so that DEF export
+        writes back only what changed (:mod:`floorwidget.formats.lefdef.writeback`).
     validate : bool
         Run :meth:`validate` (raising :class:`DesignError` listing every problem).
     """
@@ -358,6 +361,7 @@ class Design:
         self.name = str(name)
         self.source = source
         self.lef_files: list[str] = []
+        self.def_source = None  # formats.lefdef.source.DefSource of a design read from DEF
         self.dbu = int(dbu)
         self.die = _f64(die, (4,))
         self.names = list(names)

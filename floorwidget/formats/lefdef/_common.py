@@ -146,3 +146,8 @@ def _percent(fraction: float) -> str:
 def _fraction(percent: str) -> float:
     """A DEF percentage token as a fraction, divided in decimal (exact round trip)."""
     return float(Decimal(percent) / 100)
+
+
+def _dbu_ints(v, dbu: int) -> np.ndarray:
+    """µm values as database-unit integers (``round(v * dbu)``)."""
+    return np.round(np.asarray(v, dtype=np.float64) * dbu).astype(np.int64)

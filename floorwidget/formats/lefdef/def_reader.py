@@ -40,7 +40,8 @@ from ._common import (
 )
 from .lef_reader import LefLibrary, read_lef
 from .polygons import _polygon_rects
-from .tokens import _COMMENT, _TOK, _pack, _split_tokens, _Words
+from .source import DefSource
+from .tokens import _TOK, _pack, _split_tokens, _Words, blank_comments
 
 _DEF_SECTIONS_SKIP = {"VIAS", "STYLES", "NONDEFAULTRULES", "PINPROPERTIES", "SLOTS",
                       "FILLS", "SPECIALNETS", "SCANCHAINS"}
@@ -68,6 +69,14 @@ class _Def:
         self.blockage_density: list[float] = []  # max density per blockage (0: full)
         self.regions: list[tuple[str, list, int, int]] = []  # name, points (dbu), type, pos
         self.groups: list[tuple[str, list[str], str | None, int]] = []  # name, patterns, region
+        # where things are, for writing back (:mod:`.writeback`): section -> (keyword, body,
+        # END keyword, past the END); the end of UNITS; END DESIGN; per BLOCKAGES statement
+        # (first rectangle, count) for placement blockages, None for the others
+        self.spans: dict[str, tuple[int, int, int, int]] = {}
+        self.units_end = 0
+        self.design_end = 0
+        self.blockage_stmts: list[tuple[int, int] | None] = []
+        self.notches = 0  # blockages from a rectilinear DIEAREA, first in the design's list
         self.comp_line = 1
 
     # --- locations and errors ----------------------------------------------------------------
@@ -157,6 +166,7 @@ class _Def:
             if T == "END":
                 t2, _ = self.tok()
                 if t2 is not None and t2.upper() == "DESIGN":
+                    self.design_end = p
                     return
                 continue
             if T in _DEF_QUIET:
@@ -175,6 +185,7 @@ class _Def:
                     self.fail(f"UNITS DISTANCE MICRONS must be a whole number in 1..{MAX_DBU}, "
                               f"got {toks[2][0]!r}", toks[2][1])
                 self.dbu = v
+                self.units_end = self.pos
             elif T == "DIEAREA":
                 pts = self.points(self.statement(p), "DIEAREA")
                 if len(pts) < 2 or len(pts) == 3:
@@ -186,11 +197,15 @@ class _Def:
                 self.statement(p)
                 self.skipped[T] += 1
             elif T == "PROPERTYDEFINITIONS":
-                _, e = self.section_end(T, p)
+                s, e = self.section_end(T, p)
+                self.spans.setdefault(T, (p, self.pos, s, e))
                 self.pos = e
             elif T in sections:
+                if T in self.spans:  # a second one would silently replace the first
+                    self.fail(f"a second {T} section", p)
                 n = self.header_count(T, p)
                 s, e = self.section_end(T, p)
+                self.spans[T] = (p, self.pos, s, e)
                 sections[T](self.pos, s, n, p)
                 self.pos = e
             elif T in _DEF_SECTIONS_SKIP:
@@ -645,6 +660,7 @@ class _Def:
             kind = word.upper()
             if kind != "PLACEMENT":
                 self.skipped[f"BLOCKAGES {kind}"] += 1
+                self.blockage_stmts.append(None)
                 continue
             k = 0
             density = 0.0
@@ -682,6 +698,7 @@ class _Def:
                 else:
                     k += 1
             self.blockage_density.extend([density] * (len(self.blockages) - first))
+            self.blockage_stmts.append((first, len(self.blockages) - first))
 
     # --- REGIONS and GROUPS -------------------------------------------------------------------
     def region_section(self, start: int, end: int, count: int, hpos: int) -> None:
@@ -796,6 +813,7 @@ class _Def:
         if len(pts) > 2:
             blk.insert(0, _polygon_rects(pts, False))
             dens.insert(0, np.zeros(len(blk[0])))
+            self.notches = len(blk[0])
         blockages = np.concatenate(blk)
         blockage_density = np.concatenate(dens)
 
@@ -1054,12 +1072,11 @@ def read_def(path: str | Path, lef: str | Path | Sequence[str | Path] | None = N
     lef = list(lef or [])
     if not lef and lef_path_for(path).is_file():
         lef = [lef_path_for(path)]
-    text = read_text(path)
+    source = read_text(path)
     lib = read_lef(lef) if lef else None
-    if "#" in text:
-        text = _COMMENT.sub("", text)
-    r = _Def(str(path), text, lib)
+    r = _Def(str(path), blank_comments(source), lib)  # positions stay those of the source
     r.parse()
     design = r.design()
     design.lef_files = [str(p) for p in lef]  # the library the masters and pin names refer to
+    design.def_source = DefSource.keep(source, r, design)
     return design

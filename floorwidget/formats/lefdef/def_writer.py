@@ -8,12 +8,10 @@ from pathlib import Path
 import numpy as np
 
 from ...design import (
-    COORD_LIMIT,
     FIXED,
     MOVABLE,
     ORIENTATIONS,
     PINNED,
-    REGION_TYPES,
     Design,
     DesignError,
     Floorplan,
@@ -27,10 +25,12 @@ from ._common import (
     STATUS_PROPERTY,
     LefDefWarning,
     _check_names,
-    _percent,
+    _dbu_ints,
     lef_path_for,
 )
+from .def_statements import blockage_statement, group_statements, placement_ints, region_lines
 from .lef_writer import _abstracts, _lef_text, _sites
+from .writeback import writeback_text
 
 
 def write_def(design: Design, fp: Floorplan, path: str | Path, *,
@@ -64,11 +64,14 @@ def write_def(design: Design, fp: Floorplan, path: str | Path, *,
     --------
     >>> write_def(design, fp, "blk_placed.def")                # doctest: +SKIP
     """
+    if fp.design is not design:
+        raise DesignError("the floorplan belongs to another design", file=str(path))
+    source = getattr(design, "def_source", None)
     if lef is None:
-        lef = not design.lef_files
+        lef = not design.lef_files and source is None
     lef_path = None if lef is False else (lef_path_for(path) if lef is True else Path(lef))
     lef_text = _lef_text(design, lef_path) if lef_path is not None else None
-    text = _def_text(design, fp, path)
+    text = _def_text(design, fp, path) if source is None else writeback_text(design, fp, path)
     items = [(path, lambda f: f.write(text))]
     if lef_path is not None:  # the pair is written all or nothing
         items.insert(0, (lef_path, lambda f: f.write(lef_text)))
@@ -78,8 +81,6 @@ def write_def(design: Design, fp: Floorplan, path: str | Path, *,
 def _def_text(design: Design, fp: Floorplan, path) -> str:
     d = design
     dbu = d.dbu
-    if fp.design is not d:
-        raise DesignError("the floorplan belongs to another design", file=str(path))
     ab = _abstracts(d)
     comp = np.flatnonzero(ab.block_master >= 0)
     term = np.flatnonzero(ab.block_master < 0)
@@ -93,15 +94,9 @@ def _def_text(design: Design, fp: Floorplan, path) -> str:
     _check_names(ab.names, "master", path)
 
     def I(v):  # noqa: E743 - short for the many integer conversions below
-        return np.round(np.asarray(v, dtype=np.float64) * dbu).astype(np.int64)
+        return _dbu_ints(v, dbu)
 
-    with np.errstate(invalid="ignore"):
-        far = ~((np.abs(fp.x) <= COORD_LIMIT) & (np.abs(fp.y) <= COORD_LIMIT))
-    if far.any():  # beyond it the database-unit integers would wrap
-        i = int(np.flatnonzero(far)[0])
-        raise DesignError(f"block {names[i]!r} at ({fp.x[i]:g}, {fp.y[i]:g}) µm is not finite "
-                          f"or beyond ±{COORD_LIMIT:g} µm: cannot be written to DEF",
-                          file=str(path), where=f"block {names[i]!r}")
+    xs_a, ys_a, orient, status = placement_ints(d, fp, path)
 
     out = ["VERSION 5.8 ;", 'DIVIDERCHAR "/" ;', 'BUSBITCHARS "[]" ;', f"DESIGN {d.name} ;",
            f"UNITS DISTANCE MICRONS {dbu} ;", "", "PROPERTYDEFINITIONS",
@@ -115,23 +110,15 @@ def _def_text(design: Design, fp: Floorplan, path) -> str:
                    f"{ORIENTATIONS[int(d.row_orient[r])]} DO {int(d.row_num_sites[r])} BY 1 "
                    f"STEP {rs[r]} 0 ;")
     out.append("")
-    xs_a, ys_a = I(fp.x), I(fp.y)
     xs, ys = xs_a.tolist(), ys_a.tolist()
     halo_a = I(d.halo)
     has_halo = halo_a.any(axis=1).tolist()
     halo = halo_a.tolist()
-    stl, orl, bml = fp.status.tolist(), fp.orient.tolist(), ab.block_master.tolist()
+    stl, orl, bml = status.tolist(), orient.tolist(), ab.block_master.tolist()
     reg = d.regions
-    if len(reg):
-        _check_names(reg.names, "region", path)
-        _check_names(reg.groups, "group", path)
-        out.append(f"REGIONS {len(reg)} ;")
-        for k, nm in enumerate(reg.names):
-            pts = " ".join(f"( {r[0]} {r[1]} ) ( {r[2]} {r[3]} )"
-                           for r in I(reg.rects_of(k)).tolist())
-            out.append(f"- {nm} {pts} + TYPE {REGION_TYPES[int(reg.kind[k])].upper()} ;")
-        out.append("END REGIONS")
-        out.append("")
+    regions = region_lines(d, path)
+    if regions:
+        out += regions + [""]
     out.append(f"COMPONENTS {len(comp)} ;")
     st_word = {MOVABLE: "PLACED", PINNED: "FIXED", FIXED: "FIXED"}
     for i in comp.tolist():
@@ -161,13 +148,13 @@ def _def_text(design: Design, fp: Floorplan, path) -> str:
     out.append(f"PINS {len(term)} ;")
     wd, hd = I(d.width), I(d.height)
     for k, i in enumerate(term.tolist()):
-        o = int(fp.orient[i])
+        o = orl[i]
         ow, oh = orient_size(wd[i], hd[i], o)
         cxs = np.array([0, ow, 0, ow])
         cys = np.array([0, 0, oh, oh])
         M = _MATS[o].T  # inverse of an orthogonal matrix
         nx, ny = M[0, 0] * cxs + M[0, 1] * cys, M[1, 0] * cxs + M[1, 1] * cys
-        s = "PLACED" if fp.status[i] == MOVABLE else "FIXED"
+        s = "PLACED" if stl[i] == MOVABLE else "FIXED"
         out.append(f"- {tnames[k]} + NET {first_net.get(i, tnames[k])} + DIRECTION INOUT "
                    f"+ USE SIGNAL + LAYER {PIN_LAYER} ( {nx.min()} {ny.min()} ) "
                    f"( {nx.max()} {ny.max()} ) + {s} ( {xs[i]} {ys[i]} ) {ORIENTATIONS[o]} ;")
@@ -176,9 +163,7 @@ def _def_text(design: Design, fp: Floorplan, path) -> str:
     if len(d.blockages):
         bl = I(d.blockages)
         out.append(f"BLOCKAGES {len(bl)} ;")
-        for b, md in zip(bl.tolist(), d.blockage_max_density.tolist()):
-            part = f"+ PARTIAL {_percent(md)} " if md > 0 else ""
-            out.append(f"- PLACEMENT {part}RECT ( {b[0]} {b[1]} ) ( {b[2]} {b[3]} ) ;")
+        out.extend(map(blockage_statement, bl.tolist(), d.blockage_max_density.tolist()))
         out.append("END BLOCKAGES")
         out.append("")
     out.append(f"NETS {d.num_nets} ;")
@@ -197,14 +182,7 @@ def _def_text(design: Design, fp: Floorplan, path) -> str:
     out.append("END NETS")
     out.append("")
     if len(reg):
-        out.append(f"GROUPS {len(reg)} ;")
-        for k, g in enumerate(reg.groups):
-            mem = [names[i] for i in reg.members(k)]
-            out.append(f"- {g}")
-            out.extend("   " + " ".join(mem[j:j + 8]) for j in range(0, len(mem), 8))
-            out.append(f"   + REGION {reg.names[k]} ;")
-        out.append("END GROUPS")
-        out.append("")
+        out += [f"GROUPS {len(reg)} ;", *group_statements(d, path), "END GROUPS", ""]
     out.append("END DESIGN")
     return "\n".join(out) + "\n"
 

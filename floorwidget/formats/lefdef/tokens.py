@@ -99,6 +99,13 @@ _TOK = re.compile(r'\s*("[^"]*"|[();]|[^\s();"]+)')
 _COMMENT = re.compile(r"(?:^|(?<=[\s;]))#[^\n]*", re.M)
 
 
+def blank_comments(text: str) -> str:
+    """``text`` with its ``#`` comments turned into spaces: positions and lines stay put."""
+    if "#" not in text:
+        return text
+    return _COMMENT.sub(lambda m: " " * len(m.group()), text)
+
+
 def _split_tokens(s: str) -> list[str]:
     """Tokens of one statement; parentheses standing at a token's ends are split off."""
     out = []
