@@ -5,6 +5,7 @@ from __future__ import annotations
 import re
 from collections import Counter
 from collections.abc import Sequence
+from decimal import Decimal
 from itertools import repeat
 from pathlib import Path
 
@@ -675,6 +676,9 @@ class _Def:
                         self.fail(f"BLOCKAGES: PARTIAL density {toks[k + 1]} is not a "
                                   "percentage in [0, 100]", pos)
                     density = _fraction(toks[k + 1])
+                    if density == 0.0 and Decimal(toks[k + 1]) > 0:  # would read as full
+                        self.fail(f"BLOCKAGES: PARTIAL density {toks[k + 1]} is too small to "
+                                  "hold (it would read as a full blockage)", pos)
                     k += 2
                 elif w in ("RECT", "POLYGON"):
                     j = k + 1
@@ -693,10 +697,15 @@ class _Def:
                     else:
                         if len(pts) < 4:
                             self.fail("BLOCKAGES: POLYGON needs four points or more", pos)
-                        self.blockages.extend(map(tuple, _polygon_rects(np.array(pts), True)))
+                        rects = _polygon_rects(np.array(pts), True)
+                        if not len(rects):
+                            self.fail("BLOCKAGES: POLYGON has no area", pos)
+                        self.blockages.extend(map(tuple, rects))
                     k = j
                 else:
                     k += 1
+            if len(self.blockages) == first:
+                self.fail("BLOCKAGES: a placement blockage needs a RECT or a POLYGON", pos)
             self.blockage_density.extend([density] * (len(self.blockages) - first))
             self.blockage_stmts.append((first, len(self.blockages) - first))
 
@@ -762,10 +771,11 @@ class _Def:
             self.fail(f"REGIONS: region {dup[0]!r} is defined twice", dup[3])
         group_of = ["" for _ in self.regions]
         member = np.full(n, -1, np.int32)
+        in_group = np.full(n, -1, np.int64)  # the group each cell joined, by its index
         lookup = {nm: i for i, nm in enumerate(names)}
         text = "\n".join(names)
         starts = np.concatenate([[0], np.cumsum([len(nm) + 1 for nm in names])[:-1]])
-        for gname, pats, region, pos in self.groups:
+        for g, (gname, pats, region, pos) in enumerate(self.groups):
             if region is None:
                 self.skipped["GROUPS without a REGION"] += 1
                 continue
@@ -789,6 +799,13 @@ class _Def:
             if (hit & ~soft).any():
                 self.skipped["GROUPS members that are not standard cells"] += int(
                     (hit & ~soft).sum())
+            again = np.flatnonzero(hit & soft & (in_group >= 0))
+            if len(again):  # a component belongs to one group (LEF/DEF Reference 5.8)
+                i = int(again[0])
+                self.fail(f"GROUPS: component {names[i]!r} is in group "
+                          f"{self.groups[int(in_group[i])][0]!r} and again in group "
+                          f"{gname!r}", pos)
+            in_group[hit & soft] = g
             member[hit & soft] = k
         regs = [{"name": nm, "type": REGION_TYPES[t],
                  "rects": [[min(a[0], b[0]) / dbu, min(a[1], b[1]) / dbu,
@@ -866,6 +883,13 @@ class _Def:
         ma = np.array([m.allowed for m in ms], np.uint8)
         canon = {m: m for m in mnames}
         kind, width, height = mk[cm], mw[cm], mh[cm]
+        if c["halo"] is not None:
+            bad = np.flatnonzero((kind == CELL) & c["halo"].any(axis=1))
+            if len(bad):
+                i = int(bad[0])
+                self.fail(f"component {c['names'][i]!r}: + HALO on a standard cell (LEF macro "
+                          f"{c['models'][i]!r}, CLASS {macros[c['models'][i]].cls}); halos "
+                          "belong to macros", self._find(c["start"], c["end"], c["names"][i]))
         allowed = ma[cm]
         status, orient = c["status"].copy(), c["orient"]
         x, y = c["x"], c["y"]
@@ -1030,7 +1054,13 @@ class _Def:
                 first = np.cumsum([r[6] for r in self.rows])
                 k = int(np.searchsorted(first, int(m.group(1)), side="right"))
                 line = self.line_at(self.rows[min(k, len(self.rows) - 1)][1])
-            raise DesignError(e.message, file=self.path, line=line, problems=e.problems,
+            msg = e.message
+            m = re.fullmatch(r"region '(.*)'", e.where or "")
+            reg = [r for r in self.regions if m and r[0] == m.group(1)]
+            if reg:  # a region problem: the line of its REGIONS statement, its type named
+                line = self.line_at(reg[0][3])
+                msg = msg.replace(e.where, f"{REGION_TYPES[reg[0][2]]} {e.where}", 1)
+            raise DesignError(msg, file=self.path, line=line, problems=e.problems,
                               where=e.where) from None
         design.source = self.path
         return design
