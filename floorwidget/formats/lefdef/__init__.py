@@ -63,27 +63,34 @@ Mapping to the floorwidget model
 
 Writing (:func:`write_def`, :func:`write_lef`, :func:`write_def_pair`)
 ---------------------------------------------------------------------
-DEF 5.8 with integers in the design's database units (``round(v * dbu)``).  Macros, cells and
-soft clusters are all written as ``COMPONENTS`` (clusters with a ``CLASS BLOCK SOFT`` master), so
-that the netlist and its wirelength survive the round trip; ``FIXED`` for fixed and pinned
-blocks, ``PLACED`` otherwise; terminals as ``PINS``.  A design without a LEF of its own (from
-JSON or Bookshelf) is given one (:func:`write_lef`: one ``MACRO`` abstract per distinct master
-and geometry, pins as tiny rectangles at their offsets), which :func:`write_def` writes by
-default beside the DEF.  The convention for the pair is ``y.lef`` beside ``y.def``
-(:func:`lef_path_for`), which :func:`read_def` also picks up when no ``lef=`` is given, so
-``fw.save(design, fp, "y.def")`` followed by ``fw.load("y.def")`` works for any design.
+A design read from DEF keeps its source (``design.def_source``, :mod:`.source`) and is written
+back as that source with only what the tool changed patched in (:mod:`.writeback`): positions,
+orientations and statuses of components and pins that moved, halos, blockages, regions.  Every
+other section, statement, option, comment and name comes back verbatim, so a convert of an
+unedited design reproduces its input byte for byte, and no LEF master name is ever invented.
+
+A design of its own (JSON, Bookshelf) is written from scratch: DEF 5.8 with integers in the
+design's database units (``round(v * dbu)``).  Macros, cells and soft clusters are all written
+as ``COMPONENTS`` (clusters with a ``CLASS BLOCK SOFT`` master), so that the netlist and its
+wirelength survive the round trip; ``FIXED`` for fixed and pinned blocks, ``PLACED`` otherwise;
+terminals as ``PINS``.  A design without a LEF of its own (from JSON or Bookshelf) is given one
+(:func:`write_lef`: one ``MACRO`` abstract per distinct master and geometry, pins as tiny
+rectangles at their offsets), which :func:`write_def` writes by default beside the DEF.  The
+convention for the pair is ``y.lef`` beside ``y.def`` (:func:`lef_path_for`), which
+:func:`read_def` also picks up when no ``lef=`` is given, so ``fw.save(design, fp, "y.def")``
+followed by ``fw.load("y.def")`` works for any design.
 
 Designs read from DEF carry ``design.lef_files`` (the LEF paths used); :func:`write_def` then
-refers to those masters and writes no LEF.  Pads (terminals with a LEF master) go back out as
-``COMPONENTS``, I/O pins as ``PINS``.
+writes no LEF.  In every write path a block fixed by the input (``FIXED``, ``COVER``) is
+written where the input put it, whatever the floorplan says (with a warning when it differs).
 
 Limits
 ------
-Not round-tripped through DEF: the snap grid (read back as site width by row height), names of
-several site types (one name per site size is written), net-pin offsets on I/O terminals
-(connections are at the pin shape's centre), the distinction pinned/fixed for terminals.  A
-``;`` inside a quoted property value, or parentheses inside names (``BUSBITCHARS "()"``), are
-not supported in ``COMPONENTS`` and ``NETS``.
+Not round-tripped through a DEF written from scratch: the snap grid (read back as site width by
+row height), names of several site types (one name per site size is written), net-pin offsets
+on I/O terminals (connections are at the pin shape's centre), the distinction pinned/fixed for
+terminals.  A ``;`` inside a quoted property value, or parentheses inside names (``BUSBITCHARS
+"()"``), are not supported in ``COMPONENTS`` and ``NETS``.
 
 References
 ----------
@@ -94,8 +101,10 @@ FS = MX, FW = MX90, FE = MY90).
 Modules
 -------
 ``tokens`` (the tokenisers), ``lef_reader``, ``def_reader``, ``polygons`` (rectilinear
-polygons as rectangles), ``lef_writer`` (abstracts for designs without a library),
-``def_writer``, and ``_common`` (constants, orientation and symmetry helpers shared by them).
+polygons as rectangles), ``source`` (what a design keeps of its DEF), ``writeback`` (writing
+it back), ``lef_writer`` (abstracts for designs without a library), ``def_writer`` (the entry
+point, and DEF from scratch), ``def_statements`` (statements both DEF writers emit) and
+``_common`` (constants, orientation and symmetry helpers shared by them).
 """
 
 from __future__ import annotations
