@@ -507,7 +507,7 @@ class _Def:
                 k += 1
                 continue
             w = toks[k + 1].upper() if k + 1 < len(toks) else ""
-            k += 2
+            k += 1 if w == "+" else 2  # "+ +": the second one starts the next option
             if w == "LAYER" and rect is None:
                 k += 1
                 while k < len(toks) and toks[k] != "(" and toks[k] != "+":

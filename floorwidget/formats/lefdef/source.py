@@ -6,7 +6,7 @@ The source is kept as its text, unparsed: every section the reader skips (``TRAC
 every statement or option it does not model (pin ``DIRECTION``/``USE``/``LAYER``/ports,
 component and net properties, single-pin nets, row names, ``UNPLACED``, ``COVER``) goes back
 out as it came in.  Beside the text: where the sections are, and the placement and constraints
-as read (in database units where they are written so), against which a floorplan is compared
+as read, against which a floorplan is compared
 when it is written.  On ariane136 (145,776 components, a 48 MB DEF) this adds the 48 MB of the
 text and about 9 MB of arrays to a design (``benchmarks/bench_def_write.py`` measures it).
 """
@@ -37,8 +37,8 @@ class DefSource:
     n_comps : int
         Blocks ``0 .. n_comps-1`` are the ``COMPONENTS`` in order, the rest the ``PINS``.
     x, y, orient, status : arrays
-        The placement as read, per block: lower-left in database units, orientation and status
-        codes (``UNPLACED`` components are at the core centre, as the reader puts them).
+        The placement as read, per block: lower-left (µm), orientation and status codes
+        (``UNPLACED`` components are at the core centre, as the reader puts them).
     pin_rect : (n_pins, 4) array
         The first ``LAYER`` shape of each I/O pin in its own frame, database units.
     halo, blockages, blockage_max_density, regions
@@ -80,7 +80,7 @@ class DefSource:
             text=text, path=reader.path, dbu=dbu, spans=dict(reader.spans),
             units_end=reader.units_end, design_end=reader.design_end,
             n_comps=design.num_blocks - len(pins),
-            x=np.round(ini.x * dbu).astype(np.int64), y=np.round(ini.y * dbu).astype(np.int64),
+            x=ini.x.copy(), y=ini.y.copy(),
             orient=ini.orient.copy(), status=ini.status.copy(),
             pin_rect=np.array(rects, dtype=np.float64).reshape(-1, 4),
             halo=design.halo.copy(), blockages=design.blockages.copy(),

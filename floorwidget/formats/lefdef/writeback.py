@@ -13,7 +13,7 @@ touched, so they are never invented.
 Each change is an edit ``(start, end, replacement)`` on the source text
 (:class:`~.source.DefSource`), and the edits are spliced in one pass:
 
-* ``COMPONENTS``: a component whose position (database units), orientation or status differs
+* ``COMPONENTS``: a component whose position, orientation or status differs
   from the source gets its placement option replaced in place (``+ PLACED ( x y ) N``; a
   user-pinned one ``+ FIXED`` with ``+ PROPERTY FW_STATUS "PINNED"``).  One fixed (or
   ``COVER``) in the input is never moved, whatever the floorplan says.  A changed halo
@@ -65,7 +65,9 @@ def writeback_text(design: Design, fp: Floorplan, path) -> str:
     """
     src: DefSource = design.def_source
     x, y, orient, status = placement_ints(design, fp, path)
-    moved = (x != src.x) | (y != src.y) | (orient != src.orient) | (status != src.status)
+    # a block fixed by the input is never moved (placement_ints keeps it where it was read)
+    moved = ((fp.x != src.x) | (fp.y != src.y) | (orient != src.orient)
+             | (status != src.status)) & (src.status != FIXED)
     nc = src.n_comps
     halo_changed = np.zeros(nc, bool)
     if design.halo is not src.halo and not np.array_equal(design.halo, src.halo):
