@@ -70,7 +70,7 @@ def writeback_text(design: Design, fp: Floorplan, path) -> str:
              | (status != src.status)) & (src.status != FIXED)
     nc = src.n_comps
     halo_changed = np.zeros(nc, bool)
-    if design.halo is not src.halo and not np.array_equal(design.halo, src.halo):
+    if not np.array_equal(design.halo, src.halo):
         halo_changed = (_dbu_ints(design.halo[:nc], src.dbu)
                         != _dbu_ints(src.halo[:nc], src.dbu)).any(axis=1)
     edits: list[tuple[int, int, str]] = []
