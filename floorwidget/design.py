@@ -343,6 +343,9 @@ class Design:
     lef_files : list of str
         The LEF libraries a DEF design was read with (empty otherwise); DEF export refers to
         them instead of writing abstracts of its own.
+    def_source : DefSource or None
+        Set by the DEF reader: the source text and the state it described, so that DEF export
+        writes back only what changed (:mod:`floorwidget.formats.lefdef.writeback`).
     validate : bool
         Run :meth:`validate` (raising :class:`DesignError` listing every problem).
     """
@@ -362,6 +365,7 @@ class Design:
         #: congestion figures divide routing demand by their supply (empty: an assumed stack,
         #: :func:`floorwidget.metrics.routing_supply`).
         self.routing_layers: list[tuple[str, str, float]] = []
+        self.def_source = None  # formats.lefdef.source.DefSource of a design read from DEF
         self.dbu = int(dbu)
         self.die = _f64(die, (4,))
         self.names = list(names)

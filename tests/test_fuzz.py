@@ -26,12 +26,14 @@ import warnings
 from collections import Counter
 from pathlib import Path
 
+import numpy as np
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 import floorwidget as fw
-from floorwidget.design import Design, DesignError
+from floorwidget.design import MOVABLE, Design, DesignError
+from floorwidget.formats._io import read_text
 from floorwidget.formats.bookshelf import read_aux
 from floorwidget.session import Session
 
@@ -286,12 +288,31 @@ def test_lef(ops):
         "lef", lambda: fw.load(p, lef=[p.parent / "t.lef", p.parent / "c.lef"])))
 
 
+def _load_and_write_back(p: Path):
+    """Load a DEF; when it is accepted, write it back unedited (it must come back verbatim) and
+    with every movable block moved by one database unit (it must read back so)."""
+    lefs = [p.parent / "t.lef", p.parent / "c.lef"]
+    d = fw.load(p, lef=lefs)
+    out = p.parent / "back.def"
+    try:
+        fw.save(d, d.initial, out)
+        assert read_text(out) == read_text(p), "an unedited write-back is not verbatim"
+        fp = d.initial.copy()
+        fp.x[fp.status == MOVABLE] += 1 / d.dbu
+        fw.save(d, fp, out)
+        back = fw.load(out, lef=lefs)
+    except DesignError as e:
+        raise AssertionError(f"write-back of an accepted DEF failed: {e}") from None
+    assert np.allclose(back.initial.x, fp.x, rtol=0, atol=0.51 / d.dbu)
+    assert np.allclose(back.initial.y, fp.y, rtol=0, atol=0.51 / d.dbu)
+    return d
+
+
 @fuzz("def")
 @given(ops=OPS)
 def test_def(ops):
     files = {"k.def": mutate(DEF_SEED, ops), "t.lef": TECH_LEF, "c.lef": CELL_LEF}
-    _run_in(files, "k.def", lambda p: check(
-        "def", lambda: fw.load(p, lef=[p.parent / "t.lef", p.parent / "c.lef"])))
+    _run_in(files, "k.def", lambda p: check("def", lambda: _load_and_write_back(p)))
 
 
 @fuzz("gz")

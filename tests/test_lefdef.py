@@ -442,6 +442,38 @@ def test_malformed_def_names_file_and_line(tmp_path, old, new, needle, words):
     assert str(e.value).startswith(f"{p}:{e.value.line}: ")
 
 
+_KEEP_OUT = "- PLACEMENT RECT ( 450000 350000 ) ( 500000 400000 ) ;"
+_REGION = "- reg_a ( 20000 30000 ) ( 60000 34000 ) + TYPE FENCE ;"
+
+
+@pytest.mark.parametrize("old, new, needle, words", [
+    # each of these was read without a word before: no blockage, a full one, a silent winner
+    (_KEEP_OUT, "- PLACEMENT + PARTIAL 20 ;", "- PLACEMENT", "needs a RECT or a POLYGON"),
+    (_KEEP_OUT, "- PLACEMENT POLYGON ( 450000 350000 ) ( 500000 350000 ) ( 500000 350000 ) "
+     "( 450000 350000 ) ;", "- PLACEMENT", "POLYGON has no area"),
+    (_KEEP_OUT, "- PLACEMENT + PARTIAL 1e-400 RECT ( 450000 350000 ) ( 500000 400000 ) ;",
+     "- PLACEMENT", "too small to hold"),
+    ("- u_inv1 inv_k + PLACED ( 20000 30000 ) N ;",
+     "- u_inv1 inv_k + PLACED ( 20000 30000 ) N + HALO 100 100 100 100 ;", "- u_inv1",
+     "HALO on a standard cell"),
+    ("END DESIGN", "REGIONS 1 ;\n" + _REGION + "\nEND REGIONS\nGROUPS 2 ;\n"
+     "- g1 u_inv1 + REGION reg_a ;\n- g2 u_inv* + REGION reg_a ;\nEND GROUPS\nEND DESIGN",
+     "- g2", "component 'u_inv1' is in group 'g1' and again in group 'g2'"),
+    ("END DESIGN", "REGIONS 1 ;\n" + _REGION.replace(" + TYPE", " ( 40000 30000 ) ( 80000 34000 )"
+                                                     " + TYPE")
+     + "\nEND REGIONS\nEND DESIGN", "- reg_a", "fence region 'reg_a': its rectangles overlap"),
+])
+def test_doubtful_def_constraints_name_file_and_line(tmp_path, old, new, needle, words):
+    p = _broken(tmp_path, old, new)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        with pytest.raises(DesignError) as e:
+            read_def(p, lef=LEFS)
+    assert words in e.value.message
+    assert str(e.value) == f"{p}:{_line_of(p, needle)}: {e.value.message}"
+    assert "\n" not in str(e.value)
+
+
 def test_missing_lef(tmp_path):
     p = tmp_path / "lonely.def"
     shutil.copy(DEF, p)
@@ -586,7 +618,7 @@ def test_failed_pair_write_keeps_the_old_pair(demo_design, tmp_path, monkeypatch
         return real_replace(src, dst)
 
     fp = demo_design.initial.copy()
-    fp.x += 1.0
+    fp.x[fp.status != FIXED] += 1.0  # blocks fixed by the input are never moved
     monkeypatch.setattr(io_mod.os, "replace", file_too_large_on_def)
     with pytest.raises(DesignError, match=r"blk\.def: cannot write: File too large"):
         fw.save(demo_design, fp, out)
@@ -623,7 +655,7 @@ def test_def_gz_round_trip(kestrel, tmp_path):
 
     out = tmp_path / "k.def.gz"
     fw.save(kestrel, kestrel.initial, out)
-    assert gzip.decompress(out.read_bytes()).startswith(b"VERSION 5.8")
+    assert gzip.decompress(out.read_bytes()) == DEF.read_bytes()  # nothing changed: verbatim
     assert sorted(p.name for p in tmp_path.iterdir()) == ["k.def.gz"]  # LEFs are the inputs'
     back = fw.load(out, lef=LEFS)
     assert back.initial.identical(kestrel.initial)
@@ -689,7 +721,7 @@ def test_pair_in_two_folders_is_finished_by_the_next_load(demo_design, tmp_path,
     dpath, lpath = tmp_path / "d" / "x.def", tmp_path / "l" / "x.lef"
     write_def_pair(demo_design, demo_design.initial, dpath, lpath)
     fp = demo_design.initial.copy()
-    fp.x += 2.0
+    fp.x[fp.status != FIXED] += 2.0  # blocks fixed by the input are never moved
     import floorwidget.formats._io as io_mod
     real_replace = io_mod.os.replace
 
