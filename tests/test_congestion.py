@@ -57,3 +57,25 @@ def test_without_layers_the_supply_is_assumed_and_said_so():
     # max(h / s, v / s) lies between (h + v) / 2s and (h + v) / s in every bin
     s = sh
     assert rep["rudy_peak"] / (2 * s) - 1e-12 <= rep["congestion_peak"] <= rep["rudy_peak"] / s
+
+
+def test_lef_routing_layers_give_the_supply(tmp_path):
+    # LEF: "PITCH x y" gives the x pitch of vertical tracks and the y pitch of horizontal ones
+    # (LEF/DEF language reference); cut layers and layers without a direction are no supply
+    lef = tmp_path / "tech.lef"
+    lef.write_text("""VERSION 5.8 ;
+UNITS DATABASE MICRONS 1000 ; END UNITS
+LAYER M1 TYPE ROUTING ; DIRECTION VERTICAL ; PITCH 0.1 ; END M1
+LAYER V1 TYPE CUT ; END V1
+LAYER M2 TYPE ROUTING ; DIRECTION HORIZONTAL ; PITCH 0.3 0.2 ; END M2
+LAYER M3 TYPE ROUTING ; DIRECTION VERTICAL ; PITCH 0.25 ; END M3
+LAYER OVL TYPE MASTERSLICE ; END OVL
+END LIBRARY
+""")
+    from floorwidget.formats.lefdef import read_lef
+
+    lib = read_lef([str(lef)])
+    assert lib.layers == [("M1", "V", 0.1), ("M2", "H", 0.2), ("M3", "V", 0.25)]
+    d, _ = _two_pin(lib.layers)
+    sh, sv, assumed = M.routing_supply(d)
+    assert not assumed and sh == pytest.approx(5.0) and sv == pytest.approx(4.0)

@@ -1108,5 +1108,6 @@ def read_def(path: str | Path, lef: str | Path | Sequence[str | Path] | None = N
     r.parse()
     design = r.design()
     design.lef_files = [str(p) for p in lef]  # the library the masters and pin names refer to
+    design.routing_layers = list(lib.layers) if lib is not None else []
     design.def_source = DefSource.keep(source, r, design)
     return design

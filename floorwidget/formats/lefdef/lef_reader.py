@@ -45,6 +45,8 @@ class LefLibrary:
     sites: dict[str, tuple[float, float]] = field(default_factory=dict)
     macros: dict[str, LefMacro] = field(default_factory=dict)
     files: list[str] = field(default_factory=list)
+    #: Routing layers in the order the LEF gives them: ``(name, "H" | "V", pitch µm)``.
+    layers: list[tuple[str, str, float]] = field(default_factory=list)
     skipped: Counter = field(default_factory=Counter)
 
 
@@ -64,6 +66,32 @@ def _class_kind(cls_tokens: list[str]) -> int:
     if head in ("PAD", "COVER"):
         return TERMINAL
     return MACRO  # RING and anything unforeseen: a hard block
+
+
+def _routing_layer(name: str, toks: list[str]) -> tuple[str, str, float] | None:
+    """``(name, "H" | "V", pitch)`` of a ``LAYER`` whose ``TYPE`` is ``ROUTING`` and that
+    has a ``DIRECTION`` and a ``PITCH``: the track pitch across the preferred direction (LEF
+    ``PITCH x y`` gives the x pitch of vertical tracks and the y pitch of horizontal ones);
+    ``None`` for any other layer."""
+    up = [s.upper() for s in toks]
+
+    def after(word: str, k: int = 1) -> str | None:
+        i = up.index(word) + k if word in up else len(up)
+        return toks[i] if i < len(toks) else None
+
+    kind, direction = after("TYPE"), after("DIRECTION")
+    if kind is None or kind.upper() != "ROUTING" or direction is None or "PITCH" not in up:
+        return None
+    d = direction.upper()
+    second = after("PITCH", 2)
+    pick = 2 if d == "HORIZONTAL" and second is not None and second != ";" else 1
+    try:
+        p = float(after("PITCH", pick))
+    except (TypeError, ValueError):
+        return None
+    if d not in ("HORIZONTAL", "VERTICAL") or not p > 0:
+        return None
+    return name, d[0], p
 
 
 def _read_one_lef(path: str, lib: LefLibrary) -> None:
@@ -120,6 +148,13 @@ def _read_one_lef(path: str, lib: LefLibrary) -> None:
             m = _read_macro(tk, start)
             m.file = path
             lib.macros[m.name] = m
+        elif kw == "LAYER":
+            name = tk.next("layer name")
+            first = tk.i
+            tk.skip_to_end(name, start)
+            layer = _routing_layer(name, tk.toks[first:tk.i - 2])
+            if layer is not None:
+                lib.layers.append(layer)
         elif kw in _LEF_END_NAMED:
             name = tk.next(f"{kw} name")
             tk.skip_to_end(name, start)
