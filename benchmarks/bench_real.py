@@ -16,7 +16,10 @@ Targets (2 cores; defaults, no options), from the issues:
 * ibm01-mixed legal, HPWL ≤ 2.9e6; ibm05 legal, HPWL ≤ 1.0e7;
 * GSRC n200 and n300 at 10 % whitespace legal, n300 HPWL ≤ 5.4e5;
 * aes_cipher_top legal, HPWL ≤ 1.10 × reference; ariane136 legal, ≤ 1.15 × reference and
-  ≤ 60 s; ariane136 with movable SRAMs legal, ≤ 1.30 × reference.
+  ≤ 60 s; ariane136 with movable SRAMs legal, ≤ 1.30 × reference;
+* every placement judged on congestion p99 (routing demand over supply, 1.0 = full) and
+  overflow beside HPWL, against the design's own placement where there is one, and on the
+  floorplan's shape (logic regions, narrow channels, macros with pins to a wall).
 
 The figures are early-floorplanning estimates; sign-off belongs to the implementation flow.
 """
@@ -32,6 +35,7 @@ import subprocess
 import sys
 import tempfile
 import time
+from functools import partial
 from pathlib import Path
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -50,6 +54,11 @@ DESIGNS = {
 }
 
 
+# judged beside HPWL, each against the design's own placement where there is one
+FIGURES = ("congestion_p99", "density_overflow", "logic_regions", "largest_logic_region",
+           "narrow_channels", "macros_facing_wall")
+
+
 def _lefs(folder: Path) -> list[str]:
     lefs = sorted(str(p) for p in folder.glob("*.lef"))
     return [p for p in lefs if "tech" in Path(p).name] + \
@@ -66,7 +75,6 @@ def _movable_copy(def_gz: Path, tmp: Path) -> Path:
 
 
 def _child(name: str, data: Path) -> dict:
-    import numpy as np
 
     import floorwidget as fw
     from floorwidget.design import CELL, MACRO, MOVABLE
@@ -80,10 +88,9 @@ def _child(name: str, data: Path) -> dict:
             path = _movable_copy(path, Path(tmp))
         d = fw.load(path, lef=lef)
         out: dict = {"name": name}
-        if ref == "ref":
-            out["ref"] = fw.evaluate(d)["hpwl"]
-        else:
-            out["ref"] = ref
+        own = fw.evaluate(d) if ref == "ref" else None
+        out["ref"] = own["hpwl"] if own else ref
+        out["own"] = {k: own[k] for k in FIGURES} if own else None
         st = d.initial.status
         out["cells"] = int((d.kind == CELL).sum())
         out["macros"] = int((d.kind == MACRO).sum())
@@ -100,9 +107,20 @@ def _child(name: str, data: Path) -> dict:
         out["legal"] = rep["legal"]
         out["target"] = rep["target_density"]
         out["stages"] = {k: round(v, 1) for k, v in fp.info["stage_seconds"].items()}
-        out["narrow"] = int(np.sum(fp.info.get("narrow_channels", 0)))
+        out["figures"] = {k: rep[k] for k in FIGURES}
+        out["layout"] = fp.info.get("macro_layout", "")
     out["peak_mb"] = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
     return out
+
+
+def _beside(f: dict, own: dict, k: str, fmt: str = "{:.3g}", ratio: bool = False) -> str:
+    """Our figure ``k``, with the design's own in brackets (as a ratio with ``ratio``)."""
+    v = fmt.format(f[k])
+    if k not in own:
+        return v
+    if ratio and own[k]:
+        return f"{v} ({f[k] / own[k]:.2f}×)"
+    return f"{v} ({fmt.format(own[k])})"
 
 
 def main(argv: list[str]) -> int:
@@ -122,9 +140,12 @@ def main(argv: list[str]) -> int:
     names = [n for n in a.only.split(",") if n]
     if a.quick:
         names = [n for n in names if n in ("ibm01", "aes", "n200")]
-    print("| design | cells | macros (movable) | util | target | wall s | CPU s | peak MB "
-          "| HPWL global | HPWL legal | legal | yardstick | ÷ yardstick | stages s |")
-    print("|---|---:|---:|---:|---:|---:|---:|---:|---:|---:|---|---:|---:|---|")
+    print("| design | cells | macros (movable) | layout | util | target | wall s | CPU s "
+          "| peak MB | HPWL global | HPWL legal | legal | yardstick | HPWL ÷ yardstick "
+          "| congestion p99 (÷ own) | overflow (own) | logic regions (own) "
+          "| narrow channels | pins to a wall (own) | stages s |")
+    print("|---|---:|---:|---|---:|---:|---:|---:|---:|---:|---:|---|---:|---:|---:|---:|---:"
+          "|---:|---:|---|")
     status = 0
     for name in names:
         if name not in DESIGNS or not (data / DESIGNS[name][0]).is_dir():
@@ -141,10 +162,15 @@ def main(argv: list[str]) -> int:
         note = DESIGNS[name][3]
         ratio = f"{r['hpwl'] / ref:.3f}" if ref else "—"
         yard = f"{ref:.4g} ({note})" if ref else "—"
+        f, own = r["figures"], r["own"] or {}
+        beside = partial(_beside, f, own)
         print(f"| {name} | {r['cells']} | {r['macros']} ({r['movable_macros']}) | "
-              f"{r['util']:.2f} | {r['target']:.2f} | {r['wall']:.1f} | {r['cpu']:.1f} | "
-              f"{r['peak_mb']:.0f} | {r['hpwl_global']:.4g} | {r['hpwl']:.4g} | {r['legal']} | "
-              f"{yard} | {ratio} | {r['stages']} |", flush=True)
+              f"{r['layout']} | {r['util']:.2f} | {r['target']:.2f} | {r['wall']:.1f} | "
+              f"{r['cpu']:.1f} | {r['peak_mb']:.0f} | {r['hpwl_global']:.4g} | "
+              f"{r['hpwl']:.4g} | {r['legal']} | {yard} | {ratio} | "
+              f"{beside('congestion_p99', ratio=True)} | {beside('density_overflow')} | "
+              f"{beside('logic_regions', '{}')} | {f['narrow_channels']} | "
+              f"{beside('macros_facing_wall', '{}')} | {r['stages']} |", flush=True)
     return status
 
 
