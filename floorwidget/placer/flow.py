@@ -137,7 +137,7 @@ def use_multilevel(design: Design, fp: Floorplan, mode: str) -> bool:
 
 
 def refine(design: Design, floorplan: Floorplan, *, target_density: float = 0.8, seed: int = 0,
-           progress: Progress = None, **options: Any) -> Floorplan:
+           progress: Progress = None, around=None, **options: Any) -> Floorplan:
     """Warm-started clean-up after a hand edit (meant to run on every drag and drop).
 
     Movable macros are legalised from their current positions (minimal displacement: only those
@@ -151,12 +151,17 @@ def refine(design: Design, floorplan: Floorplan, *, target_density: float = 0.8,
     ----------
     design, floorplan : the design and its current floorplan (not modified).
     target_density, seed, progress, **options : as for :func:`place`.
+    around : names or indices, optional
+        The blocks just moved by hand.  Only the cells and clusters near where they were and
+        are (:func:`refine_window`; macros the legaliser moved count too) are re-spread and put
+        back on rows; everything else stays bit for bit, so the cost follows the change, not
+        the design.  Default: every cell and cluster.
 
     Returns
     -------
     Floorplan
         New floorplan with ``info`` (``iterations``, ``overflow``, ``seconds``,
-        ``stage_seconds``).
+        ``stage_seconds``; ``window_blocks`` with ``around``).
 
     Raises
     ------
@@ -176,6 +181,12 @@ def refine(design: Design, floorplan: Floorplan, *, target_density: float = 0.8,
         legalized = True
     t0 = time.perf_counter()
     soft = soft_mask(design, src)
+    window = None
+    if around is not None:
+        moved = np.flatnonzero((out.x != src.x) | (out.y != src.y) | (out.orient != src.orient))
+        window = refine_window(design, src, out, np.union1d(_indices(design, around), moved))
+        soft &= window
+        info["window_blocks"] = int(soft.sum())
     ov = 0.0
     if soft.any():
         st = SpreadStage(design, out, soft, target, opts, mult)
@@ -191,8 +202,39 @@ def refine(design: Design, floorplan: Floorplan, *, target_density: float = 0.8,
         info["bins"] = res["bins"]
     info["stage_seconds"]["cells"] = time.perf_counter() - t0
     report(progress, "cells", 1.0, {"overflow": ov})
-    out = rows_stage(design, out, src, opts, target, info, progress)
+    out = rows_stage(design, out, src, opts, target, info, progress, only=window)
     return finish(design, out, src, info, legalized, ov, t_all, target, seed)
+
+
+WINDOW_MARGIN = 1.0  # a refine window reaches this many times the moved block's side around it
+
+
+def _indices(design: Design, blocks) -> np.ndarray:
+    """Block indices from names or indices."""
+    out = [design.block(b) if isinstance(b, str) else int(b) for b in blocks]
+    return np.asarray(out, dtype=np.intp)
+
+
+def refine_window(design: Design, before: Floorplan, after: Floorplan,
+                  blocks: np.ndarray) -> np.ndarray:
+    """Blocks (a mask) near where ``blocks`` were in ``before`` and are in ``after``: centres
+    inside a footprint (with halo) grown by :data:`WINDOW_MARGIN` times its longer side plus
+    four row heights (or 1 % of the core without rows) — the logic a hand move disturbs."""
+    mask = np.zeros(design.num_blocks, bool)
+    if not len(blocks):
+        return mask
+    pad = 4.0 * float(np.median(design.row_height)) if len(design.row_height) else \
+        0.01 * float(min(design.core[2] - design.core[0], design.core[3] - design.core[1]))
+    cx, cy = after.centres()
+    boxes = []
+    for fp in (before, after):
+        r = fp.rects(halo=True)[blocks]
+        side = np.maximum(r[:, 2] - r[:, 0], r[:, 3] - r[:, 1]) * WINDOW_MARGIN + pad
+        boxes.append(np.stack([r[:, 0] - side, r[:, 1] - side, r[:, 2] + side,
+                               r[:, 3] + side], axis=1))
+    for b in np.concatenate(boxes):
+        mask |= (cx >= b[0]) & (cx <= b[2]) & (cy >= b[1]) & (cy <= b[3])
+    return mask
 
 
 def legalize(design: Design, floorplan: Floorplan, **options: Any) -> Floorplan:

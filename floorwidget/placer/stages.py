@@ -337,13 +337,15 @@ def fitting_target(design: Design, fp: Floorplan, target: float) -> float:
 
 
 def rows_stage(design: Design, out: Floorplan, src: Floorplan, opts: PlacerOptions,
-                target: float, info: dict, progress: Progress) -> Floorplan:
+                target: float, info: dict, progress: Progress,
+                only: np.ndarray | None = None) -> Floorplan:
     """Standard cells onto rows and sites (Abacus), then swap-based detailed placement, when
-    ``cells="legal"``; timed and reported as the stages ``"rows"`` and ``"detail"``."""
+    ``cells="legal"``; timed and reported as the stages ``"rows"`` and ``"detail"``.  With
+    ``only`` (a block mask) just those cells move; the others are obstacles where they are."""
     info["hpwl_global"] = hpwl(design, out)
     if opts.cells != "legal":
         return out
-    cells = cell_mask(design, src)
+    cells = cell_mask(design, src) if only is None else cell_mask(design, src) & only
     if not cells.any():
         return out
     if not len(design.row_y):
@@ -366,7 +368,7 @@ def rows_stage(design: Design, out: Floorplan, src: Floorplan, opts: PlacerOptio
     if passes:
         t0 = time.perf_counter()
         frozen = None
-        if opts.max_inflation > 1.0:  # keep the hot spots the spreading opened up open
+        if opts.max_inflation > 1.0 and only is None:  # keep open the hot spots spread apart
             frozen = congestion_map(design, out) > opts.congestion_target
         got = []
         for grp, keep, avoid in groups:
