@@ -28,7 +28,7 @@ __all__ = ["ConstraintEdits", "EDGE_TOLERANCE"]
 
 #: A rectangle may pass the die edge by this fraction of the placement grid pitch (float
 #: round-off of a core computed from rows and sites); it is then put on the edge.
-EDGE_TOLERANCE = 1e-6
+EDGE_TOLERANCE = 1e-3
 
 
 class ConstraintEdits:
@@ -152,7 +152,8 @@ class ConstraintEdits:
                                                 "width"),
                                                (hh, h[1], h[3], c[3] - c[1], "bottom + top",
                                                 "height")):
-            big = np.asarray(size) + lo + hi > span
+            with np.errstate(over="ignore"):  # a halo of 1e308 is simply too large
+                big = np.asarray(size) + lo + hi > span
             if big.any():
                 j = int(np.flatnonzero(big)[0])
                 raise DesignError(
