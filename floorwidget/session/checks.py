@@ -16,8 +16,8 @@ import numpy as np
 
 from ..design import FIXED, Design, DesignError
 
-__all__ = ["number", "integer", "density", "unit_density", "block_index", "name_list",
-           "plain", "fixed_freed"]
+__all__ = ["number", "number_list", "integer", "density", "unit_density", "block_index",
+           "name_list", "plain", "fixed_freed"]
 
 SEED_LIMIT = 2**32  # seeds as the command line takes them: [0, 2^32)
 
@@ -36,6 +36,18 @@ def number(v, what: str) -> float:
     if not math.isfinite(f):
         raise DesignError(f"{what} must be finite, got {v!r}")
     return f
+
+
+def number_list(v, n: int, what: str, form: str) -> list[float]:
+    """``v`` as a list of ``n`` finite floats; ``form`` says what was expected in the error
+    (e.g. ``"a rectangle is four numbers [xlo, ylo, xhi, yhi]"``)."""
+    try:
+        vals = list(v)
+    except TypeError:
+        vals = []
+    if len(vals) != n or isinstance(v, (str, Mapping)):
+        raise DesignError(f"{what}: {form}, got {v!r}")
+    return [number(x, what) for x in vals]
 
 
 def integer(v, what: str, lo: int = 0, hi: int | None = None) -> int:

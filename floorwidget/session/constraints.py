@@ -52,14 +52,8 @@ class ConstraintEdits:
         """``rect`` (two corners in any order) as ``[xlo, ylo, xhi, yhi]``, checked: four
         finite numbers, some area, inside the die up to round-off (:data:`EDGE_TOLERANCE`
         of the grid pitch; put on the edge then).  Errors name ``what``."""
-        try:
-            vals = list(rect)
-        except TypeError:
-            vals = []
-        if len(vals) != 4:
-            raise DesignError(f"{what}: a rectangle is four numbers [xlo, ylo, xhi, yhi], got "
-                              f"{rect!r}")
-        a, b, c, d = (checks.number(v, what) for v in vals)
+        a, b, c, d = checks.number_list(rect, 4, what,
+                                    "a rectangle is four numbers [xlo, ylo, xhi, yhi]")
         r = [min(a, c), min(b, d), max(a, c), max(b, d)]
         if not (r[2] > r[0] and r[3] > r[1]):
             raise DesignError(f"{what}: rectangle {r} has no area")
@@ -177,22 +171,17 @@ class ConstraintEdits:
         if (kind != MACRO).any():
             nm = lst[int(np.flatnonzero(kind != MACRO)[0])]
             raise DesignError(f"block {nm!r}: halos are set on macros only")
-        try:
-            vals = [halo] * 4 if np.ndim(halo) == 0 else list(halo)
-        except TypeError:
-            vals = []
         where = f"block {lst[0]!r}" if lst else "set_halo"
-        if len(vals) != 4:
-            raise DesignError(f"{where}: a halo is one number or four (left, bottom, right, "
-                              f"top), got {halo!r}")
-        h = [checks.number(v, f"{where}: halo") for v in vals]
+        one = np.ndim(halo) == 0
+        h = [checks.number(halo, f"{where}: halo")] * 4 if one else checks.number_list(
+            halo, 4, f"{where}: halo", "a halo is one number or four (left, bottom, right, top)")
         if min(h) < 0:
             raise DesignError(f"{where}: halo {h} must not be negative")
         self._check_halo_fits(idx, h)
         hl = self.design.halo.copy()
         hl[idx] = h
         self._constrain("set_halo", ((names if isinstance(names, str) else lst,
-                                      h if np.ndim(halo) else h[0]),), blocks=idx, halo=hl)
+                                      h[0] if one else h),), blocks=idx, halo=hl)
 
     # --- cell regions: fences and guides for groups of cells -----------------------------------
     @locked
