@@ -12,6 +12,7 @@ file is data: nothing in it can become code in a script.
 
 from __future__ import annotations
 
+import functools
 import math
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field, fields
@@ -135,11 +136,12 @@ class Action:
     required: int | None = None
     placer_options: bool = False
 
-    @property
-    def needed(self) -> int:
-        return len(self.args) if self.required is None else self.required
+    def __post_init__(self):
+        if self.required is None:  # all positional arguments are required
+            object.__setattr__(self, "required", len(self.args))
 
 
+@functools.cache
 def _placer_option_names() -> frozenset[str]:
     from ..placer.options import PlacerOptions  # noqa: PLC0415
     return frozenset(f.name for f in fields(PlacerOptions))
@@ -195,7 +197,7 @@ def check_entry(entry, where: str = "entry", depth: int = 0) -> dict:
         Naming ``where`` (e.g. ``log[3].kwargs``): an unknown action or keyword, a wrong
         number of arguments or a value of the wrong type.
     """
-    if not isinstance(entry, Mapping):
+    if not isinstance(entry, dict):
         raise DesignError(f"{where}: expected an object, got {type(entry).__name__}")
     op = entry.get("op")
     if op == "batch":
@@ -211,24 +213,27 @@ def check_entry(entry, where: str = "entry", depth: int = 0) -> dict:
     if act is None:
         raise DesignError(f"{where}.op: unknown action {op!r}")
     args, kwargs = entry.get("args", []), entry.get("kwargs", {})
-    if not isinstance(args, list) or not act.needed <= len(args) <= len(act.args):
-        n = act.needed if act.needed == len(act.args) else f"{act.needed}..{len(act.args)}"
+    if not isinstance(args, list) or not act.required <= len(args) <= len(act.args):
+        n = act.required if act.required == len(act.args) else \
+            f"{act.required}..{len(act.args)}"
         raise DesignError(f"{where}.args: {op} takes {n} argument(s), got {args!r}")
-    if not isinstance(kwargs, Mapping):
+    if not isinstance(kwargs, dict):
         raise DesignError(f"{where}.kwargs: expected an object, got {type(kwargs).__name__}")
-    out_args = [kind(v, f"{where}.args[{k}] ({name})")
-                for k, ((name, kind), v) in enumerate(zip(act.args, args))]
-    out_kw = {}
-    for key, v in kwargs.items():
-        w = f"{where}.kwargs.{key}" if isinstance(key, str) and key.isidentifier() \
-            else f"{where}.kwargs"
-        kind = act.kwargs.get(key) if isinstance(key, str) else None
-        if kind is None and act.placer_options and isinstance(key, str) \
-                and key in _placer_option_names():
-            kind = _plain
-        if kind is None:
-            raise DesignError(f"{w}: {op} takes no keyword {key!r}")
-        out_kw[str(key)] = kind(v, w)
+    at = "args"
+    try:  # the kinds name the argument; the entry's place is added only on an error
+        out_args = [kind(v, name) for (name, kind), v in zip(act.args, args)]
+        at = "kwargs"
+        out_kw = {}
+        for key, v in kwargs.items():
+            kind = act.kwargs.get(key) if isinstance(key, str) else None
+            if kind is None and act.placer_options and isinstance(key, str) \
+                    and key in _placer_option_names():
+                kind = _plain
+            if kind is None:
+                raise DesignError(f"{op} takes no keyword {key!r}")
+            out_kw[str(key)] = kind(v, str(key))
+    except DesignError as e:
+        raise DesignError(f"{where}.{at}: {e.message}") from None
     return {"op": op, "args": out_args, "kwargs": out_kw}
 
 

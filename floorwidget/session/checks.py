@@ -30,9 +30,12 @@ def number(v, what: str) -> float:
     DesignError
         Naming ``what``: not a number (``"0.5"`` is text, not a number) or not finite.
     """
-    if isinstance(v, (bool, np.bool_)) or not isinstance(v, numbers.Real):
+    if type(v) is float:  # the common case, first
+        f = v
+    elif isinstance(v, (bool, np.bool_)) or not isinstance(v, numbers.Real):
         raise DesignError(f"{what} must be a number, got {v!r}")
-    f = float(v)
+    else:
+        f = float(v)
     if not math.isfinite(f):
         raise DesignError(f"{what} must be finite, got {v!r}")
     return f

@@ -137,14 +137,15 @@ class Session(HandEdits, ConstraintEdits, PlacerCalls):
     def state(self) -> SessionState:
         """This session as plain data (what :meth:`save` writes and :meth:`script` replays).
 
-        The floorplans are the session's own read-only ones; the lists are copies.
+        The floorplans are the session's own read-only ones; the lists are copies, their
+        entries (log entries, steps, alternatives) shared: treat them as read-only.
         """
         h = self._history
         if h.batches:
             raise DesignError(f"the session is in the middle of a batch ({h.batches[-1].label!r})")
         return SessionState(self.full_design, self._full_floorplan, self.clustering, self._base,
                             self.target_density, self._initial, h.fp, list(self._alts.values()),
-                            _copy_log(h.log), list(h.undo), list(h.redo), h.state_id)
+                            list(h.log), list(h.undo), list(h.redo), h.state_id)
 
     # --- state ---------------------------------------------------------------------------------
     @property

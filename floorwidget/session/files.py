@@ -553,12 +553,16 @@ def _steps(doc: _Doc, hist: dict, which: str, design: Design, designs: list) -> 
         idx = np.array(idx, dtype=np.int64)
         old = doc.fp_arrays(doc.get(sd, "old", w), len(idx), w + ".old")
         new = doc.fp_arrays(doc.get(sd, "new", w), len(idx), w + ".new")
-        doc.keeps_fixed(design, old, w + ".old", idx)
-        doc.keeps_fixed(design, new, w + ".new", idx)
         steps.append((action, idx, old, new,
                       doc.obj(sd.get("old_info", {}), w + ".old_info"),
                       doc.obj(sd.get("new_info", {}), w + ".new_info"),
                       *_step_designs(doc, designs, design, sd, w)))
+    if steps:  # one vectorised check of all steps; the loop only names the step at fault
+        idx = np.concatenate([t[1] for t in steps])
+        for side, j in (("old", 2), ("new", 3)):
+            if fixed_freed(design, np.concatenate([t[j][3] for t in steps]), idx) is not None:
+                for k, t in enumerate(steps):
+                    doc.keeps_fixed(design, t[j], f"history.{which}[{k}].{side}", t[1])
     return steps
 
 
