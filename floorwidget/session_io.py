@@ -3,6 +3,6 @@
 
 from __future__ import annotations
 
-from .session.files import LIST_LIMIT, design_fingerprint, load_state, save_state
+from .session.files import design_fingerprint, load_state, save_state
 
-__all__ = ["LIST_LIMIT", "design_fingerprint", "load_state", "save_state"]
+__all__ = ["design_fingerprint", "load_state", "save_state"]

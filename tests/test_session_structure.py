@@ -2,8 +2,9 @@
 readable size, and files and scripts written from the plain state, not a Session's fields.
 
 The import graph counts every ``import`` statement, also those inside functions, and a module
-imports the packages above it (its own excepted: Python runs them before it anyway); a circle is a strongly connected component of more than one
-module (networkx, Hagberg, Schult, Swart, SciPy 2008; Tarjan's algorithm, SIAM J. Comput. 1972).
+imports the packages above it (its own excepted: Python runs them before it anyway); a circle
+is a strongly connected component of more than one module (networkx, Hagberg, Schult, Swart,
+SciPy 2008; Tarjan's algorithm, SIAM J. Comput. 1972).
 """
 
 from __future__ import annotations
