@@ -117,9 +117,7 @@ class Session(HandEdits, ConstraintEdits, PlacerCalls):
         self._expanded: tuple[int, Floorplan] | None = None
         self._base = state.base  # as read: session files store constraints relative to it
         self._initial = freeze(state.initial)
-        self._history = History(state.current)
-        if state.undo or state.redo or state.log or state.state_id:
-            self._history.adopt(state.current, state.undo, state.redo, state.log,
+        self._history = History(state.current, state.undo, state.redo, state.log,
                                 state.state_id)
         self._alts: dict[str, Alternative] = {a.label: a for a in state.alternatives}
         self._observers: list[Callable[[ChangeEvent], Any]] = []

@@ -43,8 +43,8 @@ Floats are written by :mod:`json` with ``repr``, which round-trips float64 exact
 and status are the integer codes listed under ``"codes"``.
 
 A file is data: every logged action and keyword is checked against
-:data:`floorwidget.session.actions.ACTIONS` and its values by type, and blocks FIXED in the
-design file stay fixed, where the design has them, in every floorplan the file holds.
+:data:`floorwidget.session.actions.ACTIONS` and its values by type, and a block FIXED in the
+design file must be FIXED in every floorplan and history step the file holds.
 """
 
 from __future__ import annotations

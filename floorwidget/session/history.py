@@ -100,29 +100,21 @@ class History:
     to the ids the step recorded, so a cache keyed by id (the session's reports) stays valid.
     """
 
-    def __init__(self, fp: Floorplan):
+    def __init__(self, fp: Floorplan, undo=(), redo=(), log=(), state_id: int = 0):
+        """A history at floorplan ``fp`` (state ``state_id``); a history read back from a
+        file brings its steps and log, and new changes get ids above all of theirs."""
         self.fp = freeze(fp)
-        self.state_id = 0
-        self.next_id = 1
-        self.undo: list[Step] = []
-        self.redo: list[Step] = []
+        self.state_id = state_id
+        self.undo: list[Step] = list(undo)
+        self.redo: list[Step] = list(redo)
         self.batches: list[Batch] = []
-        self.log: list[dict] = []
+        self.log: list[dict] = list(log)
+        self.next_id = max([state_id, *(s.new_id for s in self.undo + self.redo)]) + 1
 
     def _new_id(self) -> int:
         nid = self.next_id
         self.next_id += 1
         return nid
-
-    def adopt(self, current: Floorplan, undo: list[Step], redo: list[Step], log: list[dict],
-              state_id: int) -> None:
-        """Take a history read from a file: ``current`` is state ``state_id``, the steps carry
-        theirs; new changes get ids above all of them."""
-        self.fp = freeze(current)
-        self.undo, self.redo, self.log = list(undo), list(redo), list(log)
-        self.state_id = state_id
-        ids = [state_id, *(s.new_id for s in self.undo + self.redo)]
-        self.next_id = max(self.next_id, *ids) + 1
 
     def record(self, entry: dict) -> None:
         """Append a log entry (to the innermost open batch, if any)."""
