@@ -21,7 +21,16 @@ import pytest
 
 import floorwidget as fw
 import floorwidget.placer.errors  # noqa: F401  (real module, before any monkeypatching)
-from floorwidget.design import FIXED, MOVABLE, ORIENT_CODE, PINNED, TERMINAL, DesignError, snap
+from floorwidget.design import (
+    FIXED,
+    MOVABLE,
+    ORIENT_CODE,
+    ORIENTATIONS,
+    PINNED,
+    TERMINAL,
+    DesignError,
+    snap,
+)
 from floorwidget.session import ChangeEvent, Comparison, Session
 
 
@@ -535,11 +544,17 @@ def test_rotate_and_flip_follow_the_dihedral_group():
             r, f = orient.rotated(code, mask), orient.flipped(code, mask)
             assert next_orientation("rotate", code, mask) == (r if r != code else None)
             assert next_orientation("flip", code, mask) == (f if f != code else None)
-    # four quarter turns with everything allowed come back: the rotation has order 4
-    c = 0
-    for _ in range(4):
-        c = next_orientation("rotate", c, 0xFF)
-    assert c == 0
+    # with every orientation allowed, quarter turns counter-clockwise go N -> W -> S -> E -> N
+    # and FN -> FE -> FS -> FW -> FN, and a mirror is its own inverse (the LEF/DEF language
+    # reference's orientation table, R90 = W, MY = FN; from memory)
+    for start, cycle in (("N", "WSEN"), ("FN", ["FE", "FS", "FW", "FN"])):
+        c, seen = ORIENTATIONS.index(start), []
+        for _ in range(4):
+            c = next_orientation("rotate", c, 0xFF)
+            seen.append(ORIENTATIONS[c])
+        assert seen == list(cycle)
+    for code in range(8):
+        assert next_orientation("flip", next_orientation("flip", code, 0xFF), 0xFF) == code
 
 
 def test_no_op_makes_no_step_but_tells_observers(s, names):
