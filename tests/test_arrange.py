@@ -356,7 +356,7 @@ def test_pinned_macros_are_refused_and_nothing_changes(g, call):
 
 def test_bad_requests_are_refused(g):
     d, s = g
-    with pytest.raises(KeyError):
+    with pytest.raises(DesignError, match="no block named 'nope'"):
         s.align(["m0", "nope"], "left")
     with pytest.raises(DesignError, match="not a macro"):
         s.align(["m0", "c0"], "left")

@@ -170,7 +170,7 @@ def test_halo_only_on_macros(demo_design):
     cl = demo_design.names[int(np.flatnonzero(demo_design.kind != MACRO)[0])]
     with pytest.raises(DesignError, match=f"block {cl!r}: halos are set on macros only"):
         s.set_halo(cl, 1.0)
-    with pytest.raises(KeyError, match="nope"):
+    with pytest.raises(DesignError, match="no block named 'nope'"):
         s.set_halo("nope", 1.0)
 
 

@@ -19,6 +19,7 @@ import copy
 import gzip
 import json
 import os
+import random
 import re
 import signal
 import tempfile
@@ -30,17 +31,18 @@ import numpy as np
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
+from session_script_check import script_is_data_only
 
 import floorwidget as fw
 from floorwidget.design import MOVABLE, Design, DesignError
 from floorwidget.formats._io import read_text
 from floorwidget.formats.bookshelf import read_aux
-from floorwidget.session import Session
+from floorwidget.session import ACTIONS, Session
 
 DATA = Path(__file__).parent / "data"
 LONG = os.environ.get("FW_FUZZ", "").lower() == "long"
 EXAMPLES = {"json": 300, "bookshelf": 400, "lef": 300, "def": 400, "session": 300, "gz": 100,
-            "gsrc": 300}
+            "gsrc": 300, "session_edits": 150, "session_log": 200}
 if LONG:
     EXAMPLES = {k: 20 * v for k, v in EXAMPLES.items()}
 TIME_LIMIT = 10.0  # seconds per mutant; the seeds load in milliseconds
@@ -331,6 +333,122 @@ def test_session_file(tiny_design, session_seed, structural, ops):
     data = mutate_json(session_seed, ops) if structural else mutate(session_seed, ops)
     _run_in({"s.json": data}, "s.json",
             lambda p: check("session", lambda: Session.load(p, design=tiny_design)))
+
+
+# --- session constraint edits and crafted session logs ------------------------------------------
+
+HOSTILE = ["seed=0); __import__('os').system('touch PWNED'); (", "m1', 1, 1); import os; ('",
+           "__import__", "m1\n", "", "0.5", "nan", "a" * 300, "move", "batch"]
+BAD_VALUES = JSON_NASTY[:-3] + HOSTILE + [-5.0, 1e9, [1.0, 2.0], [0.0, 0.0, 0.0, 0.0],
+                                           [30.0, 30.0, 40.0, 40.0], ("m1",), {"m1": 1}]
+EDITS = st.lists(st.tuples(st.sampled_from(
+    ["add_blockage", "add_blockage", "move_blockage", "set_blockage_density", "remove_blockage",
+     "set_halo", "add_region", "add_region", "remove_region", "assign_group", "assign_group",
+     "move", "pin", "undo", "redo"]), st.integers(0, 2), st.integers(0, 2**32 - 1)),
+    min_size=1, max_size=10)
+
+
+def _edit_args(op: str, rnd, n_blockages: int) -> list:
+    """Good arguments of ``op`` on the tiny design (die and core 20 x 8 µm)."""
+    def rect():
+        x, y = rnd.uniform(0, 16), rnd.uniform(0, 6)
+        return [x, y, x + rnd.uniform(0.5, 4), y + rnd.uniform(0.5, 2)]
+
+    k = rnd.randrange(max(n_blockages, 1))
+    region = rnd.choice(["r1", "r2"])
+    return {"add_blockage": lambda: [rect(), rnd.choice([0.0, rnd.random()])],
+            "move_blockage": lambda: [k, rnd.uniform(0, 15), rnd.uniform(0, 5)],
+            "set_blockage_density": lambda: [k, rnd.random()],
+            "remove_blockage": lambda: [k],
+            "set_halo": lambda: ["m1", rnd.choice([rnd.uniform(0, 2),
+                                                   [rnd.uniform(0, 2) for _ in range(4)]])],
+            "add_region": lambda: [region, rect(), rnd.choice(["fence", "guide"])],
+            "remove_region": lambda: [region],
+            "assign_group": lambda: [rnd.choice([region, None]),
+                                     rnd.sample(["a", "b", "c"], rnd.randint(1, 3))],
+            "move": lambda: [rnd.choice(["a", "m1", "p1"]), rnd.uniform(-2, 22),
+                             rnd.uniform(-2, 10)],
+            "pin": lambda: [rnd.choice(["a", "m1", ["b", "c"]])],
+            "undo": lambda: [], "redo": lambda: []}[op]()
+
+
+@fuzz("session_edits")
+@given(edits=EDITS)
+def test_session_constraint_edits(tiny_design, tmp_path_factory, edits):
+    """Random constraint edits, two in three with good arguments, the others with one argument
+    replaced by a wrong type, a hostile string or an out-of-range value: each is taken or
+    refused with a DesignError or TypeError leaving the session as it was; what is taken keeps
+    the design valid, saves, loads back equal and replays as a script of literal calls only."""
+    s = Session(tiny_design)
+    COUNTS["session_edits", "mutants"] += 1
+    for op, bad, seed in edits:
+        rnd = random.Random(seed)
+        args = _edit_args(op, rnd, len(s.design.blockages))
+        if bad == 0 and args:
+            args[rnd.randrange(len(args))] = copy.deepcopy(rnd.choice(BAD_VALUES))
+        fp, log = s.floorplan, s.log
+        try:
+            with _time_limit(TIME_LIMIT):
+                getattr(s, op)(*args)
+        except (DesignError, TypeError) as e:
+            assert "\n" not in str(e), f"more than one line: {e!r}"
+            assert s.floorplan is fp and s.log == log, f"{op} changed the session and failed"
+            COUNTS["session_edits", "edits refused"] += 1
+            continue
+        COUNTS["session_edits", "edits taken"] += 1
+        assert s.design.problems() == [], (op, args)
+    p = tmp_path_factory.mktemp("edits") / "s.json"
+    s.save(p)
+    t = Session.load(p, design=tiny_design)
+    assert t.floorplan.identical(s.floorplan) and t.log == s.log and t.history == s.history
+    assert np.array_equal(t.design.blockages, s.design.blockages)
+    assert np.array_equal(t.design.halo, s.design.halo)
+    assert t.design.regions.to_list() == s.design.regions.to_list()
+    assert script_is_data_only(s.script())
+    COUNTS["session_edits", "accepted"] += 1
+
+
+def _graft(doc: dict, ops) -> None:
+    """Put hostile text or values where a session log holds an action name, a keyword, an
+    argument or a batch label."""
+    log = doc["log"]
+    for kind, a, b in ops:
+        e = log[a % len(log)]
+        bad = HOSTILE[b % len(HOSTILE)] if b % 3 else JSON_NASTY[b % len(JSON_NASTY[:-3])]
+        if kind in ("flip", "truncate"):
+            e["op"] = bad
+        elif kind in ("delete_line", "dup_line"):
+            e.setdefault("kwargs", {})[str(bad)] = 1
+        elif kind == "insert_line":
+            log.append({"op": "batch", "label": bad, "actions": [copy.deepcopy(e)]})
+        elif e.get("args"):
+            e["args"][b % len(e["args"])] = bad
+        else:
+            e["args"] = [bad]
+
+
+@fuzz("session_log")
+@given(ops=OPS)
+def test_crafted_session_logs(tiny_design, session_seed, ops):
+    """Session files whose log carries hostile names, keywords and values: refused with a
+    one-line DesignError naming the file and the entry, or loaded with a script of literal
+    calls of the action table only."""
+    doc = json.loads(session_seed)
+    _graft(doc, ops)
+
+    def load(p):
+        s = Session.load(p, design=tiny_design)
+        assert script_is_data_only(s.script())
+        return s
+
+    _run_in({"s.json": json.dumps(doc).encode()}, "s.json",
+            lambda p: check("session_log", lambda: load(p)))
+
+
+def test_session_seed_log_covers_the_table(session_seed):
+    """The crafted-log fuzz starts from a log that uses several kinds of action."""
+    ops = {e["op"] for e in json.loads(session_seed)["log"]}
+    assert len(ops) >= 8 and ops <= set(ACTIONS)
 
 
 # --- GSRC sets (floorwidget.formats.gsrc) -----------------------------------------------------

@@ -21,7 +21,16 @@ import pytest
 
 import floorwidget as fw
 import floorwidget.placer.errors  # noqa: F401  (real module, before any monkeypatching)
-from floorwidget.design import FIXED, MOVABLE, ORIENT_CODE, PINNED, TERMINAL, DesignError, snap
+from floorwidget.design import (
+    FIXED,
+    MOVABLE,
+    ORIENT_CODE,
+    ORIENTATIONS,
+    PINNED,
+    TERMINAL,
+    DesignError,
+    snap,
+)
 from floorwidget.session import ChangeEvent, Comparison, Session
 
 
@@ -106,7 +115,7 @@ def test_move_pinned_stays_pinned_fixed_refused(s, names):
     t = names["fixed"][0]
     with pytest.raises(DesignError, match="fixed"):
         s.move(t, 10, 10)
-    with pytest.raises(KeyError, match="no_such_block"):
+    with pytest.raises(DesignError, match="no block named 'no_such_block' in design"):
         s.move("no_such_block", 10, 10)
     with pytest.raises(DesignError, match="finite"):
         s.move(m, float("nan"), 1.0)
@@ -337,7 +346,7 @@ def test_snapshots_labels_and_restore(s, names):
     s.snapshot("one", note="after a move")
     with pytest.raises(DesignError, match="already"):
         s.snapshot("one")
-    with pytest.raises(KeyError, match="nope"):
+    with pytest.raises(DesignError, match="no alternative labelled 'nope'"):
         s.restore("nope")
     moved_to = s.move(m, 800, 800)
     s.restore("one")
@@ -523,19 +532,29 @@ def test_background_placer_result_discarded_when_floorplan_changed(s, names, mon
     assert s.history == ["move", "place"]
 
 
-def test_local_orientation_maps_agree_with_placer_orient():
-    """The session's fallback maps (built from design.orient_offsets) and placer.orient agree
-    for every orientation and every allowed-set bitmask."""
-    orient = pytest.importorskip("floorwidget.placer.orient")
-    from floorwidget.session import _fallback_flipped, _fallback_rotated, _next_orientation
+def test_rotate_and_flip_follow_the_dihedral_group():
+    """Rotation and flip take the group tables of placer.orient (derived from
+    design.orient_offsets): for every orientation and every allowed-set bitmask the session's
+    next orientation is the table's, or None when the table stays put."""
+    from floorwidget.placer import orient
+    from floorwidget.session.edits import next_orientation
 
     for code in range(8):
         for mask in range(1, 256):
             r, f = orient.rotated(code, mask), orient.flipped(code, mask)
-            lr, lf = _fallback_rotated(code, mask), _fallback_flipped(code, mask)
-            assert (r if r != code else None) == (lr if lr != code else None)
-            assert (f if f != code else None) == (lf if lf != code else None)
-            assert _next_orientation("rotate", code, mask) == (r if r != code else None)
+            assert next_orientation("rotate", code, mask) == (r if r != code else None)
+            assert next_orientation("flip", code, mask) == (f if f != code else None)
+    # with every orientation allowed, quarter turns counter-clockwise go N -> W -> S -> E -> N
+    # and FN -> FE -> FS -> FW -> FN, and a mirror is its own inverse (the LEF/DEF language
+    # reference's orientation table, R90 = W, MY = FN; from memory)
+    for start, cycle in (("N", "WSEN"), ("FN", ["FE", "FS", "FW", "FN"])):
+        c, seen = ORIENTATIONS.index(start), []
+        for _ in range(4):
+            c = next_orientation("rotate", c, 0xFF)
+            seen.append(ORIENTATIONS[c])
+        assert seen == list(cycle)
+    for code in range(8):
+        assert next_orientation("flip", next_orientation("flip", code, 0xFF), 0xFF) == code
 
 
 def test_no_op_makes_no_step_but_tells_observers(s, names):

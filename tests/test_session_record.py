@@ -483,7 +483,7 @@ def test_load_finds_design_beside_the_session(tmp_path):
 
 def test_large_arrays_packed_exactly(tmp_path, monkeypatch):
     """Arrays above the list limit are written as raw bytes in base64 and read back exactly."""
-    import floorwidget.session_io as sio
+    import floorwidget.session.files as sio
 
     monkeypatch.setattr(sio, "LIST_LIMIT", 10)
     s = _busy_session(False)

@@ -1,0 +1,98 @@
+"""Placer calls of a session: :meth:`place`, :meth:`refine`, :meth:`legalize` (a mixin of
+:class:`~floorwidget.session.Session`).
+
+The solve runs on a private copy without the session's lock, so a notebook stays responsive
+while a background thread places; the result is committed only onto the floorplan it started
+from, and only if pinned and fixed blocks came back bit for bit.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+
+from ..design import MOVABLE, STATUS_NAMES, DesignError, Floorplan
+from . import checks
+from .history import changed
+
+__all__ = ["PlacerCalls"]
+
+
+class PlacerCalls:
+    """Session methods that run the placer (a mixin of ``Session``)."""
+
+    def _run_options(self, target_density, seed, options: dict) -> dict:
+        """The options a place or refine runs and records with, checked."""
+        td = self.target_density if target_density is None else checks.density(target_density)
+        return {"target_density": td,
+                "seed": checks.integer(seed, "seed", 0, checks.SEED_LIMIT), **options}
+
+    def _run_placer(self, action: str, fn: Callable, opts: dict, progress) -> None:
+        d = self.design
+        opts = {k: checks.plain(v, f"{action} option {k!r}") for k, v in opts.items()}
+        with self._lock:
+            before = self._fp
+            work = before.copy()  # the placer gets a private, writable copy
+        out = fn(d, work, progress=progress, **opts) if progress is not None else \
+            fn(d, work, **opts)
+        with self._lock:
+            if self._fp is not before:
+                raise DesignError(f"the floorplan changed while {action} was running; its "
+                                  "result was discarded (run it again)")
+            self._check_and_commit(action, before, out, opts)
+
+    def _check_and_commit(self, action: str, before: Floorplan, out, opts: dict) -> None:
+        d = self.design
+        if not isinstance(out, Floorplan) or out.design is not d:
+            raise DesignError(f"{action} returned {type(out).__name__}, not a Floorplan of "
+                              f"design {d.name!r}")
+        moved = changed(before, out)
+        moved = moved[before.status[moved] != MOVABLE]
+        if len(moved):
+            from ..placer.errors import PlacementError  # noqa: PLC0415
+            j = int(moved[0])
+            raise PlacementError(f"{action} changed {STATUS_NAMES[before.status[j]]} block "
+                                 f"{d.names[j]!r}; the floorplan was left unchanged")
+        self._commit(action, out.copy(), log=((), opts), blocks=None)
+
+    def place(self, *, target_density: float | None = None, seed: int = 0,
+              progress: Callable | None = None, **options) -> None:
+        """Run the global placer around the pinned and fixed blocks (undoable).
+
+        Parameters
+        ----------
+        target_density : float, optional
+            Default :attr:`target_density`; a number in (0, 1].
+        seed : int
+            A whole number in [0, 2^32).
+        progress : callable, optional
+            ``progress(stage, fraction, info)``; default :attr:`progress`.  Not recorded.
+        **options
+            Passed to :func:`floorwidget.placer.place` and recorded for :meth:`script`
+            (they must be plain values: numbers, strings, lists, dicts).
+
+        Raises
+        ------
+        PlacementError
+            Infeasible; the floorplan and history are unchanged.
+        DesignError
+            A target density or seed of the wrong type or range.
+        """
+        from ..placer import place as _place  # noqa: PLC0415
+        opts = self._run_options(target_density, seed, options)
+        self._run_placer("place", _place, opts, progress or self.progress)
+
+    def refine(self, *, target_density: float | None = None, seed: int = 0,
+               progress: Callable | None = None, **options) -> None:
+        """Improve the current floorplan incrementally (see :meth:`place` for parameters)."""
+        from ..placer import refine as _refine  # noqa: PLC0415
+        opts = self._run_options(target_density, seed, options)
+        self._run_placer("refine", _refine, opts, progress or self.progress)
+
+    def legalize(self, **options) -> None:
+        """Legalise the macros of the current floorplan (undoable).
+
+        Raises :class:`~floorwidget.placer.errors.PlacementError` when infeasible, leaving the
+        floorplan and history unchanged.
+        """
+        from ..placer import legalize as _legalize  # noqa: PLC0415
+        self._run_placer("legalize", _legalize, dict(options), None)
