@@ -342,7 +342,8 @@ def rows_stage(design: Design, out: Floorplan, src: Floorplan, opts: PlacerOptio
     """Standard cells onto rows and sites (Abacus), then swap-based detailed placement, when
     ``cells="legal"``; timed and reported as the stages ``"rows"`` and ``"detail"``.  With
     ``only`` (a block mask) just those cells move; the others are obstacles where they are."""
-    info["hpwl_global"] = hpwl(design, out)
+    if only is None:  # (a local refine skips the whole-design figure)
+        info["hpwl_global"] = hpwl(design, out)
     if opts.cells != "legal":
         return out
     cells = cell_mask(design, src) if only is None else cell_mask(design, src) & only

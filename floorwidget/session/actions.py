@@ -51,6 +51,12 @@ def _seed(v, where: str) -> int:
     return checks.integer(v, where, 0, checks.SEED_LIMIT)
 
 
+def _flag(v, where: str) -> bool:
+    if not isinstance(v, bool):
+        raise DesignError(f"{where}: expected True or False, got {v!r}")
+    return v
+
+
 def _names(v, where: str):
     """One block name, or a list of them (kept as given: the replay passes the same)."""
     if isinstance(v, str):
@@ -177,7 +183,7 @@ ACTIONS: dict[str, Action] = {a.name: a for a in (
     Action("assign_group", (("region", _optional_text), _GROUP), required=1,
            kwargs={"prefix": _text, "depth": _count, "separators": _text}),
     Action("place", kwargs=_RUN, placer_options=True),
-    Action("refine", kwargs=_RUN, placer_options=True),
+    Action("refine", kwargs={**_RUN, "local": _flag}, placer_options=True),
     Action("legalize", placer_options=True),
     Action("undo"),
     Action("redo"),

@@ -123,6 +123,7 @@ class Session(HandEdits, ConstraintEdits, PlacerCalls):
         self._observers: list[Callable[[ChangeEvent], Any]] = []
         self._reports: OrderedDict[int, dict] = OrderedDict()
         self._lock = threading.RLock()
+        self._placed: Floorplan | None = None  # the last placer result (refine's base)
 
     @classmethod
     def from_state(cls, state: SessionState) -> Session:

@@ -26,19 +26,24 @@ class PlacerCalls:
         return {"target_density": td,
                 "seed": checks.integer(seed, "seed", 0, checks.SEED_LIMIT), **options}
 
-    def _run_placer(self, action: str, fn: Callable, opts: dict, progress) -> None:
+    def _run_placer(self, action: str, fn: Callable, opts: dict, progress,
+                     extra: dict | None = None) -> None:
+        """Run ``fn`` on a private copy with ``opts`` (recorded) and ``extra`` (not recorded:
+        derived from the history, so a replay derives the same) and commit the result."""
         d = self.design
         opts = {k: checks.plain(v, f"{action} option {k!r}") for k, v in opts.items()}
         with self._lock:
             before = self._fp
             work = before.copy()  # the placer gets a private, writable copy
-        out = fn(d, work, progress=progress, **opts) if progress is not None else \
-            fn(d, work, **opts)
+        run = {**opts, **(extra or {})}
+        out = fn(d, work, progress=progress, **run) if progress is not None else \
+            fn(d, work, **run)
         with self._lock:
             if self._fp is not before:
                 raise DesignError(f"the floorplan changed while {action} was running; its "
                                   "result was discarded (run it again)")
             self._check_and_commit(action, before, out, opts)
+            self._placed = self._fp
 
     def _check_and_commit(self, action: str, before: Floorplan, out, opts: dict) -> None:
         d = self.design
@@ -82,11 +87,34 @@ class PlacerCalls:
         self._run_placer("place", _place, opts, progress or self.progress)
 
     def refine(self, *, target_density: float | None = None, seed: int = 0,
-               progress: Callable | None = None, **options) -> None:
-        """Improve the current floorplan incrementally (see :meth:`place` for parameters)."""
+               progress: Callable | None = None, local: bool = True, **options) -> None:
+        """Improve the current floorplan incrementally (see :meth:`place` for parameters).
+
+        With ``local`` (the default) and a placer result earlier in this session, only the
+        logic near the blocks changed since that result is re-spread and put back on rows
+        (:func:`floorwidget.placer.refine` with ``around``; no detailed-placement pass unless
+        ``detail_passes`` is given), so a drag costs what it changed.  ``local=False``, or no
+        earlier result, re-spreads everything.  What changed is read from the history, so a
+        replay of the session makes the same choice.
+        """
         from ..placer import refine as _refine  # noqa: PLC0415
+        if not isinstance(local, bool):
+            raise DesignError(f"refine: local must be True or False, got {local!r}")
         opts = self._run_options(target_density, seed, options)
-        self._run_placer("refine", _refine, opts, progress or self.progress)
+        if not local:
+            opts["local"] = False  # recorded: the replay refines everything too
+        extra: dict = {}
+        with self._lock:
+            placed = self._placed
+            if local and placed is not None and placed.design.same_netlist(self.design):
+                extra["around"] = changed(placed, self._fp).tolist()
+                if "detail_passes" not in options:
+                    extra["detail_passes"] = 0
+
+        def run(design, fp, local=True, **kw):
+            return _refine(design, fp, **kw)
+
+        self._run_placer("refine", run, opts, progress or self.progress, extra)
 
     def legalize(self, **options) -> None:
         """Legalise the macros of the current floorplan (undoable).
