@@ -155,6 +155,7 @@ def _read_one_lef(path: str, lib: LefLibrary) -> None:
             layer = _routing_layer(name, tk.toks[first:tk.i - 2])
             if layer is not None:
                 lib.layers.append(layer)
+            skipped[kw] += 1  # (the rest of a layer's definition is not kept)
         elif kw in _LEF_END_NAMED:
             name = tk.next(f"{kw} name")
             tk.skip_to_end(name, start)
