@@ -173,8 +173,7 @@ def _wire_cost(design: Design, fp: Floorplan, plan: ArrayPlan, a: int, lat: _Lat
 
 
 def greedy_arrays(design: Design, fp: Floorplan, plan: ArrayPlan, *, displace: float,
-                  order: np.ndarray | None = None, reshape: bool = True,
-                  crowd: float = 0.0) -> Floorplan:
+                  order: np.ndarray | None = None, reshape: bool = True) -> Floorplan:
     """Place the arrays of ``plan`` one by one (see the module docstring), each in the shape of
     :func:`~floorwidget.placer.macro_arrays.shape_options` and at the corner that cost least.
 
@@ -191,10 +190,6 @@ def greedy_arrays(design: Design, fp: Floorplan, plan: ArrayPlan, *, displace: f
         The order in which arrays are placed (default: largest first, then most pins).
     reshape : bool
         Try every shape option (else keep each array's shape).
-    crowd : float
-        Wirelength (µm) charged per µm² of arrays already placed within one array size of
-        the candidate: arrays spread along the logic's edge instead of piling up on one
-        side, where every macro net would cross the same stretch of it.
 
     Returns
     -------
@@ -210,16 +205,9 @@ def greedy_arrays(design: Design, fp: Floorplan, plan: ArrayPlan, *, displace: f
     mov_mac = (design.kind == MACRO) & (fp.status == MOVABLE)
     live[mov_mac[design.pin_block]] = False
     cx, cy = fp.centres()
-    placed_area = np.zeros_like(lat.area)
     fixed = np.arange(k, sd.num_blocks)
     obstacles = [(r, sd.halo[j]) for j, r in zip(fixed, sfp.rects()[fixed])]
     obstacles += [(r, None) for r in sd.blockages]
-    def kx_of(w):
-        return max(int(np.ceil(w / lat.step[0])), 1)
-
-    def ky_of(h):
-        return max(int(np.ceil(h / lat.step[1])), 1)
-
     if order is None:
         npins = np.array([len(_member_offsets(design, fp, plan, a)[0]) for a in range(k)])
         order = np.lexsort((-npins, -(sd.width[:k] * sd.height[:k])))
@@ -240,13 +228,6 @@ def greedy_arrays(design: Design, fp: Floorplan, plan: ArrayPlan, *, displace: f
                 kx = max(int(np.ceil(w / lat.step[0])), 1)
                 ky = max(int(np.ceil(h / lat.step[1])), 1)
                 cost += displace * _box_sums(lat.area, kx, ky)
-            if crowd > 0 and placed_area.any():
-                gx_, gy_ = 3 * kx_of(w), 3 * ky_of(h)
-                near = _box_sums(placed_area, gx_, gy_)
-                # the window starts one array size before the candidate corner
-                sx, sy = gx_ // 3, gy_ // 3
-                near = np.pad(near, ((sx, 0), (sy, 0)))[:near.shape[0], :near.shape[1]]
-                cost += crowd * near
             cost[mask] = np.inf
             i, j = np.unravel_index(int(np.argmin(cost)), cost.shape)
             if best is None or cost[i, j] < best[0]:
@@ -259,8 +240,6 @@ def greedy_arrays(design: Design, fp: Floorplan, plan: ArrayPlan, *, displace: f
         rect = np.array([lat.xs[i], lat.ys[j], lat.xs[i] + sd.width[a],
                          lat.ys[j] + sd.height[a]])
         obstacles.append((rect, sd.halo[a]))
-        placed_area[i:i + kx_of(sd.width[a]), j:j + ky_of(sd.height[a])] += \
-            lat.step[0] * lat.step[1]
         # this array's pins now count for the arrays after it
         px[pins] = lat.xs[i] + ox
         py[pins] = lat.ys[j] + oy
