@@ -345,6 +345,22 @@ def test_cli_place_changes_only_non_fixed_placements(osprey, tmp_path):
         assert without(pb[nm], {"PLACED", "FIXED"}) == without(pa[nm], {"PLACED", "FIXED"})
 
 
+def test_a_design_of_its_own_gets_its_lef_and_fixed_blocks_stay(demo_design, tmp_path):
+    d = demo_design
+    fp = d.initial.copy()
+    fixed = np.flatnonzero(fp.status == FIXED)
+    assert len(fixed)
+    fp.x += 3.0  # every block, the fixed ones too
+    out = tmp_path / "own.def"
+    with pytest.warns(LefDefWarning, match=f"{len(fixed)} block.s. fixed in the input"):
+        fw.save(d, fp, out)
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["own.def", "own.lef"]
+    back = fw.load(out)
+    assert np.allclose(back.initial.x[fixed], d.initial.x[fixed], atol=1e-3)
+    mv = np.flatnonzero(fp.status != FIXED)
+    assert np.allclose(back.initial.x[mv], fp.x[mv], atol=1e-3)
+
+
 # ---------------------------------------------------------------------------------------------
 # the shared real designs
 
