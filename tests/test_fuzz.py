@@ -121,6 +121,14 @@ _RAW = {'"__BIG__"': "1" + "0" * 5000, '"__NEG_BIG__"': "-1e400",
         '"__DEEP__"': "[" * 1000 + "]" * 1000}
 
 
+def _dump(doc) -> bytes:
+    """``doc`` as JSON text, the placeholders of :data:`_RAW` written out raw."""
+    text = json.dumps(doc)
+    for k, v in _RAW.items():
+        text = text.replace(k, v)
+    return text.encode()
+
+
 def _slots(node, out):
     """Every (container, key) of a decoded JSON document, depth first."""
     items = node.items() if isinstance(node, dict) else enumerate(node)
@@ -144,10 +152,7 @@ def mutate_json(data: bytes, ops) -> bytes:
             del node[key]
         else:
             node[key] = copy.deepcopy(JSON_NASTY[b % len(JSON_NASTY)])
-    text = json.dumps(doc)
-    for k, v in _RAW.items():
-        text = text.replace(k, v)
-    return text.encode()
+    return _dump(doc)
 
 
 class _Hang(Exception):
@@ -212,6 +217,12 @@ def _run_in(files: dict[str, bytes], main: str, load):
         for name, data in files.items():
             (d / name).write_bytes(data)
         load(d / main)
+
+
+def _load_def(fmt: str, files: dict[str, bytes], main: str = "k.def") -> None:
+    """``check`` loading the DEF ``main`` of ``files`` with the LEFs ``t.lef`` and ``c.lef``."""
+    _run_in(files, main, lambda p: check(
+        fmt, lambda: fw.load(p, lef=[p.parent / "t.lef", p.parent / "c.lef"])))
 
 
 # ---------------------------------------------------------------------------------------------
@@ -284,27 +295,21 @@ def test_bookshelf_set(which, ops):
 @fuzz("lef")
 @given(ops=OPS)
 def test_lef(ops):
-    files = {"k.def": DEF_SEED, "t.lef": TECH_LEF, "c.lef": mutate(CELL_LEF, ops)}
-    _run_in(files, "k.def", lambda p: check(
-        "lef", lambda: fw.load(p, lef=[p.parent / "t.lef", p.parent / "c.lef"])))
+    _load_def("lef", {"k.def": DEF_SEED, "t.lef": TECH_LEF, "c.lef": mutate(CELL_LEF, ops)})
 
 
 @fuzz("def")
 @given(ops=OPS)
 def test_def(ops):
-    files = {"k.def": mutate(DEF_SEED, ops), "t.lef": TECH_LEF, "c.lef": CELL_LEF}
-    _run_in(files, "k.def", lambda p: check(
-        "def", lambda: fw.load(p, lef=[p.parent / "t.lef", p.parent / "c.lef"])))
+    _load_def("def", {"k.def": mutate(DEF_SEED, ops), "t.lef": TECH_LEF, "c.lef": CELL_LEF})
 
 
 @fuzz("gz")
 @given(ops=OPS)
 def test_compressed_def(ops):
     # the compressed bytes themselves are mutated: damaged streams must name the file
-    files = {"k.def.gz": mutate(gzip.compress(DEF_SEED, mtime=0), ops), "t.lef": TECH_LEF,
-             "c.lef": CELL_LEF}
-    _run_in(files, "k.def.gz", lambda p: check(
-        "gz", lambda: fw.load(p, lef=[p.parent / "t.lef", p.parent / "c.lef"])))
+    _load_def("gz", {"k.def.gz": mutate(gzip.compress(DEF_SEED, mtime=0), ops),
+                     "t.lef": TECH_LEF, "c.lef": CELL_LEF}, "k.def.gz")
 
 
 @fuzz("session")
@@ -445,10 +450,7 @@ def mutate_constraints(data: bytes, ops) -> bytes:
             node[key] = _plausible(node.get(key) if isinstance(node, dict) else node[key], b)
         else:
             node[key] = copy.deepcopy(JSON_NASTY[b % len(JSON_NASTY)])
-    text = json.dumps(doc)
-    for k, v in _RAW.items():
-        text = text.replace(k, v)
-    return text.encode()
+    return _dump(doc)
 
 
 @pytest.fixture(scope="module")
@@ -491,9 +493,8 @@ def test_constraints_json(constraints_seed, ops):
 @fuzz("constraints-def")
 @given(ops=OPS)
 def test_constraints_def(ops):
-    files = {"k.def": mutate_sections(CONSTRAINT_DEF, ops), "t.lef": TECH_LEF, "c.lef": CELL_LEF}
-    _run_in(files, "k.def", lambda p: check(
-        "constraints-def", lambda: fw.load(p, lef=[p.parent / "t.lef", p.parent / "c.lef"])))
+    _load_def("constraints-def", {"k.def": mutate_sections(CONSTRAINT_DEF, ops),
+                                  "t.lef": TECH_LEF, "c.lef": CELL_LEF})
 
 
 @fuzz("constraints-place")

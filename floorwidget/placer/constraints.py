@@ -50,7 +50,8 @@ def partial_capacity_loss(design: Design, grid: BinGrid, target: float) -> np.nd
     return np.maximum(rect_area_map(grid, design.blockages[part][keep], loss[keep]), 0.0)
 
 
-STRIPE_CELLS = 4.0  # a free stripe under a partial blockage holds about this many cells
+STRIPE_CELLS = 4.0  # a free stripe under a partial blockage holds at least this many cells
+MAX_STRIPES = 256   # ... and a blockage has at most this many (wider ones get wider stripes)
 
 
 def partial_stripes(design: Design, cell_width: float) -> np.ndarray:
@@ -60,10 +61,10 @@ def partial_stripes(design: Design, cell_width: float) -> np.ndarray:
     Each partial blockage is cut into ``k`` equal periods across x, each a free stripe of
     ``d`` of its width followed by a blocked stripe of the rest, all of the blockage's
     height; ``k`` is as large as keeps each free stripe at least :data:`STRIPE_CELLS` cells of
-    ``cell_width`` wide (one period when the blockage is narrower).  The rows cut blocked
-    stripes outward to whole sites, so the free area under a blockage is at most ``d`` of
-    its area and no legal row placement can exceed the cap (the spreading budgets the same
-    share through :func:`partial_capacity_loss`).
+    ``cell_width`` wide (one period when the blockage is narrower), at most
+    :data:`MAX_STRIPES`.  The rows cut blocked stripes outward to whole sites, so the free
+    area under a blockage is at most ``d`` of its area and no legal row placement can exceed
+    the cap (the spreading budgets the same share through :func:`partial_capacity_loss`).
     """
     md = design.blockage_max_density
     sel = np.flatnonzero((md > 0.0) & (md < 1.0))
@@ -72,8 +73,7 @@ def partial_stripes(design: Design, cell_width: float) -> np.ndarray:
     b, d = design.blockages[sel], md[sel]
     width = b[:, 2] - b[:, 0]
     free_min = STRIPE_CELLS * max(float(cell_width), 1e-9)
-    k = np.maximum(np.floor(width * d / free_min), 1).astype(np.int64)
-    k = np.minimum(k, np.maximum(1, (width / max(float(cell_width), 1e-9)).astype(np.int64)))
+    k = np.clip(np.floor(width * d / free_min), 1, MAX_STRIPES).astype(np.int64)
     i = np.repeat(np.arange(len(sel)), k)
     j = np.arange(int(k.sum())) - np.repeat(np.cumsum(k) - k, k)
     period = width[i] / k[i]
