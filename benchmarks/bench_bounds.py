@@ -6,7 +6,7 @@ Target: every case well under a second and far under 4 GB (inputs under 10 MB).
 Cases: a rectilinear polygon of 40,000 vertices as rectangles (inside and bounding box minus
 it); a REGION of 20,000 rectangles validated (overlap sweep); a 100,000-blockage picture
 rendered to PNG; ``Session.array`` of 10^9 x 10^9 cells for six macros; a gzip bomb (1 GiB of
-text in 1 MB) refused.
+text in 2 MB) refused; the fill of 100,000 partial blockages by 10^6 cells (``covered_share``).
 
 Usage::
 
@@ -32,6 +32,7 @@ sys.path.insert(0, str(ROOT))
 
 import floorwidget as fw  # noqa: E402
 from floorwidget.design import CellRegions, DesignError, Floorplan  # noqa: E402
+from floorwidget.kernels.fill import covered_share  # noqa: E402
 from floorwidget.kernels.polygon import polygon_rects  # noqa: E402
 from floorwidget.synth import rent_design  # noqa: E402
 
@@ -101,6 +102,12 @@ def main(argv=None) -> int:
             return
         raise AssertionError("bomb read")
 
+    # 10^6 abutting cells on 1,000 rows, 100,000 small partial blockages over them
+    cx, cy = np.meshgrid(np.arange(1000) * 0.5, np.arange(1000) * 2.0)
+    cells = np.stack([cx.ravel(), cy.ravel(), cx.ravel() + 0.5, cy.ravel() + 2.0], axis=1)
+    blo = rng.uniform(0, 490, (100_000, 2)) * [1, 4]
+    small = np.concatenate([blo, blo + [3.0, 5.0]], axis=1)
+
     cases = [
         (f"polygon {len(pts)} vertices -> rectangles", lambda: polygon_rects(pts, True)),
         (f"polygon {len(pts)} vertices, box minus it", lambda: polygon_rects(pts, False)),
@@ -109,6 +116,7 @@ def main(argv=None) -> int:
          lambda: fw.render(many, placed, tmp / "many.png")),
         ("Session.array(6 macros, 10^9, 10^9)", array),
         (f"gzip bomb ({bomb.stat().st_size >> 10} KiB -> 1 GiB) refused", refuse),
+        ("fill of 100,000 partial blockages by 10^6 cells", lambda: covered_share(small, cells)),
     ]
     print(f"| case | median s ({repeat} runs) | peak traced MiB |")
     print("| --- | --- | --- |")
