@@ -334,6 +334,10 @@ def array(design: Design, fp: Floorplan, idx, rows: int, cols: int, pitch=None) 
     if rows * cols < n:
         raise DesignError(f"an array of {rows} × {cols} holds {rows * cols} macros, "
                           f"{n} were given")
+    # only the cells the macros fill, and one more on each axis (its facing halo is 0): an
+    # array of 10**9 x 10**9 for three macros costs what 1 x 3 costs
+    cols = min(cols, n + 1)
+    rows = min(rows, -(-n // cols) + 1)
     ox, oy, px, py = _grid(design)
     w, h = _sizes(design, fp, idx)
     r, c = np.arange(n) // cols, np.arange(n) % cols

@@ -24,6 +24,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .kernels.sweep import overlapping_pair
+
 __all__ = [
     "CELL",
     "CLUSTER",
@@ -269,16 +271,33 @@ class CellRegions:
             out.append((f"region {nm!r}", f"region {nm!r}: a rectangle is not finite or has "
                                           "no area"))
             return out
-        # rectangles of one region must not overlap (rows are cut to their union)
+        die = design.die
+        tol = 1e-6 + 1e-9 * np.abs(die).max(initial=0.0)
+        outside = (b[:, 0] < die[0] - tol) | (b[:, 1] < die[1] - tol) \
+            | (b[:, 2] > die[2] + tol) | (b[:, 3] > die[3] + tol)
+        if outside.any():
+            k = int(np.flatnonzero(outside)[0])
+            nm = self.names[int(self.rect_region()[k])]
+            out.append((f"region {nm!r}", f"region {nm!r}: rectangle {b[k].tolist()} reaches "
+                                          f"outside the die {die.tolist()}"))
+        # the rectangles of one region must not overlap (rows are cut to their union), nor
+        # those of two fences (a cell cannot be kept inside one fence and out of the other);
+        # guides may overlap other regions.  One sweep, not all pairs.
         reg = self.rect_region()
-        i, j = np.triu_indices(len(b), 1)
-        same = reg[i] == reg[j]
-        i, j = i[same], j[same]
-        ov = (np.minimum(b[i, 2], b[j, 2]) > np.maximum(b[i, 0], b[j, 0])) & \
-            (np.minimum(b[i, 3], b[j, 3]) > np.maximum(b[i, 1], b[j, 1]))
-        if ov.any():
-            nm = self.names[int(reg[i[ov][0]])]
-            out.append((f"region {nm!r}", f"region {nm!r}: its rectangles overlap"))
+        pair = overlapping_pair(b, reg)
+        if pair is not None:
+            i, j = pair
+            a = self.names[int(reg[i])]
+            out.append((f"region {a!r}", f"region {a!r}: its rectangles overlap "
+                                         f"({b[i].tolist()} and {b[j].tolist()})"))
+        fence = np.flatnonzero(self.kind[reg] == FENCE)
+        pair = None if pair is not None else overlapping_pair(b[fence])
+        if pair is not None:
+            i, j = fence[list(pair)]
+            a, c = self.names[int(reg[i])], self.names[int(reg[j])]
+            out.append((f"region {a!r}", f"fences {a!r} and {c!r} overlap (rectangles "
+                                         f"{b[i].tolist()} and {b[j].tolist()}): fences must "
+                                         "not share area"))
         m = self.member
         if m.shape != (design.num_blocks,) or ((m < -1) | (m >= r)).any():
             out.append(("regions", "cell regions: a member names no region"))
@@ -707,13 +726,29 @@ class Design:
                 out.append((f"block {self.names[i]!r}",
                             f"block {self.names[i]!r}: halo {hl[i].tolist()} must be four "
                             "finite numbers >= 0 (left, bottom, right, top)"))
+            cell_halo = (self.kind == CELL) & (hl != 0).any(axis=1)
+            if cell_halo.any():
+                i = int(np.flatnonzero(cell_halo)[0])
+                out.append((f"block {self.names[i]!r}",
+                            f"block {self.names[i]!r}: halo {hl[i].tolist()} on a standard "
+                            f"cell (a halo keeps cells away from a macro; "
+                            f"{int(cell_halo.sum())} cell(s) have one)"))
             bl = self.blockages
             bad = ~(np.abs(bl) <= COORD_LIMIT).all(axis=1) \
                 | ~((bl[:, 2] > bl[:, 0]) & (bl[:, 3] > bl[:, 1]))
+            d = self.die
+            tol = 1e-6 + 1e-9 * np.abs(d).max(initial=0.0)
+            outside = ~bad & ((bl[:, 0] < d[0] - tol) | (bl[:, 1] < d[1] - tol)
+                              | (bl[:, 2] > d[2] + tol) | (bl[:, 3] > d[3] + tol))
             if bad.any():
                 k = int(np.flatnonzero(bad)[0])
                 out.append((f"blockage {k}", f"placement blockage {k} {bl[k].tolist()} is not "
                                              "a finite rectangle of positive size"))
+            elif outside.any():
+                k = int(np.flatnonzero(outside)[0])
+                out.append((f"blockage {k}", f"placement blockage {k} {bl[k].tolist()} "
+                                             f"reaches outside the die {d.tolist()} "
+                                             f"({int(outside.sum())} blockage(s) do)"))
             md = self.blockage_max_density
             bad = ~((md >= 0.0) & (md <= 1.0))
             if bad.any():

@@ -156,10 +156,11 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
         raise DesignError(f"unknown heat layer {heat!r}: use 'density' or 'congestion'")
     try:
         from matplotlib.backends.backend_agg import FigureCanvasAgg
-        from matplotlib.collections import PolyCollection
+        from matplotlib.collections import PathCollection, PolyCollection
         from matplotlib.figure import Figure
         from matplotlib.lines import Line2D
         from matplotlib.patches import Patch, Rectangle
+        from matplotlib.path import Path as MplPath
     except ImportError:  # pragma: no cover - depends on the installation
         raise DesignError("rendering needs matplotlib: pip install 'floorwidget[render]'") from None
 
@@ -237,15 +238,30 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
 
     outline(die, style.DIE, 1).set_gid("die")
     outline(core, style.CORE, 1).set_gid("core")
-    for k, (b, md) in enumerate(zip(design.blockages, design.blockage_max_density)):
-        # a partial blockage (a density cap) dashed, its fill as light as the share it leaves
-        p = Rectangle((b[0], b[1]), b[2] - b[0], b[3] - b[1],
-                      facecolor=(0, 0, 0, style.BLOCKAGE.fill_opacity * (1.0 - md)),
-                      edgecolor=style.BLOCKAGE.stroke, linewidth=style.BLOCKAGE.stroke_width,
-                      linestyle="--" if md > 0 else "-",
-                      hatch=style.BLOCKAGE.hatch if md <= 0 else "..", zorder=2)
-        p.set_gid(f"blockage:{k}")
-        ax.add_patch(p)
+    # blockages as two collections (full: solid and hatched; partial, a density cap: dashed,
+    # dotted, its fill as light as the share it leaves), never a patch each; the hatch is one
+    # compound path over all of a kind (Agg hatches each path of a collection on its own:
+    # 17 s for 50,000 small blockages, 0.1 s as one path)
+    bl, md = design.blockages, design.blockage_max_density
+    for gid, sel, ls, hatch in (("blockages:full", md <= 0, "-", style.BLOCKAGE.hatch),
+                                ("blockages:partial", md > 0, "--", "..")):
+        b = bl[sel]
+        if not len(b):
+            continue
+        ring = np.stack([b[:, [0, 1]], b[:, [2, 1]], b[:, [2, 3]], b[:, [0, 3]],
+                         b[:, [0, 1]]], axis=1)
+        face = np.zeros((len(b), 4))
+        face[:, 3] = style.BLOCKAGE.fill_opacity * (1.0 - md[sel])
+        col = PolyCollection(ring[:, :4], facecolors=face, edgecolors=style.BLOCKAGE.stroke,
+                             linewidths=style.BLOCKAGE.stroke_width, linestyles=ls, zorder=2)
+        col.set_gid(gid)
+        ax.add_collection(col)
+        codes = np.tile([MplPath.MOVETO] + [MplPath.LINETO] * 3 + [MplPath.CLOSEPOLY], len(b))
+        hatched = PathCollection([MplPath(ring.reshape(-1, 2), codes)], facecolors="none",
+                                 edgecolors=style.BLOCKAGE.stroke, linewidths=0, hatch=hatch,
+                                 zorder=2)
+        hatched.set_gid(f"{gid}:hatch")
+        ax.add_collection(hatched, autolim=False)
     reg = design.regions
     for k, nm in enumerate(reg.names):  # cell regions: fences solid, guides dashed, named
         fence = reg.kind[k] == FENCE

@@ -12,6 +12,7 @@ from __future__ import annotations
 import os
 import subprocess
 import sys
+import tracemalloc
 
 import numpy as np
 import pytest
@@ -222,6 +223,25 @@ def test_array_refuses_too_few_cells_and_bad_pitch(g):
         with pytest.raises(DesignError):
             s.array(MACROS, *args, **kw)
     assert _same(_state(s.floorplan), before) and s.log == log
+
+
+@pytest.mark.parametrize("huge, small", [((10**9, 10**9), (1, 6)), ((10**30, 2), (3, 2)),
+                                         ((2, 10**18), (1, 6))])
+def test_absurd_array_sizes_cost_what_the_filled_cells_cost(g, huge, small):
+    # cells past the last macro are empty: the arrangement equals the smallest array that
+    # holds the macros in the same row-by-row order, and nothing of the absurd size is allocated
+    d, s = g
+    s.array(MACROS, *small)
+    want = _state(s.floorplan)
+    s.undo()
+    tracemalloc.start()
+    try:
+        s.array(MACROS, *huge)
+        _, peak = tracemalloc.get_traced_memory()
+    finally:
+        tracemalloc.stop()
+    assert _same(_state(s.floorplan), want)
+    assert peak < 8 << 20
 
 
 # --- mirror ----------------------------------------------------------------------------------

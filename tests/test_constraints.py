@@ -16,6 +16,7 @@ import floorwidget as fw
 from floorwidget.design import CELL, MACRO, DesignError
 from floorwidget.formats.lefdef import read_def, write_def_pair
 from floorwidget.formats.native_json import read_json, write_json
+from floorwidget.kernels.fill import covered_share
 from floorwidget.metrics import bin_grid
 from floorwidget.placer.constraints import partial_capacity_loss
 from floorwidget.session import Session
@@ -290,9 +291,9 @@ def test_place_keeps_cells_off_a_full_blockage_and_under_a_partial_cap(small):
     s.place()
     assert s.report["legal"]
     share = _cell_share(s.floorplan, rect)
-    # the cap is met on the placer's bins and by detailed placement; Abacus may move a cell
-    # by a site or a row across the edge, hence the small slack
-    assert share <= 0.3 + 0.08, share
+    # the rows stage sees 70 % of the blockage as blocked stripes: the cap holds exactly
+    # (up to float round-off)
+    assert share <= 0.3 + 1e-9, share
     s.set_blockage_density(0, 0.0)
     s.place()
     assert s.report["legal"]
@@ -300,6 +301,47 @@ def test_place_keeps_cells_off_a_full_blockage_and_under_a_partial_cap(small):
     mac = _boxes(s.floorplan.rects()[d.kind == MACRO])
     assert not shapely.intersects(mac, shapely.box(*rect)).any() or \
         shapely.area(shapely.intersection(mac, shapely.box(*rect))).max() < 1e-9
+
+
+@pytest.mark.parametrize("multilevel", ["off", "on"])
+def test_every_partial_blockage_holds_its_cap_after_place(multilevel):
+    # issue 23: under a 20 % cap the cells filled 29 %; now each blockage is measured
+    # (kernels.fill.covered_share, itself checked against shapely below) and held to its cap
+    d = rent_design(3000, seed=5, num_macros=2, macro_area=0.2, utilisation=0.6)
+    c = d.core
+    w, h = c[2] - c[0], c[3] - c[1]
+    caps = [0.2, 0.1, 0.5, 0.05]
+    s = Session(d)
+    for (fx0, fy0, fx1, fy1), cap in zip([(.35, .35, .65, .65), (.05, .6, .3, .9),
+                                          (.7, .1, .75, .3), (.8, .8, .97, .83)], caps):
+        s.add_blockage([c[0] + fx0 * w, c[1] + fy0 * h, c[0] + fx1 * w, c[1] + fy1 * h],
+                       max_density=cap)
+    s.place(multilevel=multilevel)
+    assert s.report["legal"]
+    cells = s.floorplan.rects()[d.kind == CELL]
+    fill = covered_share(s.design.blockages, cells)
+    assert (fill <= np.array(caps) + 1e-9).all(), fill
+    assert fill[0] > 0.02  # the cap is a cap, not a full blockage
+    for k, b in enumerate(s.design.blockages):
+        assert fill[k] == pytest.approx(_cell_share(s.floorplan, b), abs=1e-12)
+
+
+@pytest.mark.parametrize("seed", range(20))
+def test_covered_share_matches_shapely(seed):
+    rng = np.random.default_rng(seed)
+    lo = rng.uniform(0, 100, (int(rng.integers(1, 30)), 2))
+    areas = np.concatenate([lo, lo + rng.uniform(0.5, 40, lo.shape)], axis=1)
+    # items without overlap: cells on a grid of 1 x 2 slots, some left out
+    gx, gy = np.meshgrid(np.arange(0, 140, 1.0), np.arange(0, 140, 2.0))
+    keep = rng.random(gx.size) < 0.6
+    x, y = gx.ravel()[keep], gy.ravel()[keep]
+    wid = rng.uniform(0.2, 1.0, len(x))
+    items = np.stack([x, y, x + wid, y + 2.0], axis=1)
+    got = covered_share(areas, items)
+    union = shapely.union_all(_boxes(items))
+    want = shapely.area(shapely.intersection(_boxes(areas), union)) / (
+        (areas[:, 2] - areas[:, 0]) * (areas[:, 3] - areas[:, 1]))
+    assert np.allclose(got, want, atol=1e-9)
 
 
 def test_refine_honours_a_new_halo(small):

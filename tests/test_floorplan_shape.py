@@ -186,8 +186,8 @@ def obstacle_sets(draw):
     blk = []
     for _ in range(nb):
         x0, y0 = draw(st.integers(0, 78)), draw(st.integers(0, 58))
-        blk.append((x0 / 2, y0 / 2, (x0 + draw(st.integers(1, 12))) / 2,
-                    (y0 + draw(st.integers(1, 60))) / 2))
+        blk.append((x0 / 2, y0 / 2, min(x0 + draw(st.integers(1, 12)), 80) / 2,
+                    min(y0 + draw(st.integers(1, 60)), 60) / 2))  # inside the die
     halo = draw(st.sampled_from([0.0, 0.5, 1.0]))
     return rects, blk, halo
 

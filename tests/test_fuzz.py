@@ -1,5 +1,7 @@
 """Fuzzing every reader: mutated inputs give a DesignError naming the file and a line (or the
-object at fault), or a valid design -- never another exception, never a hang.
+object at fault), or a valid design -- never another exception, never a hang.  The hand-drawn
+constraints (cell regions, partial blockages, halos) get seeds and mutations of their own,
+aimed at their sections, and a few of the accepted ones are placed.
 
 Each format starts from a small valid seed (the hand-made test data, or a file written by
 floorwidget itself) and hypothesis applies one to three mutations: byte flips, truncation, line
@@ -42,7 +44,8 @@ from floorwidget.session import ACTIONS, Session
 DATA = Path(__file__).parent / "data"
 LONG = os.environ.get("FW_FUZZ", "").lower() == "long"
 EXAMPLES = {"json": 300, "bookshelf": 400, "lef": 300, "def": 400, "session": 300, "gz": 100,
-            "gsrc": 300, "session_edits": 150, "session_log": 200}
+            "gsrc": 300, "session_edits": 150, "session_log": 200, "constraints-json": 300,
+            "constraints-def": 300, "constraints-place": 60}
 if LONG:
     EXAMPLES = {k: 20 * v for k, v in EXAMPLES.items()}
 TIME_LIMIT = 10.0  # seconds per mutant; the seeds load in milliseconds
@@ -123,6 +126,14 @@ _RAW = {'"__BIG__"': "1" + "0" * 5000, '"__NEG_BIG__"': "-1e400",
         '"__DEEP__"': "[" * 1000 + "]" * 1000}
 
 
+def _dump(doc) -> bytes:
+    """``doc`` as JSON text, the placeholders of :data:`_RAW` written out raw."""
+    text = json.dumps(doc)
+    for k, v in _RAW.items():
+        text = text.replace(k, v)
+    return text.encode()
+
+
 def _slots(node, out):
     """Every (container, key) of a decoded JSON document, depth first."""
     items = node.items() if isinstance(node, dict) else enumerate(node)
@@ -146,10 +157,7 @@ def mutate_json(data: bytes, ops) -> bytes:
             del node[key]
         else:
             node[key] = copy.deepcopy(JSON_NASTY[b % len(JSON_NASTY)])
-    text = json.dumps(doc)
-    for k, v in _RAW.items():
-        text = text.replace(k, v)
-    return text.encode()
+    return _dump(doc)
 
 
 class _Hang(Exception):
@@ -216,6 +224,12 @@ def _run_in(files: dict[str, bytes], main: str, load):
         load(d / main)
 
 
+def _load_def(fmt: str, files: dict[str, bytes], main: str = "k.def") -> None:
+    """``check`` loading the DEF ``main`` of ``files`` with the LEFs ``t.lef`` and ``c.lef``."""
+    _run_in(files, main, lambda p: check(
+        fmt, lambda: fw.load(p, lef=[p.parent / "t.lef", p.parent / "c.lef"])))
+
+
 # ---------------------------------------------------------------------------------------------
 # seeds
 
@@ -224,9 +238,10 @@ BOOKSHELF = {f"tiny{s}": (DATA / "bookshelf" / f"tiny{s}").read_bytes()
 LEFDEF = DATA / "lefdef"
 # the invented block, with a partial blockage, a fence and a group added for the new readers
 DEF_SEED = (LEFDEF / "kestrel.def").read_bytes().replace(
-    b"END BLOCKAGES", b"- PLACEMENT + PARTIAL 40 RECT ( 0 0 ) ( 50000 50000 ) ;\nEND BLOCKAGES"
+    b"END BLOCKAGES",
+    b"- PLACEMENT + PARTIAL 40 RECT ( 20000 30000 ) ( 50000 50000 ) ;\nEND BLOCKAGES"
 ).replace(b"BLOCKAGES 2 ;", b"BLOCKAGES 3 ;").replace(
-    b"COMPONENTS 12 ;", b"REGIONS 1 ;\n- r_inv ( 0 0 ) ( 100000 100000 ) + TYPE FENCE ;\n"
+    b"COMPONENTS 12 ;", b"REGIONS 1 ;\n- r_inv ( 20000 30000 ) ( 100000 100000 ) + TYPE FENCE ;\n"
     b"END REGIONS\n\nCOMPONENTS 12 ;").replace(
     b"END DESIGN", b"GROUPS 1 ;\n- g_inv u_inv* + REGION r_inv ;\nEND GROUPS\n\nEND DESIGN")
 TECH_LEF = (LEFDEF / "kestrel_tech.lef").read_bytes()
@@ -285,9 +300,7 @@ def test_bookshelf_set(which, ops):
 @fuzz("lef")
 @given(ops=OPS)
 def test_lef(ops):
-    files = {"k.def": DEF_SEED, "t.lef": TECH_LEF, "c.lef": mutate(CELL_LEF, ops)}
-    _run_in(files, "k.def", lambda p: check(
-        "lef", lambda: fw.load(p, lef=[p.parent / "t.lef", p.parent / "c.lef"])))
+    _load_def("lef", {"k.def": DEF_SEED, "t.lef": TECH_LEF, "c.lef": mutate(CELL_LEF, ops)})
 
 
 def _load_and_write_back(p: Path):
@@ -321,10 +334,8 @@ def test_def(ops):
 @given(ops=OPS)
 def test_compressed_def(ops):
     # the compressed bytes themselves are mutated: damaged streams must name the file
-    files = {"k.def.gz": mutate(gzip.compress(DEF_SEED, mtime=0), ops), "t.lef": TECH_LEF,
-             "c.lef": CELL_LEF}
-    _run_in(files, "k.def.gz", lambda p: check(
-        "gz", lambda: fw.load(p, lef=[p.parent / "t.lef", p.parent / "c.lef"])))
+    _load_def("gz", {"k.def.gz": mutate(gzip.compress(DEF_SEED, mtime=0), ops),
+                     "t.lef": TECH_LEF, "c.lef": CELL_LEF}, "k.def.gz")
 
 
 @fuzz("session")
@@ -486,3 +497,183 @@ def test_mutations_change_the_input():
     for kind in ("flip", "truncate", "delete_line", "dup_line", "swap_tokens", "number",
                  "insert_line"):
         assert mutate(DEF_SEED, [(kind, 1234, 7)]) != DEF_SEED, kind
+
+
+# ---------------------------------------------------------------------------------------------
+# the constraints: cell regions, partial blockages, halos
+
+# a DEF with more of them: a guide of two rectangles, a polygon and two partial blockages
+CONSTRAINT_DEF = DEF_SEED.replace(
+    b"END BLOCKAGES", b"- PLACEMENT + PARTIAL 10 RECT ( 200000 200000 ) ( 260000 240000 ) ;\n"
+    b"- PLACEMENT POLYGON ( 300000 300000 ) ( 340000 300000 ) ( 340000 320000 ) "
+    b"( 320000 320000 ) ( 320000 340000 ) ( 300000 340000 ) ;\nEND BLOCKAGES"
+).replace(b"BLOCKAGES 3 ;", b"BLOCKAGES 5 ;").replace(
+    b"REGIONS 1 ;", b"REGIONS 2 ;\n- r_pull ( 150000 150000 ) ( 200000 180000 ) "
+    b"( 200000 150000 ) ( 230000 170000 ) + TYPE GUIDE ;").replace(
+    b"GROUPS 1 ;", b"GROUPS 2 ;\n- g_pll u_pll + REGION r_pull ;")
+_SECTIONS = (b"BLOCKAGES", b"REGIONS", b"GROUPS", b"COMPONENTS")
+
+
+def mutate_sections(data: bytes, ops) -> bytes:
+    """``mutate`` applied inside one constraint section of a DEF (the first element of each
+    op picks the section: blockages, regions, groups, or the components with their halos)."""
+    for op in ops:
+        name = _SECTIONS[op[1] % len(_SECTIONS)]
+        i = data.find(b"\n" + name + b" ")
+        j = data.find(b"END " + name, i)
+        if i < 0 or j < 0:
+            continue
+        data = data[:i + 1] + mutate(data[i + 1:j], [op]) + data[j:]
+    return data
+
+
+# plausible replacements by the type of what they replace: numbers (coordinates, densities,
+# halo sides), rectangles and halos (four numbers), names and member lists
+CONSTRAINT_NASTY = {
+    "number": [0, 1, 2, 3, 8, 20, 30, -1, 0.5, 1e-300, 0.999, 1.0],
+    "four": [[0, 0, 20, 8], [-1, 0, 5, 5], [0, 0, 30, 2], [2, 0, 4, 8], [3, 3, 3, 5],
+             [1, 1, 1, 1], [0, 0, 0, 0], [0, 0, 3, 8], [6, 0, 9, 4]],
+    "text": ["fence", "guide", "left", "pull", "a", "m1", ""],
+    "list": [["a", "a"], ["m1"], ["p1"], ["a", "b", "c"], [], [[0, 0, 3, 8]],
+             [[0, 0, 3, 8], [6, 0, 9, 4]]],
+}
+
+
+def _plausible(value, b: int):
+    """A replacement for ``value`` of the same kind (see :data:`CONSTRAINT_NASTY`)."""
+    if value is None:  # a block without a halo: give it one
+        pool = CONSTRAINT_NASTY["four"]
+    elif isinstance(value, bool) or not isinstance(value, (int, float, str, list)):
+        pool = JSON_NASTY
+    elif isinstance(value, (int, float)):
+        pool = CONSTRAINT_NASTY["number"]
+    elif isinstance(value, str):
+        pool = CONSTRAINT_NASTY["text"]
+    elif len(value) == 4 and all(isinstance(v, (int, float)) for v in value):
+        pool = CONSTRAINT_NASTY["four"]
+    else:
+        pool = CONSTRAINT_NASTY["list"]
+    return copy.deepcopy(pool[b % len(pool)])
+
+
+def _constraint_slots(doc) -> list:
+    """The (container, key) slots under ``regions``, ``blockages`` and every block's halo."""
+    out = []
+    for key in ("regions", "blockages"):
+        if isinstance(doc.get(key), list):
+            out.append((doc, key))
+            _slots(doc[key], out)
+    for b in doc.get("blocks", []) if isinstance(doc.get("blocks"), list) else []:
+        if isinstance(b, dict):
+            out.append((b, "halo"))
+            if isinstance(b.get("halo"), list):
+                _slots(b["halo"], out)
+    return out
+
+
+def mutate_constraints(data: bytes, ops) -> bytes:
+    """Structural mutations of the constraints of a JSON design: values replaced (wrong
+    types, other rectangles, densities, member lists), keys deleted, list items duplicated (a
+    region twice under another name: overlapping fences; a rectangle twice)."""
+    doc = json.loads(data)
+    for kind, a, b in ops:
+        slots = _constraint_slots(doc)
+        if not slots:
+            break
+        node, key = slots[a % len(slots)]
+        if kind == "delete_line" and isinstance(node, dict):
+            node.pop(key, None)
+        elif kind == "dup_line" and isinstance(node, list):
+            item = copy.deepcopy(node[key])
+            if isinstance(item, dict) and "name" in item:
+                item["name"] = f"{item['name']}_{b % 7}"
+            node.append(item)
+        elif kind in ("number", "swap_tokens"):
+            node[key] = _plausible(node.get(key) if isinstance(node, dict) else node[key], b)
+        else:
+            node[key] = copy.deepcopy(JSON_NASTY[b % len(JSON_NASTY)])
+    return _dump(doc)
+
+
+@pytest.fixture(scope="module")
+def constraints_seed(tiny_design, tmp_path_factory) -> bytes:
+    s = Session(tiny_design)
+    s.add_blockage([1.0, 1.0, 4.0, 3.0], max_density=0.5)
+    s.add_blockage([5.0, 5.0, 8.0, 6.0], max_density=0.2)
+    s.set_halo("m1", [0.5, 0.0, 0.5, 0.0])
+    s.add_region("left", [[0.0, 0.0, 3.0, 8.0], [3.0, 0.0, 5.0, 2.0]])
+    s.add_region("pull", [6.0, 0.0, 9.0, 4.0], kind="guide")
+    s.assign_group("left", ["a"])
+    s.assign_group("pull", ["b"])
+    p = tmp_path_factory.mktemp("seed") / "constraints.json"
+    fw.save(s.design, s.floorplan, p)
+    return p.read_bytes()
+
+
+def test_constraint_seeds_are_valid_and_mutations_reach_them(constraints_seed):
+    with tempfile.TemporaryDirectory() as t:
+        (Path(t) / "k.def").write_bytes(CONSTRAINT_DEF)
+        (Path(t) / "c.json").write_bytes(constraints_seed)
+        d = fw.load(Path(t) / "k.def", lef=[LEFDEF / "kestrel_tech.lef",
+                                            LEFDEF / "kestrel_cells.lef"])
+        assert len(d.regions) == 2 and (d.blockage_max_density > 0).sum() == 2
+        j = fw.load(Path(t) / "c.json")
+        assert len(j.regions) == 2 and (j.halo > 0).any()
+    for op in [("dup_line", 1, 3), ("number", 5, 2), ("delete_line", 4, 0)]:
+        assert mutate_constraints(constraints_seed, [op]) != constraints_seed
+    for k in range(len(_SECTIONS)):
+        assert mutate_sections(CONSTRAINT_DEF, [("delete_line", k, 2)]) != CONSTRAINT_DEF
+
+
+@fuzz("constraints-json")
+@given(ops=OPS)
+def test_constraints_json(constraints_seed, ops):
+    data = mutate_constraints(constraints_seed, ops)
+    _run_in({"c.json": data}, "c.json", lambda p: check("constraints-json", lambda: fw.load(p)))
+
+
+@fuzz("constraints-def")
+@given(ops=OPS)
+def test_constraints_def(ops):
+    _load_def("constraints-def", {"k.def": mutate_sections(CONSTRAINT_DEF, ops),
+                                  "t.lef": TECH_LEF, "c.lef": CELL_LEF})
+
+
+@fuzz("constraints-place")
+@given(ops=OPS)
+def test_constraints_place(constraints_seed, ops):
+    # an accepted mutant is placed: a floorplan (every partial blockage within its cap when
+    # the cells are legal) or a one-line DesignError / PlacementError, within the time limit
+    from floorwidget.design import CELL
+    from floorwidget.kernels.fill import covered_share
+
+    # plausible values only (rectangles, densities, members, duplicates), so that most load
+    ops = [(k if k in ("dup_line", "delete_line") else "number", a, b) for k, a, b in ops]
+    data = mutate_constraints(constraints_seed, ops)
+    with tempfile.TemporaryDirectory(prefix="fwfuzz") as t:
+        p = Path(t) / "c.json"
+        p.write_bytes(data)
+        try:
+            with warnings.catch_warnings():
+                warnings.simplefilter("ignore")
+                design = fw.load(p)
+        except DesignError:
+            return
+    COUNTS["constraints-place", "mutants"] += 1
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        try:
+            with _time_limit(TIME_LIMIT):
+                fp = fw.place(design)
+                rep = fw.evaluate(design, fp)
+        except DesignError as e:
+            COUNTS["constraints-place", "rejected"] += 1
+            assert "\n" not in str(e), f"more than one line: {e!r}"
+            return
+        except _Hang as e:
+            raise AssertionError(f"constraints-place: {e}") from None
+    COUNTS["constraints-place", "accepted"] += 1
+    part = design.blockage_max_density > 0
+    if rep.get("cells_legal", rep["legal"]) and part.any():
+        fill = covered_share(design.blockages[part], fp.rects()[design.kind == CELL])
+        assert (fill <= design.blockage_max_density[part] + 1e-9).all(), fill

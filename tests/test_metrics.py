@@ -155,7 +155,8 @@ def test_density_map_matches_shapely():
     status = rng.integers(0, 3, k)
     kinds = np.where(rng.random(k) < 0.3, MACRO, CLUSTER)
     kinds[:3] = TERMINAL
-    blk = np.array([[10.0, 10.0, 40.0, 30.0], [30.0, 20.0, 50.0, 60.0], [95.0, 95.0, 130.0, 99.0]])
+    # the third blockage reaches past the core (5..95), not past the die
+    blk = np.array([[10.0, 10.0, 40.0, 30.0], [30.0, 20.0, 50.0, 60.0], [92.0, 92.0, 100.0, 99.0]])
     rows = {"x": [5.0] * 45, "y": 5.0 + 2.0 * np.arange(45), "height": [2.0] * 45,
             "site_width": [0.5] * 45, "num_sites": [180] * 45}
     d = make_design(r[:, 2] - r[:, 0], r[:, 3] - r[:, 1], kinds, [[(0, 0, 0), (1, 0, 0)]],

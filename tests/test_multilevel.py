@@ -283,3 +283,77 @@ def test_a_pin_budget_coarsens_further(small):
     assert tight.coarsest.num_blocks < loose.coarsest.num_blocks
     a = small.width * small.height
     assert np.sum(tight.coarsest.width * tight.coarsest.height) == pytest.approx(a.sum())
+
+
+# ---------------------------------------------------------------------------------------------
+# tiny and net-less designs, and fences (issue 23)
+
+
+def _cells(n: int, nets: str):
+    """``n`` standard cells on ten rows: no nets, a chain of two-pin nets, or one net of all."""
+    from floorwidget.design import Design
+
+    if nets == "none":
+        start, pins = [0], []
+    elif nets == "one":
+        start, pins = [0, n], list(range(n))
+    else:
+        start, pins = list(range(0, 2 * n - 1, 2)), [b for i in range(n - 1) for b in (i, i + 1)]
+    rows = {"x": np.zeros(10), "y": np.arange(10) * 2.0, "height": np.full(10, 2.0),
+            "site_width": np.full(10, 0.2), "num_sites": np.full(10, 500)}
+    return Design(f"tiny{n}{nets}", (0, 0, 100, 20), [f"c{i}" for i in range(n)], [CELL] * n,
+                  [0.4] * n, [2.0] * n, start, pins, np.zeros(len(pins)), np.zeros(len(pins)),
+                  rows=rows)
+
+
+@pytest.mark.parametrize("n, nets", [(1, "none"), (2, "chain"), (100, "none"), (500, "one")])
+def test_tiny_and_netless_designs_place_multilevel_and_clustered(n, nets):
+    from floorwidget.session import Session
+
+    d = _cells(n, nets)
+    flat = place(d, multilevel="off")
+    on = place(d, multilevel="on")
+    assert metrics.evaluate(d, flat)["legal"] and metrics.evaluate(d, on)["legal"]
+    s = Session(d, clustered=True)
+    s.place()
+    assert s.report["legal"]
+    assert s.design.num_blocks <= n
+
+
+def test_multilevel_keeps_macros_off_a_fence_as_the_flat_flow_does():
+    # the flat flow keeps macros off fences (DEVELOPERS.md); the coarse levels now carry the
+    # fences with their clusters, so the macro legaliser there sees them too (shapely: the
+    # GEOS reference geometry library, for the areas)
+    import shapely
+
+    from floorwidget.session import Session
+
+    d0 = rent_design(3000, seed=3, num_macros=8, macro_area=0.35)
+    c = d0.core
+    w, h = c[2] - c[0], c[3] - c[1]
+    s = Session(d0)
+    s.add_region("f", [c[0] + 0.3 * w, c[1] + 0.3 * h, c[0] + 0.7 * w, c[1] + 0.7 * h])
+    s.assign_group("f", [d0.names[i] for i in np.flatnonzero(d0.kind == CELL)[:300]])
+    d = s.design
+    fp = place(d, multilevel="on")
+    assert len(fp.info["levels"]) > 1  # the multilevel flow ran
+    fence = shapely.box(*d.regions.rects[0])
+    r = fp.rects()
+    boxes = shapely.box(r[:, 0], r[:, 1], r[:, 2], r[:, 3])
+    mac = np.flatnonzero(d.kind == MACRO)
+    assert float(shapely.area(shapely.intersection(boxes[mac], fence)).sum()) == 0.0
+    mem = d.regions.members(0)
+    assert shapely.within(boxes[mem], fence.buffer(1e-6)).all()
+    others = np.flatnonzero((d.kind == CELL) & (d.regions.member < 0))
+    assert float(shapely.area(shapely.intersection(boxes[others], fence)).max()) < 1e-6
+    # no cluster of any level mixes members of the fence with other cells
+    clus = coarsen(d, target_blocks=500)
+    for k in range(1, clus.num_levels):
+        c_of = clus.cluster_of(k)
+        m = d.regions.member
+        lo = np.full(clus.designs[k].num_blocks, 2)
+        hi = np.full(clus.designs[k].num_blocks, -2)
+        np.minimum.at(lo, c_of, m)
+        np.maximum.at(hi, c_of, m)
+        assert (lo == hi).all()
+        assert np.array_equal(clus.designs[k].regions.member, lo.astype(np.int32))

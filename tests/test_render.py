@@ -166,10 +166,30 @@ def test_partial_blockages_and_cell_regions_are_drawn(demo_design, tmp_path):
     s.add_region("north", [[400.0, 1500.0, 600.0, 1700.0], [700.0, 1500.0, 900.0, 1700.0]],
                  kind="guide")
     out = tmp_path / "r.svg"
-    render(s.design, s.floorplan, out)
+    fig = render(s.design, s.floorplan, out)
     svg = out.read_text()
-    # one shape per blockage and per region rectangle, by their ids
-    assert svg.count('id="blockage:') == 2
+    # the blockages as one collection of each kind, one shape per blockage
+    cols = {c.get_gid(): c for c in fig.axes[0].collections}
+    full = int((s.design.blockage_max_density == 0).sum())
+    assert len(cols["blockages:partial"].get_paths()) == 1
+    assert len(cols.get("blockages:full", ()).get_paths() if full else ()) == full
+    assert 'id="blockages:partial"' in svg
+    # one shape per region rectangle, by their ids
     for gid in ("region:south:0", "region:north:0", "region:north:1"):
         assert f'id="{gid}"' in svg
     assert "partial blockage" in svg and "guide (cells pulled in)" in svg
+
+
+def test_many_blockages_are_one_collection(demo_design):
+    # 100,000 small blockages (the hostile case of issue 23): one collection of 100,000 paths
+    c = demo_design.core
+    k = 100_000
+    rng = np.random.default_rng(0)
+    lo = rng.uniform(c[:2], c[2:] - 1.0, (k, 2))
+    bl = np.concatenate([lo, lo + 0.5], axis=1)
+    d = demo_design.derive(blockages=bl, blockage_max_density=np.where(np.arange(k) % 2, 0.3, 0))
+    fig = render(d, d.initial)
+    cols = {c.get_gid(): c for c in fig.axes[0].collections}
+    assert len(cols["blockages:full"].get_paths()) == k // 2
+    assert len(cols["blockages:partial"].get_paths()) == k // 2
+    assert len(fig.axes[0].patches) < 1000  # macros, outlines: not one patch per blockage

@@ -41,11 +41,22 @@ from pathlib import Path
 
 from ..design import DesignError
 
-__all__ = ["COMPRESSED", "MAX_INPUT_BYTES", "atomic_write", "format_suffix",
+__all__ = ["COMPRESSED", "MAX_EXPANSION", "MAX_INPUT_BYTES", "MIN_EXPANSION_CAP",
+           "atomic_write", "decompressed_cap", "format_suffix",
            "read_json_file", "read_text", "recover", "write_files"]
 
 COMPRESSED = (".gz", ".bz2")
-MAX_INPUT_BYTES = 1 << 33   # 8 GiB of text: a decompression bomb stops here
+MAX_INPUT_BYTES = 1 << 33   # 8 GiB: the largest plain text file read
+# Caps on what a compressed input may expand to (a decompression bomb stops at the cap, while
+# the decompressed text is still small).  Text of our formats compresses 5-20 times (the
+# shared real designs: ariane136's DEF 9.9x with gzip, aes_cipher_top's 8.0x); a bomb made of
+# one repeated byte reaches about 1000x with gzip and millions with bz2.  So a compressed file
+# may expand to MAX_EXPANSION times its own size, at least MIN_EXPANSION_CAP (a small file
+# of a very regular text, e.g. a Bookshelf .scl of identical rows) and at most
+# MAX_COMPRESSED_TEXT.
+MAX_EXPANSION = 100
+MIN_EXPANSION_CAP = 1 << 26        # 64 MiB
+MAX_COMPRESSED_TEXT = 1 << 32      # 4 GiB
 MAX_JSON_DEPTH = 200        # the depth named when a document is too deep to decode
 _CHUNK = 1 << 22
 _BOM = "\ufeff"
@@ -65,6 +76,12 @@ def format_suffix(path) -> str:
     return s
 
 
+def decompressed_cap(compressed_size: int) -> int:
+    """Bytes a compressed input of ``compressed_size`` bytes may expand to: :data:`MAX_EXPANSION`
+    times its size, at least :data:`MIN_EXPANSION_CAP`, at most :data:`MAX_COMPRESSED_TEXT`."""
+    return int(min(max(MAX_EXPANSION * compressed_size, MIN_EXPANSION_CAP), MAX_COMPRESSED_TEXT))
+
+
 def _read_bytes(path: Path) -> bytes:
     s = path.suffix.lower()
     try:
@@ -77,14 +94,19 @@ def _read_bytes(path: Path) -> bytes:
         opener = gzip.open if s == ".gz" else bz2.open
         buf = io.BytesIO()
         with opener(path, "rb") as f:
-            while True:
+            packed = os.fstat(f.fileno()).st_size
+            cap = decompressed_cap(packed)
+            while True:  # read(n) inflates at most n bytes: memory stays within cap + _CHUNK
                 chunk = f.read(_CHUNK)
                 if not chunk:
                     break
                 buf.write(chunk)
-                if buf.tell() > MAX_INPUT_BYTES:
-                    raise DesignError(f"decompresses to more than {MAX_INPUT_BYTES} bytes",
-                                      file=str(path))
+                if buf.tell() > cap:
+                    raise DesignError(
+                        f"{s[1:]} data of {packed} bytes expands to more than {cap} bytes "
+                        f"(over {MAX_EXPANSION}x, or past {MAX_COMPRESSED_TEXT >> 30} GiB): "
+                        "refused as a decompression bomb", file=str(path),
+                        where=f"{s[1:]} stream")
         return buf.getvalue()
     except FileNotFoundError:
         raise DesignError("file not found", file=str(path)) from None

@@ -31,7 +31,7 @@ from dataclasses import dataclass
 import numpy as np
 import scipy.sparse as sp
 
-from ..design import CELL, CLUSTER, MOVABLE, TERMINAL, Design, Floorplan
+from ..design import CELL, CLUSTER, MOVABLE, TERMINAL, CellRegions, Design, Floorplan
 
 __all__ = ["Clustering", "coarsen", "coarsen_level"]
 
@@ -211,9 +211,14 @@ def _best(rows, cols, score, n):
 
 
 def _weights(design: Design, free: np.ndarray, max_degree: int):
-    """Symmetric clique-expansion weight matrix among the free blocks (COO, row-sorted)."""
+    """Symmetric clique-expansion weight matrix among the free blocks (COO, row-sorted); blocks
+    of different cell regions (or one in a region, one not) are not joined, so that a cluster
+    lies in one region or none and keeps its fence on every level."""
     n = design.num_blocks
     u, v, w = _clique_edges(design, free, max_degree)
+    m = design.regions.member
+    same = m[u] == m[v]
+    u, v, w = u[same], v[same], w[same]
     W = sp.coo_array((w, (u, v)), shape=(n, n)).tocsr()
     W.sum_duplicates()
     return (W + W.T).tocoo()
@@ -239,11 +244,13 @@ def algebraic_coordinates(design: Design, free: np.ndarray, *, vectors: int | No
     W = sp.csr_array(W)
     deg = np.asarray(W.sum(axis=1)).ravel()
     on = np.flatnonzero(deg > 0)
+    rng = np.random.default_rng(seed)
+    X = (rng.random((n, vectors)) if start is None else np.array(start)).astype(np.float32)
+    if not len(on):  # no edge at all (no nets, or only nets too large to expand): no smoothing
+        return X
     # single precision: the coordinates only rank neighbours, and the sweeps are memory-bound
     Won = sp.csr_array(W[on][:, on], dtype=np.float32)
     dinv = (omega / deg[on]).astype(np.float32)[:, None]
-    rng = np.random.default_rng(seed)
-    X = (rng.random((n, vectors)) if start is None else np.array(start)).astype(np.float32)
     Y = X[on]
     for _ in range(iterations):
         Y = (1.0 - omega) * Y + (Won @ Y) * dinv
@@ -427,12 +434,17 @@ def contract(design: Design, fp: Floorplan, leader: np.ndarray, level: int
     y = np.where(merged, ccy - side / 2, fp.y[rep])
     orient = np.where(merged, 0, fp.orient[rep])
     status = np.where(merged, MOVABLE, fp.status[rep])
+    reg = design.regions  # a cluster's region is its members' (they share one: _weights)
+    member = np.full(nc, -1, np.int32)
+    member[parent] = reg.member
+    regions = CellRegions(reg.names, reg.kind, reg.rect_start, reg.rects, member, reg.groups)
     d = Design(f"{design.name}~L{level}", design.die, names, kind, width, height, start, pb,
                dx, dy, halo=halo, orient_allowed=allowed, net_names=net_names,
                net_weight=weight, rows=rows,
                grid_pitch=design.grid_pitch, grid_origin=design.grid_origin,
                blockages=design.blockages,
-               blockage_max_density=design.blockage_max_density, block_type=btype, x=x, y=y,
+               blockage_max_density=design.blockage_max_density, regions=regions,
+               block_type=btype, x=x, y=y,
                orient=orient, status=status, dbu=design.dbu, validate=False, source=design.source)
     return d, parent, kept_nets
 
@@ -489,6 +501,8 @@ def coarsen(design: Design, floorplan: Floorplan | None = None, *, target_blocks
         amax = max(amax, 2.0 * float(np.max(cur.width[free] * cur.height[free])))
         # algebraic coordinates, smoothed further on every level from the members' mean
         W = _weights(cur, free, MAX_CLIQUE)
+        if not W.nnz:  # no net joins two free blocks: nothing to match on
+            break
         coords = algebraic_coordinates(cur, free, seed=seed, W=W, start=coords)
         leader = coarsen_level(cur, cur_fp, amax, seed=seed + level, coords=coords, W=W)
         left = np.count_nonzero(free & (leader == np.arange(cur.num_blocks)))

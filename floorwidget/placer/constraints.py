@@ -5,7 +5,9 @@ already takes its area out.  A *partial* blockage with maximum density ``d`` (DE
 ``+ PARTIAL``, as a fraction) lets standard cells and clusters fill at most ``d`` of its area,
 so a bin under it holds ``d`` instead of the target density there: its capacity loses
 ``max(0, target − d)`` times the covered area.  The spreading (look-ahead) and the density cap
-of detailed placement both subtract this loss; macros are not kept off partial blockages.
+of detailed placement both subtract this loss; the rows stage (legalisation and detailed
+placement) sees ``1 − d`` of each partial blockage as blocked stripes (:func:`partial_stripes`),
+so the cap holds per blockage after ``place``.  Macros are not kept off partial blockages.
 
 Cell regions (:class:`floorwidget.design.CellRegions`): :class:`RegionPlan` makes the
 spreading keep fence members inside their fence and everyone else out, and pulls guide
@@ -22,7 +24,7 @@ from ..design import FENCE, GUIDE, CellRegions, Design
 from ..metrics import BinGrid, rect_area_map
 
 __all__ = ["RegionPlan", "clamp_to_regions", "macro_keepouts", "partial_capacity_loss",
-           "row_groups"]
+           "partial_stripes", "row_groups"]
 
 
 def macro_keepouts(design: Design) -> np.ndarray:
@@ -46,6 +48,38 @@ def partial_capacity_loss(design: Design, grid: BinGrid, target: float) -> np.nd
     if not keep.any():
         return np.zeros(grid.shape)
     return np.maximum(rect_area_map(grid, design.blockages[part][keep], loss[keep]), 0.0)
+
+
+STRIPE_CELLS = 4.0  # a free stripe under a partial blockage holds at least this many cells
+MAX_STRIPES = 256   # ... and a blockage has at most this many (wider ones get wider stripes)
+
+
+def partial_stripes(design: Design, cell_width: float) -> np.ndarray:
+    """``(s, 4)`` rectangles that the rows stage treats as blocked so that standard cells fill
+    at most ``d`` of every partial blockage of maximum density ``d``.
+
+    Each partial blockage is cut into ``k`` equal periods across x, each a free stripe of
+    ``d`` of its width followed by a blocked stripe of the rest, all of the blockage's
+    height; ``k`` is as large as keeps each free stripe at least :data:`STRIPE_CELLS` cells of
+    ``cell_width`` wide (one period when the blockage is narrower), at most
+    :data:`MAX_STRIPES`.  The rows cut blocked stripes outward to whole sites, so the free
+    area under a blockage is at most ``d`` of its area and no legal row placement can exceed
+    the cap (the spreading budgets the same share through :func:`partial_capacity_loss`).
+    """
+    md = design.blockage_max_density
+    sel = np.flatnonzero((md > 0.0) & (md < 1.0))
+    if not len(sel):
+        return np.zeros((0, 4))
+    b, d = design.blockages[sel], md[sel]
+    width = b[:, 2] - b[:, 0]
+    free_min = STRIPE_CELLS * max(float(cell_width), 1e-9)
+    k = np.clip(np.floor(width * d / free_min), 1, MAX_STRIPES).astype(np.int64)
+    i = np.repeat(np.arange(len(sel)), k)
+    j = np.arange(int(k.sum())) - np.repeat(np.cumsum(k) - k, k)
+    period = width[i] / k[i]
+    x0 = b[i, 0] + j * period + d[i] * period
+    x1 = b[i, 0] + (j + 1) * period
+    return np.stack([x0, b[i, 1], x1, b[i, 3]], axis=1)
 
 
 # ---------------------------------------------------------------------------------------------

@@ -54,7 +54,7 @@ from ..design import (
     orient_offsets,
 )
 from ..metrics import bin_grid, hpwl, rect_area_map, row_of
-from .constraints import partial_capacity_loss
+from .constraints import partial_capacity_loss, partial_stripes
 from .errors import PlacementError
 
 __all__ = ["RowSegments", "row_segments", "legalize_cells", "detailed_place", "cell_mask"]
@@ -102,14 +102,20 @@ class RowSegments:
 def _obstacle_rects(design: Design, fp: Floorplan, movable_cells: np.ndarray,
                     avoid: np.ndarray | None = None) -> np.ndarray:
     """What standard cells may not overlap: macro halo boxes, cells that are not being placed
-    (fixed, pinned), full placement blockages, and the rectangles ``avoid`` (other cells'
-    fences).  Soft clusters and I/O terminals are no obstacles."""
+    (fixed, pinned), full placement blockages, the blocked stripes of partial ones (their
+    density cap, :func:`~floorwidget.placer.constraints.partial_stripes`), and the rectangles
+    ``avoid`` (other cells' fences).  Soft clusters and I/O terminals are no obstacles."""
     k = design.kind
     sel = (k != CLUSTER) & (k != TERMINAL) & ~movable_cells
     # movable cells that this module does not place (multi-row) stay where they are
     r = fp.rects(halo=True)[sel]
-    full = design.full_blockages  # partial ones only cap the density (detailed placement)
-    extra = [a for a in (full, avoid) if a is not None and len(a)]
+    full = design.full_blockages
+    stripes = None
+    if (design.blockage_max_density > 0).any():
+        cells = np.flatnonzero(k == CELL)
+        wc = float(np.median(design.width[cells])) if len(cells) else 1.0
+        stripes = partial_stripes(design, wc)
+    extra = [a for a in (full, stripes, avoid) if a is not None and len(a)]
     return np.concatenate([r, *extra]) if extra else r
 
 
