@@ -47,7 +47,7 @@ from .density import (
     rect_area_map,
 )
 from .legality import cell_legality, illegal_blocks, legality, pinned_illegal, row_of
-from .report import REPORT_KEYS, evaluate
+from .report import REPORT_KEYS, blockages_over_cap, evaluate
 from .shape import (
     Channels,
     LogicRegions,
@@ -83,6 +83,7 @@ __all__ = [
     "default_channel",
     "density_map",
     "density_overflow",
+    "blockages_over_cap",
     "evaluate",
     "facing_wall",
     "hpwl",

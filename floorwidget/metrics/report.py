@@ -8,7 +8,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..design import Design, Floorplan
+from ..design import CELL, Design, Floorplan
+from ..kernels.fill import covered_share
 from .congestion import congestion_of_boxes, congestion_stats, rudy_of_boxes
 from .density import bin_grid, density_map
 from .legality import cell_legality, legality, pinned_illegal
@@ -23,8 +24,20 @@ REPORT_KEYS = (
     "out_of_die", "off_grid", "legal",
     "num_blocks", "num_nets", "target_density", "cell_overlaps", "cells_off_row",
     "cells_off_site", "narrow_channels", "macros_facing_wall", "logic_regions",
-    "largest_logic_region", "pinned_illegal",
+    "largest_logic_region", "pinned_illegal", "blockages_over_cap",
 )
+
+
+def blockages_over_cap(design: Design, fp: Floorplan, tol: float = 1e-6) -> int:
+    """Partial blockages whose standard-cell fill (the share of their area the cells cover,
+    :func:`floorwidget.kernels.fill.covered_share`) exceeds their maximum density."""
+    md = design.blockage_max_density
+    part = md > 0.0
+    if not part.any():
+        return 0
+    cells = fp.rects()[design.kind == CELL]
+    share = covered_share(design.blockages[part], cells)
+    return int(np.count_nonzero(share > md[part] + tol))
 
 
 def evaluate(design: Design, fp: Floorplan | None = None, target_density: float | None = None,
@@ -79,6 +92,7 @@ def evaluate(design: Design, fp: Floorplan | None = None, target_density: float 
     leg = legality(design, fp)
     cl = cell_legality(design, fp)
     lr = logic_regions(design, fp)
+    over = blockages_over_cap(design, fp)
     return {
         "hpwl": float(per.sum()),
         "hpwl_weighted": float(np.dot(per, design.net_weight)),
@@ -92,7 +106,7 @@ def evaluate(design: Design, fp: Floorplan | None = None, target_density: float 
         "macro_overlap_area": float(leg["macro_overlap_area"]),
         "out_of_die": int(len(leg["out_of_die"])),
         "off_grid": int(len(leg["off_grid"])),
-        "legal": bool(leg["legal"]) and cl["cells_legal"],
+        "legal": bool(leg["legal"]) and cl["cells_legal"] and over == 0,
         "num_blocks": int(design.num_blocks),
         "num_nets": int(design.num_nets),
         "target_density": float(target_density),
@@ -105,4 +119,5 @@ def evaluate(design: Design, fp: Floorplan | None = None, target_density: float 
         "logic_regions": lr.count,
         "largest_logic_region": lr.largest,
         "pinned_illegal": ", ".join(pinned_illegal(design, fp, leg)),
+        "blockages_over_cap": over,
     }

@@ -61,6 +61,7 @@ class _Def:
         self.name = Path(path).stem
         self.dbu: float | None = None
         self.die_pts: list[tuple[float, float]] | None = None
+        self.die_pos = 0  # where the DIEAREA statement starts
         self.rows: list[tuple] = []
         self.nrows = 0
         self.comps = None
@@ -192,6 +193,7 @@ class _Def:
                 if len(pts) < 2 or len(pts) == 3:
                     self.fail("DIEAREA needs two corner points or a polygon of four or more", p)
                 self.die_pts = pts
+                self.die_pos = p
             elif T == "ROW":
                 self.row(self.statement(p), p)
             elif T in ("TRACKS", "GCELLGRID", "COMPONENTMASKSHIFT"):
@@ -697,7 +699,10 @@ class _Def:
                     else:
                         if len(pts) < 4:
                             self.fail("BLOCKAGES: POLYGON needs four points or more", pos)
-                        rects = _polygon_rects(np.array(pts), True)
+                        try:
+                            rects = _polygon_rects(np.array(pts), True)
+                        except ValueError as e:
+                            self.fail(f"BLOCKAGES: POLYGON {e}", pos)
                         if not len(rects):
                             self.fail("BLOCKAGES: POLYGON has no area", pos)
                         self.blockages.extend(map(tuple, rects))
@@ -828,7 +833,10 @@ class _Def:
         blk = [np.array(self.blockages, dtype=np.float64).reshape(-1, 4) / dbu]
         dens = [np.array(self.blockage_density, dtype=np.float64)]
         if len(pts) > 2:
-            blk.insert(0, _polygon_rects(pts, False))
+            try:
+                blk.insert(0, _polygon_rects(pts, False))
+            except ValueError as e:
+                self.fail(f"DIEAREA: {e}", self.die_pos)
             dens.insert(0, np.zeros(len(blk[0])))
             self.notches = len(blk[0])
         blockages = np.concatenate(blk)
