@@ -41,11 +41,12 @@ from typing import Any, TextIO
 
 import numpy as np
 
-from .design import FIXED, MACRO, PINNED, Design, DesignError, Floorplan
+from .design import FIXED, MACRO, MOVABLE, PINNED, Design, DesignError, Floorplan
 
 __all__ = [
     "SerialExecutor",
     "SweepResult",
+    "candidates",
     "dumps_design",
     "expand_grid",
     "format_params",
@@ -656,7 +657,7 @@ def to_session(session, results: Sequence[SweepResult], prefix: str = "sweep") -
         note = ""
         if r.report:
             note = ", ".join(f"{k} {r.report[k]:.4g}" for k in
-                             ("hpwl", "density_overflow", "congestion_peak") if k in r.report)
+                             ("hpwl", "congestion_p99", "logic_regions") if k in r.report)
         # hand the report over when it was computed at the session's own target density
         td = getattr(session, "target_density", None)
         same = td is not None and r.target_density == float(td)
@@ -664,6 +665,51 @@ def to_session(session, results: Sequence[SweepResult], prefix: str = "sweep") -
                                 report=r.report if same else None)
         labels.append(label)
     return labels
+
+
+def candidates(design: Design, k: int = 4, executor: cf.Executor | None = None,
+               base: Floorplan | None = None, **fixed_options) -> list[SweepResult]:
+    """``k`` diverse macro arrangements of ``design``, placed in parallel on ``executor`` (as
+    :func:`sweep`), best first.
+
+    Diversity comes from the method before the seed: the macro layouts that apply to the design
+    (``"arrays"`` where most macros come in banks, ``"periphery"`` for up to 128 large ones,
+    always ``"free"``) take turns, each with its own seed.  Runs are ranked legal first, then
+    by the product of HPWL and congestion p99 (both matter: the one bought with the other is
+    not better), then by logic regions.  :func:`to_session` turns them into alternatives of a
+    session, where the widget shows them side by side.
+
+    Returns
+    -------
+    list of SweepResult
+        Failed runs last, with their error.
+    """
+    from .placer.macro_arrays import macro_arrays  # noqa: PLC0415
+
+    k = int(k)
+    if k < 1:
+        raise ValueError(f"candidates: k must be at least 1, got {k}")
+    fp = design.initial if base is None else base
+    mac = np.flatnonzero((design.kind == MACRO) & (fp.status == MOVABLE))
+    layouts = []
+    if len(mac) and sum(len(a) for a in macro_arrays(design, fp, mac) if len(a) > 1) \
+            >= 0.5 * len(mac):
+        layouts.append("arrays")
+    if 0 < len(mac) <= 128:
+        layouts.append("periphery")
+    layouts.append("free")
+    grid = [{"macro_layout": layouts[i % len(layouts)], "seed": i // len(layouts)}
+            for i in range(k)]
+    res = sweep(design, grid, executor, base, **fixed_options)
+
+    def rank(r: SweepResult):
+        if not r.ok:
+            return (2, 0.0, 0)
+        rep = r.report
+        return (0 if rep["legal"] else 1, rep["hpwl"] * max(rep["congestion_p99"], 1e-12),
+                rep["logic_regions"])
+
+    return sorted(res, key=rank)
 
 
 # ---------------------------------------------------------------------------------------------

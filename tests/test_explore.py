@@ -23,6 +23,7 @@ from floorwidget.design import PINNED
 from floorwidget.explore import (
     SerialExecutor,
     SweepResult,
+    candidates,
     dumps_design,
     expand_grid,
     loads_design,
@@ -277,3 +278,15 @@ def test_core_module_imports_no_widget_or_cluster_library():
             "print(bad); sys.exit(1 if bad else 0)")
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
     assert out.returncode == 0, out.stdout + out.stderr
+
+
+def test_candidates_are_diverse_ranked_and_become_alternatives(demo_design):
+    # the demo has banks (sram_sp4k_*) and 30 large macros: arrays, periphery and free all apply
+    res = candidates(demo_design, 3, executor=SerialExecutor(), cells="global")
+    assert sorted(r.params["macro_layout"] for r in res) == ["arrays", "free", "periphery"]
+    assert all(r.ok for r in res)
+    key = [(not r.report["legal"], r.report["hpwl"] * r.report["congestion_p99"]) for r in res]
+    assert key == sorted(key)
+    s = fw.Session(demo_design)
+    labels = to_session(s, res, prefix="candidate")
+    assert len(labels) == 3 and set(labels) <= {a.label for a in s.alternatives}
