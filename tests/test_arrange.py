@@ -228,20 +228,25 @@ def test_array_refuses_too_few_cells_and_bad_pitch(g):
 @pytest.mark.parametrize("huge, small", [((10**9, 10**9), (1, 6)), ((10**30, 2), (3, 2)),
                                          ((2, 10**18), (1, 6))])
 def test_absurd_array_sizes_cost_what_the_filled_cells_cost(g, huge, small):
-    # cells past the last macro are empty: the arrangement equals the smallest array that
-    # holds the macros in the same row-by-row order, and nothing of the absurd size is allocated
+    # cells past the last macro are empty: arrange.array gives the smallest array that holds
+    # the macros in the same row-by-row order, and nothing of the absurd size is allocated;
+    # the Session refuses such a request outright, before anything is allocated either
     d, s = g
-    s.array(MACROS, *small)
-    want = _state(s.floorplan)
-    s.undo()
+    idx = np.array([d.block(m) for m in MACROS])
+    want = arrange.array(d, s.floorplan, idx, *small)
     tracemalloc.start()
     try:
-        s.array(MACROS, *huge)
+        got = arrange.array(d, s.floorplan, idx, *huge)
         _, peak = tracemalloc.get_traced_memory()
     finally:
         tracemalloc.stop()
-    assert _same(_state(s.floorplan), want)
+    np.testing.assert_array_equal(got.x, want.x)
+    np.testing.assert_array_equal(got.y, want.y)
     assert peak < 8 << 20
+    before, log = _state(s.floorplan), s.log
+    with pytest.raises(DesignError, match="at most 6"):
+        s.array(MACROS, *huge)
+    assert _same(_state(s.floorplan), before) and s.log == log
 
 
 # --- mirror ----------------------------------------------------------------------------------
