@@ -16,7 +16,8 @@ from shapely import STRtree, box
 from floorwidget import metrics
 from floorwidget.design import CELL, FIXED, MACRO, MOVABLE, TERMINAL, Design
 from floorwidget.placer import place
-from floorwidget.placer.rows import detailed_place, legalize_cells, row_segments
+from floorwidget.placer.detail import detailed_place
+from floorwidget.placer.rows import legalize_cells, row_segments
 from floorwidget.synth import rent_design
 
 

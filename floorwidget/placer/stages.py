@@ -26,6 +26,7 @@ import numpy as np
 from ..design import CELL, CLUSTER, MACRO, MOVABLE, TERMINAL, Design, Floorplan
 from ..metrics import bin_grid, congestion_map, hpwl, pinned_illegal
 from .constraints import RegionPlan, partial_capacity_loss, row_groups
+from .detail import detailed_place
 from .errors import PlacementError, PlacementWarning
 from .legalize import legalize_macros
 from .options import (
@@ -36,7 +37,7 @@ from .options import (
     make_options,
     net_multipliers,
 )
-from .rows import cell_mask, detailed_place, legalize_cells
+from .rows import cell_mask, legalize_cells
 from .solve import QuadraticSystem
 from .spread import (
     Grid,
