@@ -24,7 +24,7 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
 import floorwidget as fw  # noqa: E402
-from floorwidget.design import CLUSTER, MACRO, Design  # noqa: E402
+from floorwidget.design import CLUSTER, MACRO, MOVABLE, PINNED, Design  # noqa: E402
 from floorwidget.session import Session  # noqa: E402
 
 
@@ -172,6 +172,15 @@ def bench_arrange(design: Design, repeats: int) -> list[tuple[str, str, str]]:
     return rows
 
 
+def _movable(d: Design) -> Design:
+    """``d`` with its macros movable (the DEF's FIXED as PLACED), the placement kept."""
+    ini = d.initial
+    st = ini.status.copy()
+    st[d.kind == MACRO] = MOVABLE
+    d.initial = type(ini)(d, ini.x, ini.y, ini.orient, st)
+    return d
+
+
 def _ariane() -> Design | None:
     folder = ROOT.parent / "shared" / "realdata" / "ariane136"
     defs = sorted(folder.glob("*.def.gz"))
@@ -181,6 +190,49 @@ def _ariane() -> Design | None:
     lefs = [p for p in lefs if "tech" in Path(p).name] + [p for p in lefs if "tech" not in
                                                           Path(p).name]
     return fw.load(defs[0], lef=lefs)
+
+
+def bench_drag(d: Design, moves: int = 10) -> list:
+    """Drag-to-readout latency as the widget's drop does it (one batch: move, pin, refine, then
+    the report the readouts show), ``moves`` random macro moves of up to 15 µm; then the HPWL of
+    the result against a full placement with every macro held where it ended."""
+    s = Session(d)
+    rng = np.random.default_rng(0)
+    mac = d.macros
+    ts, tr = [], []
+    idx = np.flatnonzero(d.kind == MACRO)
+    for _ in range(moves):
+        while True:  # a drop a user would make: onto free room, not onto another macro
+            m = mac[int(rng.integers(len(mac)))]
+            x, y = s.floorplan.position(m)
+            nx, ny = x + float(rng.uniform(-15, 15)), y + float(rng.uniform(-15, 15))
+            r = s.floorplan.rects(halo=True)[idx]
+            i = d.block(m)
+            w, h = s.floorplan.sizes()
+            hl = d.halo[i]
+            a = np.array([nx - hl[0], ny - hl[1], nx + w[i] + hl[2], ny + h[i] + hl[3]])
+            hit = (r[:, 0] < a[2]) & (a[0] < r[:, 2]) & (r[:, 1] < a[3]) & (a[1] < r[:, 3])
+            hit &= idx != i
+            if not hit.any() and d.core[0] <= nx and nx + w[i] <= d.core[2] \
+                    and d.core[1] <= ny and ny + h[i] <= d.core[3]:
+                break
+        t0 = time.perf_counter()
+        with s.batch("drag"):
+            s.move(m, nx, ny)
+            s.pin(m)
+            s.refine()
+        tr.append(time.perf_counter() - t0)
+        rep = s.report
+        ts.append(time.perf_counter() - t0)
+    held = s.floorplan.copy()
+    held.status[d.kind == MACRO] = np.maximum(held.status[d.kind == MACRO], PINNED)
+    full = fw.place(d, held)
+    ratio = rep["hpwl"] / fw.evaluate(d, full)["hpwl"]
+    return [("drag + refine", f"{statistics.median(tr) * 1000:.0f}",
+             f"p95 {np.percentile(tr, 95) * 1000:.0f} ms"),
+            ("drag + refine + report", f"{statistics.median(ts) * 1000:.0f}",
+             f"p95 {np.percentile(ts, 95) * 1000:.0f} ms, legal {rep['legal']}"),
+            ("HPWL ÷ full place, macros held", f"{ratio:.3f}", "")]
 
 
 def _table(title: str, rows) -> None:
@@ -209,6 +261,8 @@ def main(argv: list[str]) -> int:
             _table(f"constraint edits, ariane136: {d.num_blocks} blocks ({len(d.macros)} "
                    "macros), median of 10", bench_constraints(d, 10))
             _table("hand arrangement, ariane136, median of 10", bench_arrange(d, 10))
+            _table("drag to readout, ariane136 (SRAMs movable), median of 10",
+                   bench_drag(_movable(d), 10))
     return 0
 
 

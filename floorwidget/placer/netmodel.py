@@ -51,11 +51,18 @@ class NetTopology:
     weight: np.ndarray
 
     @classmethod
-    def from_design(cls, design, multiplier=1.0) -> NetTopology:
+    def from_design(cls, design, multiplier=1.0, only=None) -> NetTopology:
+        """The nets of ``design`` with two pins or more and a positive weight; with ``only`` (a
+        block mask) just those touching one of those blocks (a net of fixed blocks alone adds
+        a constant to the quadratic cost and nothing to its system)."""
         deg = np.diff(design.net_start)
         keep = deg >= 2
         w = design.net_weight * multiplier
         keep &= np.broadcast_to(w > 0, keep.shape)
+        if only is not None and not np.all(only):
+            hit = np.zeros(len(deg), bool)
+            hit[design.pin_net[np.asarray(only, bool)[design.pin_block]]] = True
+            keep &= hit
         if keep.all():
             pins = np.arange(design.num_pins)
             start = design.net_start

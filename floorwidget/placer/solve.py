@@ -174,7 +174,7 @@ class QuadraticSystem:
         var = np.full(design.num_blocks, -1, np.int64)
         var[self.blocks] = np.arange(nv)
         self.var = var
-        self.topo = topo = NetTopology.from_design(design, multiplier)
+        self.topo = topo = NetTopology.from_design(design, multiplier, only=mov)
         self.pin_var = var[topo.block]
         self.pin_dx = design.pin_dx[topo.pin]
         self.pin_dy = design.pin_dy[topo.pin]

@@ -123,7 +123,9 @@ class Session(HandEdits, ConstraintEdits, PlacerCalls):
         self._observers: list[Callable[[ChangeEvent], Any]] = []
         self._reports: OrderedDict[int, dict] = OrderedDict()
         self._lock = threading.RLock()
-        self._placed: Floorplan | None = None  # the last placer result (refine's base)
+        # what a local refine compares with: the last placer result, else the floorplan the
+        # session started from (a placed input is a placement too)
+        self._placed: Floorplan | None = state.current
 
     @classmethod
     def from_state(cls, state: SessionState) -> Session:

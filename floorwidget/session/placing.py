@@ -90,11 +90,12 @@ class PlacerCalls:
                progress: Callable | None = None, local: bool = True, **options) -> None:
         """Improve the current floorplan incrementally (see :meth:`place` for parameters).
 
-        With ``local`` (the default) and a placer result earlier in this session, only the
-        logic near the blocks changed since that result is re-spread and put back on rows
+        With ``local`` (the default), only the logic near the blocks changed since the last
+        placer result of this session (or since the floorplan it started from) is re-spread
+        and put back on rows
         (:func:`floorwidget.placer.refine` with ``around``; no detailed-placement pass unless
-        ``detail_passes`` is given), so a drag costs what it changed.  ``local=False``, or no
-        earlier result, re-spreads everything.  What changed is read from the history, so a
+        ``detail_passes`` is given), so a drag costs what it changed.  ``local=False``
+        re-spreads everything.  What changed is read from the history, so a
         replay of the session makes the same choice.
         """
         from ..placer import refine as _refine  # noqa: PLC0415
