@@ -295,12 +295,13 @@ def _wrap(text: str, lines: int) -> list[str]:
 
 
 def place_labels(texts: Sequence[str], boxes, char_px: float, line_px: float, *,
-                 max_lines: int = 1, lift: float = 0.0, pad: float = 1.0,
+                 max_lines: int = 1, keep_out: float = 0.0, pad: float = 1.0,
                  scales: Sequence[float] = (1.0,)):
     """Which labels to draw, at what size and in how many lines, so that each lies inside its
     box and no two overlap.
 
-    Each label is centred on its box (raised by ``lift``); at each font scale in turn
+    Each label is centred in its box, or with ``keep_out`` in the part of the box above
+    ``keep_out`` from its centre (where a handle is drawn); at each font scale in turn
     (largest first) it is tried on one line, then cut before separators into up to
     ``max_lines`` shorter ones; the first layout that fits inside the box less ``pad`` on every
     side is taken, else the label is dropped.  Labels that still overlap each other (over
@@ -313,8 +314,8 @@ def place_labels(texts: Sequence[str], boxes, char_px: float, line_px: float, *,
     boxes : (n, 4) array of ``xlo, ylo, xhi, yhi``, screen units, y up
     char_px, line_px : float
     max_lines : int
-    lift : float
-        Raise each label's centre by this much (above a handle drawn at the centre).
+    keep_out : float
+        Half the height of a band across the box's centre that labels leave free.
     pad : float
     scales : sequence of float
         Font scales to try, largest first.
@@ -333,10 +334,11 @@ def place_labels(texts: Sequence[str], boxes, char_px: float, line_px: float, *,
 
     b = np.asarray(boxes, np.float64).reshape(-1, 4)
     n = len(b)
-    cx, cy = (b[:, 0] + b[:, 2]) / 2, (b[:, 1] + b[:, 3]) / 2 + lift
+    cx = (b[:, 0] + b[:, 2]) / 2
+    low = b[:, 1] if keep_out <= 0 else (b[:, 1] + b[:, 3]) / 2 + keep_out
+    cy = (low + b[:, 3]) / 2
     room_w = b[:, 2] - b[:, 0] - 2 * pad
-    # inside the box around a raised centre: the room is twice the distance to the nearer edge
-    room_h = 2 * np.minimum(b[:, 3] - cy, cy - b[:, 1]) - 2 * pad
+    room_h = b[:, 3] - low - 2 * pad
     nchar = np.fromiter((len(t) for t in texts), np.float64, n)
     keep = np.zeros(n, bool)
     lines: list[list[str]] = [[] for _ in range(n)]

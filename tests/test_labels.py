@@ -76,8 +76,9 @@ def _brute_overlaps(e: np.ndarray) -> int:
 
 
 @settings(max_examples=200, deadline=None)
-@given(seed=st.integers(0, 2**31 - 1), n=st.integers(1, 60), lines=st.integers(1, 4))
-def test_placed_labels_fit_and_never_overlap(seed, n, lines):
+@given(seed=st.integers(0, 2**31 - 1), n=st.integers(1, 60), lines=st.integers(1, 4),
+       keep_out=st.sampled_from([0.0, 7.0]))
+def test_placed_labels_fit_and_never_overlap(seed, n, lines, keep_out):
     # boxes that overlap each other often (an illegal floorplan), names of various lengths
     rng = np.random.default_rng(seed)
     x, y = rng.uniform(0, 300, n), rng.uniform(0, 300, n)
@@ -85,9 +86,11 @@ def test_placed_labels_fit_and_never_overlap(seed, n, lines):
     texts = ["_".join("ab"[: rng.integers(1, 3)] * rng.integers(1, 4)
                       for _ in range(rng.integers(1, 5))) for _ in range(n)]
     keep, got, scale, ext = place_labels(texts, boxes, 6.0, 12.0, max_lines=lines, pad=1.0,
-                                         scales=(1.0, 0.7))
+                                         scales=(1.0, 0.7), keep_out=keep_out)
     k = np.flatnonzero(keep)
     assert _brute_overlaps(ext[k]) == 0
+    # above the band left free across the centre (a handle there)
+    assert np.all(ext[k, 1] >= (boxes[k, 1] + boxes[k, 3]) / 2 + keep_out - 1e-9) or not keep_out
     assert np.all(ext[k, :2] >= boxes[k, :2] + 1.0 - 1e-9)
     assert np.all(ext[k, 2:] <= boxes[k, 2:] - 1.0 + 1e-9)
     for i in k:  # the lines are the label, cut after separators, within the line limit

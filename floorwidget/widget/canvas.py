@@ -23,7 +23,7 @@ import numpy as np
 from .. import hierarchy as hier
 from ..design import CELL, CLUSTER, MACRO, STATUS_NAMES, TERMINAL, Design, Floorplan
 from ..metrics import illegal_blocks
-from ..style import GROUP_PALETTE, OTHER_GROUP, short_labels
+from ..style import GROUP_PALETTE, OTHER_GROUP, place_labels, short_labels
 from . import geometry as geo
 from ._style import heat_colors, status_style, ui_colors
 
@@ -34,7 +34,10 @@ FOUND_LIMIT = 200
 #: most flyline bundles drawn per kind (direct, through one cell): the heaviest ones
 BUNDLE_LIMIT = 100
 _HEAT_BINS = 64          # bins along the longer core side for the heat images
-_LABEL_PX_PER_CHAR = 6.0  # approximate width of one label character at 10 px (bold)
+_LABEL_PX_PER_CHAR = 6.2  # average width of one label character at 10 px (measured in Chromium)
+_LABEL_LINE_PX = 12.0     # a label's line height at 10 px
+_HANDLE_PX = 5.0          # labels keep this far above the centre of a macro (its handle)
+_MAX_LABELS = 600         # most labels drawn at once
 
 
 def _set_list(mark, name: str, values: list) -> None:
@@ -56,7 +59,11 @@ class Canvas:
     design : Design
     floorplan : Floorplan
     size : int
-        Figure width and height in pixels.
+        Figure width and height in pixels; with ``fluid`` the smallest the figure is drawn
+        at (labels are fitted for this size until :meth:`set_screen_size` tells the real one).
+    fluid : bool
+        The figure fills the width it is given (its height set by the caller's layout)
+        instead of a fixed square of ``size`` pixels.
     interactive : bool
         Add drag handles, pan/zoom and labels that follow the zoom.  ``False`` gives a static
         thumbnail drawn by the same code.
@@ -72,12 +79,13 @@ class Canvas:
     """
 
     def __init__(self, design: Design, floorplan: Floorplan, *, size: int = 640,
-                 interactive: bool = True, heat_bins: int = _HEAT_BINS):
+                 interactive: bool = True, heat_bins: int = _HEAT_BINS, fluid: bool = False):
         import bqplot as bq
 
         self.design = design
         self.fp = floorplan
         self.size = int(size)
+        self._plot_px = float(self.size)  # side of the square plot area on screen (+ margins)
         self.interactive = interactive
         self.margin = 8 if interactive else 2
         self.macro_idx = np.flatnonzero(design.kind == MACRO)
@@ -211,7 +219,8 @@ class Canvas:
                                     default_size=220, stroke=self.ui["found"], stroke_width=2.5,
                                     colors=[self.ui["found"]], visible=False)
             m["labels"] = bq.Label(x=[0.0], y=[0.0], text=[""], scales=sc, default_size=10,
-                                   font_unit="px", align="middle", colors=[self.ui["label"]],
+                                   font_unit="px", align="middle", y_offset=4,
+                                   colors=[self.ui["label"]],
                                    visible=False)
             # a handle at each blockage's centre: click selects it, a drag moves it
             m["blockage_handles"] = bq.Scatter(
@@ -225,7 +234,8 @@ class Canvas:
                 colors=[self.ui["handle"]], stroke=self.ui["outline"], stroke_width=1.0,
                 opacities=[0.9], selected_style={"stroke": self.ui["selection"],
                                                           "stroke-width": 3},
-                unselected_style={})
+                unselected_style={}, names=[design.names[i] for i in self.macro_idx],
+                display_names=False, tooltip=bq.Tooltip(fields=["name"]))
         self.marks = m
         fig_kw = dict(
             marks=list(m.values()), axes=[], padding_x=0.0, padding_y=0.0,
@@ -235,10 +245,14 @@ class Canvas:
             background_style={"fill": "white"},
         )
         self.figure = bq.Figure(**fig_kw)
-        self.figure.layout.width = f"{self.size}px"
-        self.figure.layout.height = f"{self.size}px"
-        self.figure.layout.min_width = f"{self.size}px"
-        self.figure.layout.flex = "0 0 auto"
+        lay = self.figure.layout
+        if fluid:  # fills its box; the square plot area sits in the middle
+            lay.width, lay.height = "100%", "100%"
+            lay.min_width = lay.min_height = f"{self.size}px"
+            lay.flex = "1 1 auto"
+        else:
+            lay.width = lay.height = lay.min_width = f"{self.size}px"
+            lay.flex = "0 0 auto"
         if interactive:
             self.panzoom = bq.interacts.PanZoom(scales={"x": [self.x_scale], "y": [self.y_scale]})
             self.x_scale.observe(self._on_view, names=["min", "max"])
@@ -249,7 +263,15 @@ class Canvas:
     def px_per_um(self) -> float:
         """Screen pixels per µm at the current zoom (plot area over the visible span)."""
         span = float(self.x_scale.max) - float(self.x_scale.min)
-        return (self.size - 2 * self.margin) / max(span, 1e-12)
+        return (self._plot_px - 2 * self.margin) / max(span, 1e-12)
+
+    def set_screen_size(self, width: float, height: float) -> None:
+        """The figure's size on screen, pixels (from a browser event): the plot area is the
+        largest square inside it, and labels are fitted again for it."""
+        side = float(min(width, height))
+        if side > 2 * self.margin and abs(side - self._plot_px) >= 1.0:
+            self._plot_px = side
+            self._draw_labels()
 
     def reset_view(self) -> None:
         """Back to the whole die."""
@@ -294,32 +316,37 @@ class Canvas:
             mk.visible = True
 
     def _draw_labels(self):
+        """Names of the macros in view that fit inside them, never two overlapping
+        (:func:`floorwidget.style.place_labels`: 10 px text, up to four lines, in the part of
+        the macro above its centre handle); the others show their full name on the handle's
+        hover and in the details."""
         mk = self.marks.get("labels")
         if mk is None:
             return
-        fp = self.fp
         idx = self.macro_idx
-        if idx.size == 0:
+        xs, ys = self.x_scale, self.y_scale
+        if idx.size == 0 or xs.min is None:
             mk.visible = False
             return
-        w, h = fp.sizes()
-        cx, cy = fp.centres()
-        names = self.labels
-        nchar = np.array([len(s) for s in names])
+        r = self.fp.rects()[idx]
+        inview = np.flatnonzero((r[:, 2] > xs.min) & (r[:, 0] < xs.max) & (r[:, 3] > ys.min)
+                                & (r[:, 1] < ys.max))
         ppu = self.px_per_um
-        xs, ys = self.x_scale, self.y_scale
-        inview = ((cx[idx] > xs.min) & (cx[idx] < xs.max) & (cy[idx] > ys.min)
-                  & (cy[idx] < ys.max))
-        legible = (w[idx] * ppu > nchar * _LABEL_PX_PER_CHAR + 2) & (h[idx] * ppu > 26) & inview
-        sel = np.flatnonzero(legible)[:600]
+        keep, lines, _, ext = place_labels(list(self.labels[inview]), r[inview] * ppu,
+                                           _LABEL_PX_PER_CHAR, _LABEL_LINE_PX, max_lines=4,
+                                           keep_out=_HANDLE_PX)
+        sel = np.flatnonzero(keep)[:_MAX_LABELS]
         if sel.size == 0:
             mk.visible = False
             return
+        # one text per line, from the top of the label's box down (y up)
+        k = np.array([len(lines[i]) for i in sel])
+        row = np.concatenate([np.arange(n) for n in k])
+        top = np.repeat(ext[sel, 3], k) / ppu
         with mk.hold_sync():
-            mk.x = cx[idx][sel]
-            # just above the centre handle, so the handle does not cover the text
-            mk.y = cy[idx][sel] + 14.0 / ppu
-            mk.text = names[sel].tolist()
+            mk.x = np.repeat((ext[sel, 0] + ext[sel, 2]) / 2, k) / ppu
+            mk.y = top - (row + 0.5) * _LABEL_LINE_PX / ppu
+            mk.text = [t for i in sel for t in lines[i]]
             mk.visible = True
 
     # --- blockages -------------------------------------------------------------------------------
