@@ -69,6 +69,22 @@ def test_construction_marks_to_scale(widget, demo_design, placed):
     st = c.status_style
     assert c.marks["macros"].fill_colors[0] in {s["fill"] for s in st.values()}
     assert "movable" in widget.view.legend.value and "pinned" in widget.view.legend.value
+    # the browser reports the figure's size (ipyevents): the plot area takes all of it and
+    # the spans follow, so µm stay square: pixels per µm equal along x and y
+    w_px, h_px, m = 900.0, 600.0, 2 * c.margin
+    x_mid = (c.x_scale.min + c.x_scale.max) / 2
+    side = c.y_scale.max - c.y_scale.min
+    c.set_screen_size(w_px, h_px)
+    assert c.figure.min_aspect_ratio == c.figure.max_aspect_ratio == pytest.approx(
+        (w_px - m) / (h_px - m))
+    ppx = (w_px - m) / (c.x_scale.max - c.x_scale.min)
+    ppy = (h_px - m) / (c.y_scale.max - c.y_scale.min)
+    assert ppx == pytest.approx(ppy) == pytest.approx(c.px_per_um)
+    assert c.y_scale.max - c.y_scale.min == pytest.approx(side)  # the shorter side kept
+    assert (c.x_scale.min + c.x_scale.max) / 2 == pytest.approx(x_mid)
+    c.zoom(0.5)
+    c.reset_view()
+    assert c.y_scale.max - c.y_scale.min == pytest.approx(side)
 
 
 def test_status_styles_differ_in_outline_not_only_colour():

@@ -10,7 +10,6 @@ walk over the nets for the demo's group bundles.
 from __future__ import annotations
 
 import io
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -21,8 +20,6 @@ from floorwidget import style  # noqa: E402
 from floorwidget.design import CELL, CLUSTER, MACRO, TERMINAL, Design  # noqa: E402
 from floorwidget.widget import FloorplanWidget  # noqa: E402
 from floorwidget.widget import geometry as geo  # noqa: E402
-
-REAL = Path(__file__).resolve().parents[2] / "shared" / "realdata" / "ariane136"
 
 
 @pytest.fixture(scope="module")
@@ -199,15 +196,9 @@ def test_png_decodes_to_the_same_pixels():
 
 
 @pytest.mark.slow
-@pytest.mark.skipif(not REAL.is_dir(), reason="../shared/realdata/ariane136 not present")
-def test_readable_on_ariane136():
+def test_readable_on_ariane136(ariane136):
     """146k components: every view action keeps each mark to a few thousand elements."""
-    import floorwidget as fw
-
-    lefs = [REAL / "asap7_tech_1x_201209.lef", REAL / "asap7sc7p5t_27_R_1x_201211.lef",
-            *sorted(REAL.glob("sram*.lef"))]
-    with pytest.warns(UserWarning, match="single-pin"):
-        d = fw.load(REAL / "ariane136.def.gz", lef=[str(p) for p in lefs])
+    d = ariane136
     w = FloorplanWidget(d, size=400, live=False)
     w.colour_by_groups(True, depth=2, separators="/._")
     assert "more groups, all grey" in w.view.group_legend.value

@@ -35,7 +35,7 @@ __all__ = ["CAUTION", "FloorplanWidget"]
 #: toolbar and the alternatives' header, so that the widget fits the window without scrolling
 HEIGHT = "calc(100vh - 340px)"
 #: Width of the side column (readouts, details, tabs)
-SIDE = "350px"
+SIDE = "330px"
 
 
 class FloorplanWidget(W.VBox):
@@ -78,7 +78,7 @@ class FloorplanWidget(W.VBox):
     """
 
     def __init__(self, design: Design, floorplan: Floorplan | None = None, *,
-                 session: Session | None = None, size: int = 400, live: bool = True,
+                 session: Session | None = None, size: int = 320, live: bool = True,
                  pin_on_drop: bool = True, target_density: float = 0.8):
         self.session = session if session is not None else Session(
             design, floorplan, target_density=target_density)

@@ -1,4 +1,4 @@
-"""The to-scale bqplot canvas: layers over two shared linear scales with equal spans.
+"""The to-scale bqplot canvas: layers over two shared linear scales, µm square on screen.
 
 One :class:`Canvas` draws one floorplan.  The interactive widget and the small thumbnails of the
 alternatives view use this same class (the thumbnail simply turns interaction off), so what the
@@ -52,7 +52,7 @@ def _placeholder():
 
 
 class Canvas:
-    """Marks for one floorplan of ``design`` on a square, equal-scale bqplot figure.
+    """Marks for one floorplan of ``design`` on an equal-scale bqplot figure (µm square).
 
     Parameters
     ----------
@@ -85,7 +85,8 @@ class Canvas:
         self.design = design
         self.fp = floorplan
         self.size = int(size)
-        self._plot_px = float(self.size)  # side of the square plot area on screen (+ margins)
+        self._plot_px = float(self.size)  # height of the figure on screen, pixels
+        self._aspect = 1.0                 # plot area width / height (set_screen_size)
         self.interactive = interactive
         self.margin = 8 if interactive else 2
         self.macro_idx = np.flatnonzero(design.kind == MACRO)
@@ -246,7 +247,7 @@ class Canvas:
         )
         self.figure = bq.Figure(**fig_kw)
         lay = self.figure.layout
-        if fluid:  # fills its box; the square plot area sits in the middle
+        if fluid:  # fills its box; the plot area follows it once its size is known
             lay.width, lay.height = "100%", "100%"
             lay.min_width = lay.min_height = f"{self.size}px"
             lay.flex = "1 1 auto"
@@ -262,24 +263,52 @@ class Canvas:
     @property
     def px_per_um(self) -> float:
         """Screen pixels per µm at the current zoom (plot area over the visible span)."""
-        span = float(self.x_scale.max) - float(self.x_scale.min)
+        span = float(self.y_scale.max) - float(self.y_scale.min)
         return (self._plot_px - 2 * self.margin) / max(span, 1e-12)
 
+    def _set_view(self, cx: float, cy: float, side: float) -> None:
+        """Show ``side`` µm along the plot's shorter side around ``(cx, cy)``, the longer side
+        in proportion (µm stay square on screen)."""
+        a = self._aspect
+        hx, hy = (side * max(a, 1.0) / 2, side / min(a, 1.0) / 2)
+        with self.figure.hold_sync():
+            self.x_scale.min, self.x_scale.max = cx - hx, cx + hx
+            self.y_scale.min, self.y_scale.max = cy - hy, cy + hy
+        self._on_view()
+
+    def _view_side(self) -> float:
+        """The visible span along the plot's shorter side, µm."""
+        return min(float(self.x_scale.max) - float(self.x_scale.min),
+                   float(self.y_scale.max) - float(self.y_scale.min))
+
     def set_screen_size(self, width: float, height: float) -> None:
-        """The figure's size on screen, pixels (from a browser event): the plot area is the
-        largest square inside it, and labels are fitted again for it."""
-        side = float(min(width, height))
-        if side > 2 * self.margin and abs(side - self._plot_px) >= 1.0:
-            self._plot_px = side
-            self._draw_labels()
+        """The figure's size on screen, pixels (from a browser event).
+
+        The plot area takes the whole figure: its aspect follows the figure's, the spans
+        follow (the view keeps its centre and its extent along the shorter side), and the
+        labels are fitted again for the new size.
+        """
+        m = 2 * self.margin
+        if min(width, height) <= m + 10:
+            return
+        aspect = (float(width) - m) / (float(height) - m)
+        if abs(float(height) - self._plot_px) < 1.0 and abs(aspect / self._aspect - 1) < 0.01:
+            return
+        xs, ys = self.x_scale, self.y_scale
+        cx, cy, side = (xs.min + xs.max) / 2, (ys.min + ys.max) / 2, self._view_side()
+        self._plot_px, self._aspect = float(height), aspect
+        with self.figure.hold_sync():
+            f = self.figure  # bqplot checks min <= max on every assignment
+            if aspect > f.max_aspect_ratio:
+                f.max_aspect_ratio, f.min_aspect_ratio = aspect, aspect
+            else:
+                f.min_aspect_ratio, f.max_aspect_ratio = aspect, aspect
+            self._set_view(cx, cy, side)
 
     def reset_view(self) -> None:
         """Back to the whole die."""
         xmin, xmax, ymin, ymax = self.home
-        with self.figure.hold_sync():
-            self.x_scale.min, self.x_scale.max = xmin, xmax
-            self.y_scale.min, self.y_scale.max = ymin, ymax
-        self._on_view()
+        self._set_view((xmin + xmax) / 2, (ymin + ymax) / 2, xmax - xmin)
 
     def zoom(self, factor: float) -> None:
         """Scale the visible span by ``factor`` about its centre (0.5 halves it)."""
@@ -780,11 +809,7 @@ class Canvas:
         full = hx1 - hx0
         lo = full / 50 if min_span is None else float(min_span)
         span = float(np.clip(3.0 * max(xhi - xlo, yhi - ylo), lo, full))
-        cx, cy = (xlo + xhi) / 2, (ylo + yhi) / 2
-        with self.figure.hold_sync():
-            self.x_scale.min, self.x_scale.max = cx - span / 2, cx + span / 2
-            self.y_scale.min, self.y_scale.max = cy - span / 2, cy + span / 2
-        self._on_view()
+        self._set_view((xlo + xhi) / 2, (ylo + yhi) / 2, span)
 
     def _draw_selection(self):
         marks = (self.marks["selection_under"], self.marks["selection"])

@@ -198,7 +198,7 @@ class ViewPanel:
                         f"{int((sizes[members] - mac[members]).sum()):,d} other blocks")
             rows.append(f'<div style="white-space:nowrap;overflow:hidden;'
                         f'text-overflow:ellipsis">{sw} {text}</div>')
-        return ('<div style="font-size:11px;line-height:15px;max-width:320px">'
+        return ('<div style="font-size:11px;line-height:15px;max-width:290px">'
                 f"<i>{len(g):,d} hierarchy group(s) at depth {self.group_depth.value}; "
                 "largest area first (Okabe–Ito colours). Outlines still show status; the "
                 "logic area takes the colour of the group with most cell area in each bin, "
