@@ -481,6 +481,13 @@ def _layout_check(page, lab, artifacts):
     assert zoomed["px_per_um"] > 1.5 * lines["px_per_um"] and len(boxes) >= 3, (zoomed, boxes)
     _assert_apart(boxes)
     page.screenshot(path=str(artifacts / "browser_1600x1000_zoomed.png"), full_page=False)
+    # the arrow key over the canvas (ipyevents) nudges the found, selected macro one grid step
+    state_path = lab["root"] / "state.json"
+    st0 = _read_state(state_path)
+    page.keyboard.press("ArrowRight")
+    st1 = _wait_state(state_path, lambda s: s["undo"][-1:] == ["shift"], 30, "the nudge")
+    x0, x1 = st0["positions"]["sram_sp4k_3"][0], st1["positions"]["sram_sp4k_3"][0]
+    assert abs(x1 - x0 - st1["pitch"][0]) < 1e-9, (x0, x1)
 
 
 def test_drag_lands_at_1000_px_wide(lab, browser, artifacts):
