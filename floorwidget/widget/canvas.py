@@ -123,6 +123,34 @@ class Canvas:
         self.x_scale = bq.LinearScale(min=xmin, max=xmax, allow_padding=False)
         self.y_scale = bq.LinearScale(min=ymin, max=ymax, allow_padding=False)
         sc = {"x": self.x_scale, "y": self.y_scale}
+        self.marks = self._layers(bq, sc, heat_bins)
+        if interactive:
+            self.marks.update(self._handles(bq, sc))
+        m = self.marks
+        fig_kw = dict(
+            marks=list(m.values()), axes=[], padding_x=0.0, padding_y=0.0,
+            min_aspect_ratio=1, max_aspect_ratio=1,
+            fig_margin=dict(top=self.margin, bottom=self.margin, left=self.margin,
+                            right=self.margin),
+            background_style={"fill": "white"},
+        )
+        self.figure = bq.Figure(**fig_kw)
+        lay = self.figure.layout
+        if fluid:  # fills its box; the plot area follows it once its size is known
+            lay.width, lay.height = "100%", "100%"
+            lay.min_width = lay.min_height = f"{self.size}px"
+            lay.flex = "1 1 auto"
+        else:
+            lay.width = lay.height = lay.min_width = f"{self.size}px"
+            lay.flex = "0 0 auto"
+        if interactive:
+            self.panzoom = bq.interacts.PanZoom(scales={"x": [self.x_scale], "y": [self.y_scale]})
+            self.x_scale.observe(self._on_view, names=["min", "max"])
+        self.update(floorplan)
+
+    def _layers(self, bq, sc: dict, heat_bins: int) -> dict:
+        """Every drawing layer but the interactive ones, bottom to top (one mark each)."""
+        design, floorplan, interactive = self.design, self.fp, self.interactive
         m: dict = {}
 
         # heat images: one image each, never a mark per bin (a coarse display grid)
@@ -214,50 +242,34 @@ class Canvas:
         m["terminals"] = bq.Scatter(x=tx, y=ty, scales=sc, marker="square",
                                     default_size=10 if interactive else 4,
                                     colors=[self.ui["terminal"]], stroke=None)
-        if interactive:
-            # rings around blocks found by name (at most FOUND_LIMIT of them)
-            m["found"] = bq.Scatter(x=[0.0], y=[0.0], scales=sc, marker="circle", fill=False,
-                                    default_size=220, stroke=self.ui["found"], stroke_width=2.5,
-                                    colors=[self.ui["found"]], visible=False)
-            m["labels"] = bq.Label(x=[0.0], y=[0.0], text=[""], scales=sc, default_size=10,
-                                   font_unit="px", align="middle", y_offset=4,
-                                   colors=[self.ui["label"]],
-                                   visible=False)
-            # a handle at each blockage's centre: click selects it, a drag moves it
-            m["blockage_handles"] = bq.Scatter(
-                x=[0.0], y=[0.0], scales=sc, enable_move=True, update_on_move=False,
-                marker="square", default_size=48, colors=[self.ui["blockage_fill"]],
-                stroke=self.ui["blockage"], stroke_width=1.5, visible=False)
-            cx, cy = floorplan.centres()
-            m["handles"] = bq.Scatter(
-                x=cx[self.macro_idx], y=cy[self.macro_idx], scales=sc, enable_move=True,
-                update_on_move=False, marker="circle", default_size=36,
-                colors=[self.ui["handle"]], stroke=self.ui["outline"], stroke_width=1.0,
-                opacities=[0.9], selected_style={"stroke": self.ui["selection"],
-                                                          "stroke-width": 3},
-                unselected_style={}, names=[design.names[i] for i in self.macro_idx],
-                display_names=False, tooltip=bq.Tooltip(fields=["name"]))
-        self.marks = m
-        fig_kw = dict(
-            marks=list(m.values()), axes=[], padding_x=0.0, padding_y=0.0,
-            min_aspect_ratio=1, max_aspect_ratio=1,
-            fig_margin=dict(top=self.margin, bottom=self.margin, left=self.margin,
-                            right=self.margin),
-            background_style={"fill": "white"},
-        )
-        self.figure = bq.Figure(**fig_kw)
-        lay = self.figure.layout
-        if fluid:  # fills its box; the plot area follows it once its size is known
-            lay.width, lay.height = "100%", "100%"
-            lay.min_width = lay.min_height = f"{self.size}px"
-            lay.flex = "1 1 auto"
-        else:
-            lay.width = lay.height = lay.min_width = f"{self.size}px"
-            lay.flex = "0 0 auto"
-        if interactive:
-            self.panzoom = bq.interacts.PanZoom(scales={"x": [self.x_scale], "y": [self.y_scale]})
-            self.x_scale.observe(self._on_view, names=["min", "max"])
-        self.update(floorplan)
+        return m
+
+    def _handles(self, bq, sc: dict) -> dict:
+        """Rings for found blocks, labels, and the drag handles of blockages and macros."""
+        design, floorplan, m = self.design, self.fp, {}
+        # rings around blocks found by name (at most FOUND_LIMIT of them)
+        m["found"] = bq.Scatter(x=[0.0], y=[0.0], scales=sc, marker="circle", fill=False,
+                                default_size=220, stroke=self.ui["found"], stroke_width=2.5,
+                                colors=[self.ui["found"]], visible=False)
+        m["labels"] = bq.Label(x=[0.0], y=[0.0], text=[""], scales=sc, default_size=10,
+                               font_unit="px", align="middle", y_offset=4,
+                               colors=[self.ui["label"]],
+                               visible=False)
+        # a handle at each blockage's centre: click selects it, a drag moves it
+        m["blockage_handles"] = bq.Scatter(
+            x=[0.0], y=[0.0], scales=sc, enable_move=True, update_on_move=False,
+            marker="square", default_size=48, colors=[self.ui["blockage_fill"]],
+            stroke=self.ui["blockage"], stroke_width=1.5, visible=False)
+        cx, cy = floorplan.centres()
+        m["handles"] = bq.Scatter(
+            x=cx[self.macro_idx], y=cy[self.macro_idx], scales=sc, enable_move=True,
+            update_on_move=False, marker="circle", default_size=36,
+            colors=[self.ui["handle"]], stroke=self.ui["outline"], stroke_width=1.0,
+            opacities=[0.9], selected_style={"stroke": self.ui["selection"],
+                                                      "stroke-width": 3},
+            unselected_style={}, names=[design.names[i] for i in self.macro_idx],
+            display_names=False, tooltip=bq.Tooltip(fields=["name"]))
+        return m
 
     # --- view ---------------------------------------------------------------------------------
     @property
