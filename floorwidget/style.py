@@ -256,7 +256,7 @@ def short_labels(names: Sequence[str], max_len: int = 16) -> list[str]:
     Examples
     --------
     >>> short_labels(["soc/mem/bank0/sram_64k", "soc/mem/bank1/sram_64k", "pll"], 8)
-    ['bank0', 'bank1', 'pll']
+    ['soc/bank0', 'soc/bank1', 'pll']
     """
     toks = [_tokens(nm) for nm in names]
     branches: dict[tuple[str, ...], set] = {}  # prefix -> the tokens that follow it (None: end)
