@@ -461,6 +461,9 @@ def _layout_check(page, lab, artifacts):
     _open_notebook(page, lab)
     m = _layout(page)
     w, c = m["widget"], m["canvas"]
+    print(f"layout at 1600 x 1000: widget {w['width']:.0f} x {w['height']:.0f} px, canvas "
+          f"{c['width']:.0f} px wide ({c['width'] / w['width']:.0%}), notebook panel "
+          f"{m['panel']['height']:.0f} px high")
     assert c["width"] >= 0.6 * w["width"], m
     # the widget fits the notebook's visible height and the window; the page itself never
     # scrolls (JupyterLab scrolls the notebook panel, not the page)
