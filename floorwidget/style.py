@@ -258,16 +258,30 @@ def short_labels(names: Sequence[str], max_len: int = 16) -> list[str]:
     >>> short_labels(["soc/mem/bank0/sram_64k", "soc/mem/bank1/sram_64k", "pll"], 8)
     ['soc/bank0', 'soc/bank1', 'pll']
     """
+    if all(len(nm) <= max_len and "\\" not in nm for nm in names):
+        return list(names)  # short plain names: nothing to shorten or unescape
     toks = [_tokens(nm) for nm in names]
-    branches: dict[tuple[str, ...], set] = {}  # prefix -> the tokens that follow it (None: end)
+    plains = ["".join(s + x for s, x in zip(sep, t)) for t, sep in toks]
+    # a trie of the token sequences: node ids by (parent, token); a node's fan-out counts the
+    # different tokens (or ends) that follow its prefix
+    node: dict[tuple[int, str | None], int] = {}
+    fan: list[int] = [0]
+    paths = []
     for t, _ in toks:
-        for k in range(len(t) + 1):
-            branches.setdefault(tuple(t[:k]), set()).add(t[k] if k < len(t) else None)
-    labels, plains = [], []
-    for t, sep in toks:
-        plain = "".join(s + x for s, x in zip(sep, t))
-        plains.append(plain)
-        keep = [k for k in range(len(t)) if len(branches[tuple(t[:k])]) > 1]
+        at, path = 0, []
+        for tok in [*t, None]:
+            path.append(at)
+            key = (at, tok)
+            nxt = node.get(key)
+            if nxt is None:
+                nxt = node[key] = len(fan)
+                fan.append(0)
+                fan[at] += 1
+            at = nxt
+        paths.append(path)
+    labels = []
+    for (t, sep), plain, path in zip(toks, plains, paths):
+        keep = [k for k in range(len(t)) if fan[path[k]] > 1]
         lab = "".join((sep[k] if n else "") + t[k] for n, k in enumerate(keep))
         short = len(plain) > max_len and lab and len(lab) < len(plain)
         labels.append(lab if short else plain)
