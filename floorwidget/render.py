@@ -156,16 +156,12 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
         raise DesignError(f"unknown heat layer {heat!r}: use 'density' or 'congestion'")
     try:
         from matplotlib.backends.backend_agg import FigureCanvasAgg
-        from matplotlib.collections import PathCollection, PolyCollection
         from matplotlib.figure import Figure
-        from matplotlib.lines import Line2D
-        from matplotlib.patches import Patch, Rectangle
-        from matplotlib.path import Path as MplPath
     except ImportError:  # pragma: no cover - depends on the installation
         raise DesignError("rendering needs matplotlib: pip install 'floorwidget[render]'") from None
 
     fp = design.initial if fp is None else fp
-    die, core = design.die, design.core
+    die = design.die
     dw, dh = die[2] - die[0], die[3] - die[1]
     if ax is None:
         if figsize is None:
@@ -175,22 +171,40 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
         ax = fig.add_axes((0.06, 0.08, 0.66, 0.80))
     else:
         fig = ax.figure
-
-    rects = fp.rects()
-    kind, status = design.kind, fp.status
-    group_fill = None
+    sc = types.SimpleNamespace(design=design, fp=fp, heat=heat, rects=fp.rects(),
+                               mac=np.flatnonzero(design.kind == MACRO), groups=None,
+                               group_fill=None, glegend=None, gcols=None)
     if hierarchy is not None:
         from . import hierarchy as hier
 
         try:
-            groups = hier.hierarchy_groups(design.names, hierarchy, separators)
+            sc.groups = hier.hierarchy_groups(design.names, hierarchy, separators)
         except ValueError as e:
             raise DesignError(str(e)) from None
-        gcols, glegend = hier.group_colours(hier.group_area(design, groups),
-                                            style.GROUP_PALETTE, style.OTHER_GROUP)
-        group_fill = [gcols[g] for g in groups.index]
+        sc.gcols, sc.glegend = hier.group_colours(hier.group_area(design, sc.groups),
+                                                  style.GROUP_PALETTE, style.OTHER_GROUP)
+        sc.group_fill = [sc.gcols[g] for g in sc.groups.index]
+    _raster(ax, sc)
+    _outlines(ax, design)
+    _macros(ax, sc, channel)
+    _frame(ax, sc, show_labels)
+    _legend(ax, fig, sc)
+    _title(ax, sc, title, target_density)
+    if path is not None:
+        from .formats._io import atomic_write
 
-    # --- raster layer --------------------------------------------------------------------
+        meta = {"Date": None} if fmt == "svg" else {}
+        with atomic_write(path, "wb") as f:
+            fig.savefig(f, format=fmt, dpi=dpi, metadata=meta, bbox_inches="tight")
+    return fig
+
+
+def _raster(ax, sc) -> None:
+    """The bottom layer: cell and cluster area per bin, or the density or RUDY heat map, or
+    the logic coloured by hierarchy group; what the legend and colour bar need goes on
+    ``sc``."""
+    design, fp, heat, rects = sc.design, sc.fp, sc.heat, sc.rects
+    kind = design.kind
     grid = metrics.bin_grid(design)  # the report's grid, so the colour bar matches the title
     extent = (grid.xlo, grid.xhi, grid.ylo, grid.yhi)
     raster_label = None
@@ -218,8 +232,11 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
         if heat == "density":
             vmax = max(vmax, 1.0)
         vmax = vmax if vmax > 0 else 1.0
-    if data is not None and group_fill is not None and heat is None:
-        pic = hier.logic_picture(design, fp, grid, groups, gcols, other=style.OTHER_GROUP)
+    if data is not None and sc.group_fill is not None and heat is None:
+        from . import hierarchy as hier
+
+        pic = hier.logic_picture(design, fp, grid, sc.groups, sc.gcols,
+                                 other=style.OTHER_GROUP)
         ax.imshow(pic, origin="upper", extent=extent, zorder=0,
                   interpolation="nearest").set_gid("raster")
     elif data is not None:
@@ -228,16 +245,18 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
                           vmin=0.0, vmax=vmax)
         image.set_gid("raster")
 
-    # --- outlines and blockages ----------------------------------------------------------
-    def outline(r, st, z, **kw):
-        p = Rectangle((r[0], r[1]), r[2] - r[0], r[3] - r[1], facecolor="none",
-                      edgecolor=st.stroke, linewidth=st.stroke_width,
-                      linestyle=st.mpl_linestyle(), zorder=z, **kw)
-        ax.add_patch(p)
-        return p
+    sc.image, sc.data, sc.vmax, sc.raster_label = image, data, vmax, raster_label
 
-    outline(die, style.DIE, 1).set_gid("die")
-    outline(core, style.CORE, 1).set_gid("core")
+
+def _outlines(ax, design: Design) -> None:
+    """Die and core outlines, placement blockages, cell regions."""
+    from matplotlib.collections import PathCollection, PolyCollection
+    from matplotlib.patches import Rectangle
+    from matplotlib.path import Path as MplPath
+
+    die, core = design.die, design.core
+    _outline(ax, die, style.DIE, 1).set_gid("die")
+    _outline(ax, core, style.CORE, 1).set_gid("core")
     # blockages as two collections (full: solid and hatched; partial, a density cap: dashed,
     # dotted, its fill as light as the share it leaves), never a patch each; the hatch is one
     # compound path over all of a kind (Agg hatches each path of a collection on its own:
@@ -275,8 +294,26 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
         ax.text(b[0], b[3], f" {nm}", color=style.REDDISH_PURPLE, fontsize=7, va="top",
                 zorder=7)
 
-    # --- macros --------------------------------------------------------------------------
-    mac = np.flatnonzero(kind == MACRO)
+
+def _outline(ax, r, st, z, **kw):
+    """An unfilled rectangle in a block style."""
+    from matplotlib.patches import Rectangle
+
+    p = Rectangle((r[0], r[1]), r[2] - r[0], r[3] - r[1], facecolor="none",
+                  edgecolor=st.stroke, linewidth=st.stroke_width,
+                  linestyle=st.mpl_linestyle(), zorder=z, **kw)
+    ax.add_patch(p)
+    return p
+
+
+def _macros(ax, sc, channel) -> None:
+    """Macros (fill and outline by status, the illegal style on top where a rule breaks),
+    halos, narrow channels, pins-to-a-wall bars and orientation notches."""
+    from matplotlib.collections import PolyCollection
+    from matplotlib.patches import Rectangle
+
+    design, fp, rects, mac = sc.design, sc.fp, sc.rects, sc.mac
+    status, group_fill = fp.status, sc.group_fill
     bad = metrics.illegal_blocks(design, fp)
     hrects = fp.rects(halo=True)
     has_halo = (design.halo[mac] > 0).any(axis=1)
@@ -300,7 +337,7 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
                                    linewidth=ill.stroke_width, linestyle=ill.mpl_linestyle(),
                                    zorder=4.4))
     for i in mac[has_halo]:
-        outline(hrects[i], style.HALO, 3, alpha=0.9)
+        _outline(ax, hrects[i], style.HALO, 3, alpha=0.9)
     # floorplan shape: narrow channels (hatched strips) and pins toward a wall (a bar on the
     # pin side)
     nc, wc = style.NARROW_CHANNEL, style.PINS_TO_WALL
@@ -336,7 +373,7 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
         ax.add_collection(notch)
 
     # --- terminals -----------------------------------------------------------------------
-    term = kind == TERMINAL
+    term = design.kind == TERMINAL
     if term.any():
         tx = (rects[term, 0] + rects[term, 2]) / 2
         ty = (rects[term, 1] + rects[term, 3]) / 2
@@ -344,13 +381,21 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
                          zorder=7)
         pts.set_gid("terminals")
 
-    # --- frame, scale bar, legend, title -------------------------------------------------
+    sc.bad, sc.chans, sc.walled = bad, chans, walled
+
+
+def _frame(ax, sc, show_labels: bool) -> None:
+    """Limits (the die and a margin, room for the scale bar), the macro labels, axes, the
+    scale bar."""
+    design, mac = sc.design, sc.mac
+    die = design.die
+    dw, dh = die[2] - die[0], die[3] - die[1]
     pad = 0.03 * max(dw, dh)
     ax.set_xlim(die[0] - pad, die[2] + pad)
     ax.set_ylim(die[1] - 2.5 * pad, die[3] + pad)
     ax.set_aspect("equal")
     if show_labels and len(mac):
-        _draw_labels(ax, design, mac, rects[mac])
+        _draw_labels(ax, design, mac, sc.rects[mac])
     ax.set_xlabel("x (µm)")
     ax.set_ylabel("y (µm)")
     ax.tick_params(labelsize=7)
@@ -361,6 +406,16 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
     ax.text(die[0] + bar / 2, by + 0.25 * pad, f"{bar:g} µm", ha="center", va="bottom",
             fontsize=7)
 
+
+def _legend(ax, fig, sc) -> None:
+    """The legend of what is drawn (only what is there), and the heat layer's colour bar."""
+    from matplotlib.lines import Line2D
+    from matplotlib.patches import Patch
+
+    design, mac, status, group_fill = sc.design, sc.mac, sc.fp.status, sc.group_fill
+    bad, chans, walled, heat, data = sc.bad, sc.chans, sc.walled, sc.heat, sc.data
+    nc, wc, ill = style.NARROW_CHANNEL, style.PINS_TO_WALL, style.STATUS_STYLES["illegal"]
+    reg, term = design.regions, design.kind == TERMINAL
     present = {int(s) for s in status[mac]}
     handles = [Patch(facecolor=(*_rgb(st.fill), st.fill_opacity) if group_fill is None
                      else "none", edgecolor=st.stroke,
@@ -369,8 +424,8 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
                for code, st in ((c, style.block_style(c)) for c in range(3))
                if code in present or code == 0]
     if group_fill is not None:
-        for colour, members in glegend:
-            label = (f"group {groups.label(members[0])}" if len(members) == 1 else
+        for colour, members in sc.glegend:
+            label = (f"group {sc.groups.label(members[0])}" if len(members) == 1 else
                      f"{len(members)} more groups, all grey ({len(style.GROUP_PALETTE)} colours "
                      "in the palette)")
             handles.append(Patch(facecolor=(*_rgb(colour), 0.85), edgecolor="none",
@@ -418,16 +473,20 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
                           linestyle=style.CORE.mpl_linestyle(), label="core (rows)"))
     ax.legend(handles=handles, loc="upper left", bbox_to_anchor=(1.02, 1.0), fontsize=7,
               frameon=False, borderaxespad=0.0)
-    if image is not None and heat is not None:
-        over = float(data.max()) > vmax if data.count() else False
-        cb = fig.colorbar(image, ax=ax, shrink=0.45, pad=0.02, anchor=(0.0, 0.0),
+    if sc.image is not None and heat is not None:
+        over = float(data.max()) > sc.vmax if data.count() else False
+        cb = fig.colorbar(sc.image, ax=ax, shrink=0.45, pad=0.02, anchor=(0.0, 0.0),
                           location="right", extend="max" if over else "neither")
-        cb.set_label(raster_label, fontsize=7)
+        cb.set_label(sc.raster_label, fontsize=7)
         cb.ax.tick_params(labelsize=6)
 
+
+def _title(ax, sc, title: str | None, target_density: float | None) -> None:
+    """The design, its macros by status, and the report's figures (estimates)."""
+    design, fp, mac, status = sc.design, sc.fp, sc.mac, sc.fp.status
     if target_density is None:
         target_density = fp.info.get("target_density")
-    rep = metrics.evaluate(design, fp, target_density=target_density, channel=chans.channel)
+    rep = metrics.evaluate(design, fp, target_density=target_density, channel=sc.chans.channel)
     names = np.bincount(status[mac], minlength=3) if len(mac) else np.zeros(3, int)
     counts = ", ".join(f"{int(c)} {STATUS_NAMES[k]}" for k, c in enumerate(names) if c)
     head = title if title is not None else f"{design.name}: {len(mac)} macros ({counts or 'none'})"
@@ -443,14 +502,6 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
            f"{numfmt.percent(rep['largest_logic_region'])} of the free area)"
            f"\nearly floorplanning estimates; sign-off belongs to the implementation flow")
     ax.set_title(f"{head}\n{sub}", fontsize=8.5, loc="left")
-
-    if path is not None:
-        from .formats._io import atomic_write
-
-        meta = {"Date": None} if fmt == "svg" else {}
-        with atomic_write(path, "wb") as f:
-            fig.savefig(f, format=fmt, dpi=dpi, metadata=meta, bbox_inches="tight")
-    return fig
 
 
 def _rgb(hex_colour: str) -> tuple[float, float, float]:

@@ -256,18 +256,32 @@ def short_labels(names: Sequence[str], max_len: int = 16) -> list[str]:
     Examples
     --------
     >>> short_labels(["soc/mem/bank0/sram_64k", "soc/mem/bank1/sram_64k", "pll"], 8)
-    ['bank0', 'bank1', 'pll']
+    ['soc/bank0', 'soc/bank1', 'pll']
     """
+    if all(len(nm) <= max_len and "\\" not in nm for nm in names):
+        return list(names)  # short plain names: nothing to shorten or unescape
     toks = [_tokens(nm) for nm in names]
-    branches: dict[tuple[str, ...], set] = {}  # prefix -> the tokens that follow it (None: end)
+    plains = ["".join(s + x for s, x in zip(sep, t)) for t, sep in toks]
+    # a trie of the token sequences: node ids by (parent, token); a node's fan-out counts the
+    # different tokens (or ends) that follow its prefix
+    node: dict[tuple[int, str | None], int] = {}
+    fan: list[int] = [0]
+    paths = []
     for t, _ in toks:
-        for k in range(len(t) + 1):
-            branches.setdefault(tuple(t[:k]), set()).add(t[k] if k < len(t) else None)
-    labels, plains = [], []
-    for t, sep in toks:
-        plain = "".join(s + x for s, x in zip(sep, t))
-        plains.append(plain)
-        keep = [k for k in range(len(t)) if len(branches[tuple(t[:k])]) > 1]
+        at, path = 0, []
+        for tok in [*t, None]:
+            path.append(at)
+            key = (at, tok)
+            nxt = node.get(key)
+            if nxt is None:
+                nxt = node[key] = len(fan)
+                fan.append(0)
+                fan[at] += 1
+            at = nxt
+        paths.append(path)
+    labels = []
+    for (t, sep), plain, path in zip(toks, plains, paths):
+        keep = [k for k in range(len(t)) if fan[path[k]] > 1]
         lab = "".join((sep[k] if n else "") + t[k] for n, k in enumerate(keep))
         short = len(plain) > max_len and lab and len(lab) < len(plain)
         labels.append(lab if short else plain)
@@ -295,12 +309,13 @@ def _wrap(text: str, lines: int) -> list[str]:
 
 
 def place_labels(texts: Sequence[str], boxes, char_px: float, line_px: float, *,
-                 max_lines: int = 1, lift: float = 0.0, pad: float = 1.0,
+                 max_lines: int = 1, keep_out: float = 0.0, pad: float = 1.0,
                  scales: Sequence[float] = (1.0,)):
     """Which labels to draw, at what size and in how many lines, so that each lies inside its
     box and no two overlap.
 
-    Each label is centred on its box (raised by ``lift``); at each font scale in turn
+    Each label is centred in its box, or with ``keep_out`` in the part of the box above
+    ``keep_out`` from its centre (where a handle is drawn); at each font scale in turn
     (largest first) it is tried on one line, then cut before separators into up to
     ``max_lines`` shorter ones; the first layout that fits inside the box less ``pad`` on every
     side is taken, else the label is dropped.  Labels that still overlap each other (over
@@ -313,8 +328,8 @@ def place_labels(texts: Sequence[str], boxes, char_px: float, line_px: float, *,
     boxes : (n, 4) array of ``xlo, ylo, xhi, yhi``, screen units, y up
     char_px, line_px : float
     max_lines : int
-    lift : float
-        Raise each label's centre by this much (above a handle drawn at the centre).
+    keep_out : float
+        Half the height of a band across the box's centre that labels leave free.
     pad : float
     scales : sequence of float
         Font scales to try, largest first.
@@ -333,10 +348,11 @@ def place_labels(texts: Sequence[str], boxes, char_px: float, line_px: float, *,
 
     b = np.asarray(boxes, np.float64).reshape(-1, 4)
     n = len(b)
-    cx, cy = (b[:, 0] + b[:, 2]) / 2, (b[:, 1] + b[:, 3]) / 2 + lift
+    cx = (b[:, 0] + b[:, 2]) / 2
+    low = b[:, 1] if keep_out <= 0 else (b[:, 1] + b[:, 3]) / 2 + keep_out
+    cy = (low + b[:, 3]) / 2
     room_w = b[:, 2] - b[:, 0] - 2 * pad
-    # inside the box around a raised centre: the room is twice the distance to the nearer edge
-    room_h = 2 * np.minimum(b[:, 3] - cy, cy - b[:, 1]) - 2 * pad
+    room_h = b[:, 3] - low - 2 * pad
     nchar = np.fromiter((len(t) for t in texts), np.float64, n)
     keep = np.zeros(n, bool)
     lines: list[list[str]] = [[] for _ in range(n)]

@@ -1,4 +1,4 @@
-"""Shared fixtures: the demo design on disk and loaded."""
+"""Shared fixtures: the demo design on disk and loaded; ariane136 from the shared real data."""
 
 from __future__ import annotations
 
@@ -8,6 +8,14 @@ import pytest
 
 ROOT = Path(__file__).resolve().parents[1]
 DEMO = ROOT / "demo_data" / "heron_dsp.json"
+ARIANE = ROOT.parent / "shared" / "realdata" / "ariane136"
+
+
+def ariane136_files() -> tuple[Path, list[Path]]:
+    """ariane136's DEF and its LEFs in reading order: technology, cells, every SRAM."""
+    lefs = [ARIANE / "asap7_tech_1x_201209.lef", ARIANE / "asap7sc7p5t_27_R_1x_201211.lef",
+            *sorted(ARIANE.glob("sram*.lef"))]
+    return ARIANE / "ariane136.def.gz", lefs
 
 
 @pytest.fixture(scope="session")
@@ -29,3 +37,15 @@ def artifacts() -> Path:
     p = ROOT / "tests" / "artifacts"
     p.mkdir(parents=True, exist_ok=True)
     return p
+
+
+@pytest.fixture(scope="session")
+def ariane136():
+    """ariane136 (146k components, 136 SRAM macros), loaded once; skipped without the data."""
+    if not ARIANE.is_dir():
+        pytest.skip("../shared/realdata/ariane136 not present")
+    import floorwidget as fw
+
+    path, lefs = ariane136_files()
+    with pytest.warns(UserWarning, match="single-pin"):
+        return fw.load(path, lef=[str(p) for p in lefs])

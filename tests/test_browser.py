@@ -3,7 +3,10 @@
 A macro's drag handle is dragged with the mouse; the notebook's Session observer writes the
 session state to ``state.json`` on every change, and the test checks from the kernel side that
 the macro moved by the dragged distance (pixels converted to µm from the scales and the screen
-positions of the handles) and that the HPWL readout changed.
+positions of the handles) and that the HPWL readout changed.  The layout is measured in the
+page (at 1,600 x 1,000 the canvas takes at least 60 % of the widget's width and the widget fits
+the window; at 1,000 px wide a drag still lands), and the macro labels' text boxes, as Chromium
+lays them out, never overlap (the demo, and ariane136 zoomed on its densest macros).
 """
 
 from __future__ import annotations
@@ -23,6 +26,8 @@ import pytest
 ROOT = Path(__file__).resolve().parents[1]
 CHROMIUM = Path("/usr/bin/chromium")
 NOTEBOOK = ROOT / "tests" / "browser" / "drag_widget.ipynb"
+REAL_NOTEBOOK = ROOT / "tests" / "browser" / "real_widget.ipynb"
+REAL = ROOT.parent / "shared" / "realdata" / "ariane136"
 
 pytestmark = [
     pytest.mark.browser,
@@ -42,6 +47,7 @@ def lab(tmp_path):
     root = tmp_path / "root"
     root.mkdir()
     shutil.copy(NOTEBOOK, root / NOTEBOOK.name)
+    shutil.copy(REAL_NOTEBOOK, root / REAL_NOTEBOOK.name)
     shutil.copy(ROOT / "demo_data" / "heron_dsp.json", root / "heron_dsp.json")
     env = dict(os.environ)
     for var, sub in (("JUPYTER_CONFIG_DIR", "config"), ("JUPYTER_DATA_DIR", "data"),
@@ -150,9 +156,10 @@ _HANDLES_JS = """
 """
 
 
-def _on_new_page(browser, check, lab, artifacts, failure_png: str) -> None:
+def _on_new_page(browser, check, lab, artifacts, failure_png: str,
+                 width: int = 1600, height: int = 1000) -> None:
     """Run ``check(page, lab, artifacts)`` on a fresh page; a screenshot when it fails."""
-    page = browser.new_page(viewport={"width": 1600, "height": 1100})
+    page = browser.new_page(viewport={"width": width, "height": height})
     try:
         check(page, lab, artifacts)
     except BaseException:
@@ -166,11 +173,11 @@ def test_drag_moves_macro_in_real_browser(lab, browser, artifacts):
     _on_new_page(browser, _drag_check, lab, artifacts, "browser_failure.png")
 
 
-def _open_notebook(page, lab) -> tuple[dict, list]:
+def _open_notebook(page, lab, notebook: Path = NOTEBOOK) -> tuple[dict, list]:
     """Open the notebook, run it, and return the first state and the handles' screen points."""
     state_path = lab["root"] / "state.json"
     page.set_default_timeout(60_000)
-    page.goto(f"{lab['base']}/lab/tree/{NOTEBOOK.name}?token={lab['token']}")
+    page.goto(f"{lab['base']}/lab/tree/{notebook.name}?token={lab['token']}")
     page.wait_for_selector(".jp-Notebook .jp-Cell", timeout=60_000)
     # JupyterLab may ask which kernel to start: take the one the notebook names
     try:
@@ -182,7 +189,7 @@ def _open_notebook(page, lab) -> tuple[dict, list]:
     _dismiss_news(page)
     page.click("li.lm-MenuBar-item:has-text('Run')")
     page.click("li.lm-Menu-item:has-text('Run All Cells')")
-    st0 = _wait_state(state_path, lambda s: "ready" in s["changes"], 60, "the notebook")
+    st0 = _wait_state(state_path, lambda s: "ready" in s["changes"], 120, "the notebook")
     n = len(st0["macros"])
     page.wait_for_selector(".dot", timeout=30_000)
     deadline = time.monotonic() + 30
@@ -217,10 +224,8 @@ def _drag_check(page, lab, artifacts):
     sx = (px[j, 0] - px[i, 0]) / (c[j, 0] - c[i, 0])
     sy = (px[j, 1] - px[i, 1]) / (c[j, 1] - c[i, 1])
     assert sx > 0 and sy < 0, (sx, sy)  # screen y grows downwards
-    # the scales agree with what the screen shows: equal spans make µm square
+    # µm are square on the screen
     assert abs(abs(sx) - abs(sy)) / abs(sx) < 0.02, (sx, sy)
-    span = st0["x_scale"][1] - st0["x_scale"][0]
-    assert abs((st0["y_scale"][1] - st0["y_scale"][0]) - span) < 1e-6
 
     # a handle with no other handle near it, dragged towards the middle of the core so
     # that the move is not clamped at the core edge
@@ -290,6 +295,7 @@ def _blockage_check(page, lab, artifacts):
     state_path = lab["root"] / "state.json"
     st0, _ = _open_notebook(page, lab)
     n = len(st0["macros"])
+    page.get_by_role("tab", name="Constraints").click()  # the blockage fields' tab
     field = page.locator(".fw-new-density input")
     field.fill("0.35")
     field.press("Enter")
@@ -333,12 +339,15 @@ def _arrange_check(page, lab, artifacts):
     st0, pts = _open_notebook(page, lab)
     names = st0["macros"]
     px = np.array(pts, dtype=float)
-    # two handles whose screen box (grown by 12 px) holds no third handle and no pinned macro
+    # two handles whose screen box (grown by 12 px) holds no third handle, neither pinned, not
+    # aligned already
     best = None
     for a in range(len(px)):
         for b in range(a + 1, len(px)):
             if "pinned" in (st0["status"][names[a]], st0["status"][names[b]]):
                 continue
+            if st0["positions"][names[a]][0] == st0["positions"][names[b]][0]:
+                continue  # aligned already: Align would change nothing
             lo = np.minimum(px[a], px[b]) - 12
             hi = np.maximum(px[a], px[b]) + 12
             inside = np.all((px >= lo) & (px <= hi), axis=1).sum()
@@ -356,6 +365,7 @@ def _arrange_check(page, lab, artifacts):
         page.wait_for_timeout(30)
     page.mouse.up()
     page.wait_for_selector("text=2 macros selected", timeout=20_000)
+    page.get_by_role("tab", name="Edit").click()  # the arrangements live in the Edit tab
     page.get_by_role("button", name="Align", exact=True).click()
     st1 = _wait_state(state_path, lambda s: s["undo"][-1:] == ["align"], 60, "the align")
     xa, xb = st1["positions"][names[a]][0], st1["positions"][names[b]][0]
@@ -383,3 +393,132 @@ def _arrange_check(page, lab, artifacts):
     assert st2["positions"][picked][1] == st1["positions"][picked][1]
     page.wait_for_timeout(500)
     page.screenshot(path=str(artifacts / "browser_arrange.png"), full_page=False)
+
+
+_LAYOUT_JS = """
+() => {
+  const box = sel => { const e = document.querySelector(sel);
+                       return e ? e.getBoundingClientRect().toJSON() : null; };
+  const w = document.querySelector('.fw-widget');
+  w.scrollIntoView({block: 'start'});
+  const outer = w.closest('.jp-WindowedPanel-outer') || w.closest('.jp-Notebook');
+  return {widget: box('.fw-widget'), canvas: box('.fw-canvas'), side: box('.fw-side'),
+          toolbar: box('.fw-toolbar'), panel: outer.getBoundingClientRect().toJSON(),
+          page: [document.scrollingElement.scrollHeight, window.innerHeight,
+                 document.scrollingElement.scrollWidth, window.innerWidth]};
+}
+"""
+
+
+def _layout(page) -> dict:
+    page.evaluate(_LAYOUT_JS)
+    page.wait_for_timeout(500)  # after scrolling: measure where it came to rest
+    return page.evaluate(_LAYOUT_JS)
+
+
+_LABELS_JS = """
+(lines) => {
+  // the canvas's SVG texts that are label lines, as Chromium lays them out
+  const want = new Set(lines);
+  const out = [];
+  for (const t of document.querySelectorAll('.fw-canvas svg text')) {
+    if (!want.has(t.textContent) || t.getAttribute('display') === 'none') continue;
+    const r = t.getBoundingClientRect();
+    if (r.width > 0) out.push([t.textContent, r.left, r.top, r.right, r.bottom]);
+  }
+  return out;
+}
+"""
+
+
+def _label_boxes(page, lab) -> list:
+    """Hover the canvas (the widget learns its size on screen and fits the labels again), then
+    the drawn label lines' boxes on screen."""
+    c = page.locator(".fw-canvas").bounding_box()
+    page.mouse.move(c["x"] + 5, c["y"] + 5)
+    page.mouse.move(c["x"] + c["width"] / 2, c["y"] + 10)
+    page.wait_for_timeout(1500)
+    drawn = _read_state(lab["root"] / "labels.json") or {"lines": []}
+    return drawn, page.evaluate(_LABELS_JS, drawn["lines"])
+
+
+def _assert_apart(boxes: list) -> None:
+    """No two label lines overlap by more than half a pixel (anti-aliasing) either way."""
+    for a in range(len(boxes)):
+        for b in range(a + 1, len(boxes)):
+            ta, *ra = boxes[a]
+            tb, *rb = boxes[b]
+            ox = min(ra[2], rb[2]) - max(ra[0], rb[0])
+            oy = min(ra[3], rb[3]) - max(ra[1], rb[1])
+            assert ox <= 0.5 or oy <= 0.5, (ta, ra, tb, rb)
+
+
+def test_layout_and_labels_at_1600_by_1000(lab, browser, artifacts):
+    _on_new_page(browser, _layout_check, lab, artifacts, "browser_layout_failure.png")
+
+
+def _layout_check(page, lab, artifacts):
+    _open_notebook(page, lab)
+    m = _layout(page)
+    w, c = m["widget"], m["canvas"]
+    print(f"layout at 1600 x 1000: widget {w['width']:.0f} x {w['height']:.0f} px, canvas "
+          f"{c['width']:.0f} px wide ({c['width'] / w['width']:.0%}), notebook panel "
+          f"{m['panel']['height']:.0f} px high")
+    assert c["width"] >= 0.6 * w["width"], m
+    # the widget fits the notebook's visible height and the window; the page itself never
+    # scrolls (JupyterLab scrolls the notebook panel, not the page)
+    assert w["height"] <= m["panel"]["height"] + 1, m
+    assert w["top"] >= m["panel"]["top"] - 1 and w["bottom"] <= m["page"][1] + 1, m
+    assert m["page"][0] <= m["page"][1] and m["page"][2] <= m["page"][3], m
+    # the side column sits beside the canvas, no lower than it
+    assert m["side"]["left"] >= c["right"] - 1 and m["side"]["bottom"] <= c["bottom"] + 1, m
+    lines, boxes = _label_boxes(page, lab)
+    assert len(boxes) >= 1, (lines, boxes)
+    _assert_apart(boxes)
+    page.screenshot(path=str(artifacts / "browser_1600x1000.png"), full_page=False)
+    # zoomed on one memory (found by name): its name and its neighbours' fit
+    page.locator(".fw-find input").fill("sram_sp4k_3")
+    page.get_by_role("button", name="Find", exact=True).click()
+    page.wait_for_timeout(800)
+    zoomed, boxes = _label_boxes(page, lab)
+    assert zoomed["px_per_um"] > 1.5 * lines["px_per_um"] and len(boxes) >= 3, (zoomed, boxes)
+    _assert_apart(boxes)
+    page.screenshot(path=str(artifacts / "browser_1600x1000_zoomed.png"), full_page=False)
+    # the arrow key over the canvas (ipyevents) nudges the found, selected macro one grid step
+    state_path = lab["root"] / "state.json"
+    st0 = _read_state(state_path)
+    page.keyboard.press("ArrowRight")
+    st1 = _wait_state(state_path, lambda s: s["undo"][-1:] == ["shift"], 30, "the nudge")
+    x0, x1 = st0["positions"]["sram_sp4k_3"][0], st1["positions"]["sram_sp4k_3"][0]
+    assert abs(x1 - x0 - st1["pitch"][0]) < 1e-9, (x0, x1)
+
+
+def test_drag_lands_at_1000_px_wide(lab, browser, artifacts):
+    def check(page, lab, artifacts):
+        _drag_check(page, lab, artifacts)
+        m = _layout(page)
+        assert m["page"][2] <= m["page"][3], m  # nothing wider than the window
+        lines, boxes = _label_boxes(page, lab)
+        _assert_apart(boxes)
+        page.screenshot(path=str(artifacts / "browser_1000x1000.png"), full_page=False)
+
+    _on_new_page(browser, check, lab, artifacts, "browser_1000_failure.png", width=1000)
+
+
+@pytest.mark.slow
+@pytest.mark.skipif(not REAL.is_dir(), reason="../shared/realdata/ariane136 not present")
+def test_labels_never_overlap_on_ariane136(lab, browser, artifacts):
+    from conftest import ariane136_files
+
+    path, lefs = ariane136_files()
+    (lab["root"] / "real.json").write_text(json.dumps(
+        {"def": str(path), "lef": [str(p) for p in lefs]}))
+
+    def check(page, lab, artifacts):
+        _open_notebook(page, lab, REAL_NOTEBOOK)
+        lines, boxes = _label_boxes(page, lab)
+        assert len(boxes) >= 2, (lines, boxes)  # the view shows a few macros named
+        _assert_apart(boxes)
+        page.screenshot(path=str(artifacts / "browser_ariane136_labels.png"), full_page=False)
+
+    _on_new_page(browser, check, lab, artifacts, "browser_ariane_failure.png")

@@ -9,7 +9,6 @@ checked by brute force, and on ariane136 against the text extents matplotlib mea
 from __future__ import annotations
 
 import re
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -18,8 +17,6 @@ from hypothesis import strategies as st
 
 from floorwidget.design import MACRO
 from floorwidget.style import place_labels, short_labels
-
-REAL = Path(__file__).resolve().parents[2] / "shared" / "realdata" / "ariane136"
 
 _COMP = st.sampled_from(["top", "u_core", "i_cache_subsystem", "bank0", "bank1", "sram_256x64",
                          "mem", "a", "x" * 30, r"data_array_gen\[3\]"])
@@ -76,8 +73,9 @@ def _brute_overlaps(e: np.ndarray) -> int:
 
 
 @settings(max_examples=200, deadline=None)
-@given(seed=st.integers(0, 2**31 - 1), n=st.integers(1, 60), lines=st.integers(1, 4))
-def test_placed_labels_fit_and_never_overlap(seed, n, lines):
+@given(seed=st.integers(0, 2**31 - 1), n=st.integers(1, 60), lines=st.integers(1, 4),
+       keep_out=st.sampled_from([0.0, 7.0]))
+def test_placed_labels_fit_and_never_overlap(seed, n, lines, keep_out):
     # boxes that overlap each other often (an illegal floorplan), names of various lengths
     rng = np.random.default_rng(seed)
     x, y = rng.uniform(0, 300, n), rng.uniform(0, 300, n)
@@ -85,9 +83,11 @@ def test_placed_labels_fit_and_never_overlap(seed, n, lines):
     texts = ["_".join("ab"[: rng.integers(1, 3)] * rng.integers(1, 4)
                       for _ in range(rng.integers(1, 5))) for _ in range(n)]
     keep, got, scale, ext = place_labels(texts, boxes, 6.0, 12.0, max_lines=lines, pad=1.0,
-                                         scales=(1.0, 0.7))
+                                         scales=(1.0, 0.7), keep_out=keep_out)
     k = np.flatnonzero(keep)
     assert _brute_overlaps(ext[k]) == 0
+    # above the band left free across the centre (a handle there)
+    assert np.all(ext[k, 1] >= (boxes[k, 1] + boxes[k, 3]) / 2 + keep_out - 1e-9) or not keep_out
     assert np.all(ext[k, :2] >= boxes[k, :2] + 1.0 - 1e-9)
     assert np.all(ext[k, 2:] <= boxes[k, 2:] - 1.0 + 1e-9)
     for i in k:  # the lines are the label, cut after separators, within the line limit
@@ -99,17 +99,12 @@ def test_placed_labels_fit_and_never_overlap(seed, n, lines):
 
 
 @pytest.mark.slow
-@pytest.mark.skipif(not REAL.is_dir(), reason="../shared/realdata/ariane136 not present")
-def test_render_labels_on_ariane136_fit_and_never_overlap():
+def test_render_labels_on_ariane136_fit_and_never_overlap(ariane136):
     # measured by matplotlib's own renderer (the text extents it draws), not our estimate
-    import floorwidget as fw
     from floorwidget.kernels.rects import overlap_pairs
     from floorwidget.render import render
 
-    lefs = [REAL / "asap7_tech_1x_201209.lef", REAL / "asap7sc7p5t_27_R_1x_201211.lef",
-            *sorted(REAL.glob("sram*.lef"))]
-    with pytest.warns(UserWarning, match="single-pin"):
-        d = fw.load(REAL / "ariane136.def.gz", lef=[str(p) for p in lefs])
+    d = ariane136
     rects = d.initial.rects()
     for size in (11.0, 30.0):  # the default picture (names do not fit) and a large one
         fig = render(d, d.initial, figsize=(size, size))

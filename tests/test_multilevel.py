@@ -273,7 +273,7 @@ def test_widget_expands_a_clustered_session_in_the_background(clustered_session)
     full = clustered_session.expanded
     assert full is not None and full.design.num_blocks == clustered_session.full_design.num_blocks
     assert "Expand done" in w.message.value
-    assert "(clustered)" in w.readout.value and "Expand cells)" in w.readout.value
+    assert "(clustered)" in w.readouts.html.value and "Expand cells)" in w.readouts.html.value
 
 
 def test_a_pin_budget_coarsens_further(small):

@@ -81,12 +81,12 @@ def test_panel_shows_the_figures_and_the_table_has_their_columns(shaped):
     d, fp = shaped
     w = FloorplanWidget(d, fp, size=300)
     for text in ("Narrow channels", "Pins to a wall", "Logic regions"):
-        assert text in w.readout.value
+        assert text in w.readouts.html.value
     w.keep("a")
-    table = w.alternatives_html()
+    table = w.alternatives.table_html()
     for text in ("narrow ch.", "pins to wall", "logic regions", "largest"):
         assert text in table
-    assert "narrow channel" in w.legend.value and "pins toward a wall" in w.legend.value
+    assert "narrow channel" in w.view.legend.value and "pins toward a wall" in w.view.legend.value
 
 
 @pytest.mark.parametrize("layout", ["periphery", "free"])
@@ -95,7 +95,7 @@ def test_layout_control_reaches_session_place(layout):
 
     d = rent_design(400, num_macros=4, seed=2)
     w = FloorplanWidget(d, size=300)
-    w.layout_style.value = layout
+    w.toolbar.layout_style.value = layout
     assert w.place(wait=True)
     assert w.session.log[-1]["kwargs"]["macro_layout"] == layout
     assert w.floorplan.info.get("macro_layout") == layout

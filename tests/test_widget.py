@@ -68,7 +68,23 @@ def test_construction_marks_to_scale(widget, demo_design, placed):
     # status is carried by the fill colour of each row
     st = c.status_style
     assert c.marks["macros"].fill_colors[0] in {s["fill"] for s in st.values()}
-    assert "movable" in widget.legend.value and "pinned" in widget.legend.value
+    assert "movable" in widget.view.legend.value and "pinned" in widget.view.legend.value
+    # the browser reports the figure's size (ipyevents): the plot area takes all of it and
+    # the spans follow, so µm stay square: pixels per µm equal along x and y
+    w_px, h_px, m = 900.0, 600.0, 2 * c.margin
+    x_mid = (c.x_scale.min + c.x_scale.max) / 2
+    side = c.y_scale.max - c.y_scale.min
+    c.set_screen_size(w_px, h_px)
+    assert c.figure.min_aspect_ratio == c.figure.max_aspect_ratio == pytest.approx(
+        (w_px - m) / (h_px - m))
+    ppx = (w_px - m) / (c.x_scale.max - c.x_scale.min)
+    ppy = (h_px - m) / (c.y_scale.max - c.y_scale.min)
+    assert ppx == pytest.approx(ppy) == pytest.approx(c.px_per_um)
+    assert c.y_scale.max - c.y_scale.min == pytest.approx(side)  # the shorter side kept
+    assert (c.x_scale.min + c.x_scale.max) / 2 == pytest.approx(x_mid)
+    c.zoom(0.5)
+    c.reset_view()
+    assert c.y_scale.max - c.y_scale.min == pytest.approx(side)
 
 
 def test_status_styles_differ_in_outline_not_only_colour():
@@ -197,7 +213,7 @@ def test_live_hpwl_delta_matches_full_recompute(widget, demo_design):
         moved.y[i] += dy
         full = metrics.hpwl(d, moved) - metrics.hpwl(d, fp)  # from scratch, every net
         assert delta == pytest.approx(full, rel=1e-9, abs=1e-6)
-        assert "while dragging" in widget.readout.value
+        assert "while dragging" in widget.readouts.html.value
     assert s.floorplan is fp  # a drag in progress changes nothing in the session
     # the dragged rectangle follows the handle on the canvas
     assert np.asarray(widget.canvas.marks["macros"].x)[k, 0] == pytest.approx(fp.x[i] + 333.0)
@@ -256,7 +272,7 @@ def test_flylines_bundle_per_neighbour(widget, demo_design):
     width = np.hypot(xs[:, 0] - xs[:, 3], ys[:, 0] - ys[:, 3])
     order = np.argsort(tcnt)
     assert width[order[-1]] > width[order[0]] or tcnt.min() == tcnt.max()
-    assert widget.design.names[i] in widget.details.value
+    assert widget.design.names[i] in widget.details.html.value
 
 
 def test_box_selection_moves_together(widget, demo_design):
@@ -315,13 +331,13 @@ def test_second_run_while_busy_is_refused(widget):
         cx, cy = fp.centres()
         assert widget.drop(1, cx[i] + 80, cy[i])["message"]  # a drop is refused too
         assert s.floorplan is fp
-        assert widget.progress.layout.visibility == "visible"
+        assert widget.runner.progress.layout.visibility == "visible"
     finally:
         gate.set()
         assert widget.wait(30)
         s.place = real_place
     assert len(calls) == 1
-    assert not widget.busy and widget.progress.layout.visibility == "hidden"
+    assert not widget.busy and widget.runner.progress.layout.visibility == "hidden"
     assert s.history[-1] == "place"
     assert "Place done" in widget.message.value
 
@@ -353,7 +369,7 @@ def test_heat_layers_toggle(widget):
     widget.toggles["Congestion"].value = True
     assert c.marks["congestion"].visible and not c.marks["cells"].visible
     np.testing.assert_allclose(np.asarray(c.marks["congestion"].color).T,
-                               metrics.rudy_map(widget.design, widget.floorplan, c.grid))
+                               metrics.congestion_map(widget.design, widget.floorplan, c.grid))
     widget.toggles["Density"].value = True
     assert c.marks["density"].visible and not c.marks["congestion"].visible
     widget.toggles["Density"].value = False
@@ -366,12 +382,12 @@ def test_alternatives_table_and_thumbnails(widget, demo_design, placed):
     i = int(widget.macro_idx[0])
     cx, cy = widget.floorplan.centres()
     widget.drop(0, cx[i] + 100.0, cy[i])
-    table = widget.alternatives_html()
+    table = widget.alternatives.table_html()
     assert "hand start" in table and "current" in table
     assert f"{widget.session.alternative('hand start').report['hpwl']:,.0f}" in table
-    widget.alt_a.value = "hand start"
-    widget.alt_b.value = "current"
-    thumbs = widget.alt_thumbs.children
+    widget.alternatives.a.value = "hand start"
+    widget.alternatives.b.value = "current"
+    thumbs = widget.alternatives.thumbs.children
     assert len(thumbs) == 2
     # the thumbnails are the canvas code at small size, without handles
     t = Canvas(demo_design, widget.session.alternative("hand start").floorplan, size=200,
@@ -381,7 +397,7 @@ def test_alternatives_table_and_thumbnails(widget, demo_design, placed):
     np.testing.assert_array_equal(np.asarray(t.marks["macros"].x)[:, 0], placed.rects()[mac][:, 0])
     f = thumbnail(demo_design, widget.floorplan, 180)
     assert f.layout.width == "180px"
-    assert "macro(s) moved" in widget.alt_diff.value
+    assert "macro(s) moved" in widget.alternatives.diff.value
 
 
 def test_proxies_match_the_session(widget, demo_design):

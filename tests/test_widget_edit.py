@@ -31,7 +31,7 @@ def test_align_through_the_panel(w, demo_design):
     names = ["sram_sp4k_0", "sram_sp4k_1"]
     steps = len(s.history)
     w.select(names)
-    w.align_side.value = "top"
+    w.edit.align_side.value = "top"
     w.buttons["Align"].click()
     r = s.floorplan.rects()[[d.block(n) for n in names]]
     assert r[0, 3] == r[1, 3]  # same height: the top edges are equal exactly
@@ -48,15 +48,15 @@ def test_typed_coordinate_and_orientation(w, demo_design):
     i = d.block(nm)
     w.select([nm])
     assert not w.buttons["Set"].disabled
-    assert w.edit_x.value == s.floorplan.x[i] and w.edit_orient.value == "N"
-    w.edit_x.value, w.edit_y.value = 812.4, 633.3
+    assert w.edit.x.value == s.floorplan.x[i] and w.edit.orient.value == "N"
+    w.edit.x.value, w.edit.y.value = 812.4, 633.3
     w.buttons["Set"].click()
     (ox, oy), (px, py) = d.grid_origin, d.grid_pitch
     assert s.floorplan.x[i] == snap(812.4, ox, px) and s.floorplan.y[i] == snap(633.3, oy, py)
-    assert w.edit_x.value == s.floorplan.x[i]  # the fields show what was taken
+    assert w.edit.x.value == s.floorplan.x[i]  # the fields show what was taken
     # a new orientation alone turns the macro about its centre (one step)
     cx, cy = (c[i] for c in s.floorplan.centres())
-    w.edit_orient.value = "E"
+    w.edit.orient.value = "E"
     w.buttons["Set"].click()
     assert s.floorplan.orientation(nm) == "E"
     ncx, ncy = (c[i] for c in s.floorplan.centres())
@@ -80,7 +80,7 @@ def test_nudge_and_offset_move_the_selection(w, demo_design):
     assert np.array_equal(s.floorplan.x[idx], x0 + px)
     assert np.allclose(s.floorplan.y[idx], y0 + py, rtol=0, atol=1e-9)
     assert s.floorplan.status[idx[0]] == PINNED
-    w.offset_dx.value, w.offset_dy.value = -100.0, 0.0
+    w.edit.dx.value, w.edit.dy.value = -100.0, 0.0
     w.buttons["Move by"].click()
     assert np.array_equal(s.floorplan.x[idx], x0 + px - 100.0)
     assert s.history[-3:] == ["shift", "shift", "shift"]
@@ -90,8 +90,8 @@ def test_arrange_buttons_refuse_pinned_and_report_illegal(w, demo_design):
     d, s = demo_design, w.session
     names = ["sram_sp4k_0", "sram_sp4k_1", "sram_sp2k_0"]
     w.select(names)
-    w.array_rows.value, w.array_cols.value = 1, 3
-    w.array_pitch_x.value, w.array_pitch_y.value = 100.0, 0.0  # narrower than the macros
+    w.edit.rows.value, w.edit.cols.value = 1, 3
+    w.edit.pitch_x.value, w.edit.pitch_y.value = 100.0, 0.0  # narrower than the macros
     w.buttons["Array"].click()
     x = s.floorplan.x[[d.block(n) for n in names]]
     assert np.array_equal(np.diff(x), [100.0, 100.0])
@@ -105,3 +105,59 @@ def test_arrange_buttons_refuse_pinned_and_report_illegal(w, demo_design):
     w.select([])
     w.buttons["Align"].click()
     assert "Select one or more macros first" in w.message.value
+
+
+def test_arrow_keys_nudge_by_grid_steps_and_ctrl_z_undoes(w, demo_design):
+    # the key handler receives what ipyevents sends (a dict per DOM event); one grid step per
+    # arrow, ten with Shift (closed form: pitch times steps), one undo step per key
+    pytest.importorskip("ipyevents")
+    d, s = demo_design, w.session
+    assert w.shortcuts.available
+    nm = "sram_sp4k_1"
+    i = d.block(nm)
+    w.select([nm])
+    x0, y0 = float(s.floorplan.x[i]), float(s.floorplan.y[i])
+    px, py = (float(v) for v in d.grid_pitch)
+    steps = len(s.history)
+    assert w.shortcuts.handle({"type": "keydown", "key": "ArrowRight"})
+    assert w.shortcuts.handle({"type": "keydown", "key": "ArrowUp", "shiftKey": True})
+    assert s.floorplan.x[i] == pytest.approx(x0 + px) and s.floorplan.y[i] == pytest.approx(
+        y0 + 10 * py)
+    assert len(s.history) == steps + 2
+    assert w.shortcuts.handle({"type": "keydown", "key": "z", "ctrlKey": True})
+    assert s.floorplan.y[i] == pytest.approx(y0) and len(s.history) == steps + 1
+    assert w.shortcuts.handle({"type": "keydown", "key": "y", "ctrlKey": True})
+    assert s.floorplan.y[i] == pytest.approx(y0 + 10 * py)
+    assert w.shortcuts.handle({"type": "keydown", "key": "Escape"}) and w.selection == []
+    # nothing selected: the arrow is refused in the message line, nothing changes
+    assert w.shortcuts.handle({"type": "keydown", "key": "ArrowLeft"})
+    assert "Select one or more macros" in w.message.value
+    assert not w.shortcuts.handle({"type": "keydown", "key": "q"})
+
+
+def test_panels_follow_the_session_without_being_asked(w, demo_design):
+    # a change made on the Session directly (a script beside the widget) reaches every panel
+    # through its own observer: readouts, details, edit fields, alternatives
+    s = w.session
+    nm = "sram_sp2k_0"
+    w.select([nm])
+    before = w.readouts.html.value
+    s.move(nm, 1200.0, 900.0)
+    i = demo_design.block(nm)
+    assert w.readouts.html.value != before
+    assert f"lower-left ({s.floorplan.x[i]:.2f}" in w.details.html.value
+    assert w.edit.x.value == s.floorplan.x[i]
+    s.snapshot("by script")
+    assert "by script" in w.alternatives.table_html() and "by script" in w.alternatives.a.options
+
+
+def test_runs_use_the_shared_pool(w):
+    # a background run goes to the package's pool (thread "floorwidget-widget"), not a thread
+    # of the widget's own
+    import threading
+
+    seen = []
+    w.session.on_change(lambda ev: seen.append(threading.current_thread().name))
+    assert w.refine(wait=False)
+    assert w.wait(120) and not w.busy
+    assert seen and seen[-1].startswith("floorwidget-widget")

@@ -10,7 +10,6 @@ walk over the nets for the demo's group bundles.
 from __future__ import annotations
 
 import io
-from pathlib import Path
 
 import numpy as np
 import pytest
@@ -21,8 +20,6 @@ from floorwidget import style  # noqa: E402
 from floorwidget.design import CELL, CLUSTER, MACRO, TERMINAL, Design  # noqa: E402
 from floorwidget.widget import FloorplanWidget  # noqa: E402
 from floorwidget.widget import geometry as geo  # noqa: E402
-
-REAL = Path(__file__).resolve().parents[2] / "shared" / "realdata" / "ariane136"
 
 
 @pytest.fixture(scope="module")
@@ -72,12 +69,12 @@ def test_flylines_of_a_macro_and_of_a_group(hw):
     assert _bundles(c, True) == {"I/O d": 2, "blk/ram1": 1}
     assert c.marks["flylines_through"].visible
     assert np.asarray(c.marks["flylines_through"].x).reshape(-1, 5).shape[0] == 2
-    assert "I/O d (2)" in hw.details.value
+    assert "I/O d (2)" in hw.details.html.value
     # the group's logic as the source: n0, n1, n5, n6
     hw.show_group("a")
     assert c.focus_group is not None and hw.selection == []
     assert _bundles(c) == {"top/ram0": 1, "I/O d": 1, "I/O clk": 1, "blk/ram1": 1}
-    assert "group a" in hw.details.value
+    assert "group a" in hw.details.html.value
     # a bundle ends in the middle of the blocks it reaches, and starts at the group's middle
     xs = np.asarray(c.marks["flylines"].x).reshape(-1, 5)
     cx, cy = hw.floorplan.centres()
@@ -101,7 +98,7 @@ def test_colours_by_group_legend_and_logic_picture(hw, hand):
     # area ranks the groups: top, blk (400 µm² each), a (96), b (48), the terminals' top level
     pal = style.GROUP_PALETTE
     assert c.marks["macros"].fill_colors == [pal[0], pal[1]]
-    legend = hw.group_legend.value
+    legend = hw.view.group_legend.value
     for label, colour in (("top", pal[0]), ("blk", pal[1]), ("a", pal[2]), ("b", pal[3])):
         assert f'fill="{colour}"' in legend and f"> {label} —" in legend
     assert "more groups" not in legend  # five groups, seven colours
@@ -146,14 +143,14 @@ def test_grey_past_the_palette_is_in_the_legend(demo_design):
     listed = sorted(g for _, mem in c.group_legend for g in mem)
     assert listed == list(range(n))
     grey = n - len(style.GROUP_PALETTE)
-    assert f"{grey} more groups, all grey" in w.group_legend.value
+    assert f"{grey} more groups, all grey" in w.view.group_legend.value
     fills = set(c.marks["macros"].fill_colors)
     assert fills <= set(style.GROUP_PALETTE) | {style.OTHER_GROUP}
-    assert w.group_depth.value == 2 and w.group_seps.value == "/._"
+    assert w.view.group_depth.value == 2 and w.view.group_seps.value == "/._"
     # typing a depth in the panel regroups: depth 0 is one group, the top level
-    w.group_depth.value = 0
-    assert len(w.canvas.groups) == 1 and w.group_pick.options[0][0].startswith("(top level)")
-    assert "more groups" not in w.group_legend.value
+    w.view.group_depth.value = 0
+    assert len(w.canvas.groups) == 1 and w.view.group_pick.options[0][0].startswith("(top level)")
+    assert "more groups" not in w.view.group_legend.value
 
 
 def test_find_by_name(hw, hand):
@@ -181,10 +178,10 @@ def test_find_by_name(hw, hand):
     assert sorted(hw.selection) == ["blk/ram1", "top/ram0"]
     assert (c.x_scale.min, c.x_scale.max) == view and c.found.size == 0
     # the panel's text box and button do the same
-    hw.find_text.value = "blk/ram1"
+    hw.view.find_text.value = "blk/ram1"
     hw.buttons["Find"].click()
     assert hw.selection == ["blk/ram1"]
-    hw.find_text.value = " "
+    hw.view.find_text.value = " "
     hw.buttons["Find"].click()
     assert "Type a block name" in hw.message.value and c.found.size == 0
 
@@ -199,18 +196,12 @@ def test_png_decodes_to_the_same_pixels():
 
 
 @pytest.mark.slow
-@pytest.mark.skipif(not REAL.is_dir(), reason="../shared/realdata/ariane136 not present")
-def test_readable_on_ariane136():
+def test_readable_on_ariane136(ariane136):
     """146k components: every view action keeps each mark to a few thousand elements."""
-    import floorwidget as fw
-
-    lefs = [REAL / "asap7_tech_1x_201209.lef", REAL / "asap7sc7p5t_27_R_1x_201211.lef",
-            *sorted(REAL.glob("sram*.lef"))]
-    with pytest.warns(UserWarning, match="single-pin"):
-        d = fw.load(REAL / "ariane136.def.gz", lef=[str(p) for p in lefs])
+    d = ariane136
     w = FloorplanWidget(d, size=400, live=False)
     w.colour_by_groups(True, depth=2, separators="/._")
-    assert "more groups, all grey" in w.group_legend.value
+    assert "more groups, all grey" in w.view.group_legend.value
     found = w.find("data_sram_macro_mem")
     assert len(found) > 1 and len(w.selection) == sum(d.kind[d.block(n)] == MACRO
                                                       for n in found)

@@ -139,12 +139,13 @@ def halo_conflicts(foot: np.ndarray, halo_box: np.ndarray, tol: float = 0.0
     """
     foot = np.asarray(foot, np.float64).reshape(-1, 4)
     halo_box = np.asarray(halo_box, np.float64).reshape(-1, 4)
-    i, j = overlap_pairs(foot, halo_box, tol)
-    keep = i != j
-    lo, hi = np.minimum(i[keep], j[keep]), np.maximum(i[keep], j[keep])
-    if len(lo):
-        key = np.unique(lo * len(foot) + hi)
-        lo, hi = key // len(foot), key % len(foot)
+    # candidates: one sweep over each macro's hull of footprint and halo box (a pair in
+    # conflict has overlapping hulls), then the rule itself on the candidates
+    hull = np.concatenate([np.minimum(foot[:, :2], halo_box[:, :2]),
+                           np.maximum(foot[:, 2:], halo_box[:, 2:])], axis=1)
+    lo, hi = overlap_pairs(hull, tol=tol)
+    hit = (_hits(foot[lo], halo_box[hi], tol) | _hits(foot[hi], halo_box[lo], tol))
+    lo, hi = lo[hit], hi[hit]
     fi, fj = foot[lo], foot[hi]
     area = (overlap_area(fi, halo_box[hi]) + overlap_area(fj, halo_box[lo])
             - overlap_area(fi, fj))

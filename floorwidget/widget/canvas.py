@@ -1,10 +1,10 @@
-"""The to-scale bqplot canvas: layers over two shared linear scales with equal spans.
+"""The to-scale bqplot canvas: layers over two shared linear scales, µm square on screen.
 
 One :class:`Canvas` draws one floorplan.  The interactive widget and the small thumbnails of the
 alternatives view use this same class (the thumbnail simply turns interaction off), so what the
 engineer compares is drawn exactly like what they edit.
 
-Layer order, bottom to top: heat images (soft clusters / cells, density, RUDY congestion), the
+Layer order, bottom to top: heat images (soft clusters / cells, density, congestion), the
 logic picture by hierarchy group, die and core outlines, placement rows (only when zoomed in),
 blockages (full ones filled, partial ones dashed and lighter, the selected one outlined),
 cell regions (fences solid, guides dashed, with their names),
@@ -23,7 +23,7 @@ import numpy as np
 from .. import hierarchy as hier
 from ..design import CELL, CLUSTER, MACRO, STATUS_NAMES, TERMINAL, Design, Floorplan
 from ..metrics import illegal_blocks
-from ..style import GROUP_PALETTE, OTHER_GROUP, short_labels
+from ..style import GROUP_PALETTE, OTHER_GROUP, place_labels, short_labels
 from . import geometry as geo
 from ._style import heat_colors, status_style, ui_colors
 
@@ -34,7 +34,10 @@ FOUND_LIMIT = 200
 #: most flyline bundles drawn per kind (direct, through one cell): the heaviest ones
 BUNDLE_LIMIT = 100
 _HEAT_BINS = 64          # bins along the longer core side for the heat images
-_LABEL_PX_PER_CHAR = 6.0  # approximate width of one label character at 10 px (bold)
+_LABEL_PX_PER_CHAR = 6.2  # average width of one label character at 10 px (measured in Chromium)
+_LABEL_LINE_PX = 12.0     # a label's line height at 10 px
+_HANDLE_PX = 5.0          # labels keep this far above the centre of a macro (its handle)
+_MAX_LABELS = 600         # most labels drawn at once
 
 
 def _set_list(mark, name: str, values: list) -> None:
@@ -49,14 +52,18 @@ def _placeholder():
 
 
 class Canvas:
-    """Marks for one floorplan of ``design`` on a square, equal-scale bqplot figure.
+    """Marks for one floorplan of ``design`` on an equal-scale bqplot figure (µm square).
 
     Parameters
     ----------
     design : Design
     floorplan : Floorplan
     size : int
-        Figure width and height in pixels.
+        Figure width and height in pixels; with ``fluid`` the smallest the figure is drawn
+        at (labels are fitted for this size until :meth:`set_screen_size` tells the real one).
+    fluid : bool
+        The figure fills the width it is given (its height set by the caller's layout)
+        instead of a fixed square of ``size`` pixels.
     interactive : bool
         Add drag handles, pan/zoom and labels that follow the zoom.  ``False`` gives a static
         thumbnail drawn by the same code.
@@ -72,12 +79,14 @@ class Canvas:
     """
 
     def __init__(self, design: Design, floorplan: Floorplan, *, size: int = 640,
-                 interactive: bool = True, heat_bins: int = _HEAT_BINS):
+                 interactive: bool = True, heat_bins: int = _HEAT_BINS, fluid: bool = False):
         import bqplot as bq
 
         self.design = design
         self.fp = floorplan
         self.size = int(size)
+        self._plot_px = float(self.size)  # height of the figure on screen, pixels
+        self._aspect = 1.0                 # plot area width / height (set_screen_size)
         self.interactive = interactive
         self.margin = 8 if interactive else 2
         self.macro_idx = np.flatnonzero(design.kind == MACRO)
@@ -114,6 +123,34 @@ class Canvas:
         self.x_scale = bq.LinearScale(min=xmin, max=xmax, allow_padding=False)
         self.y_scale = bq.LinearScale(min=ymin, max=ymax, allow_padding=False)
         sc = {"x": self.x_scale, "y": self.y_scale}
+        self.marks = self._layers(bq, sc, heat_bins)
+        if interactive:
+            self.marks.update(self._handles(bq, sc))
+        m = self.marks
+        fig_kw = dict(
+            marks=list(m.values()), axes=[], padding_x=0.0, padding_y=0.0,
+            min_aspect_ratio=1, max_aspect_ratio=1,
+            fig_margin=dict(top=self.margin, bottom=self.margin, left=self.margin,
+                            right=self.margin),
+            background_style={"fill": "white"},
+        )
+        self.figure = bq.Figure(**fig_kw)
+        lay = self.figure.layout
+        if fluid:  # fills its box; the plot area follows it once its size is known
+            lay.width, lay.height = "100%", "100%"
+            lay.min_width = lay.min_height = f"{self.size}px"
+            lay.flex = "1 1 auto"
+        else:
+            lay.width = lay.height = lay.min_width = f"{self.size}px"
+            lay.flex = "0 0 auto"
+        if interactive:
+            self.panzoom = bq.interacts.PanZoom(scales={"x": [self.x_scale], "y": [self.y_scale]})
+            self.x_scale.observe(self._on_view, names=["min", "max"])
+        self.update(floorplan)
+
+    def _layers(self, bq, sc: dict, heat_bins: int) -> dict:
+        """Every drawing layer but the interactive ones, bottom to top (one mark each)."""
+        design, floorplan, interactive = self.design, self.fp, self.interactive
         m: dict = {}
 
         # heat images: one image each, never a mark per bin (a coarse display grid)
@@ -205,59 +242,85 @@ class Canvas:
         m["terminals"] = bq.Scatter(x=tx, y=ty, scales=sc, marker="square",
                                     default_size=10 if interactive else 4,
                                     colors=[self.ui["terminal"]], stroke=None)
-        if interactive:
-            # rings around blocks found by name (at most FOUND_LIMIT of them)
-            m["found"] = bq.Scatter(x=[0.0], y=[0.0], scales=sc, marker="circle", fill=False,
-                                    default_size=220, stroke=self.ui["found"], stroke_width=2.5,
-                                    colors=[self.ui["found"]], visible=False)
-            m["labels"] = bq.Label(x=[0.0], y=[0.0], text=[""], scales=sc, default_size=10,
-                                   font_unit="px", align="middle", colors=[self.ui["label"]],
-                                   visible=False)
-            # a handle at each blockage's centre: click selects it, a drag moves it
-            m["blockage_handles"] = bq.Scatter(
-                x=[0.0], y=[0.0], scales=sc, enable_move=True, update_on_move=False,
-                marker="square", default_size=48, colors=[self.ui["blockage_fill"]],
-                stroke=self.ui["blockage"], stroke_width=1.5, visible=False)
-            cx, cy = floorplan.centres()
-            m["handles"] = bq.Scatter(
-                x=cx[self.macro_idx], y=cy[self.macro_idx], scales=sc, enable_move=True,
-                update_on_move=False, marker="circle", default_size=36,
-                colors=[self.ui["handle"]], stroke=self.ui["outline"], stroke_width=1.0,
-                opacities=[0.9], selected_style={"stroke": self.ui["selection"],
-                                                          "stroke-width": 3},
-                unselected_style={})
-        self.marks = m
-        fig_kw = dict(
-            marks=list(m.values()), axes=[], padding_x=0.0, padding_y=0.0,
-            min_aspect_ratio=1, max_aspect_ratio=1,
-            fig_margin=dict(top=self.margin, bottom=self.margin, left=self.margin,
-                            right=self.margin),
-            background_style={"fill": "white"},
-        )
-        self.figure = bq.Figure(**fig_kw)
-        self.figure.layout.width = f"{self.size}px"
-        self.figure.layout.height = f"{self.size}px"
-        self.figure.layout.min_width = f"{self.size}px"
-        self.figure.layout.flex = "0 0 auto"
-        if interactive:
-            self.panzoom = bq.interacts.PanZoom(scales={"x": [self.x_scale], "y": [self.y_scale]})
-            self.x_scale.observe(self._on_view, names=["min", "max"])
-        self.update(floorplan)
+        return m
+
+    def _handles(self, bq, sc: dict) -> dict:
+        """Rings for found blocks, labels, and the drag handles of blockages and macros."""
+        design, floorplan, m = self.design, self.fp, {}
+        # rings around blocks found by name (at most FOUND_LIMIT of them)
+        m["found"] = bq.Scatter(x=[0.0], y=[0.0], scales=sc, marker="circle", fill=False,
+                                default_size=220, stroke=self.ui["found"], stroke_width=2.5,
+                                colors=[self.ui["found"]], visible=False)
+        m["labels"] = bq.Label(x=[0.0], y=[0.0], text=[""], scales=sc, default_size=10,
+                               font_unit="px", align="middle", y_offset=4,
+                               colors=[self.ui["label"]],
+                               visible=False)
+        # a handle at each blockage's centre: click selects it, a drag moves it
+        m["blockage_handles"] = bq.Scatter(
+            x=[0.0], y=[0.0], scales=sc, enable_move=True, update_on_move=False,
+            marker="square", default_size=48, colors=[self.ui["blockage_fill"]],
+            stroke=self.ui["blockage"], stroke_width=1.5, visible=False)
+        cx, cy = floorplan.centres()
+        m["handles"] = bq.Scatter(
+            x=cx[self.macro_idx], y=cy[self.macro_idx], scales=sc, enable_move=True,
+            update_on_move=False, marker="circle", default_size=36,
+            colors=[self.ui["handle"]], stroke=self.ui["outline"], stroke_width=1.0,
+            opacities=[0.9], selected_style={"stroke": self.ui["selection"],
+                                                      "stroke-width": 3},
+            unselected_style={}, names=[design.names[i] for i in self.macro_idx],
+            display_names=False, tooltip=bq.Tooltip(fields=["name"]))
+        return m
 
     # --- view ---------------------------------------------------------------------------------
     @property
     def px_per_um(self) -> float:
         """Screen pixels per µm at the current zoom (plot area over the visible span)."""
-        span = float(self.x_scale.max) - float(self.x_scale.min)
-        return (self.size - 2 * self.margin) / max(span, 1e-12)
+        span = float(self.y_scale.max) - float(self.y_scale.min)
+        return (self._plot_px - 2 * self.margin) / max(span, 1e-12)
+
+    def _set_view(self, cx: float, cy: float, side: float) -> None:
+        """Show ``side`` µm along the plot's shorter side around ``(cx, cy)``, the longer side
+        in proportion (µm stay square on screen)."""
+        a = self._aspect
+        hx, hy = (side * max(a, 1.0) / 2, side / min(a, 1.0) / 2)
+        with self.figure.hold_sync():
+            self.x_scale.min, self.x_scale.max = cx - hx, cx + hx
+            self.y_scale.min, self.y_scale.max = cy - hy, cy + hy
+        self._on_view()
+
+    def _view_side(self) -> float:
+        """The visible span along the plot's shorter side, µm."""
+        return min(float(self.x_scale.max) - float(self.x_scale.min),
+                   float(self.y_scale.max) - float(self.y_scale.min))
+
+    def set_screen_size(self, width: float, height: float) -> None:
+        """The figure's size on screen, pixels (from a browser event).
+
+        The plot area takes the whole figure: its aspect follows the figure's, the spans
+        follow (the view keeps its centre and its extent along the shorter side), and the
+        labels are fitted again for the new size.
+        """
+        m = 2 * self.margin
+        if min(width, height) <= m + 10:
+            return
+        aspect = (float(width) - m) / (float(height) - m)
+        if abs(float(height) - self._plot_px) < 1.0 and abs(aspect / self._aspect - 1) < 0.01:
+            return
+        xs, ys = self.x_scale, self.y_scale
+        cx, cy, side = (xs.min + xs.max) / 2, (ys.min + ys.max) / 2, self._view_side()
+        self._plot_px, self._aspect = float(height), aspect
+        with self.figure.hold_sync():
+            f = self.figure  # bqplot checks min <= max on every assignment
+            if aspect > f.max_aspect_ratio:
+                f.max_aspect_ratio, f.min_aspect_ratio = aspect, aspect
+            else:
+                f.min_aspect_ratio, f.max_aspect_ratio = aspect, aspect
+            self._set_view(cx, cy, side)
 
     def reset_view(self) -> None:
         """Back to the whole die."""
         xmin, xmax, ymin, ymax = self.home
-        with self.figure.hold_sync():
-            self.x_scale.min, self.x_scale.max = xmin, xmax
-            self.y_scale.min, self.y_scale.max = ymin, ymax
-        self._on_view()
+        self._set_view((xmin + xmax) / 2, (ymin + ymax) / 2, xmax - xmin)
 
     def zoom(self, factor: float) -> None:
         """Scale the visible span by ``factor`` about its centre (0.5 halves it)."""
@@ -294,32 +357,37 @@ class Canvas:
             mk.visible = True
 
     def _draw_labels(self):
+        """Names of the macros in view that fit inside them, never two overlapping
+        (:func:`floorwidget.style.place_labels`: 10 px text, up to four lines, in the part of
+        the macro above its centre handle); the others show their full name on the handle's
+        hover and in the details."""
         mk = self.marks.get("labels")
         if mk is None:
             return
-        fp = self.fp
         idx = self.macro_idx
-        if idx.size == 0:
+        xs, ys = self.x_scale, self.y_scale
+        if idx.size == 0 or xs.min is None:
             mk.visible = False
             return
-        w, h = fp.sizes()
-        cx, cy = fp.centres()
-        names = self.labels
-        nchar = np.array([len(s) for s in names])
+        r = self.fp.rects()[idx]
+        inview = np.flatnonzero((r[:, 2] > xs.min) & (r[:, 0] < xs.max) & (r[:, 3] > ys.min)
+                                & (r[:, 1] < ys.max))
         ppu = self.px_per_um
-        xs, ys = self.x_scale, self.y_scale
-        inview = ((cx[idx] > xs.min) & (cx[idx] < xs.max) & (cy[idx] > ys.min)
-                  & (cy[idx] < ys.max))
-        legible = (w[idx] * ppu > nchar * _LABEL_PX_PER_CHAR + 2) & (h[idx] * ppu > 26) & inview
-        sel = np.flatnonzero(legible)[:600]
+        keep, lines, _, ext = place_labels(list(self.labels[inview]), r[inview] * ppu,
+                                           _LABEL_PX_PER_CHAR, _LABEL_LINE_PX, max_lines=4,
+                                           keep_out=_HANDLE_PX)
+        sel = np.flatnonzero(keep)[:_MAX_LABELS]
         if sel.size == 0:
             mk.visible = False
             return
+        # one text per line, from the top of the label's box down (y up)
+        k = np.array([len(lines[i]) for i in sel])
+        row = np.concatenate([np.arange(n) for n in k])
+        top = np.repeat(ext[sel, 3], k) / ppu
         with mk.hold_sync():
-            mk.x = cx[idx][sel]
-            # just above the centre handle, so the handle does not cover the text
-            mk.y = cy[idx][sel] + 14.0 / ppu
-            mk.text = names[sel].tolist()
+            mk.x = np.repeat((ext[sel, 0] + ext[sel, 2]) / 2, k) / ppu
+            mk.y = top - (row + 0.5) * _LABEL_LINE_PX / ppu
+            mk.text = [t for i in sel for t in lines[i]]
             mk.visible = True
 
     # --- blockages -------------------------------------------------------------------------------
@@ -520,7 +588,8 @@ class Canvas:
         """The ``(nx, ny)`` map of heat layer ``name`` on the display grid.
 
         ``density`` is :func:`floorwidget.metrics.density_map` utilisation, ``congestion`` is
-        :func:`floorwidget.metrics.rudy_map` (RUDY; Spindler, Johannes, DATE 2007), ``cells``
+        :func:`floorwidget.metrics.congestion_map` (RUDY demand over routing supply, 1.0 =
+        full; Spindler, Johannes, DATE 2007), ``cells``
         the soft-cluster and standard-cell area per bin over the bin area.
         """
         from .. import metrics
@@ -530,7 +599,7 @@ class Canvas:
         if name == "density":
             return metrics.density_map(d, fp, self.grid).utilisation
         if name == "congestion":
-            return metrics.rudy_map(d, fp, self.grid)
+            return metrics.congestion_map(d, fp, self.grid)
         soft = (d.kind != MACRO) & (d.kind != TERMINAL)
         return metrics.rect_area_map(self.grid, fp.rects()[soft]) / self.grid.bin_area
 
@@ -753,11 +822,7 @@ class Canvas:
         full = hx1 - hx0
         lo = full / 50 if min_span is None else float(min_span)
         span = float(np.clip(3.0 * max(xhi - xlo, yhi - ylo), lo, full))
-        cx, cy = (xlo + xhi) / 2, (ylo + yhi) / 2
-        with self.figure.hold_sync():
-            self.x_scale.min, self.x_scale.max = cx - span / 2, cx + span / 2
-            self.y_scale.min, self.y_scale.max = cy - span / 2, cy + span / 2
-        self._on_view()
+        self._set_view((xlo + xhi) / 2, (ylo + yhi) / 2, span)
 
     def _draw_selection(self):
         marks = (self.marks["selection_under"], self.marks["selection"])

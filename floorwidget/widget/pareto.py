@@ -1,7 +1,8 @@
 """The Pareto view of a sweep, and a progress bar for running one from a notebook.
 
 :class:`ParetoView` plots every successful :class:`~floorwidget.explore.SweepResult` as a point:
-HPWL across, RUDY congestion peak up, colour by density overflow (with a colour bar).  The
+HPWL across, congestion peak (routing demand over supply) up, colour by density overflow
+(with a colour bar).  The
 non-dominated results (minimising both axes, :func:`floorwidget.explore.pareto_front`) are drawn
 larger with a thick dark outline and joined by a staircase line, so they read without colour
 too.  Hovering a point shows its parameters; clicking one makes that result the current
@@ -39,8 +40,8 @@ _GREY = "#555555"
 _LABELS = {
     "hpwl": "HPWL (µm)",
     "hpwl_weighted": "weighted HPWL (µm)",
-    "congestion_peak": "RUDY congestion, peak",
-    "congestion_p99": "RUDY congestion, p99",
+    "congestion_peak": "congestion peak (demand / supply)",
+    "congestion_p99": "congestion p99 (demand / supply)",
     "density_overflow": "density overflow",
     "peak_density": "peak bin density",
     "narrow_channels": "narrow channels (macro pairs)",

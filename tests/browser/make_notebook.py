@@ -2,7 +2,9 @@
 
 The notebook loads the demo design from its own folder, shows a :class:`FloorplanWidget`, and
 writes the session's state to ``state.json`` beside it on every change (a Session observer), so
-the test can check from the kernel side what a drag in the browser did.
+the test can check from the kernel side what a drag in the browser did; ``labels.json`` holds
+the macro labels drawn.  ``real_widget.ipynb`` does the same for a real design (``real.json``
+names its files), zoomed on its densest group of macros.
 """
 
 from __future__ import annotations
@@ -23,7 +25,7 @@ import floorwidget as fw
 
 HERE = Path.cwd()
 design = fw.load(HERE / "heron_dsp.json")
-w = fw.FloorplanWidget(design, size=600)
+w = fw.FloorplanWidget(design)
 # Start from a placed floorplan when the placer can; else spread the macros on shelves so
 # that each drag handle sits alone.
 setup = "place"
@@ -65,7 +67,7 @@ def write_state(ev=None):
         "status": {n: fp.status_of(n) for n in design.macros},
         "centres": np.stack([cx[idx], cy[idx]], axis=1).tolist(),
         "report": w.session.report,
-        "readout": w.readout.value,
+        "readout": w.readouts.html.value,
         "message": w.message.value,
         "x_scale": [w.canvas.x_scale.min, w.canvas.x_scale.max],
         "y_scale": [w.canvas.y_scale.min, w.canvas.y_scale.max],
@@ -80,6 +82,19 @@ def write_state(ev=None):
     tmp.replace(STATE)
 
 w.session.on_change(write_state)
+
+
+def write_labels(change=None):
+    """The macro labels drawn now (one text per line), whenever they change."""
+    mk = w.canvas.marks["labels"]
+    tmp = HERE / "labels.tmp"
+    tmp.write_text(json.dumps({"lines": list(mk.text) if mk.visible else [],
+                               "px_per_um": w.canvas.px_per_um}))
+    tmp.replace(HERE / "labels.json")
+
+
+w.canvas.marks["labels"].observe(write_labels, names=["text", "visible"])
+write_labels()
 '''
 
 SHOW = '''\
@@ -91,13 +106,48 @@ write_state()
 '''
 
 
-def build() -> nbformat.NotebookNode:
+#: The second notebook: a real design named by ``real.json`` (its DEF and LEFs), zoomed on its
+#: densest group of macros, with the same state files.
+REAL_SETUP = '''\
+import json
+from pathlib import Path
+
+import numpy as np
+
+import floorwidget as fw
+
+HERE = Path.cwd()
+cfg = json.loads((HERE / "real.json").read_text())
+design = fw.load(cfg["def"], lef=cfg["lef"])
+w = fw.FloorplanWidget(design, live=False)
+'''
+
+REAL_ZOOM = '''\
+# zoom on the macro with most macros within 25 µm of its centre: a view 42 µm wide
+cx, cy = w.session.floorplan.centres()
+mx, my = cx[w.macro_idx], cy[w.macro_idx]
+near = (np.abs(mx[:, None] - mx[None, :]) < 25) & (np.abs(my[:, None] - my[None, :]) < 25)
+k = int(np.argmax(near.sum(axis=1)))
+w.canvas.show_box(mx[k] - 7, my[k] - 7, mx[k] + 7, my[k] + 7, min_span=40.0)
+'''
+
+
+def _notebook(cells) -> nbformat.NotebookNode:
     nb = nbformat.v4.new_notebook()
     nb.metadata["kernelspec"] = {"name": "python3", "display_name": "Python 3",
                                  "language": "python"}
-    nb.cells = [nbformat.v4.new_code_cell(c) for c in (SETUP, STATE, SHOW, READY)]
+    nb.cells = [nbformat.v4.new_code_cell(c) for c in cells]
     return nb
+
+
+def build() -> nbformat.NotebookNode:
+    return _notebook((SETUP, STATE, SHOW, READY))
+
+
+def build_real() -> nbformat.NotebookNode:
+    return _notebook((REAL_SETUP, STATE, SHOW, REAL_ZOOM, READY))
 
 
 if __name__ == "__main__":
     nbformat.write(build(), HERE / "drag_widget.ipynb")
+    nbformat.write(build_real(), HERE / "real_widget.ipynb")

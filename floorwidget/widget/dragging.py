@@ -1,0 +1,178 @@
+"""The one drop path: a macro handle dragged on the canvas (or a test calling :meth:`drop`)
+becomes one Session batch — move (snapped), pin, refine — so one undo reverts it; while the
+drag is under way, the HPWL change of the dragged macros' nets."""
+
+from __future__ import annotations
+
+import time
+from typing import TYPE_CHECKING
+
+import numpy as np
+
+from ..design import FIXED, DesignError
+from ..metrics import nets_hpwl
+from .context import BUSY, Context
+
+if TYPE_CHECKING:
+    from .readouts import Readouts
+
+__all__ = ["Dragging"]
+
+
+class Dragging:
+    """Wires the canvas's drag handles to the Session.
+
+    Attributes
+    ----------
+    refine_options : dict
+        Options of the refine that follows a drop (``Live refine``).
+    last_drag_delta : float or None
+        The HPWL change of the last drag preview, µm.
+    """
+
+    def __init__(self, ctx: Context, readouts: Readouts):
+        self.ctx, self.readouts = ctx, readouts
+        self.refine_options: dict = {}
+        self.last_drag_delta: float | None = None
+        self._drag: dict | None = None
+        c = ctx.canvas
+        self.macro_idx = c.macro_idx
+        h = c.marks["handles"]
+        h.on_drag_start(lambda _m, ev: self.drag_start(ev["index"]))
+        h.on_drag(lambda _m, ev: self.drag_preview(ev["index"], ev["point"]["x"],
+                                                   ev["point"]["y"]))
+        h.on_drag_end(lambda _m, ev: self.drop(ev["index"], ev["point"]["x"], ev["point"]["y"]))
+        h.on_element_click(lambda _m, ev: ctx.select([int(self.macro_idx[ev["index"]])]))
+        h.observe(self._on_brush, names=["selected"])
+
+    def _on_brush(self, change) -> None:
+        sel = change["new"]
+        if sel is not None:
+            self.ctx.select(self.macro_idx[np.asarray(sel, dtype=np.intp)])
+
+    def _group(self, i: int) -> np.ndarray:
+        sel = self.ctx.canvas.selected
+        if sel.size > 1 and i in sel:
+            return sel
+        return np.array([i], dtype=np.intp)
+
+    def drag_start(self, index: int) -> None:
+        """Remember the state a drag starts from (the live HPWL Δ is measured against it)."""
+        i = int(self.macro_idx[index])
+        grp = self._group(i)
+        d, fp = self.ctx.design, self.ctx.session.floorplan
+        nets = d.nets_of(grp)
+        self._drag = {"index": int(index), "group": grp, "nets": nets,
+                      "base": float(nets_hpwl(d, fp, nets).sum()), "fp": fp}
+
+    def drag_preview(self, index: int, x: float, y: float) -> float:
+        """During a drag: the HPWL change of the dragged macros' nets if dropped at centre (x, y).
+
+        Only those nets are measured (:func:`floorwidget.metrics.nets_hpwl`), so this stays fast
+        on large designs.  The dragged rectangles follow the handle.
+
+        Returns
+        -------
+        float
+            HPWL change, µm, against the state when the drag started.
+        """
+        if self._drag is None or self._drag["index"] != int(index) \
+                or self._drag["fp"] is not self.ctx.session.floorplan:
+            self.drag_start(index)
+        dr = self._drag
+        fp0 = dr["fp"]
+        i = int(self.macro_idx[index])
+        cx, cy = fp0.centres()
+        dx, dy = float(x) - cx[i], float(y) - cy[i]
+        grp = dr["group"]
+        tmp = fp0.copy()
+        tmp.x[grp] += dx
+        tmp.y[grp] += dy
+        delta = float(nets_hpwl(self.ctx.design, tmp, dr["nets"]).sum()) - dr["base"]
+        self.last_drag_delta = delta
+        self.ctx.canvas.preview(tmp, grp)
+        self.readouts.refresh(drag_delta=delta)
+        return delta
+
+    def _refused(self, out: dict, msg: str, fp) -> dict:
+        self.ctx.notify(msg, error=True)
+        self.ctx.canvas.update(fp)  # the handle goes back
+        out["message"] = msg
+        return out
+
+    def drop(self, index: int, x: float, y: float) -> dict:
+        """Handle a dropped macro handle: move (snapped), pin, refine — one undoable step.
+
+        Parameters
+        ----------
+        index : int
+            Index of the handle (the macro's position among ``design.macros``).
+        x, y : float
+            New centre of the handle, µm (data coordinates).
+
+        Returns
+        -------
+        dict
+            ``moved`` (names), ``refined`` (bool), ``seconds`` (kernel time), ``message``.
+        """
+        t0 = time.perf_counter()
+        self._drag = None
+        out = {"moved": [], "refined": False, "seconds": 0.0, "message": ""}
+        ctx = self.ctx
+        d, s, c = ctx.design, ctx.session, ctx.canvas
+        nh = len(self.macro_idx)
+        if isinstance(index, (bool, np.bool_)) or not isinstance(index, (int, np.integer)) \
+                or not 0 <= int(index) < nh:  # -1 would silently take the last macro
+            raise IndexError(f"drop: handle index {index!r} is not in 0..{nh - 1} "
+                             f"(one handle per macro)")
+        try:
+            x, y = float(x), float(y)
+        except (TypeError, ValueError):
+            raise TypeError(f"drop: x and y must be numbers, got {x!r}, {y!r}") from None
+        fp = s.floorplan
+        if not (np.isfinite(x) and np.isfinite(y)):
+            return self._refused(out, f"Drop refused: position ({x}, {y}) is not finite.", fp)
+        i = int(self.macro_idx[index])
+        cx, cy = fp.centres()
+        dx, dy = x - cx[i], y - cy[i]
+        if ctx.runner.busy:
+            return self._refused(out, BUSY, fp)
+        # less than half a pixel is a click, not a move
+        if abs(dx) * c.px_per_um < 0.5 and abs(dy) * c.px_per_um < 0.5:
+            ctx.select([i])
+            return out
+        grp = self._group(i)
+        grp = grp[fp.status[grp] != FIXED]
+        if grp.size == 0:
+            self._refused(out, f"{d.names[i]} is fixed by the input and cannot be moved.", fp)
+            out["message"] = "fixed"
+            return out
+        names = [d.names[j] for j in grp]
+        label = f"drag {names[0]}" if len(names) == 1 else f"drag {len(names)} macros"
+        msg = ""
+        moved = []
+        # the dropped macros become the selection; the change event below draws it once
+        c.selected = np.unique(grp)
+        c.focus_group = None
+        try:
+            with s.batch(label):
+                for j, nm in zip(grp, names):
+                    s.move(nm, float(fp.x[j]) + dx, float(fp.y[j]) + dy)
+                if ctx.toggles["Pin on drop"].value:
+                    s.pin(names)
+                if ctx.toggles["Live refine"].value:
+                    t1 = time.perf_counter()
+                    try:
+                        s.refine(**self.refine_options)
+                        out["refined"] = True
+                        ctx.runner.last_solve_s = time.perf_counter() - t1
+                    except DesignError as e:  # PlacementError: keep the move, say why
+                        msg = f"Refine skipped: {e}"
+            moved = names
+        except (DesignError, KeyError) as e:  # the batch was rolled back: nothing moved
+            msg = str(e)
+            c.update(s.floorplan)
+            ctx.selection_changed()
+        ctx.notify(msg, error=bool(msg))
+        out.update(moved=moved, message=msg, seconds=time.perf_counter() - t0)
+        return out
