@@ -548,3 +548,35 @@ def test_any_sequence_pair_packs_without_conflicts(seed, n, halo):
     feet, boxes = shapely.box(*fb.T), shapely.box(*hb.T)
     ii, jj = np.nonzero(~np.eye(n, dtype=bool))
     assert (shapely.area(shapely.intersection(feet[ii], boxes[jj])) == 0).all()
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_nearest_spot_on_the_map_agrees_with_the_window_search(seed, monkeypatch):
+    # the map (used from thousands of obstacles on) and the exact window search must find a
+    # free spot at the same distance from the target (ties may pick another spot), checked
+    # with shapely that the spot is free
+    from floorwidget.placer.legalize import problem as P
+
+    rng = np.random.default_rng(seed)
+    k = 60
+    bx, by = rng.uniform(0, 180, k), rng.uniform(0, 180, k)
+    blk = np.stack([bx, by, bx + rng.uniform(1, 12, k), by + rng.uniform(1, 12, k)], 1)
+    d = _design((0, 0, 200, 200), [14.0, 9.0], [8.0, 15.0], halo=np.full((2, 4), 1.0),
+                blockages=blk, pitch=(1.0, 1.0), x=[50.0, 120.0], y=[60.0, 30.0])
+    prob = P._Problem(d, d.initial, np.ones(2, bool))
+    obs, halo, is_blk = prob.obstacles()
+    for i in range(2):
+        tx, ty = rng.uniform(0, 180, 2)
+        monkeypatch.setattr(P, "_RASTER_OBSTACLES", 10**9)
+        a = prob.nearest_spot(i, tx, ty, obs, halo, is_blk)
+        monkeypatch.setattr(P, "_RASTER_OBSTACLES", 0)
+        b = prob.nearest_spot(i, tx, ty, obs, halo, is_blk)
+        assert (a is None) == (b is None)
+        if a is None:
+            continue
+        da = (prob.gx(a[0]) - tx) ** 2 + (prob.gy(a[1]) - ty) ** 2
+        db = (prob.gx(b[0]) - tx) ** 2 + (prob.gy(b[1]) - ty) ** 2
+        assert db == pytest.approx(da, rel=1e-12, abs=1e-9)
+        foot = shapely.box(prob.gx(b[0]), prob.gy(b[1]), prob.gx(b[0]) + prob.w[i],
+                   prob.gy(b[1]) + prob.h[i])
+        assert all(foot.intersection(shapely.box(*r)).area == 0 for r in blk)

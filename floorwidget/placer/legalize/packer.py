@@ -91,13 +91,14 @@ class _Packer:
         self.gm = np.lexsort((ids, u + v))
 
     def budget(self) -> int:
-        """Default annealing budget: about 4e10 elementary steps (a move costs O(n log n)
-        with node weights, O(n²) otherwise, plus the pins of the macros' nets), at most
-        10,000,000 moves -- under a minute on one core whatever the number of macros."""
+        """Default annealing budget: about 1.5e10 elementary steps (a move costs O(n log n)
+        with node weights, O(n²) otherwise, plus the pins of the macros' nets and the
+        obstacles), at most 10,000,000 moves -- about 20 s on one core whatever the number of
+        macros and blockages (the hardening issue's bound is 30 s)."""
         n = self.n
         steps = (2 * n * np.log2(n + 1) if self.node else n * n) + len(self.nets[1]) \
             + 4 * (n + self.m)
-        return int(np.clip(4e10 / steps, 1000, 10_000_000))
+        return int(np.clip(1.5e10 / steps, 1000, 10_000_000))
 
     def _nets(self):
         """The nets touching M in CSR form for :func:`_sp_pack`: ``(start, macro or -1, x, y,

@@ -9,7 +9,7 @@ from ...design import MACRO, Design, Floorplan, off_grid
 from ...kernels import rects
 from ..constraints import macro_keepouts
 from .lp import _LPMixin
-from .tuning import _EPS, _GRID_TOL
+from .tuning import _EPS, _GRID_TOL, _RASTER_CELLS, _RASTER_OBSTACLES
 
 # ---------------------------------------------------------------------------------------------
 # the problem: movable macros (the set M) against obstacles
@@ -148,6 +148,9 @@ class _Problem(_LPMixin):
         bx = np.array([np.floor(kt[0]), np.ceil(kt[0]), kx0, kx1])
         by = np.array([np.floor(kt[1]), np.ceil(kt[1]), ky0, ky1])
         tol = 1e-6
+        if len(obs) >= _RASTER_OBSTACLES and \
+                (kx1 - kx0 + 1) * (ky1 - ky0 + 1) <= _RASTER_CELLS:
+            return self._nearest_on_map(i, tx, ty, obs, (lp, bp, rp, tp))
         while True:
             last = rad >= full
             if last:
@@ -173,6 +176,43 @@ class _Problem(_LPMixin):
                 return best
             # a free spot found beyond the inscribed circle bounds the optimum's distance
             rad = rad * 2.0 if best is None else float(np.sqrt(d2)) * (1 + 1e-9) + 1e-9
+
+    def _nearest_on_map(self, i, tx, ty, obs, pads):
+        """:meth:`nearest_spot` for many obstacles: every grid point of macro ``i``'s allowed
+        box on one map, each obstacle's forbidden range of corners (open, with the exact float
+        fix-ups of the window search) added by a 2-D difference array, then the free point
+        nearest to ``(tx, ty)``.  Work and memory follow the grid points, not the candidate
+        lines squared times the obstacles (which grew past minutes with thousands of small
+        blockages)."""
+        lp, bp, rp, tp = pads
+        kx0, kx1, ky0, ky1 = (int(v) for v in (self.kx0[i], self.kx1[i], self.ky0[i],
+                                                self.ky1[i]))
+        org = np.array([self.ox, self.oy])
+        pitch = np.array([self.px, self.py])
+        size = np.array([self.w[i], self.h[i]])
+        padlo = np.stack([lp, bp], 1)
+        padhi = np.stack([rp, tp], 1)
+        kr = np.ceil((obs[:, 2:] + padlo - org) / pitch - _EPS)  # first corner clear beyond
+        kr += (org + kr * pitch) - padlo < obs[:, 2:]
+        kl = np.floor((obs[:, :2] - size - padhi - org) / pitch + _EPS)  # last clear before
+        kl -= ((org + kl * pitch) + size) + padhi > obs[:, :2]
+        lo = np.maximum(kl + 1, [kx0, ky0]).astype(np.int64) - [kx0, ky0]
+        hi = np.minimum(kr, [kx1 + 1, ky1 + 1]).astype(np.int64) - [kx0, ky0]  # exclusive
+        ok = (hi > lo).all(axis=1)
+        lo, hi = lo[ok], hi[ok]
+        nx, ny = kx1 - kx0 + 1, ky1 - ky0 + 1
+        diff = np.zeros((nx + 1, ny + 1), np.int32)
+        np.add.at(diff, (lo[:, 0], lo[:, 1]), 1)
+        np.add.at(diff, (hi[:, 0], lo[:, 1]), -1)
+        np.add.at(diff, (lo[:, 0], hi[:, 1]), -1)
+        np.add.at(diff, (hi[:, 0], hi[:, 1]), 1)
+        free = np.cumsum(np.cumsum(diff, axis=0), axis=1)[:nx, :ny] == 0
+        fi, fj = np.nonzero(free)
+        if not len(fi):
+            return None
+        d2 = (self.gx(fi + kx0) - tx) ** 2 + (self.gy(fj + ky0) - ty) ** 2
+        q = int(np.argmin(d2))
+        return float(fi[q] + kx0), float(fj[q] + ky0)
 
     def _first_free(self, i, tx, ty, kxs, kys, obs, pads):
         """Nearest point of the candidate grid ``kxs x kys`` whose box is free of ``obs``:

@@ -12,3 +12,5 @@ _RUN_PER_MACRO = 5000  # most annealing moves per macro in one run (at most half
 _SWAP_WINDOW = 0.01  # swap partners at most this fraction of the macros apart in a sequence
 _POLISH_PER_MACRO = 200  # annealing moves per macro among legal packings, for the quality term
 _SPREAD_MAX = 800  # most macros for the LP over every relation of the sequence pair
+_RASTER_OBSTACLES = 2000  # from this many obstacles the nearest free spot is found on a map ...
+_RASTER_CELLS = 1 << 24   # ... of the grid points, when the map has at most this many
