@@ -17,6 +17,8 @@ Targets (2 cores; defaults, no options), from the issues:
 * GSRC n200 and n300 at 10 % whitespace legal, n300 HPWL ≤ 5.4e5;
 * aes_cipher_top legal, HPWL ≤ 1.10 × reference; ariane136 legal, ≤ 1.15 × reference and
   ≤ 60 s; ariane136 with movable SRAMs legal, ≤ 1.30 × reference;
+* aes-dense (its I/O pins removed, the core shrunk to 82 % utilisation): ≤ 1.15 × its own
+  placement squeezed into that core, overflow ≤ 0.10;
 * every placement judged on congestion p99 (routing demand over supply, 1.0 = full) and
   overflow beside HPWL, against the design's own placement where there is one, and on the
   floorplan's shape (logic regions, narrow channels, macros with pins to a wall).
@@ -51,7 +53,10 @@ DESIGNS = {
     "aes": ("aes_cipher_top", "*.def.gz", "ref", "DEF's own placement"),
     "ariane": ("ariane136", "*.def.gz", "ref", "DEF's own placement"),
     "ariane-movable": ("ariane136", "*.def.gz", "ref", "DEF's own placement"),
+    "aes-dense": ("aes_cipher_top", "*.def.gz", "ref",
+                  "own placement squeezed into the smaller core (not legal; a yardstick)"),
 }
+DENSE_UTIL = 0.82  # "aes-dense": the I/O pins removed, the core shrunk to this utilisation
 
 
 # judged beside HPWL, each against the design's own placement where there is one
@@ -74,6 +79,46 @@ def _movable_copy(def_gz: Path, tmp: Path) -> Path:
     return out
 
 
+def dense_pinless(d, util: float = DENSE_UTIL):
+    """``d`` without its I/O terminals (their pins leave the nets; nets left with one pin go)
+    on a square core shrunk about its lower-left corner until the cells fill ``util`` of it,
+    the rows cut to it; the own placement squeezed by the same factor (a yardstick, not
+    legal); every block movable (the input's fixed tap cells would land on each other).  The
+    case of a dense block without pins to anchor the quadratic system."""
+    import numpy as np
+
+    from floorwidget.design import ORIENT_CODE, TERMINAL, Design
+
+    keep = d.kind != TERMINAL
+    new = np.full(d.num_blocks, -1, np.int64)
+    new[keep] = np.arange(int(keep.sum()))
+    pin_ok = keep[d.pin_block]
+    deg = np.add.reduceat(pin_ok.astype(np.int64), d.net_start[:-1]) \
+        if d.num_nets else np.zeros(0, np.int64)
+    net_ok = deg >= 2
+    pins = pin_ok & np.repeat(net_ok, np.diff(d.net_start))
+    start = np.concatenate([[0], np.cumsum(deg[net_ok])])
+    area = float(np.sum(d.width[keep] * d.height[keep]))
+    c = d.core
+    side = np.sqrt(area / util)
+    rh, sw = float(d.row_height[0]), float(d.row_site_width[0])
+    nrows = int(np.ceil(side / rh))
+    nsites = int(np.ceil(side / sw))
+    rows = {"x": np.full(nrows, c[0]), "y": c[1] + rh * np.arange(nrows),
+            "height": np.full(nrows, rh), "site_width": np.full(nrows, sw),
+            "num_sites": np.full(nrows, nsites),
+            "orient": np.where(np.arange(nrows) % 2, ORIENT_CODE["FS"], ORIENT_CODE["N"])}
+    f = side / max(c[2] - c[0], c[3] - c[1])
+    ini = d.initial
+    die = (c[0] - 1.0, c[1] - 1.0, c[0] + nsites * sw + 1.0, c[1] + nrows * rh + 1.0)
+    names = [d.names[i] for i in np.flatnonzero(keep)]
+    return Design(f"{d.name}-dense", die, names, d.kind[keep], d.width[keep], d.height[keep],
+                  start, new[d.pin_block[pins]], d.pin_dx[pins], d.pin_dy[pins],
+                  net_weight=d.net_weight[net_ok], rows=rows,
+                  x=c[0] + (ini.x[keep] - c[0]) * f, y=c[1] + (ini.y[keep] - c[1]) * f,
+                  status=np.zeros(int(keep.sum()), np.int8), validate=True)  # all to place
+
+
 def _child(name: str, data: Path) -> dict:
 
     import floorwidget as fw
@@ -87,6 +132,8 @@ def _child(name: str, data: Path) -> dict:
         if name == "ariane-movable":
             path = _movable_copy(path, Path(tmp))
         d = fw.load(path, lef=lef)
+        if name == "aes-dense":
+            d = dense_pinless(d)
         out: dict = {"name": name}
         own = fw.evaluate(d) if ref == "ref" else None
         out["ref"] = own["hpwl"] if own else ref
