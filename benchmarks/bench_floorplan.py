@@ -4,8 +4,8 @@ synthetic macro-heavy designs.
 ``python benchmarks/bench_floorplan.py [--quick] [--only demo,ibm01,synth-a,synth-b]``
 
 Each design is placed with ``fw.place(design, seed=0, macro_layout=L)`` for L in free,
-periphery and auto (the default), and measured with ``fw.evaluate``.  Columns: HPWL (and its
-ratio to the free layout's), RUDY p99, macros on the periphery (movable macros against the core
+periphery, arrays and auto (the default), and measured with ``fw.evaluate``.  Columns: HPWL (and its
+ratio to the free layout's), congestion p99 (demand over supply), macros on the periphery (movable macros against the core
 boundary or abutted to a macro that is, :func:`floorwidget.metrics.periphery_macros`, over all
 movable macros), narrow channels, logic regions (and the largest one's share of the free area),
 macros with pins facing a wall, legal, wall seconds.
@@ -34,7 +34,7 @@ ROOT = Path(__file__).resolve().parents[1]
 DATA = ROOT.parent / "shared" / "realdata"
 sys.path.insert(0, str(ROOT))
 
-LAYOUTS = ("free", "periphery", "auto")
+LAYOUTS = ("free", "periphery", "arrays", "auto")
 
 
 def designs(quick: bool, only: set[str] | None):
