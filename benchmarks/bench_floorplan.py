@@ -4,11 +4,12 @@ synthetic macro-heavy designs.
 ``python benchmarks/bench_floorplan.py [--quick] [--only demo,ibm01,synth-a,synth-b]``
 
 Each design is placed with ``fw.place(design, seed=0, macro_layout=L)`` for L in free,
-periphery, arrays and auto (the default), and measured with ``fw.evaluate``.  Columns: HPWL (and its
-ratio to the free layout's), congestion p99 (demand over supply), macros on the periphery (movable macros against the core
-boundary or abutted to a macro that is, :func:`floorwidget.metrics.periphery_macros`, over all
-movable macros), narrow channels, logic regions (and the largest one's share of the free area),
-macros with pins facing a wall, legal, wall seconds.
+periphery, arrays and auto (the default), and measured with ``fw.evaluate``.  Columns: HPWL
+(and its ratio to the free layout's), congestion p99 (demand over supply), macros on the
+periphery (movable macros against the core boundary or abutted to a macro that is,
+:func:`floorwidget.metrics.periphery_macros`, over all movable macros), narrow channels,
+logic regions (and the largest one's share of the free area), macros with pins facing a
+wall, legal, wall seconds.
 
 Designs: ``demo`` (demo_data/heron_dsp.json), ``ibm01`` (``../shared/realdata/ibm01-mixed``,
 skipped when missing), ``synth-a`` (Rent's-rule netlist, 2e4 cells, 30 macros) and ``synth-b``
