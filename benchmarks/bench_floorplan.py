@@ -19,7 +19,7 @@ synthetic design only.
 
 Targets (issue: floorplans an engineer would sign off), for the demo with defaults: every
 movable macro on the periphery, ``narrow_channels`` 0, ``logic_regions`` 1,
-``macros_facing_wall`` 0, HPWL within 1.10 x the free layout's, RUDY p99 no worse than free's.
+``macros_facing_wall`` 0, HPWL within 1.10 x the free layout's, cong p99 no worse than free's.
 
 The figures are early-floorplanning estimates; sign-off belongs to the implementation flow.
 """
@@ -87,7 +87,7 @@ def main(argv: list[str] | None = None) -> int:
     args = ap.parse_args(argv)
     only = {s for s in args.only.split(",") if s} or None
 
-    head = (f"{'design':<9} {'layout':<14} {'HPWL':>10} {'x free':>6} {'RUDY p99':>8} "
+    head = (f"{'design':<9} {'layout':<14} {'HPWL':>10} {'x free':>6} {'cong p99':>8} "
             f"{'periphery':>9} {'narrow':>6} {'regions':>13} {'wall':>4} {'legal':>5} "
             f"{'s':>6}")
     print(head)
