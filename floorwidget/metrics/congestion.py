@@ -107,11 +107,16 @@ def routing_supply(design: Design) -> tuple[float, float, bool]:
     return s, s, True
 
 
-def congestion_of_boxes(design: Design, grid: BinGrid, box: np.ndarray) -> np.ndarray:
+def congestion_of_boxes(design: Design, grid: BinGrid, box: np.ndarray,
+                        rudy: bool = False):
     """Demand over supply per bin (1.0 = full): the larger of the horizontal RUDY over the
-    horizontal supply and the vertical over the vertical (:func:`routing_supply`)."""
+    horizontal supply and the vertical over the vertical (:func:`routing_supply`).  With
+    ``rudy`` also the plain RUDY map (their sum), from the same two maps: ``(congestion,
+    rudy)``."""
     sh, sv, _ = routing_supply(design)
-    return np.maximum(rudy_of_boxes(grid, box, "h") / sh, rudy_of_boxes(grid, box, "v") / sv)
+    h, v = rudy_of_boxes(grid, box, "h"), rudy_of_boxes(grid, box, "v")
+    cong = np.maximum(h / sh, v / sv)
+    return (cong, h + v) if rudy else cong
 
 
 def congestion_map(design: Design, fp: Floorplan, grid: BinGrid | None = None) -> np.ndarray:

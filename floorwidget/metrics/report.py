@@ -10,7 +10,7 @@ import numpy as np
 
 from ..design import CELL, Design, Floorplan
 from ..kernels.fill import covered_share
-from .congestion import congestion_of_boxes, congestion_stats, rudy_of_boxes
+from .congestion import congestion_of_boxes, congestion_stats
 from .density import bin_grid, density_map
 from .legality import cell_legality, legality, pinned_illegal
 from .shape import logic_regions, macros_facing_wall, narrow_channels
@@ -87,8 +87,9 @@ def evaluate(design: Design, fp: Floorplan | None = None, target_density: float 
     box = net_boxes(design, fp)
     per = (box[:, 2] - box[:, 0]) + (box[:, 3] - box[:, 1])
     dm = density_map(design, fp, grid)
-    rpeak, rp99 = congestion_stats(rudy_of_boxes(grid, box))
-    peak, p99 = congestion_stats(congestion_of_boxes(design, grid, box))
+    cong, rudy = congestion_of_boxes(design, grid, box, rudy=True)
+    rpeak, rp99 = congestion_stats(rudy)
+    peak, p99 = congestion_stats(cong)
     leg = legality(design, fp)
     cl = cell_legality(design, fp)
     lr = logic_regions(design, fp)
