@@ -1,0 +1,7 @@
+"""Making a floorplan from a netlist: die, core, rows and tracks (``init``), I/O pin
+assignment (``pins``) and the power grid (``power``).
+
+These are the steps an engineer takes before macros and cells are placed. The package sits
+beside ``placer``: it may import ``placer``, ``metrics``, ``formats``, ``design`` and
+``kernels``; ``session``, ``cli`` and ``widget`` import it.
+"""
