@@ -19,6 +19,7 @@ import time
 import numpy as np
 
 from ..design import MACRO, MOVABLE, TERMINAL, Design, Floorplan
+from .field import field_spread, usable
 from .macro_layout import ARRAY_ROUNDS, arrange_macros, choose_layout, place_arrays
 from .options import PlacerOptions
 from .solve import spectral_coordinates
@@ -31,7 +32,7 @@ from .stages import (
     write_back,
 )
 
-__all__ = ["cells_stage", "global_stage", "place_flat"]
+__all__ = ["cells_stage", "global_stage", "place_flat", "spread_by_field"]
 
 
 def place_flat(design: Design, src: Floorplan, target: float, opts: PlacerOptions, mult,
@@ -86,7 +87,26 @@ def global_stage(design: Design, src: Floorplan, target: float, opts: PlacerOpti
     info["bins"] = res["bins"]
     info["stage_seconds"]["global"] = time.perf_counter() - t0
     report(progress, "global", 1.0, {"overflow": res["overflow"]})
+    if macro_area == 1.0:
+        spread_by_field(design, out, movable, target, opts, mult, seed, info, progress)
     return out, res["overflow"]
+
+
+def spread_by_field(design: Design, out: Floorplan, var_mask: np.ndarray, target: float,
+                    opts: PlacerOptions, mult, seed: int, info: dict, progress: Progress
+                    ) -> None:
+    """The cells spread by the field (stage ``"field"``, :mod:`~floorwidget.placer.field`)
+    when ``spreading="field"`` and the objects are standard cells in a design without cell
+    regions; ``out`` changes in place."""
+    if opts.spreading != "field" or not usable(design, out, var_mask):
+        return
+    t0 = time.perf_counter()
+    res = field_spread(design, out, var_mask, min(opts.spread_density, target), mult,
+                       progress, seed=seed)
+    info["stage_iterations"]["field"] = res["iterations"]
+    info["field_overflow"] = res["overflow"]
+    info["stage_seconds"]["field"] = time.perf_counter() - t0
+    report(progress, "field", 1.0, {"overflow": res["overflow"]})
 
 
 def cells_stage(design: Design, out: Floorplan, src: Floorplan, target: float,
@@ -111,6 +131,7 @@ def cells_stage(design: Design, out: Floorplan, src: Floorplan, target: float,
         info["bins"] = res["bins"]
     info["stage_seconds"]["cells"] = time.perf_counter() - t0
     report(progress, "cells", 1.0, {"overflow": ov})
+    spread_by_field(design, out, soft, target, opts, mult, 0, info, progress)
     return out, ov
 
 
