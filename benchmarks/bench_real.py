@@ -119,43 +119,50 @@ def dense_pinless(d, util: float = DENSE_UTIL):
                   status=np.zeros(int(keep.sum()), np.int8), validate=True)  # all to place
 
 
-def _child(name: str, data: Path) -> dict:
-
+def load_design(name: str, data: Path):
+    """The benchmark design ``name`` (a key of :data:`DESIGNS`) read from ``data``."""
     import floorwidget as fw
-    from floorwidget.design import CELL, MACRO, MOVABLE
-    from floorwidget.placer.flow import utilisation
 
-    folder, pattern, ref, _ = DESIGNS[name]
+    folder, pattern, _, _ = DESIGNS[name]
     path = next((data / folder).glob(pattern))
     lef = _lefs(data / folder) if path.name.endswith((".def", ".def.gz")) else None
     with tempfile.TemporaryDirectory() as tmp:
         if name == "ariane-movable":
             path = _movable_copy(path, Path(tmp))
         d = fw.load(path, lef=lef)
-        if name == "aes-dense":
-            d = dense_pinless(d)
-        out: dict = {"name": name}
-        own = fw.evaluate(d) if ref == "ref" else None
-        out["ref"] = own["hpwl"] if own else ref
-        out["own"] = {k: own[k] for k in FIGURES} if own else None
-        st = d.initial.status
-        out["cells"] = int((d.kind == CELL).sum())
-        out["macros"] = int((d.kind == MACRO).sum())
-        out["movable_macros"] = int(((d.kind == MACRO) & (st == MOVABLE)).sum())
-        out["util"] = utilisation(d, d.initial)
-        t = time.perf_counter()
-        c = time.process_time()
-        fp = fw.place(d)
-        out["wall"] = time.perf_counter() - t
-        out["cpu"] = time.process_time() - c
-        rep = fw.evaluate(d, fp)
-        out["hpwl_global"] = fp.info.get("hpwl_global", rep["hpwl"])
-        out["hpwl"] = rep["hpwl"]
-        out["legal"] = rep["legal"]
-        out["target"] = rep["target_density"]
-        out["stages"] = {k: round(v, 1) for k, v in fp.info["stage_seconds"].items()}
-        out["figures"] = {k: rep[k] for k in FIGURES}
-        out["layout"] = fp.info.get("macro_layout", "")
+    return dense_pinless(d) if name == "aes-dense" else d
+
+
+def _child(name: str, data: Path) -> dict:
+
+    import floorwidget as fw
+    from floorwidget.design import CELL, MACRO, MOVABLE
+    from floorwidget.placer.flow import utilisation
+
+    ref = DESIGNS[name][2]
+    d = load_design(name, data)
+    out: dict = {"name": name}
+    own = fw.evaluate(d) if ref == "ref" else None
+    out["ref"] = own["hpwl"] if own else ref
+    out["own"] = {k: own[k] for k in FIGURES} if own else None
+    st = d.initial.status
+    out["cells"] = int((d.kind == CELL).sum())
+    out["macros"] = int((d.kind == MACRO).sum())
+    out["movable_macros"] = int(((d.kind == MACRO) & (st == MOVABLE)).sum())
+    out["util"] = utilisation(d, d.initial)
+    t = time.perf_counter()
+    c = time.process_time()
+    fp = fw.place(d)
+    out["wall"] = time.perf_counter() - t
+    out["cpu"] = time.process_time() - c
+    rep = fw.evaluate(d, fp)
+    out["hpwl_global"] = fp.info.get("hpwl_global", rep["hpwl"])
+    out["hpwl"] = rep["hpwl"]
+    out["legal"] = rep["legal"]
+    out["target"] = rep["target_density"]
+    out["stages"] = {k: round(v, 1) for k, v in fp.info["stage_seconds"].items()}
+    out["figures"] = {k: rep[k] for k in FIGURES}
+    out["layout"] = fp.info.get("macro_layout", "")
     out["peak_mb"] = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
     return out
 

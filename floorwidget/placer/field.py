@@ -37,14 +37,14 @@ from ..design import CELL, FENCE, Design, Floorplan, orient_offsets
 from .constraints import partial_capacity_loss
 from .netmodel import NetTopology
 from .spread import Grid, capacity_map, make_grid
-from .stages import Progress, obstacles, report
+from .stages import TARGET_MARGIN, Progress, obstacles, report
 
 __all__ = ["STOP_OVERFLOW", "field_spread", "usable"]
 
 STOP_OVERFLOW = 0.12  # the cells' overflow over spread_density at which spreading stops
 LAMBDA_GROWTH = 1.05  # the density weight's growth per step
-STALL_STEPS = 20  # stop when the overflow has not improved by 2 % in this many steps...
-STALL_BELOW = 0.25  # ...once it is under this
+STALL_STEPS = 20  # stop when the overflow has not improved by 2 % in this many steps once
+STALL_BELOW = 0.25  # it is under this (above it: five times as many steps)
 MAX_STEPS = 1500
 
 
@@ -167,17 +167,21 @@ def field_spread(design: Design, fp: Floorplan, var_mask: np.ndarray, density: f
     design, fp : the design and a floorplan whose cells are already roughly spread.
     var_mask : (n,) bool, the cells to move (see :func:`usable`).
     density : float
-        The density the cells settle at (``spread_density``), 0 < density ≤ 1.
+        The density the cells settle at (``spread_density``), 0 < density ≤ 1; a design
+        fuller than that settles at its utilisation plus ``TARGET_MARGIN``.
     multiplier : net weight multipliers (``net_weight_scale``).
     """
     var = np.flatnonzero(var_mask)
     nm = len(var)
     w, h = fp.sizes()
     cx, cy = fp.centres()
-    fld = _Field(design, fp, var_mask, density, nm)
-    g = fld.g
     q_cells = w[var] * h[var]
     mov_area = float(q_cells.sum())
+    full = _Field(design, fp, var_mask, 1.0, nm)  # a fuller design settles at its fill
+    density = max(density, min(1.0, mov_area / max(float(full.cap.sum()), 1e-300)
+                               + TARGET_MARGIN))
+    fld = _Field(design, fp, var_mask, density, nm)
+    g = fld.g
     # fillers: the room between the cells and density x the free area
     mid = np.sort(q_cells)[int(0.1 * nm):max(int(0.9 * nm), int(0.1 * nm) + 1)]
     f_area = max(float(mid.mean()), 0.25 * g.bin_area)  # (small fillers: many, no better)
@@ -270,7 +274,7 @@ def field_spread(design: Design, fp: Floorplan, var_mask: np.ndarray, density: f
             best, since = ov, 0
         else:
             since += 1
-            if since >= STALL_STEPS and ov < STALL_BELOW:
+            if since >= (STALL_STEPS if ov < STALL_BELOW else 5 * STALL_STEPS):
                 break
         if it % 10 == 0:
             report(progress, stage, min(1.0, it / 300), {"iteration": it, "overflow": ov})
@@ -278,4 +282,5 @@ def field_spread(design: Design, fp: Floorplan, var_mask: np.ndarray, density: f
         d = direction(*gradients(v[0], v[1], ov), lam)
     fp.x[var] = u[0][:nm] - w[var] / 2
     fp.y[var] = u[1][:nm] - h[var] / 2
-    return {"iterations": it, "overflow": ov, "fillers": nf, "bins": (g.nx, g.ny)}
+    return {"iterations": it, "overflow": ov, "fillers": nf, "bins": (g.nx, g.ny),
+            "density": density}

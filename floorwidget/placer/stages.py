@@ -372,8 +372,8 @@ def rows_stage(design: Design, out: Floorplan, src: Floorplan, opts: PlacerOptio
         frozen = None
         if opts.max_inflation > 1.0 and only is None:  # keep open the hot spots spread apart
             frozen = congestion_map(design, out) > opts.congestion_target
-        if "field_overflow" in info:  # keep the room the field left for routing
-            target = min(target, opts.spread_density)
+        if "field_density" in info:  # keep the room the field left for routing
+            target = min(target, info["field_density"])
         got = []
         for grp, keep, avoid in groups:
             out, facts = detailed_place(design, out, grp, passes=passes,
