@@ -183,7 +183,7 @@ def _layer_table(design: Design) -> tuple[dict[str, tuple[str, float]], tuple[st
     above = layers[1:] or layers
     default = []
     for want in ("H", "V"):
-        pick = next((n for n, d, _ in above if d == want), None)
+        pick = next((n for n, d, _ in above + layers if d == want), None)
         if pick is None:  # no layer data: an assumed layer, as the congestion figures do
             from ..metrics.congestion import ASSUMED_TRACKS  # noqa: PLC0415
 
