@@ -6,6 +6,4 @@ beside ``placer``: it may import ``placer``, ``metrics``, ``formats``, ``design`
 ``kernels``; ``session``, ``cli`` and ``widget`` import it.
 """
 
-from .pins import PinConstraints, PinGroup, assign_pins, assign_pins_iterated  # noqa: E402
-
-__all__ = ["PinConstraints", "PinGroup", "assign_pins", "assign_pins_iterated"]
+from .pins import PinConstraints, PinGroup, assign_pins, assign_pins_iterated  # noqa: F401
