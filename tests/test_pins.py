@@ -455,3 +455,23 @@ def test_ariane136_assignment_beats_the_designs_own_pins(ariane136):
             for m in range(k + 1, min(k + 40, len(shapes))):
                 assert shapes[k].intersection(shapes[m]).area < 1e-9
     assert EDGES  # the edges are named for the messages
+
+
+def test_widget_pin_drag_snaps_through_session_move(wren_design):
+    pytest.importorskip("bqplot")
+    from floorwidget.widget import FloorplanWidget
+
+    d = wren_design
+    w = FloorplanWidget(d)
+    t = np.flatnonzero(d.kind == TERMINAL)
+    k = int(np.flatnonzero(t == d.block("data[2]"))[0])
+    assert w.dragging.ctx.canvas.marks["terminals"].enable_move
+    out = w.drop_pin(k, 12.33, 29.9)  # the centre dropped near the top edge
+    # the same place Session.move gives (see test_moving_an_io_pin_snaps_to_a_free_slot)
+    assert out["position"] == pytest.approx((12.25 - 0.05, 29.8))
+    assert w.session.log[-1]["op"] == "move"
+    tm = w.dragging.ctx.canvas.marks["terminals"]
+    assert tm.x[k] == pytest.approx(12.25) and tm.y[k] == pytest.approx(29.9)
+    w.session.undo()
+    assert w.session.floorplan.identical(d.initial)
+    assert w.drop_pin(int(np.flatnonzero(t == d.block("rst_n"))[0]), 5.0, 29.9)["message"]
