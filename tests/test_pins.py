@@ -110,6 +110,18 @@ def test_assignment_equals_linear_sum_assignment_on_a_matrix_built_here():
     assert ours == pytest.approx(optimum, rel=1e-12, abs=1e-9)
     on_slot = {(a, b) for a, b in zip(sx.tolist(), sy.tolist())}
     assert set(zip(fp.x[t].tolist(), fp.y[t].tolist())) <= on_slot
+    # with a group: io10..io13 on the bottom edge between x = 30 and 34 (five slots)
+    grp = PinConstraints([PinGroup("io1?", ("bottom",), (30.0, 34.0))], corner_keepout=keep)
+    allowed = (sy == 0) & (sx >= 30) & (sx <= 34)
+    limited = cost.copy()
+    limited[10:, ~allowed] = 1e12
+    r, c = linear_sum_assignment(limited)
+    fp = assign_pins(d, d.initial, grp)
+    ours = sum(_net_hpwl(np.append([cells[c][0] + 0.5 for c in cs], fp.x[t[p]]),
+                         np.append([cells[c][1] + 0.5 for c in cs], fp.y[t[p]]))
+               for p, cs in enumerate(nets))
+    assert ours == pytest.approx(limited[r, c].sum(), rel=1e-12, abs=1e-9)
+    assert np.all((fp.y[t[10:]] == 0) & (fp.x[t[10:]] >= 30) & (fp.x[t[10:]] <= 34))
 
 
 def test_pins_on_no_net_and_the_rest_of_the_floorplan_stay_bit_for_bit():

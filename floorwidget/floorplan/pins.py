@@ -304,11 +304,10 @@ def _select(design: Design, fp: Floorplan, cons: PinConstraints, table, default)
         rx = grp.regex()
         hit = np.array([rx.fullmatch(nm) is not None for nm in free_names], bool)
         if not hit.any():
-            any_pin = any(rx.fullmatch(nm) for nm in names)
-            why = ("matches only held pins" if any_pin
-                   else "matches no I/O pin")
-            raise DesignError(f"pin group {grp.pattern!r} {why} of design {design.name!r}",
-                              where=f"pin group {grp.pattern!r}")
+            if any(rx.fullmatch(nm) for nm in names):
+                continue  # only held pins: nothing to place
+            raise DesignError(f"pin group {grp.pattern!r} matches no I/O pin of design "
+                              f"{design.name!r}", where=f"pin group {grp.pattern!r}")
         hit &= group < 0  # the first matching group applies
         group[hit] = g
         if grp.edges:
@@ -616,7 +615,8 @@ def _order_groups(design, cons: PinConstraints, pins: _Pins, edge_of, pos_of, po
 def snap_pin(design: Design, fp: Floorplan, i: int, x: float, y: float) -> tuple[float, float]:
     """Where I/O pin ``i`` goes when asked for lower-left ``(x, y)``: the nearest free slot
     of its layer on the die edge nearest the requested centre (among the edges its layer
-    allows), every other I/O pin where ``fp`` has it.
+    allows), every other I/O pin where ``fp`` has it.  No corner keep-out applies: a hand
+    move may go anywhere along the edge.
 
     Raises
     ------
