@@ -18,12 +18,12 @@ Assignment
     Pins and slots are a linear assignment problem (Kuhn, Naval Research Logistics Quarterly,
     1955; solved by :func:`scipy.optimize.linear_sum_assignment`): the cost of pin ``p`` in
     slot ``s`` is the (weighted) HPWL of ``p``'s nets with ``p`` at ``s`` and every other pin
-    where the floorplan has it.  The matrix is kept small without losing exactness: along one
-    edge the cost is convex in the slot position, so the ``n`` cheapest slots of a pin on that
-    edge are the ``n`` nearest its minimiser, and when each pin may use its ``n`` cheapest
-    slots (``n`` at least the number of pins competing for them) some optimal assignment uses
-    only those (a pin outside them can move to one left free at no extra cost).  Pins that
-    share no slot pool are solved as separate problems.  :func:`assign_pins_iterated`
+    where the floorplan has it.  The matrix is kept small without losing exactness: each pin
+    keeps only its ``n`` cheapest slots (``n`` the number of pins competing for them), and
+    some optimal assignment uses only those (a pin outside them can move to one left free at
+    no extra cost); the costs of every slot are evaluated (cheap, vectorised), only the
+    assignment sees the reduced matrix.  Pins that share no slot pool are solved as separate
+    problems (in practice one per layer).  :func:`assign_pins_iterated`
     alternates the assignment with placement (assign, place, assign ...).
 
 Constraints (:class:`PinConstraints`)
@@ -58,6 +58,7 @@ EDGES = ("left", "bottom", "right", "top")
 _ALONG_X = np.array([False, True, False, True])  # bottom and top run along x
 _EDGE_DIR = ("H", "V", "H", "V")  # the track direction that crosses each edge
 _BIG = 1e30  # a forbidden (pin, slot) entry
+_CHUNK = 4_000_000  # pins x slots evaluated at once when choosing candidates
 _EPS = 1e-9
 
 
@@ -387,13 +388,23 @@ def pin_cost_matrix(design: Design, fp: Floorplan, idx, edges, pos) -> np.ndarra
     """Cost of each pin ``idx[p]`` at each slot ``(edges[s], pos[s])``: the weighted HPWL of
     its nets with it there and every other pin where ``fp`` has it.  ``(p, s)``."""
     idx = np.asarray(idx, np.int64)
-    edges, pos = np.asarray(edges, np.int64), np.asarray(pos, np.float64)
     boxes = _net_boxes(design, fp, idx)
-    row = boxes[0]
-    cx, cy = _centre_at(design, fp, idx[row][:, None], edges[None, :], pos[None, :])
-    per = _cost(boxes, cx, cy)
-    agg = csr_matrix((np.ones(len(row)), (row, np.arange(len(row)))),
-                     shape=(len(idx), len(row)))
+    return _pin_costs(design, fp, boxes, idx, np.arange(len(idx)), edges, pos)
+
+
+def _pin_costs(design, fp, boxes, idx, rows, edges, pos) -> np.ndarray:
+    """:func:`pin_cost_matrix` for the pins ``idx[rows]`` from the connections ``boxes`` of
+    every pin in ``idx`` (:func:`_net_boxes`)."""
+    row, wt, ox, oy, bb = boxes
+    local = np.full(len(idx), -1, np.int64)
+    local[rows] = np.arange(len(rows))
+    sel = np.flatnonzero(local[row] >= 0)
+    edges = np.broadcast_to(np.asarray(edges, np.int64), np.shape(pos))
+    pos = np.asarray(pos, np.float64)
+    cx, cy = _centre_at(design, fp, idx[row[sel]][:, None], edges[None, :], pos[None, :])
+    per = _cost((row[sel], wt[sel], ox[sel], oy[sel], bb[sel]), cx, cy)
+    agg = csr_matrix((np.ones(len(sel)), (local[row[sel]], np.arange(len(sel)))),
+                     shape=(len(rows), len(sel)))
     return np.asarray(agg @ per)
 
 
@@ -504,43 +515,33 @@ def _remove_held(design, fp, pools, held, table, default) -> None:
         pool.pos = pool.pos[np.abs(pool.pos - c) >= reach - _EPS]
 
 
-def _best_coordinate(boxes, n: int, e: int) -> np.ndarray:
-    """Per pin, the along-edge coordinate of least cost on edge ``e`` (the middle of the
-    other pins' box, of its first net; NaN without one)."""
-    row, bb = boxes[0], boxes[4]
-    first = np.full(n, -1, np.int64)
-    first[row[::-1]] = np.arange(len(row))[::-1]
-    lo_k, hi_k = (0, 1) if _ALONG_X[e] else (2, 3)
-    f = np.maximum(first, 0)
-    mid = (bb[f, lo_k] + bb[f, hi_k]) / 2 if len(row) else np.full(n, np.nan)
-    return np.where((first >= 0) & np.isfinite(mid), mid, np.nan)
-
-
 def _solve(design, fp, pins: _Pins, rows, ks, keys, member, pools, boxes):
     """One independent problem: pins ``rows`` and the pools ``ks`` they share; ``(edge,
     coordinate)`` of each."""
     n = len(rows)
     cand_k, cand_s = [], []
-    best = {e: _best_coordinate(boxes, len(pins.idx), e) for e in range(4)}
     for k in ks.tolist():
-        pos = pools[keys[k]].pos
-        r = rows[member[rows, k]]
-        if not len(pos) or not len(r):
+        pos, e = pools[keys[k]].pos, keys[k][1]
+        use = rows[member[rows, k]]
+        if not len(pos) or not len(use):
             continue
-        # the 2n slots nearest each pin's best coordinate within its span: its n cheapest
-        # on this edge are among them (the cost is convex along the edge)
-        mid = best[keys[k][1]][r]
-        mid = np.where(np.isnan(mid), pos[len(pos) // 2], mid)
-        lo, hi = pins.span[r, 0], pins.span[r, 1]
-        ia = np.searchsorted(pos, lo - _EPS, side="left")
-        ib = np.searchsorted(pos, hi + _EPS, side="right")
-        j = np.clip(np.searchsorted(pos, np.clip(mid, lo, hi)), ia, ib)
-        a = np.maximum(ia, np.minimum(j - n, ib - 2 * n))
-        cnt = np.maximum(np.minimum(ib, a + 2 * n) - a, 0)
-        take = np.unique(np.repeat(a - (np.cumsum(cnt) - cnt), cnt)
-                         + np.arange(int(cnt.sum())))
-        cand_k.append(np.full(len(take), k))
-        cand_s.append(pos[take])
+        # each pin's n cheapest slots of this pool within its span: if every pin may use its
+        # n cheapest, some optimal assignment uses only those (a pin elsewhere can move to one
+        # of them left free, at no extra cost), so the union of them is enough
+        m = min(n, len(pos))
+        step = max(1, _CHUNK // len(pos))
+        for c0 in range(0, len(use), step):  # chunks keep the rows x slots array small
+            r = use[c0:c0 + step]
+            cost = _pin_costs(design, fp, boxes, pins.idx, r, e, pos)
+            out = (pos[None, :] < pins.span[r, :1] - _EPS) \
+                | (pos[None, :] > pins.span[r, 1:] + _EPS)
+            cost[out] = np.inf
+            take = np.unique(np.argpartition(cost, m - 1, axis=1)[:, :m])
+            cand_k.append(np.full(len(take), k))
+            cand_s.append(pos[take])
+    if cand_s:  # a slot may be among several pins' cheapest
+        uk = np.unique(np.stack([np.concatenate(cand_k), np.concatenate(cand_s)], 1), axis=0)
+        cand_k, cand_s = [uk[:, 0].astype(np.int64)], [uk[:, 1]]
     ck = np.concatenate(cand_k) if cand_k else np.zeros(0, np.int64)
     cs = np.concatenate(cand_s) if cand_s else np.zeros(0)
     ce = np.array([keys[k][1] for k in range(len(keys))], np.int64)[ck]
@@ -548,7 +549,7 @@ def _solve(design, fp, pins: _Pins, rows, ks, keys, member, pools, boxes):
         & (cs[None, :] <= pins.span[rows, 1:] + _EPS)
     if len(cs) < n:
         raise DesignError(_no_room(design, pins, rows, ks, keys, ok))
-    cost = np.where(ok, pin_cost_matrix(design, fp, pins.idx[rows], ce, cs), _BIG)
+    cost = np.where(ok, _pin_costs(design, fp, boxes, pins.idx, rows, ce, cs), _BIG)
     r_i, c_i = linear_sum_assignment(cost)
     if (cost[r_i, c_i] >= _BIG).any():
         raise DesignError(_no_room(design, pins, rows, ks, keys, ok))
