@@ -206,12 +206,17 @@ def pin_edge(design: Design, fp: Floorplan, idx) -> np.ndarray:
     return np.argmin(dist, axis=1)
 
 
+def _io_layers(design: Design) -> dict[str, str]:
+    """``design.io_layers`` (empty for a design pickled before it existed)."""
+    return getattr(design, "io_layers", None) or {}
+
+
 def _pin_layers(design: Design, table, default, idx) -> tuple[list[str | None], np.ndarray]:
     """Per pin: its own layer (None when it takes the edge's default) and ``(p, 4)`` the
     edges that layer allows."""
     own: list[str | None] = []
     for i in np.asarray(idx).tolist():  # I/O pins: thousands at most
-        nm = design.io_layers.get(design.names[i])
+        nm = _io_layers(design).get(design.names[i])
         own.append(nm if nm in table else None)
     allow = np.ones((len(own), 4), bool)
     for k, nm in enumerate(own):
@@ -498,21 +503,30 @@ def _total(boxes, cx, cy) -> float:
 
 
 def _remove_held(design, fp, pools, held, table, default) -> None:
-    """Drop the slots a held pin's shape touches (same layer, same edge)."""
+    """Drop the slots a held pin's shape touches (same layer, its nearest edge)."""
     if len(held) == 0:
         return
     edge = pin_edge(design, fp, held)
+    own, _ = _pin_layers(design, table, default, held)
     w, h = fp.sizes()
     cx, cy = fp.centres()
-    for i, e in zip(held.tolist(), edge.tolist()):  # held I/O pins: thousands at most
-        nm = design.io_layers.get(design.names[i])
-        lay = nm if nm in table else default[0 if _EDGE_DIR[e] == "H" else 1]
-        pool = pools.get((lay, e))
-        if pool is None or not len(pool.pos):
+    along = np.where(_ALONG_X[edge], cx[held], cy[held])
+    half = _along_width(w[held], h[held], edge) / 2
+    lay = np.array([_layer_at([o], default, e)[0] for o, e in zip(own, edge.tolist())],
+                   dtype=object)
+    for key, pool in pools.items():
+        sel = (edge == key[1]) & (lay == key[0])
+        if not sel.any() or not len(pool.pos):
             continue
-        c = cx[i] if _ALONG_X[e] else cy[i]
-        reach = (pool.width + float(_along_width(w[i], h[i], e))) / 2
-        pool.pos = pool.pos[np.abs(pool.pos - c) >= reach - _EPS]
+        # a slot is taken when it lies strictly inside some held shape widened by half the
+        # pool's pin: sort the intervals by their low end, keep the running maximum high end
+        lo = along[sel] - half[sel] - pool.width / 2
+        hi = along[sel] + half[sel] + pool.width / 2
+        order = np.argsort(lo)
+        lo, reach = lo[order], np.maximum.accumulate(hi[order])
+        k = np.searchsorted(lo, pool.pos - _EPS, side="left")  # intervals with lo < pos - eps
+        taken = (k > 0) & (reach[np.maximum(k - 1, 0)] > pool.pos + _EPS)
+        pool.pos = pool.pos[~taken]
 
 
 def _solve(design, fp, pins: _Pins, rows, ks, keys, member, pools, boxes):
