@@ -349,7 +349,7 @@ def test_bad_constraints_are_one_line_errors(wren_design):
     assert s.floorplan.identical(d.initial) and not s.can_undo  # nothing changed
 
 
-def test_session_action_undo_redo_log_and_script(wren_design):
+def test_session_action_undo_redo_log_and_script(wren_design, tmp_path):
     d = wren_design
     s = fw.Session(d)
     groups = [{"pattern": "data[*]", "edges": ["bottom"], "ordered": True}]
@@ -370,6 +370,9 @@ def test_session_action_undo_redo_log_and_script(wren_design):
         warnings.simplefilter("ignore")
         exec(compile(text, "replay", "exec"), ns)  # the replay rebuilds the same floorplan
     assert ns["session"].floorplan.identical(after)
+    s.save(tmp_path / "pins.session.json")  # a session file keeps the action too
+    back = fw.Session.load(tmp_path / "pins.session.json")
+    assert back.floorplan.identical(after) and back.log == s.log
 
 
 def test_moving_an_io_pin_snaps_to_a_free_slot(wren_design):
