@@ -456,7 +456,7 @@ def assign_pins(design: Design, floorplan: Floorplan | None = None,
         out.info["pins"] = {"assigned": 0, "cost_before": 0.0, "cost_after": 0.0}
         return out
     w, h = fp.sizes()
-    keys, member = _pool_members(pins, w[pins.idx], h[pins.idx], default)
+    keys, member = _pool_members(pins, default)
     widths = {}
     for k, key in enumerate(keys):
         wa = _along_width(w[pins.idx], h[pins.idx], key[1])[member[:, k]]
@@ -465,7 +465,7 @@ def assign_pins(design: Design, floorplan: Floorplan | None = None,
     _remove_held(design, fp, pools, pins.held, table, default)
     nk = len(keys)
     pr, pk = np.nonzero(member)
-    ncomp, comp = connected_components(csr_matrix(
+    _, comp = connected_components(csr_matrix(
         (np.ones(len(pr)), (pr, n + pk)), shape=(n + nk, n + nk)), directed=False)
     boxes = _net_boxes(design, fp, pins.idx)
     edge_of, pos_of = np.empty(n, np.int64), np.empty(n)
@@ -474,7 +474,7 @@ def assign_pins(design: Design, floorplan: Floorplan | None = None,
         ks = np.flatnonzero(comp[n:] == c)
         e_c, s_c = _solve(design, fp, pins, rows, ks, keys, member, pools, boxes)
         edge_of[rows], pos_of[rows] = e_c, s_c
-    _order_groups(design, cons, pins, edge_of, pos_of, pools, default, w, h)
+    _order_groups(design, cons, pins, edge_of, pos_of, pools, default)
     cx, cy = _centre_at(design, fp, pins.idx, edge_of, pos_of)
     c0x, c0y = fp.centres()
     before = _total(boxes, c0x[pins.idx], c0y[pins.idx])
@@ -485,7 +485,7 @@ def assign_pins(design: Design, floorplan: Floorplan | None = None,
     return out
 
 
-def _pool_members(pins: _Pins, wp, hp, default) -> tuple[list[tuple[str, int]], np.ndarray]:
+def _pool_members(pins: _Pins, default) -> tuple[list[tuple[str, int]], np.ndarray]:
     """The ``(layer, edge)`` pools and ``(p, pools)`` which pin may use which."""
     keys: list[tuple[str, int]] = []
     cols = []
@@ -587,8 +587,8 @@ def _no_room(design, pins: _Pins, rows, ks, keys, ok) -> str:
             "for all of them under the pin constraints (corner keep-out, held pins, groups)")
 
 
-def _order_groups(design, cons: PinConstraints, pins: _Pins, edge_of, pos_of, pools, default,
-                  w, h) -> None:
+def _order_groups(design, cons: PinConstraints, pins: _Pins, edge_of, pos_of, pools,
+                  default) -> None:
     """Put the bits of each ordered group in index order along every edge it uses.
 
     The group's own coordinates on the edge, sorted, are handed out bit by bit; a bit whose
