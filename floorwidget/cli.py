@@ -4,7 +4,7 @@
 
     floorwidget report  FILE [--lef L ...] [--json]
     floorwidget place   FILE [--lef L ...] -o OUT [--target-density D] [--seed S] [--json]
-                        [--macro-layout auto|periphery|free] [--channel UM]
+                        [--macro-layout auto|periphery|free] [--channel UM] [--pins-only]
     floorwidget convert IN OUT [--lef L ...]
     floorwidget render  FILE -o OUT.png|OUT.svg [--lef L ...] [--heat density|congestion]
                         [--hierarchy DEPTH]
@@ -157,6 +157,9 @@ def _parser() -> argparse.ArgumentParser:
     pl.add_argument("--channel", type=_channel, default=None, metavar="UM",
                     help="facing macros abut or stand at least UM µm apart (default: four row "
                          "heights)")
+    pl.add_argument("--pins-only", action="store_true",
+                    help="reassign only the I/O pins to slots on the die edges for least "
+                         "wirelength; every other block stays where FILE has it")
     pl.add_argument("--json", action="store_true",
                     help="print the report as JSON (non-finite values as null)")
 
@@ -228,8 +231,13 @@ def _run(args) -> int:
         design = _load(args.file, args)
         bar = _Progress()
         try:
-            fp = place(design, target_density=args.target_density, seed=args.seed, progress=bar,
-                       macro_layout=args.macro_layout, channel=args.channel)
+            if args.pins_only:
+                from .floorplan.pins import assign_pins
+
+                fp = assign_pins(design, design.initial)
+            else:
+                fp = place(design, target_density=args.target_density, seed=args.seed,
+                           progress=bar, macro_layout=args.macro_layout, channel=args.channel)
         finally:
             bar.close()
         save(design, fp, args.output)

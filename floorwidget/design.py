@@ -384,6 +384,9 @@ class Design:
         #: congestion figures divide routing demand by their supply (empty: an assumed stack,
         #: :func:`floorwidget.metrics.routing_supply`).
         self.routing_layers: list[tuple[str, str, float]] = []
+        #: Layer of each I/O terminal's shape where the input says (DEF ``PINS + LAYER``),
+        #: by terminal name; :mod:`floorwidget.floorplan.pins` puts the others on a default.
+        self.io_layers: dict[str, str] = {}
         self.def_source = None  # formats.lefdef.source.DefSource of a design read from DEF
         self.dbu = int(dbu)
         self.die = _f64(die, (4,))

@@ -5,3 +5,5 @@ These are the steps an engineer takes before macros and cells are placed. The pa
 beside ``placer``: it may import ``placer``, ``metrics``, ``formats``, ``design`` and
 ``kernels``; ``session``, ``cli`` and ``widget`` import it.
 """
+
+from .pins import PinConstraints, PinGroup, assign_pins, assign_pins_iterated  # noqa: F401

@@ -185,6 +185,8 @@ ACTIONS: dict[str, Action] = {a.name: a for a in (
     Action("place", kwargs=_RUN, placer_options=True),
     Action("refine", kwargs={**_RUN, "local": _flag}, placer_options=True),
     Action("legalize", placer_options=True),
+    Action("assign_pins", kwargs={"groups": _plain, "corner_keepout": _number,
+                                  "held": _name_list}),
     Action("undo"),
     Action("redo"),
     Action("snapshot", (("label", _text),), {"note": _text}),

@@ -24,6 +24,7 @@ from .compare import Comparison
 from .constraints import ConstraintEdits
 from .edits import HandEdits, locked
 from .history import History, freeze
+from .pins import PinCalls
 from .placing import PlacerCalls
 from .state import Alternative, ChangeEvent, SessionState, is_large, now
 
@@ -41,7 +42,7 @@ def _copy_log(v):
     return v
 
 
-class Session(HandEdits, ConstraintEdits, PlacerCalls):
+class Session(HandEdits, ConstraintEdits, PlacerCalls, PinCalls):
     """Interactive editing of one design's floorplan with undo, alternatives and a record.
 
     Parameters

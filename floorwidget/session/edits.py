@@ -26,6 +26,7 @@ from ..design import (
     orient_size,
 )
 from ..design import snap as _snap
+from ..floorplan.pins import snap_pin
 from . import checks
 
 __all__ = ["HandEdits", "locked", "next_orientation"]
@@ -112,9 +113,10 @@ class HandEdits:
     def move(self, name: str, x: float, y: float) -> tuple[float, float]:
         """Move block ``name`` so its lower-left corner is near ``(x, y)`` µm.
 
-        Macros snap to the placement grid; every block is clamped inside the core (terminals
-        inside the die).  A pinned block may be moved by hand and stays pinned; a fixed one
-        may not.
+        Macros snap to the placement grid; every other block is clamped inside the core; an
+        I/O pin goes to the nearest free slot of its layer on the nearest die edge its layer
+        reaches (:func:`floorwidget.floorplan.pins.snap_pin`).  A pinned block may be moved
+        by hand and stays pinned; a fixed one may not.
 
         Parameters
         ----------
@@ -138,7 +140,10 @@ class HandEdits:
         """
         i = self._movable_index(name, "moved")
         fx, fy = checks.number(x, "x"), checks.number(y, "y")
-        nx, ny = fit(self.design, i, fx, fy, int(self._fp.orient[i]))
+        if self.design.kind[i] == TERMINAL:  # an I/O pin: the nearest free slot on an edge
+            nx, ny = snap_pin(self.design, self._fp, i, fx, fy)
+        else:
+            nx, ny = fit(self.design, i, fx, fy, int(self._fp.orient[i]))
         new = self._fp.copy()
         new.x[i], new.y[i] = nx, ny
         self._commit("move", new, log=((name, fx, fy),), blocks=[i])

@@ -187,6 +187,11 @@ class FloorplanWidget(W.VBox):
         (:meth:`Dragging.drop`, the method the canvas's drag-end callback calls)."""
         return self.dragging.drop(index, x, y)
 
+    def drop_pin(self, index: int, x: float, y: float) -> dict:
+        """A dropped I/O pin: it snaps to a free slot on the die edge through
+        ``Session.move`` (:meth:`Dragging.drop_pin`)."""
+        return self.dragging.drop_pin(index, x, y)
+
     # --- edits (the panels' Session calls, for scripts) -------------------------------------------
     def apply_edit(self) -> None:
         """The Edit tab's Set: the selected macro at the typed position and orientation."""

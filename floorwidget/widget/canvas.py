@@ -239,9 +239,11 @@ class Canvas:
         m["selection"] = bq.Lines(x=px, y=py, scales=sc, colors=[self.ui["selection"]],
                                   stroke_width=3.0, visible=False)
         tx, ty = geo.terminal_xy(design, floorplan)
+        # an I/O pin can be dragged along the die edge (it snaps to a slot on drop)
         m["terminals"] = bq.Scatter(x=tx, y=ty, scales=sc, marker="square",
                                     default_size=10 if interactive else 4,
-                                    colors=[self.ui["terminal"]], stroke=None)
+                                    colors=[self.ui["terminal"]], stroke=None,
+                                    enable_move=interactive, update_on_move=False)
         return m
 
     def _handles(self, bq, sc: dict) -> dict:
@@ -527,6 +529,9 @@ class Canvas:
                     with m["handles"].hold_sync():
                         m["handles"].x, m["handles"].y = cx[idx], cy[idx]
             self._draw_cells()
+            tm = m["terminals"]
+            with tm.hold_sync():
+                tm.x, tm.y = geo.terminal_xy(d, fp)
             if self.interactive:
                 self._draw_labels()
                 self._draw_flylines()

@@ -9,7 +9,7 @@ from typing import TYPE_CHECKING
 
 import numpy as np
 
-from ..design import FIXED, DesignError
+from ..design import FIXED, TERMINAL, DesignError
 from ..metrics import nets_hpwl
 from .context import BUSY, Context
 
@@ -44,6 +44,9 @@ class Dragging:
         h.on_drag_end(lambda _m, ev: self.drop(ev["index"], ev["point"]["x"], ev["point"]["y"]))
         h.on_element_click(lambda _m, ev: ctx.select([int(self.macro_idx[ev["index"]])]))
         h.observe(self._on_brush, names=["selected"])
+        self.terminal_idx = np.flatnonzero(ctx.design.kind == TERMINAL)
+        c.marks["terminals"].on_drag_end(
+            lambda _m, ev: self.drop_pin(ev["index"], ev["point"]["x"], ev["point"]["y"]))
 
     def _on_brush(self, change) -> None:
         sel = change["new"]
@@ -175,4 +178,37 @@ class Dragging:
             ctx.selection_changed()
         ctx.notify(msg, error=bool(msg))
         out.update(moved=moved, message=msg, seconds=time.perf_counter() - t0)
+        return out
+
+    def drop_pin(self, index: int, x: float, y: float) -> dict:
+        """Handle a dropped I/O pin: one ``Session.move`` to centre ``(x, y)``, which snaps it
+        to the nearest free slot of its layer on the nearest edge its layer reaches.
+
+        Parameters
+        ----------
+        index : int
+            Index of the pin among the design's I/O terminals (in design order).
+        x, y : float
+            Where the pin's centre was dropped, µm.
+
+        Returns
+        -------
+        dict
+            ``moved`` (names), ``position`` (lower-left taken, or None), ``message``.
+        """
+        ctx, out = self.ctx, {"moved": [], "position": None, "message": ""}
+        n = len(self.terminal_idx)
+        if isinstance(index, (bool, np.bool_)) or not isinstance(index, (int, np.integer)) \
+                or not 0 <= int(index) < n:
+            raise IndexError(f"drop_pin: pin index {index!r} is not in 0..{n - 1}")
+        s, i = ctx.session, int(self.terminal_idx[int(index)])
+        fp = s.floorplan
+        w, h = fp.sizes()
+        if ctx.runner.busy:
+            return self._refused(out, BUSY, fp)
+        try:
+            pos = s.move(ctx.design.names[i], float(x) - w[i] / 2, float(y) - h[i] / 2)
+        except (DesignError, TypeError, ValueError) as e:  # nothing moved: the pin goes back
+            return self._refused(out, str(e), fp)
+        out.update(moved=[ctx.design.names[i]], position=pos)
         return out

@@ -66,6 +66,7 @@ class _Def:
         self.nrows = 0
         self.comps = None
         self.pins = None
+        self.pin_layers: dict[str, str] = {}  # I/O pin -> layer of its first shape
         self.nets = None
         self.blockages: list[tuple[float, float, float, float]] = []
         self.blockage_density: list[float] = []  # max density per blockage (0: full)
@@ -511,6 +512,8 @@ class _Def:
             w = toks[k + 1].upper() if k + 1 < len(toks) else ""
             k += 1 if w == "+" else 2  # "+ +": the second one starts the next option
             if w == "LAYER" and rect is None:
+                if k < len(toks):
+                    self.pin_layers[name] = toks[k]
                 k += 1
                 while k < len(toks) and toks[k] != "(" and toks[k] != "+":
                     k += 1  # MASK n, SPACING d, DESIGNRULEWIDTH d
@@ -1117,5 +1120,8 @@ def read_def(path: str | Path, lef: str | Path | Sequence[str | Path] | None = N
     design = r.design()
     design.lef_files = [str(p) for p in lef]  # the library the masters and pin names refer to
     design.routing_layers = list(lib.layers) if lib is not None else []
+    design.io_layers = {nm: r.pin_layers[p[0]] for nm, p in
+                        zip(design.names[len(design.names) - len(r.pins or []):], r.pins or [])
+                        if p[0] in r.pin_layers}
     design.def_source = DefSource.keep(source, r, design)
     return design
