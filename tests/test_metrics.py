@@ -442,6 +442,7 @@ def test_cell_overlap_counts_match_all_pairs(seed):
     x = rng.uniform(0, 50, n)
     y = rng.integers(0, 10, n) * 2.0 + rng.choice([0.0, 0.0, 0.5], n)
     r = np.stack([x, y, x + rng.uniform(0.5, 4, n), y + rng.choice([2.0, 3.0], n)], 1)
+    r[rng.random(n) < 0.2] = r[seed]  # copies on one spot count c(c-1)/2 pairs among them
     o0 = np.stack([rng.uniform(0, 50, m), rng.uniform(0, 20, m)], 1)
     ob = np.concatenate([o0, o0 + rng.uniform(1, 10, (m, 2))], 1)
 
@@ -453,3 +454,16 @@ def test_cell_overlap_counts_match_all_pairs(seed):
     cc = brute(r, r)
     assert _banded_overlaps(r) == int(np.triu(cc, 1).sum())
     assert _cross_overlaps(r, ob) == int(brute(r, ob).sum())
+
+
+def test_cells_all_on_one_spot_count_every_pair():
+    # issue 23: an unplaced floorplan (every cell at the origin) made the all-pairs count
+    # O(n^2); copies now count as one rectangle with a multiplicity: n(n-1)/2 pairs
+    from floorwidget.metrics.legality import _banded_overlaps
+
+    n = 20000
+    r = np.tile([0.0, 0.0, 1.0, 0.27], (n, 1))
+    assert _banded_overlaps(r) == n * (n - 1) // 2
+    r[::2, :2] += 5.0  # two apart stacks
+    r[::2, 2:] += 5.0
+    assert _banded_overlaps(r) == 2 * ((n // 2) * (n // 2 - 1) // 2)
