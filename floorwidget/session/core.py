@@ -25,6 +25,7 @@ from .constraints import ConstraintEdits
 from .edits import HandEdits, locked
 from .history import History, freeze
 from .placing import PlacerCalls
+from .power import PowerEdits
 from .state import Alternative, ChangeEvent, SessionState, is_large, now
 
 __all__ = ["Session"]
@@ -41,7 +42,7 @@ def _copy_log(v):
     return v
 
 
-class Session(HandEdits, ConstraintEdits, PlacerCalls):
+class Session(HandEdits, ConstraintEdits, PlacerCalls, PowerEdits):
     """Interactive editing of one design's floorplan with undo, alternatives and a record.
 
     Parameters
