@@ -147,8 +147,10 @@ def load_spec(path: str) -> GridSpec:
 
 def grid_layers(design: Design) -> list[tuple[str, str]]:
     """``(name, "H" | "V")`` of the design's routing layers, bottom up (the LEF order), or
-    :data:`ASSUMED_LAYERS` when it has none."""
-    return [(n, d) for n, d, *_ in design.routing_layers] or list(ASSUMED_LAYERS)
+    :data:`ASSUMED_LAYERS` when it has fewer than two (no LEF, or the one-layer abstracts
+    this tool writes beside a DEF of its own)."""
+    layers = [(n, d) for n, d, *_ in design.routing_layers]
+    return layers if len(layers) >= 2 else list(ASSUMED_LAYERS)
 
 
 def _fail(msg: str):
@@ -212,20 +214,20 @@ def _check(spec: GridSpec, design: Design, layers: list[tuple[str, str]]) -> Non
         _fail("macro_rings needs ring_layers")
 
 
-def _straps(spec: GridSpec, span: np.ndarray, lay: tuple[int, int]):
-    """Strap rectangles over ``span`` (xlo, ylo, xhi, yhi): vertical then horizontal."""
+def _straps(spec: GridSpec, core: np.ndarray, span: np.ndarray, lay: tuple[int, int]):
+    """Strap rectangles, vertical then horizontal: centres from the ``core`` edges at the
+    offset and pitch, lengths over ``span`` (the core, or the rings' outer edges)."""
     rects, layer, net = [], [], []
     w = spec.strap_width
-    for k, (lo, hi, alo, ahi) in enumerate(((span[0], span[2], span[1], span[3]),
-                                            (span[1], span[3], span[0], span[2]))):
+    for k in (0, 1):  # 0: vertical (x centres), 1: horizontal (y centres)
+        lo, hi = core[k], core[k + 2]
         start = lo + spec.strap_offset[k]
-        n = int(np.floor((hi - w / 2 - start) / spec.strap_pitch[k] + 1e-9)) + 1
-        c = start + spec.strap_pitch[k] * np.arange(max(n, 0))
+        c = start + spec.strap_pitch[k] * np.arange(
+            max(int(np.floor((hi - w / 2 - start) / spec.strap_pitch[k] + 1e-9)) + 1, 0))
         c = c[c - w / 2 >= lo - 1e-9]
-        a, b = np.full(len(c), alo), np.full(len(c), ahi)
-        r = np.stack([c - w / 2, a, c + w / 2, b], 1) if k == 0 \
-            else np.stack([a, c - w / 2, b, c + w / 2], 1)
-        rects.append(r)
+        a, b = np.full(len(c), span[1 - k]), np.full(len(c), span[3 - k])
+        rects.append(np.stack([c - w / 2, a, c + w / 2, b], 1) if k == 0
+                     else np.stack([a, c - w / 2, b, c + w / 2], 1))
         layer.append(np.full(len(c), lay[k]))
         net.append(np.arange(len(c)) % 2)
     return np.concatenate(rects), np.concatenate(layer), np.concatenate(net)
@@ -274,10 +276,7 @@ def build_grid(design: Design, spec: GridSpec) -> PowerShapes:
         reach = spec.ring_offset + 2 * spec.ring_width + spec.ring_spacing
         span = c + np.array([-reach, -reach, reach, reach])
     # straps are placed by their offset from the core and run over the rings
-    r, lay, net = _straps(spec, np.array([c[0], span[1], c[2], span[3]]),
-                          (idx[spec.strap_layers[0]], idx[spec.strap_layers[1]]))
-    vert = lay == idx[spec.strap_layers[0]]
-    r[~vert, 0], r[~vert, 2] = span[0], span[2]
+    r, lay, net = _straps(spec, c, span, (idx[spec.strap_layers[0]], idx[spec.strap_layers[1]]))
     parts.append((r, lay, net, np.full(len(r), STRIPE), np.full(len(r), spec.strap_width)))
     rail = names[0] if spec.rail_layer is None else spec.rail_layer
     if rail:
