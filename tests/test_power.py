@@ -391,3 +391,39 @@ def test_ariane136_grid_reads_back(tmp_path):
     assert left == 0 == straps_blocked(s.design, fixed)
     rep = fw.evaluate(s.design, fixed)
     assert rep["macro_overlaps"] == 0 and rep["out_of_die"] == 0
+
+
+# --- pictures -------------------------------------------------------------------------------
+
+
+def test_render_draws_the_grid_per_net(tmp_path, demo_design):
+    d = demo_design.derive(power=build_grid(demo_design, DEMO_SPEC))
+    out = tmp_path / "grid.svg"
+    fw.render(d, d.initial, out, show_labels=False)
+    svg = out.read_text()
+    assert 'id="power:VDD"' in svg and 'id="power:VSS"' in svg
+    fw.render(d, d.initial, out, show_labels=False, power=False)
+    assert "power:VDD" not in out.read_text()
+
+
+def test_canvas_power_layer_off_by_default_and_follows_macros(demo_design):
+    pytest.importorskip("bqplot")
+    from floorwidget.widget import FloorplanWidget
+
+    spec = GridSpec(**{**DEMO_SPEC.to_dict(), "macro_rings": [demo_design.macros[0]]})
+    w = FloorplanWidget(demo_design, size=300, live=False)
+    w.session.power_grid(spec)
+    c = w.canvas
+    assert not c.marks["power0"].visible  # off by default
+    w.view.ctx.toggles["Power grid"].value = True
+    assert c.power_on and c.marks["power0"].visible and c.marks["power1"].visible
+    g = w.session.design.power_shapes(w.session.floorplan)
+    drawn = len(c.marks["power0"].x) + len(c.marks["power1"].x)
+    assert drawn == int((g.shape != FOLLOWPIN).sum())
+    # the ring of the macro moves with it
+    m = demo_design.macros[0]
+    x0 = np.asarray(c.marks["power0"].x).min(axis=1)
+    w.session.move(m, 600.0, 600.0)
+    w.canvas.update(w.session.floorplan)
+    assert not np.array_equal(np.sort(np.asarray(c.marks["power0"].x).min(axis=1)),
+                              np.sort(x0))
