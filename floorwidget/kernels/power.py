@@ -109,8 +109,10 @@ class PowerShapes:
         return (r[:, 3] - r[:, 1]) > (r[:, 2] - r[:, 0])
 
     def low_stripes(self) -> np.ndarray:
-        """``(k,)`` the stripes on low layers (partial blockages, channel rule)."""
-        return (self.shape == STRIPE) & self.low[self.layer]
+        """``(k,)`` the stripes the placer honours (partial blockages, channel rule): those on
+        low layers of a grid made from a specification; none of a grid read from DEF
+        (:attr:`spec` None), which is drawn and written back only."""
+        return (self.shape == STRIPE) & self.low[self.layer] & (self.spec is not None)
 
     def for_macros(self, foot: np.ndarray, ring_boxes: np.ndarray) -> PowerShapes:
         """The grid as drawn around the macro footprints ``foot`` (m, 4) of a floorplan:

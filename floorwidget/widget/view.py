@@ -57,11 +57,10 @@ class ViewPanel:
             t.observe(lambda ch, name=name: self._heat_toggled(name, ch), "value")
         power = ctx.toggle("Power grid", False, "Rings and straps of the power grid (VDD, VSS)")
         power.observe(lambda ch: ctx.ui(lambda: ctx.canvas.show_power(ch["new"])), "value")
-        heat.append(power)
         self.legend = W.HTML(legend_html())
         self.box = W.VBox([
             W.HBox([self.find_text, find]),
-            W.HBox(heat),
+            W.HBox(heat), W.HBox([power]),
             W.HTML("<b>Hierarchy</b>"),
             W.HBox([self.group_depth, self.group_seps]),
             W.HBox([colour, through]),

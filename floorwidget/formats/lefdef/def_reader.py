@@ -537,7 +537,11 @@ class _Def:
     def specialnet_section(self, body: int, end: int, count: int, start: int) -> None:
         if self.dbu is None:
             self.fail("SPECIALNETS before UNITS DISTANCE MICRONS", start)
-        self.power = parse_specialnets(self.text[body:end], body, float(self.dbu), self.skipped)
+        try:
+            self.power = parse_specialnets(self.text[body:end], body, float(self.dbu),
+                                           self.skipped)
+        except DesignError as e:
+            self.fail(e.message, start)
 
     # --- NETS --------------------------------------------------------------------------------
     _NET = re.compile(

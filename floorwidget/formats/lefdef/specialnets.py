@@ -12,8 +12,13 @@ a name starting ``VDD``/``VCC`` or ``VSS``/``GND``) gives its two-point path seg
 ``ROUTED``/``FIXED``/``COVER`` layer, with the ``SHAPE`` when given (``STRIPE`` otherwise;
 ``RING``, ``STRIPE`` and ``FOLLOWPIN`` are kept, ``COREWIRE``, ``BLOCKRING``, ``PADRING`` read
 as rings, other shapes as stripes), into a :class:`~floorwidget.kernels.power.PowerShapes`.
-Vias, ``RECT``/``POLYGON`` shapes and multi-point paths beyond their segments are counted as
-skipped.  Other special nets are not modelled (they come back verbatim in a write-back).
+Vias (and the zero-width segments that carry them) and ``RECT``/``POLYGON`` shapes are
+not read (counted as skipped), nor a path's points after its first two.  Other special nets
+are not modelled (they come back verbatim in a write-back).
+
+A grid read from DEF is drawn and written back, but the placer does not honour it
+(:meth:`~floorwidget.kernels.power.PowerShapes.low_stripes`): its stripes were cut around the
+macros where the input had them, and the density it allows under them is not in the file.
 """
 
 from __future__ import annotations
@@ -23,14 +28,13 @@ from collections import Counter
 
 import numpy as np
 
+from ...design import DesignError
 from ...kernels.power import NETS, RING, SHAPES, STRIPE, PowerShapes
 
 __all__ = ["parse_specialnets", "power_statements", "shapes_from_parsed"]
 
 _SHAPE_CODE = {"RING": RING, "STRIPE": STRIPE, "FOLLOWPIN": 2, "COREWIRE": RING,
                "BLOCKRING": RING, "PADRING": RING}
-_WIRE = {"ROUTED", "FIXED", "COVER", "SHIELD"}
-_TOKEN = re.compile(r"\(|\)|;|[^\s();]+")
 
 
 def power_statements(shapes: PowerShapes, dbu: int) -> list[str]:
@@ -70,8 +74,22 @@ def _net_of(name: str, use: str | None) -> int | None:
     return None
 
 
+# one path segment: the wiring keyword (or NEW), layer, width, options (SHAPE, STYLE, MASK),
+# then two points; a point may repeat a coordinate as ``*`` and carry an extension value
+_POINT = r"\(\s*(\S+)\s+(\S+)(?:\s+[^\s()]+)?\s*\)"
+_SEGMENT = re.compile(
+    r"(?:\+\s*(?:ROUTED|FIXED|COVER)|\bNEW)\s+([^\s+;()]+)\s+(\d+(?:\.\d*)?)"
+    r"((?:\s*\+\s*(?:SHAPE|STYLE|MASK)\s+[^\s+;()]+)*)"
+    r"\s*" + _POINT + r"\s*" + _POINT, re.I)
+_SHAPE_OPT = re.compile(r"\+\s*SHAPE\s+([^\s+;()]+)", re.I)
+
+
 def parse_specialnets(body: str, offset: int, dbu: float, skipped: Counter) -> dict:
     """Power and ground wiring of a ``SPECIALNETS`` section body (comments blanked).
+
+    One regular expression finds the two-point path segments of each power or ground
+    statement; a path's further points, vias and ``RECT``/``POLYGON`` shapes are not read
+    (counted in ``skipped``).
 
     Returns
     -------
@@ -80,88 +98,58 @@ def parse_specialnets(body: str, offset: int, dbu: float, skipped: Counter) -> d
         ``stmts``: ``(start, end)`` offsets (``offset`` added) of the power and ground
         statements, for writing back.
     """
-    rects, layers, nets, shapes, widths, stmts = [], [], [], [], [], []
+    segs, nets, stmts = [], [], []
     pos = 0
     for stmt in body.split(";")[:-1]:
         start, pos = pos, pos + len(stmt) + 1
-        toks = _TOKEN.findall(stmt)
-        if len(toks) < 2 or toks[0] != "-":
+        m = re.match(r"\s*(-)\s+(\S+)", stmt)
+        if m is None:
             continue
-        up = [t.upper() for t in toks]
-        use = next((up[k + 1] for k in range(1, len(up) - 1)
-                    if up[k] == "USE" and toks[k - 1] == "+"), None)
-        net = _net_of(toks[1], use)
+        use = re.search(r"\+\s*USE\s+(\w+)", stmt, re.I)
+        net = _net_of(m.group(2), use.group(1).upper() if use else None)
         if net is None:
             continue
-        lead = len(stmt) - len(stmt.lstrip())
-        stmts.append((offset + start + lead, offset + pos))
-        _wiring(toks, net, dbu, skipped, (rects, layers, nets, shapes, widths))
-    return {"rects": np.array(rects, np.float64).reshape(-1, 4), "layer": layers,
-            "net": np.array(nets, np.int8), "shape": np.array(shapes, np.int8),
-            "width": np.array(widths, np.float64), "stmts": stmts}
-
-
-def _wiring(toks: list[str], net: int, dbu: float, skipped: Counter, out) -> None:
-    rects, layers, nets, shapes, widths = out
-    k, n = 0, len(toks)
-    while k < n:
-        t = toks[k].upper()
-        if (t in _WIRE and k > 0 and toks[k - 1] == "+") or t == "NEW":
-            if t == "SHIELD":  # + SHIELD net layer ...
-                k += 1
-            k += 1
-            if k + 1 >= n:
-                break
-            layer = toks[k]
-            try:
-                width = float(toks[k + 1]) / dbu
-            except ValueError:
-                skipped["SPECIALNETS wiring"] += 1
-                k += 1
-                continue
-            k += 2
-            shape = STRIPE
-            pts: list[tuple[float, float]] = []
-            while k < n and toks[k].upper() not in ("NEW",) and not (
-                    toks[k] == "+" and k + 1 < n and toks[k + 1].upper() in _WIRE | {"USE"}):
-                if toks[k] == "+" and k + 1 < n and toks[k + 1].upper() == "SHAPE":
-                    shape = _SHAPE_CODE.get(toks[k + 2].upper(), STRIPE) if k + 2 < n else STRIPE
-                    k += 3
-                    continue
-                if toks[k] == "(":
-                    j = toks.index(")", k)
-                    vals = toks[k + 1:j]
-                    px = pts[-1][0] if pts and vals and vals[0] == "*" else None
-                    py = pts[-1][1] if pts and len(vals) > 1 and vals[1] == "*" else None
-                    try:
-                        x = px if px is not None else float(vals[0])
-                        y = py if py is not None else float(vals[1])
-                        pts.append((x, y))
-                    except (ValueError, IndexError):
-                        skipped["SPECIALNETS points"] += 1
-                    k = j + 1
-                    continue
-                if toks[k] != "+" and pts:  # a via name after the points
-                    skipped["SPECIALNETS vias"] += 1
-                k += 1
-            for (x0, y0), (x1, y1) in zip(pts, pts[1:]):
-                half = width * dbu / 2
-                if x0 == x1:
-                    r = (x0 - half, min(y0, y1), x0 + half, max(y0, y1))
-                elif y0 == y1:
-                    r = (min(x0, x1), y0 - half, max(x0, x1), y0 + half)
-                else:
-                    skipped["SPECIALNETS diagonal segments"] += 1
-                    continue
-                rects.append(tuple(v / dbu for v in r))
-                layers.append(layer)
-                nets.append(net)
-                shapes.append(shape)
-                widths.append(width)
-            continue
-        if t in ("RECT", "POLYGON", "VIA") and k > 0 and toks[k - 1] == "+":
-            skipped[f"SPECIALNETS {t}"] += 1
-        k += 1
+        stmts.append((offset + start + m.start(1), offset + pos))
+        found = _SEGMENT.findall(stmt)
+        segs += found
+        nets += [net] * len(found)
+        for kw in ("RECT", "POLYGON", "VIA"):
+            n = len(re.findall(r"\+\s*" + kw + r"\b", stmt, re.I))
+            if n:
+                skipped[f"SPECIALNETS {kw}"] += n
+    k = len(segs)
+    rects = np.zeros((k, 4))
+    width = np.zeros(k)
+    shape = np.full(k, STRIPE, np.int8)
+    if k:
+        width = np.array([float(s[1]) for s in segs])
+        pts = np.array([s[3:7] for s in segs], dtype=object)
+        star = pts == "*"
+        pts[:, 2] = np.where(star[:, 2], pts[:, 0], pts[:, 2])  # ``*``: as the point before
+        pts[:, 3] = np.where(star[:, 3], pts[:, 1], pts[:, 3])
+        try:
+            x0, y0, x1, y1 = pts.astype(np.float64).T
+        except ValueError:
+            raise DesignError("SPECIALNETS: a point is not two numbers") from None
+        half = width / 2
+        vert = x0 == x1
+        diag = ~vert & (y0 != y1)
+        if diag.any():
+            skipped["SPECIALNETS diagonal segments"] += int(diag.sum())
+        rects = np.where(vert[:, None],
+                         np.stack([x0 - half, np.minimum(y0, y1), x0 + half,
+                                   np.maximum(y0, y1)], 1),
+                         np.stack([np.minimum(x0, x1), y0 - half, np.maximum(x0, x1),
+                                   y0 + half], 1)) / dbu
+        opts = [s[2] for s in segs]
+        shape = np.array([_SHAPE_CODE.get(m.group(1).upper(), STRIPE)
+                          if (m := _SHAPE_OPT.search(o)) else STRIPE for o in opts], np.int8)
+        keep = ~diag & (width > 0)  # (zero-width segments carry vias, not wire)
+        rects, width, shape = rects[keep], width[keep] / dbu, shape[keep]
+        segs = [s for s, k_ in zip(segs, keep) if k_]
+        nets = [n for n, k_ in zip(nets, keep) if k_]
+    return {"rects": rects.reshape(-1, 4), "layer": [s[0] for s in segs],
+            "net": np.array(nets, np.int8), "shape": shape, "width": width, "stmts": stmts}
 
 
 def shapes_from_parsed(parsed: dict, routing_layers: list, low_layers: int = 4
