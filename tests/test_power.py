@@ -427,3 +427,29 @@ def test_canvas_power_layer_off_by_default_and_follows_macros(demo_design):
     w.canvas.update(w.session.floorplan)
     assert not np.array_equal(np.sort(np.asarray(c.marks["power0"].x).min(axis=1)),
                               np.sort(x0))
+
+
+# --- the command line -----------------------------------------------------------------------
+
+
+def test_cli_place_with_a_grid(tmp_path, capsys):
+    from floorwidget.cli import main
+
+    d = rent_design(300, seed=4, num_macros=1, macro_area=0.2, utilisation=0.5)
+    src = tmp_path / "blk.json"
+    fw.save(d, d.initial, src)
+    grid = tmp_path / "grid.json"
+    grid.write_text('{"strap_layers": ["M2", "M3"], "strap_width": 0.5, "strap_pitch": 8, '
+                    '"strap_spacing": 0.3, "strap_offset": 2}')
+    out = tmp_path / "out.def"
+    assert main(["place", str(src), "-o", str(out), "--power-grid", str(grid), "--json"]) == 0
+    assert capsys.readouterr().out.count('"straps_blocked": 0') == 1
+    nets = _parse_specialnets(out.read_text())
+    _check_stripes(nets["VDD"] + nets["VSS"], "M2", True, round(0.5 * d.dbu), round(8 * d.dbu))
+    # a grid that cannot fit: one line naming the file, exit 2, no output
+    grid.write_text('{"strap_layers": ["M2", "M3"], "strap_width": 5, "strap_pitch": 4}')
+    bad = tmp_path / "bad.def"
+    assert main(["place", str(src), "-o", str(bad), "--power-grid", str(grid)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert "\n" not in err and str(grid) in err and "smaller than strap width" in err
+    assert not bad.exists()

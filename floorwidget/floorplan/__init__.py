@@ -5,3 +5,6 @@ These are the steps an engineer takes before macros and cells are placed. The pa
 beside ``placer``: it may import ``placer``, ``metrics``, ``formats``, ``design`` and
 ``kernels``; ``session``, ``cli`` and ``widget`` import it.
 """
+
+from .power import GridSpec as GridSpec  # the power grid
+from .power import build_grid as build_grid

@@ -29,7 +29,7 @@ final grid belong to the implementation flow's power and physical checks.
 from __future__ import annotations
 
 import json
-from dataclasses import asdict, dataclass, field
+from dataclasses import asdict, dataclass
 from typing import Any
 
 import numpy as np
@@ -93,14 +93,17 @@ class GridSpec:
     rail_width: float | None = None
     low_layers: int = 4
     cell_density: float = 0.5
-    extra: dict = field(default_factory=dict, repr=False, compare=False)
 
     def __post_init__(self) -> None:
         def pair(v, what):
             t = tuple(v) if isinstance(v, (list, tuple)) else (v, v)
-            if len(t) != 2:
-                raise DesignError(f"power grid: {what} takes one number or two", where=_WHERE)
-            return tuple(float(a) for a in t)
+            try:
+                if len(t) != 2:
+                    raise ValueError
+                return tuple(float(a) for a in t)
+            except (TypeError, ValueError):
+                raise DesignError(f"power grid: {what} takes one number or two, got {v!r}",
+                                  where=_WHERE) from None
         set_ = object.__setattr__
         set_(self, "strap_layers", tuple(map(str, self.strap_layers)))
         if self.ring_layers is not None:
@@ -108,15 +111,20 @@ class GridSpec:
         set_(self, "macro_rings", tuple(map(str, self.macro_rings)))
         set_(self, "strap_pitch", pair(self.strap_pitch, "strap_pitch"))
         set_(self, "strap_offset", pair(self.strap_offset, "strap_offset"))
-        if self.extra:
-            raise DesignError(f"power grid: unknown field(s) {', '.join(sorted(self.extra))}",
-                              where=_WHERE)
+        for name in ("strap_width", "strap_spacing", "ring_width", "ring_spacing",
+                     "ring_offset", "cell_density", "rail_width", "low_layers"):
+            v = getattr(self, name)
+            if v is None and name == "rail_width":
+                continue
+            try:
+                set_(self, name, int(v) if name == "low_layers" else float(v))
+            except (TypeError, ValueError):
+                raise DesignError(f"power grid: {name} must be a number, got {v!r}",
+                                  where=_WHERE) from None
 
     def to_dict(self) -> dict:
         """Plain JSON form (lists for tuples); :meth:`from_dict` reads it back."""
-        d = asdict(self)
-        d.pop("extra")
-        return json.loads(json.dumps(d))
+        return json.loads(json.dumps(asdict(self)))
 
     @classmethod
     def from_dict(cls, d: dict) -> GridSpec:
@@ -124,10 +132,12 @@ class GridSpec:
         if not isinstance(d, dict):
             raise DesignError("power grid: the specification must be a JSON object",
                               where=_WHERE)
-        known = {k: v for k, v in d.items() if k in cls.__dataclass_fields__ and k != "extra"}
-        extra = {k: v for k, v in d.items() if k not in known}
+        extra = sorted(set(d) - set(cls.__dataclass_fields__))
+        if extra:
+            raise DesignError(f"power grid: unknown field(s) {', '.join(map(str, extra))}",
+                              where=_WHERE)
         try:
-            return cls(**known, extra=extra)
+            return cls(**d)
         except (TypeError, ValueError) as e:
             if isinstance(e, DesignError):
                 raise
