@@ -555,7 +555,7 @@ class Design:
         if g is None:
             return None
         r = (fp or self.initial).rects()
-        ring = np.asarray(g.macro_rings, np.intp)
+        ring = np.array([self.index[m] for m in g.macro_rings if m in self.index], np.intp)
         return g.for_macros(r[self.kind == MACRO], r[ring])
 
     def same_netlist(self, other: Design) -> bool:

@@ -294,14 +294,13 @@ def build_grid(design: Design, spec: GridSpec) -> PowerShapes:
         rw = spec.rail_width if spec.rail_width is not None else rh / 10
         r, lay, net = _followpins(design, rw, idx[rail])
         parts.append((r, lay, net, np.full(len(r), FOLLOWPIN), np.full(len(r), rw)))
-    rings = tuple(sorted(design.index[m] for m in spec.macro_rings))
     return PowerShapes(
         layers=tuple(names), low=np.arange(len(names)) < spec.low_layers,
         rects=np.concatenate([p[0] for p in parts]),
         layer=np.concatenate([p[1] for p in parts]), net=np.concatenate([p[2] for p in parts]),
         shape=np.concatenate([p[3] for p in parts]),
         width=np.concatenate([p[4] for p in parts]), spacing=spec.strap_spacing,
-        cell_density=spec.cell_density, spec=spec.to_dict(), macro_rings=rings)
+        cell_density=spec.cell_density, spec=spec.to_dict(), macro_rings=spec.macro_rings)
 
 
 def grid_shapes(design: Design, fp: Floorplan) -> PowerShapes | None:

@@ -60,9 +60,10 @@ class PowerShapes:
         blockage density).
     spec : dict or None
         The specification the shapes were made from (JSON form), None when read from DEF.
-    macro_rings : tuple of int
-        Indices of the macros that get rings of their own (made for a floorplan by
-        :meth:`for_macros`; not in ``rects``).
+    macro_rings : tuple of str
+        Names of the macros that get rings of their own (made for a floorplan by
+        :meth:`for_macros`; not in ``rects``).  Names, not indices, so that the grid carries
+        over to a clustered version of the design and back.
     """
 
     layers: tuple[str, ...]
@@ -75,7 +76,7 @@ class PowerShapes:
     spacing: float = 0.0
     cell_density: float = 0.5
     spec: dict | None = None
-    macro_rings: tuple[int, ...] = field(default=())
+    macro_rings: tuple[str, ...] = field(default=())
 
     def __post_init__(self) -> None:
         k = len(np.asarray(self.rects).reshape(-1, 4))

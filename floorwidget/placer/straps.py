@@ -59,8 +59,8 @@ def clear_strap_channels(design: Design, fp: Floorplan, macros=None) -> tuple[Fl
     Returns
     -------
     (Floorplan, int)
-        The new floorplan (``fp`` itself when nothing moved) and how many macros still clip a
-        strap.
+        The new floorplan (``fp`` itself when no macro clips a strap) and how many macros
+        still clip one (pinned and fixed ones included: they never move).
     """
     g = design.power
     is_macro = design.kind == MACRO
@@ -71,7 +71,7 @@ def clear_strap_channels(design: Design, fp: Floorplan, macros=None) -> tuple[Fl
     r = fp.rects()
     m_idx = np.flatnonzero(is_macro)
     foot = r[m_idx].copy()
-    s, m = channel_conflicts(stripes, sp, foot)
+    _, m = channel_conflicts(stripes, sp, foot)
     if not len(m):
         return fp, 0
     may = np.zeros(design.num_blocks, bool)
