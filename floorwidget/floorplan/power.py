@@ -36,6 +36,7 @@ import numpy as np
 
 from ..design import MACRO, Design, DesignError, Floorplan
 from ..kernels.power import FOLLOWPIN, RING, STRIPE, PowerShapes, ring_rects
+from ..kernels.rects import clip
 
 __all__ = ["ASSUMED_LAYERS", "GridSpec", "build_grid", "grid_layers", "grid_shapes",
            "load_spec"]
@@ -197,10 +198,12 @@ def _check(spec: GridSpec, design: Design, layers: list[tuple[str, str]]) -> Non
     want = [("strap", spec.strap_layers[0], "V"), ("strap", spec.strap_layers[1], "H")]
     if spec.ring_layers is not None:
         want += [("ring", spec.ring_layers[0], "H"), ("ring", spec.ring_layers[1], "V")]
+    source = "in the LEF" if len(design.routing_layers) >= 2 else \
+        "in the assumed stack (the design has no LEF layers)"
     for what, lay, d in want:
         if direction[lay] != d:
             word = {"V": "vertical", "H": "horizontal"}
-            _fail(f"{what} layer {lay!r} runs {word[direction[lay]]} in the LEF; the "
+            _fail(f"{what} layer {lay!r} runs {word[direction[lay]]} {source}; the "
                   f"{word[d]} {what} layer must run {word[d]}")
     for k, p in enumerate(spec.strap_pitch):
         if p < spec.strap_width + spec.strap_spacing:
@@ -287,13 +290,18 @@ def build_grid(design: Design, spec: GridSpec) -> PowerShapes:
         span = c + np.array([-reach, -reach, reach, reach])
     # straps are placed by their offset from the core and run over the rings
     r, lay, net = _straps(spec, c, span, (idx[spec.strap_layers[0]], idx[spec.strap_layers[1]]))
+    for k, lay_k in enumerate(spec.strap_layers):
+        if not (lay == idx[lay_k]).any():
+            _fail(f"no strap on {lay_k} fits in the core (offset {spec.strap_offset[k]:g} µm, "
+                  f"width {spec.strap_width:g} µm, core {c[k + 2] - c[k]:g} µm across)")
     parts.append((r, lay, net, np.full(len(r), STRIPE), np.full(len(r), spec.strap_width)))
     rail = names[0] if spec.rail_layer is None else spec.rail_layer
     if rail:
         rh = float(np.median(design.row_height)) if len(design.row_height) else 1.0
         rw = spec.rail_width if spec.rail_width is not None else rh / 10
         r, lay, net = _followpins(design, rw, idx[rail])
-        parts.append((r, lay, net, np.full(len(r), FOLLOWPIN), np.full(len(r), rw)))
+        r = clip(r, design.die)  # (rows on the die edge: half a followpin)
+        parts.append((r, lay, net, np.full(len(r), FOLLOWPIN), r[:, 3] - r[:, 1]))
     return PowerShapes(
         layers=tuple(names), low=np.arange(len(names)) < spec.low_layers,
         rects=np.concatenate([p[0] for p in parts]),
