@@ -456,3 +456,9 @@ def test_cli_place_with_a_grid(tmp_path, capsys):
     err = capsys.readouterr().err.strip()
     assert "\n" not in err and str(grid) in err and "smaller than strap width" in err
     assert not bad.exists()
+
+
+def test_formats_without_a_grid_say_so(tmp_path, small):
+    d = small.derive(power=build_grid(small, SPEC))
+    with pytest.warns(UserWarning, match="power grid is not stored"):
+        fw.save(d, d.initial, tmp_path / "x.json")
