@@ -276,11 +276,12 @@ def _channel_violations(d, fp) -> int:
     for m in fp.rects()[d.kind == MACRO]:
         macro = shapely.box(*m)
         for r, v in zip(st, vert):
-            band = (shapely.box(r[0] - sp, m[1], r[2] + sp, m[3]) if v
-                    else shapely.box(m[0], r[1] - sp, m[2], r[3] + sp))
-            if not shapely.box(*r).intersects(shapely.box(*m)) and \
-                    shapely.intersection(band, macro).area == 0:
-                continue
+            a = 1 if v else 0  # the axis the stripe runs along
+            lo, hi = max(m[a], r[a]), min(m[a + 2], r[a + 2])
+            if hi <= lo:
+                continue  # the stripe does not reach the macro
+            band = (shapely.box(r[0] - sp, lo, r[2] + sp, hi) if v
+                    else shapely.box(lo, r[1] - sp, hi, r[3] + sp))
             if shapely.intersection(band, macro).area > 1e-9 and not band.within(macro):
                 bad += 1
     return bad
