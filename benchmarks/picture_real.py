@@ -40,13 +40,10 @@ def main(argv: list[str]) -> int:
     secs = time.perf_counter() - t
     own, ours = fw.evaluate(d, d.initial), fw.evaluate(d, fp)
     fig, axes = plt.subplots(1, 2, figsize=(16, 8.2))
-    for ax, f, r, who in ((axes[0], d.initial, own, "the design's own placement"),
-                          (axes[1], fp, ours, f"floorwidget place, defaults ({secs:.0f} s)")):
-        title = (f"ariane136, SRAMs movable: {who}\nHPWL {r['hpwl']:,.0f} µm · congestion p99 "
-                 f"{r['congestion_p99']:.2f} of supply · {r['logic_regions']} logic region(s)")
-        fw.render(d, f, ax=ax, heat="congestion", show_labels=False, title=title)
-    fig.suptitle("Early-floorplanning estimates; sign-off belongs to the implementation flow",
-                 fontsize=9, y=0.02)
+    for ax, f, who in ((axes[0], d.initial, "the design's own placement"),
+                       (axes[1], fp, f"floorwidget place, defaults ({secs:.0f} s)")):
+        fw.render(d, f, ax=ax, heat="congestion", show_labels=False,
+                  title=f"ariane136, SRAMs movable: {who}")
     out = Path(a.out)
     out.parent.mkdir(parents=True, exist_ok=True)
     fig.savefig(out, dpi=80, bbox_inches="tight")

@@ -5,6 +5,7 @@
     floorwidget report  FILE [--lef L ...] [--json]
     floorwidget place   FILE [--lef L ...] -o OUT [--target-density D] [--seed S] [--json]
                         [--macro-layout auto|periphery|free] [--channel UM] [--pins-only]
+                        [--power-grid GRID.json]
     floorwidget convert IN OUT [--lef L ...]
     floorwidget render  FILE -o OUT.png|OUT.svg [--lef L ...] [--heat density|congestion]
                         [--hierarchy DEPTH]
@@ -60,6 +61,7 @@ _LABELS = [
     ("macros_facing_wall", "macros with pins to a wall"),
     ("logic_regions", "logic regions"),
     ("largest_logic_region", "largest logic region (share)"),
+    ("straps_blocked", "macros clipping a power strap"),
 ]
 
 
@@ -160,6 +162,10 @@ def _parser() -> argparse.ArgumentParser:
     pl.add_argument("--pins-only", action="store_true",
                     help="reassign only the I/O pins to slots on the die edges for least "
                          "wirelength; every other block stays where FILE has it")
+    pl.add_argument("--power-grid", default=None, metavar="GRID.json",
+                    help="lay this power grid (rings, straps, followpins: the keys of "
+                         "floorwidget.floorplan.power.GridSpec) before placing; the placer "
+                         "honours it and the output DEF carries it as SPECIALNETS")
     pl.add_argument("--json", action="store_true",
                     help="print the report as JSON (non-finite values as null)")
 
@@ -218,6 +224,17 @@ def _load(path: str, args):
     return load(path, lef=args.lef or None, whitespace=args.whitespace, aspect=args.aspect)
 
 
+def _with_grid(design, path: str):
+    """``design`` with the power grid of the JSON file ``path``; errors name the file."""
+    from .floorplan.power import build_grid, load_spec
+
+    spec = load_spec(path)
+    try:
+        return design.derive(power=build_grid(design, spec))
+    except DesignError as e:
+        raise DesignError(e.message, file=path) from None
+
+
 def _run(args) -> int:
     if args.command == "report":
         from .metrics import evaluate
@@ -229,6 +246,8 @@ def _run(args) -> int:
         from .placer import place
 
         design = _load(args.file, args)
+        if args.power_grid is not None:
+            design = _with_grid(design, args.power_grid)
         bar = _Progress()
         try:
             if args.pins_only:

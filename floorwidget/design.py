@@ -24,6 +24,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from .kernels.power import PowerShapes
+from .kernels.rects import clip
 from .kernels.sweep import overlapping_pair
 
 __all__ = [
@@ -435,6 +437,8 @@ class Design:
                                      if blockage_max_density is None
                                      else _f64(blockage_max_density, (len(self.blockages),)))
         self.regions = CellRegions.empty(n) if regions is None else regions
+        #: The power grid (:class:`~floorwidget.kernels.power.PowerShapes`), or None.
+        self.power: PowerShapes | None = None
 
         self._index: dict[str, int] | None = None
         if validate:
@@ -531,6 +535,32 @@ class Design:
         """``(k, 4)`` the blockages that keep everything out (max density 0)."""
         return self.blockages[self.blockage_max_density <= 0.0]
 
+    def partial_blockages(self) -> tuple[np.ndarray, np.ndarray]:
+        """``(k, 4)`` rectangles and ``(k,)`` maximum densities of every partial blockage: the
+        drawn ones and the power stripes on low layers (at the grid's ``cell_density``)."""
+        md = self.blockage_max_density
+        part = md > 0.0
+        rects, dens = self.blockages[part], md[part]
+        g = self.power
+        if g is not None and g.cell_density < 1.0:
+            low = g.low_stripes()
+            if low.any():
+                rects = np.concatenate([rects, clip(g.rects[low], self.core)])
+                dens = np.concatenate([dens, np.full(int(low.sum()),
+                                                     max(g.cell_density, 1e-6))])
+        return rects, dens
+
+    def power_shapes(self, fp: Floorplan | None = None) -> PowerShapes | None:
+        """The power grid as drawn for ``fp`` (default :attr:`initial`): low stripes and
+        followpins cut over the macros, rings around the macros that asked for them; None
+        without a grid."""
+        g = self.power
+        if g is None:
+            return None
+        r = (fp or self.initial).rects()
+        ring = np.array([self.index[m] for m in g.macro_rings if m in self.index], np.intp)
+        return g.for_macros(r[self.kind == MACRO], r[ring])
+
     def same_netlist(self, other: Design) -> bool:
         """Whether ``other`` is this design or one derived from the same one (:meth:`derive`):
         the same blocks and nets, maybe other blockages, halos or cell regions.  Derived
@@ -545,7 +575,8 @@ class Design:
         ----------
         **changes
             Any of ``blockages`` (k, 4), ``blockage_max_density`` (k,), ``halo`` (n, 4),
-            ``regions`` (:class:`CellRegions`).
+            ``regions`` (:class:`CellRegions`), ``power``
+            (:class:`~floorwidget.kernels.power.PowerShapes` or None).
             Missing ones are shared with this design (arrays are never written in place).
 
         Returns
@@ -554,7 +585,7 @@ class Design:
             Validated (:class:`DesignError` naming the object at fault); its
             :attr:`initial` floorplan is this design's, and :meth:`same_netlist` holds.
         """
-        allowed = {"blockages", "blockage_max_density", "halo", "regions"}
+        allowed = {"blockages", "blockage_max_density", "halo", "regions", "power"}
         bad = set(changes) - allowed
         if bad:
             raise TypeError(f"derive() takes {', '.join(sorted(allowed))}; got "
@@ -572,6 +603,8 @@ class Design:
             new.halo = _f64(changes["halo"], (self.num_blocks, 4))
         if "regions" in changes:
             new.regions = changes["regions"]
+        if "power" in changes:
+            new.power = changes["power"]
         for a in ("blockages", "blockage_max_density", "halo"):
             getattr(new, a).flags.writeable = False
         probs = new._constraint_problems()

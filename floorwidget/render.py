@@ -77,7 +77,7 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
            show_labels: bool = True, ax=None, figsize: tuple[float, float] | None = None,
            dpi: int = 150, title: str | None = None, target_density: float | None = None,
            channel: float | None = None, hierarchy: int | None = None,
-           separators: str = "/."):
+           separators: str = "/.", power: bool = True):
     """Draw a floorplan to scale; write it to ``path`` (PNG or SVG, by suffix) if given.
 
     Layers, bottom to top: a raster of soft-cluster and standard-cell area (or, with ``heat``,
@@ -130,6 +130,11 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
         outline), the cell raster the colour of the group with most cell area per bin
         (:func:`floorwidget.hierarchy.logic_picture`, unless ``heat`` is given), and the
         legend lists the coloured groups and how many more share the grey.
+    power : bool
+        Draw the design's power grid (:attr:`floorwidget.design.Design.power`, as laid out
+        for ``fp``) under the macros: VDD and VSS shapes in the two
+        :data:`floorwidget.style.POWER_STYLES`, followpins lighter; SVG ids ``power:VDD``,
+        ``power:VSS``.
 
     Returns
     -------
@@ -186,6 +191,9 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
         sc.group_fill = [sc.gcols[g] for g in sc.groups.index]
     _raster(ax, sc)
     _outlines(ax, design)
+    sc.show_power = power and design.power is not None
+    if sc.show_power:
+        _power(ax, design, fp)
     _macros(ax, sc, channel)
     _frame(ax, sc, show_labels)
     _legend(ax, fig, sc)
@@ -293,6 +301,30 @@ def _outlines(ax, design: Design) -> None:
         b = reg.rects_of(k)[0]
         ax.text(b[0], b[3], f" {nm}", color=style.REDDISH_PURPLE, fontsize=7, va="top",
                 zorder=7)
+
+
+def _power(ax, design: Design, fp: Floorplan) -> None:
+    """The power grid: one collection per net (followpins at half the opacity)."""
+    from matplotlib.collections import PolyCollection
+
+    from .kernels.power import FOLLOWPIN, NETS
+
+    g = design.power_shapes(fp)
+    if g is None or not len(g):
+        return
+    r = g.rects
+    quads = np.stack([r[:, [0, 1]], r[:, [2, 1]], r[:, [2, 3]], r[:, [0, 3]]], axis=1)
+    for k, st in enumerate(style.POWER_STYLES):
+        sel = g.net == k
+        if not sel.any():
+            continue
+        alpha = np.where(g.shape[sel] == FOLLOWPIN, st.fill_opacity / 2, st.fill_opacity)
+        face = np.zeros((int(sel.sum()), 4))
+        face[:, :3] = _rgb(st.fill)
+        face[:, 3] = alpha
+        col = PolyCollection(quads[sel], facecolors=face, edgecolors="none", zorder=2.5)
+        col.set_gid(f"power:{NETS[k]}")
+        ax.add_collection(col, autolim=False)
 
 
 def _outline(ax, r, st, z, **kw):
@@ -456,6 +488,11 @@ def _legend(ax, fig, sc) -> None:
     if (md > 0).any():
         handles.append(Patch(facecolor="none", edgecolor=style.BLACK, hatch="..",
                              linestyle="--", label="partial blockage (density cap)"))
+    if sc.show_power:
+        for k, st in enumerate(style.POWER_STYLES):
+            if (design.power.net == k).any():
+                handles.append(Patch(facecolor=(*_rgb(st.fill), st.fill_opacity),
+                                     edgecolor="none", label=st.label))
     for fence, label in ((True, "fence (cells stay inside)"), (False, "guide (cells pulled in)")):
         if len(reg) and ((reg.kind == FENCE) == fence).any():
             handles.append(Patch(facecolor="none", edgecolor=style.REDDISH_PURPLE,

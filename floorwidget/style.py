@@ -150,6 +150,12 @@ NARROW_CHANNEL = BlockStyle(VERMILLION, 0.30, VERMILLION, 1.0, (), "solid", "\\\
 PINS_TO_WALL = BlockStyle(VERMILLION, 0.9, BLACK, 0.8, (4.0, 2.0), "dashed", "||",
                           "pins toward a wall")
 
+#: Power grid (rings, straps, followpins) per net, :data:`floorwidget.kernels.power.NETS`
+#: order: VDD light orange, VSS dark blue (apart in greyscale by lightness), both see-through
+#: so that the floorplan under them stays readable.
+POWER_STYLES = (BlockStyle(ORANGE, 0.45, ORANGE, 0.4, (), "solid", "", "VDD (power grid)"),
+                BlockStyle(BLUE, 0.45, BLUE, 0.4, (), "solid", "", "VSS (power grid)"))
+
 #: Colours of hierarchy groups, heaviest group first: Okabe-Ito without black (kept for text
 #: and outlines); groups past these seven share :data:`OTHER_GROUP`, and the legend says so.
 GROUP_PALETTE = (ORANGE, SKY_BLUE, BLUISH_GREEN, YELLOW, BLUE, VERMILLION, REDDISH_PURPLE)

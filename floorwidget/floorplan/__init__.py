@@ -7,3 +7,5 @@ beside ``placer``: it may import ``placer``, ``metrics``, ``formats``, ``design`
 """
 
 from .pins import PinConstraints, PinGroup, assign_pins, assign_pins_iterated  # noqa: F401
+from .power import GridSpec as GridSpec  # the power grid
+from .power import build_grid as build_grid

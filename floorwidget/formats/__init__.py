@@ -21,6 +21,7 @@ ends in ``.gz`` or ``.bz2``.  Writers are all or nothing, also for sets of files
 
 from __future__ import annotations
 
+import warnings
 from collections.abc import Sequence
 from pathlib import Path
 
@@ -102,6 +103,10 @@ def save(design: Design, floorplan: Floorplan | None, path) -> None:
     if suffix == ".aux" and p.suffix.lower() in COMPRESSED:
         raise DesignError("a Bookshelf set is written uncompressed; name the .aux without "
                           f"{p.suffix}", file=str(p))
+    if design.power is not None and design.power.spec is not None \
+            and suffix in (".json", ".aux", ".pl"):  # (a grid set in the tool, not read)
+        warnings.warn(f"{p}: the power grid is not stored in {suffix} files; write DEF "
+                      "(SPECIALNETS) or save the session to keep it", UserWarning, stacklevel=2)
     if suffix == ".json":
         from .native_json import write_json
         return write_json(design, fp, p)

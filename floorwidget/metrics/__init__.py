@@ -47,7 +47,7 @@ from .density import (
     rect_area_map,
 )
 from .legality import cell_legality, illegal_blocks, legality, pinned_illegal, row_of
-from .report import REPORT_KEYS, blockages_over_cap, evaluate
+from .report import REPORT_KEYS, blockages_over_cap, evaluate, straps_blocked
 from .shape import (
     Channels,
     LogicRegions,
@@ -84,6 +84,7 @@ __all__ = [
     "density_map",
     "density_overflow",
     "blockages_over_cap",
+    "straps_blocked",
     "evaluate",
     "facing_wall",
     "hpwl",

@@ -8,8 +8,9 @@ from __future__ import annotations
 
 import numpy as np
 
-from ..design import CELL, Design, Floorplan
+from ..design import CELL, MACRO, Design, Floorplan
 from ..kernels.fill import covered_share
+from ..kernels.power import channel_conflicts
 from .congestion import congestion_of_boxes, congestion_stats
 from .density import bin_grid, density_map
 from .legality import cell_legality, legality, pinned_illegal
@@ -24,7 +25,7 @@ REPORT_KEYS = (
     "out_of_die", "off_grid", "legal",
     "num_blocks", "num_nets", "target_density", "cell_overlaps", "cells_off_row",
     "cells_off_site", "narrow_channels", "macros_facing_wall", "logic_regions",
-    "largest_logic_region", "pinned_illegal", "blockages_over_cap",
+    "largest_logic_region", "pinned_illegal", "blockages_over_cap", "straps_blocked",
 )
 
 
@@ -38,6 +39,18 @@ def blockages_over_cap(design: Design, fp: Floorplan, tol: float = 1e-6) -> int:
     cells = fp.rects()[design.kind == CELL]
     share = covered_share(design.blockages[part], cells)
     return int(np.count_nonzero(share > md[part] + tol))
+
+
+def straps_blocked(design: Design, fp: Floorplan) -> int:
+    """Macros that break the channel rule (:mod:`floorwidget.kernels.power`): a power strap
+    on a low layer clips the macro's footprint instead of running beside it with its
+    spacing or over it; 0 without a power grid."""
+    g = design.power
+    if g is None or not g.low_stripes().any():
+        return 0
+    _, m = channel_conflicts(g.rects[g.low_stripes()], g.spacing,
+                             fp.rects()[design.kind == MACRO])
+    return int(len(np.unique(m)))
 
 
 def evaluate(design: Design, fp: Floorplan | None = None, target_density: float | None = None,
@@ -121,4 +134,5 @@ def evaluate(design: Design, fp: Floorplan | None = None, target_density: float 
         "largest_logic_region": lr.largest,
         "pinned_illegal": ", ".join(pinned_illegal(design, fp, leg)),
         "blockages_over_cap": over,
+        "straps_blocked": straps_blocked(design, fp),
     }

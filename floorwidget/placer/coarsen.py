@@ -115,7 +115,8 @@ class Clustering:
             halo[s] = top.halo[m[s]]
             designs.append(top if k == self.num_levels - 1 else
                            d.derive(blockages=top.blockages,
-                                    blockage_max_density=top.blockage_max_density, halo=halo))
+                                    blockage_max_density=top.blockage_max_density, halo=halo,
+                                    power=top.power))
         return Clustering(designs, self.parent, self.nets)
 
     def project(self, level: int, fp: Floorplan, base: Floorplan | None = None,
@@ -446,6 +447,7 @@ def contract(design: Design, fp: Floorplan, leader: np.ndarray, level: int
                blockage_max_density=design.blockage_max_density, regions=regions,
                block_type=btype, x=x, y=y,
                orient=orient, status=status, dbu=design.dbu, validate=False, source=design.source)
+    d.power = design.power  # (macros keep their names, which the grid's macro rings use)
     return d, parent, kept_nets
 
 

@@ -1,5 +1,9 @@
 """What hand-drawn constraints ask of the placer: partial placement blockages, cell regions.
 
+Power straps on low layers are partial blockages too (at the grid's ``cell_density``:
+:meth:`floorwidget.design.Design.partial_blockages`), so cells under a strap are capped the
+same way.
+
 A full blockage (maximum density 0) is an obstacle like a fixed macro: every placer stage
 already takes its area out.  A *partial* blockage with maximum density ``d`` (DEF
 ``+ PARTIAL``, as a fraction) lets standard cells and clusters fill at most ``d`` of its area,
@@ -41,13 +45,12 @@ def partial_capacity_loss(design: Design, grid: BinGrid, target: float) -> np.nd
     """``(nx, ny)`` capacity (µm²) that the partial blockages take from each bin at density
     ``target``: ``Σ max(0, target − d_k) × area of blockage k in the bin``.  Overlaps with
     other obstacles are counted again (callers clip the capacity at zero)."""
-    md = design.blockage_max_density
-    part = md > 0.0
-    loss = np.maximum(float(target) - md[part], 0.0)
+    rects, md = design.partial_blockages()
+    loss = np.maximum(float(target) - md, 0.0)
     keep = loss > 0.0
     if not keep.any():
         return np.zeros(grid.shape)
-    return np.maximum(rect_area_map(grid, design.blockages[part][keep], loss[keep]), 0.0)
+    return np.maximum(rect_area_map(grid, rects[keep], loss[keep]), 0.0)
 
 
 STRIPE_CELLS = 4.0  # a free stripe under a partial blockage holds at least this many cells
@@ -66,11 +69,11 @@ def partial_stripes(design: Design, cell_width: float) -> np.ndarray:
     area under a blockage is at most ``d`` of its area and no legal row placement can exceed
     the cap (the spreading budgets the same share through :func:`partial_capacity_loss`).
     """
-    md = design.blockage_max_density
+    rects, md = design.partial_blockages()
     sel = np.flatnonzero((md > 0.0) & (md < 1.0))
     if not len(sel):
         return np.zeros((0, 4))
-    b, d = design.blockages[sel], md[sel]
+    b, d = rects[sel], md[sel]
     width = b[:, 2] - b[:, 0]
     free_min = STRIPE_CELLS * max(float(cell_width), 1e-9)
     k = np.clip(np.floor(width * d / free_min), 1, MAX_STRIPES).astype(np.int64)

@@ -100,7 +100,7 @@ def _obstacle_rects(design: Design, fp: Floorplan, movable_cells: np.ndarray,
     r = fp.rects(halo=True)[sel]
     full = design.full_blockages
     stripes = None
-    if (design.blockage_max_density > 0).any():
+    if len(design.partial_blockages()[0]):
         cells = np.flatnonzero(k == CELL)
         wc = float(np.median(design.width[cells])) if len(cells) else 1.0
         stripes = partial_stripes(design, wc)

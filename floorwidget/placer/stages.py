@@ -48,6 +48,7 @@ from .spread import (
     overfilled_regions,
     overflow,
 )
+from .straps import clear_strap_channels
 
 Progress = Callable[[str, float, dict], Any] | None
 
@@ -344,6 +345,9 @@ def rows_stage(design: Design, out: Floorplan, src: Floorplan, opts: PlacerOptio
     ``cells="legal"``; timed and reported as the stages ``"rows"`` and ``"detail"``.  With
     ``only`` (a block mask) just those cells move; the others are obstacles where they are."""
     if only is None:  # (a local refine skips the whole-design figure)
+        if design.power is not None and opts.legalize_macros:  # the last macro moves
+            out, info["straps_blocked"] = clear_strap_channels(
+                design, out, movable_macro_indices(design, src))
         info["hpwl_global"] = hpwl(design, out)
     if opts.cells != "legal":
         return out

@@ -182,6 +182,8 @@ ACTIONS: dict[str, Action] = {a.name: a for a in (
     Action("remove_region", (_NAME,)),
     Action("assign_group", (("region", _optional_text), _GROUP), required=1,
            kwargs={"prefix": _text, "depth": _count, "separators": _text}),
+    Action("power_grid", (("spec", _mapping),)),
+    Action("clear_power_grid"),
     Action("place", kwargs=_RUN, placer_options=True),
     Action("refine", kwargs={**_RUN, "local": _flag}, placer_options=True),
     Action("legalize", placer_options=True),

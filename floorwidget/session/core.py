@@ -26,6 +26,7 @@ from .edits import HandEdits, locked
 from .history import History, freeze
 from .pins import PinCalls
 from .placing import PlacerCalls
+from .power import PowerEdits
 from .state import Alternative, ChangeEvent, SessionState, is_large, now
 
 __all__ = ["Session"]
@@ -42,7 +43,7 @@ def _copy_log(v):
     return v
 
 
-class Session(HandEdits, ConstraintEdits, PlacerCalls, PinCalls):
+class Session(HandEdits, ConstraintEdits, PlacerCalls, PinCalls, PowerEdits):
     """Interactive editing of one design's floorplan with undo, alternatives and a record.
 
     Parameters

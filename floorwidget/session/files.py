@@ -29,7 +29,8 @@ Session file layout (JSON, version 1)::
     CONSTRAINTS = {"blockages": [[xlo, ylo, xhi, yhi], ..], "max_density": [..],
                    "halo": {"idx": [..], "values": [[l, b, r, t], ..]},
                    "regions": [{"name", "type", "rects", "group"}, ..],
-                   "members": {"idx": [block, ..], "region": [k, ..]}}
+                   "members": {"idx": [block, ..], "region": [k, ..]},
+                   "power": GridSpec.to_dict() | null}   (power: only when set or cleared)
 
 Blockages and halos edited in the session (:meth:`Session.add_blockage`, ``set_halo``, ...)
 live on derived designs; ``"constraints"`` lists each distinct one once, its halos as the
@@ -69,6 +70,7 @@ from ..design import (
     DesignError,
     Floorplan,
 )
+from ..floorplan.power import GridSpec, build_grid
 from ..formats._io import atomic_write, read_json_file
 from .actions import MAX_BATCH_DEPTH, check_entry
 from .checks import fixed_freed
@@ -162,12 +164,15 @@ def _relative(src: str | None, path: Path | None) -> str | None:
 def _constraints_doc(design: Design, base: Design) -> dict:
     changed = np.flatnonzero((design.halo != base.halo).any(axis=1))
     mem = np.flatnonzero(design.regions.member >= 0)
-    return {"blockages": design.blockages.tolist(),
-            "max_density": design.blockage_max_density.tolist(),
-            "halo": {"idx": changed.tolist(), "values": design.halo[changed].tolist()},
-            "regions": design.regions.to_list(),
-            "members": {"idx": mem.tolist(),
-                        "region": design.regions.member[mem].tolist()}}
+    doc = {"blockages": design.blockages.tolist(),
+           "max_density": design.blockage_max_density.tolist(),
+           "halo": {"idx": changed.tolist(), "values": design.halo[changed].tolist()},
+           "regions": design.regions.to_list(),
+           "members": {"idx": mem.tolist(),
+                       "region": design.regions.member[mem].tolist()}}
+    if design.power is not base.power:  # a grid set (its specification) or cleared (null)
+        doc["power"] = None if design.power is None else design.power.spec
+    return doc
 
 
 class _Designs:
@@ -414,9 +419,17 @@ class _Doc:
             self.fail(where + ".members", "expected block indices and region indices")
         member = np.full(base.num_blocks, -1, np.int32)
         member[np.array(midx, dtype=np.int64)] = mreg
+        power = {}
+        if "power" in v:  # a grid set in the session (its specification) or cleared (null)
+            p = v["power"]
+            try:
+                power["power"] = None if p is None else build_grid(base, GridSpec.from_dict(p))
+            except DesignError as e:
+                self.fail(where + ".power", e.message)
         try:
             return base.derive(blockages=bl, blockage_max_density=md, halo=halo,
-                               regions=CellRegions.build(base.num_blocks, regions, member))
+                               regions=CellRegions.build(base.num_blocks, regions, member),
+                               **power)
         except DesignError as e:
             self.fail(where, e.message)
         raise AssertionError  # pragma: no cover

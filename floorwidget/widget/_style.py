@@ -50,6 +50,10 @@ def ui_colors() -> dict:
         "wall_label": _st.PINS_TO_WALL.label,
         # cell regions: fences solid, guides dashed, both outlined with their name
         "region": _st.REDDISH_PURPLE, "region_width": 2.0,
+        # the power grid (off by default): VDD and VSS rings and straps, see-through
+        "power": [st.fill for st in _st.POWER_STYLES],
+        "power_opacity": _st.POWER_STYLES[0].fill_opacity,
+        "power_labels": [st.label for st in _st.POWER_STYLES],
     }
 
 

@@ -7,6 +7,7 @@ engineer compares is drawn exactly like what they edit.
 Layer order, bottom to top: heat images (soft clusters / cells, density, congestion), the
 logic picture by hierarchy group, die and core outlines, placement rows (only when zoomed in),
 blockages (full ones filled, partial ones dashed and lighter, the selected one outlined),
+the power grid's rings and straps (VDD, VSS; off until :meth:`Canvas.show_power`),
 cell regions (fences solid, guides dashed, with their names),
 halos, macro fills, status outlines, narrow channels (a filled strip with a zigzag
 hatch) and bars on the pin side of macros whose pins face a wall, orientation notches, flylines
@@ -107,6 +108,7 @@ class Canvas:
         self._groups: hier.Groups | None = None   # made on first use (see groups)
         self._buses: hier.Groups | None = None
         self.colour_groups = False
+        self.power_on = False  # draw the power grid (show_power)
         self.group_colours: list[str] = []
         self.group_legend: list[tuple[str, list[int]]] = []
         #: a hierarchy group whose blocks are the flyline source (instead of the selection)
@@ -186,6 +188,10 @@ class Canvas:
             m[name] = bq.Lines(x=px, y=py, scales=sc, fill="inside",
                                colors=[self.ui["blockage"]], stroke_width=1.0,
                                line_style=dash, visible=False)
+        for k in (0, 1):  # the power grid: VDD, VSS (rings and straps; followpins left out)
+            m[f"power{k}"] = bq.Lines(x=px, y=py, scales=sc, fill="inside",
+                                      colors=[self.ui["power"][k]], stroke_width=0.0,
+                                      visible=False)
         for name, dash in (("regions", "solid"), ("regions_guide", "dashed")):
             m[name] = bq.Lines(x=px, y=py, scales=sc, colors=[self.ui["region"]],
                                stroke_width=self.ui["region_width"], line_style=dash,
@@ -429,6 +435,31 @@ class Canvas:
                     h.y = (bl[:, 1] + bl[:, 3]) / 2
                 h.visible = bool(len(bl))
 
+    # --- the power grid --------------------------------------------------------------------
+    def show_power(self, on: bool = True) -> None:
+        """Draw (or hide) the design's power grid: rings and straps as laid out for the
+        current floorplan, VDD and VSS in their two colours; followpins are left out (one per
+        row edge would outnumber everything else on the canvas)."""
+        self.power_on = bool(on)
+        self._draw_power()
+
+    def _draw_power(self) -> None:
+        from ..kernels.power import FOLLOWPIN
+
+        g = self.design.power_shapes(self.fp) if self.power_on else None
+        for k in (0, 1):
+            mk = self.marks[f"power{k}"]
+            sel = None if g is None else (g.net == k) & (g.shape != FOLLOWPIN)
+            if sel is None or not sel.any():
+                mk.visible = False
+                continue
+            x, y = geo.rect_rows(g.rects[sel])
+            with mk.hold_sync():
+                mk.x, mk.y = x, y
+                _set_list(mk, "fill_colors", [self.ui["power"][k]] * len(x))
+                _set_list(mk, "fill_opacities", [self.ui["power_opacity"]] * len(x))
+                mk.visible = True
+
     def _draw_regions(self) -> None:
         """Cell regions of ``self.design``: outlines (fences solid, guides dashed) and each
         name at the top-left corner of its first rectangle, with the member count."""
@@ -474,6 +505,8 @@ class Canvas:
             self._draw_blockages()
             self._draw_regions()
         d = self.design
+        if self.power_on:  # macro rings and cut straps follow the macros
+            self._draw_power()
         if illegal is None:
             illegal = illegal_blocks(d, fp)
         self._illegal = illegal

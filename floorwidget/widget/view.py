@@ -55,10 +55,12 @@ class ViewPanel:
                            "routing demand over supply heat layer (1.0 = full)")]
         for t, name in zip(heat, ("density", "congestion")):
             t.observe(lambda ch, name=name: self._heat_toggled(name, ch), "value")
+        power = ctx.toggle("Power grid", False, "Rings and straps of the power grid (VDD, VSS)")
+        power.observe(lambda ch: ctx.ui(lambda: ctx.canvas.show_power(ch["new"])), "value")
         self.legend = W.HTML(legend_html())
         self.box = W.VBox([
             W.HBox([self.find_text, find]),
-            W.HBox(heat),
+            W.HBox(heat), W.HBox([power]),
             W.HTML("<b>Hierarchy</b>"),
             W.HBox([self.group_depth, self.group_seps]),
             W.HBox([colour, through]),
@@ -240,6 +242,9 @@ def legend_html() -> str:
          "blockage"),
         (swatch(f'<rect x="4" y="4" width="8" height="8" fill="{ui["terminal"]}"/>', 16),
          "I/O pin"),
+        *[(swatch(f'<rect x="2" y="6" width="22" height="4" fill="{c}" '
+                  f'fill-opacity="{ui["power_opacity"]}"/>'), lab)
+          for c, lab in zip(ui["power"], ui["power_labels"])],
         (swatch(f'<polygon points="2,14 10,14 2,6" fill="{ui["outline"]}"/>'),
          "pin-1 corner"),
         (swatch(f'<rect x="2" y="5" width="22" height="6" fill="{ui["channel"]}" '

@@ -42,10 +42,11 @@ from ._common import (
 from .lef_reader import LefLibrary, read_lef
 from .polygons import _polygon_rects
 from .source import DefSource
+from .specialnets import parse_specialnets, shapes_from_parsed
 from .tokens import _TOK, _pack, _split_tokens, _Words, blank_comments
 
 _DEF_SECTIONS_SKIP = {"VIAS", "STYLES", "NONDEFAULTRULES", "PINPROPERTIES", "SLOTS",
-                      "FILLS", "SPECIALNETS", "SCANCHAINS"}
+                      "FILLS", "SCANCHAINS"}
 _DEF_QUIET = {"VERSION", "DIVIDERCHAR", "BUSBITCHARS", "NAMESCASESENSITIVE", "TECHNOLOGY",
               "HISTORY"}
 
@@ -81,6 +82,7 @@ class _Def:
         self.blockage_stmts: list[tuple[int, int] | None] = []
         self.notches = 0  # blockages from a rectilinear DIEAREA, first in the design's list
         self.comp_line = 1
+        self.power: dict | None = None  # SPECIALNETS power wiring (.specialnets)
 
     # --- locations and errors ----------------------------------------------------------------
     def line_at(self, pos: int) -> int:
@@ -160,7 +162,8 @@ class _Def:
     def parse(self) -> None:
         sections = {"COMPONENTS": self.components, "PINS": self.io_pins,
                     "NETS": self.net_section, "BLOCKAGES": self.blockage_section,
-                    "REGIONS": self.region_section, "GROUPS": self.group_section}
+                    "REGIONS": self.region_section, "GROUPS": self.group_section,
+                    "SPECIALNETS": self.specialnet_section}
         while True:
             t, p = self.tok()
             if t is None:  # a file cut short must not read as a smaller design
@@ -532,6 +535,16 @@ class _Def:
                          num(toks[k + 2]), ORIENT_CODE[ot])
                 k += 5
         return name, rect, place
+
+    # --- SPECIALNETS: the power grid ---------------------------------------------------------
+    def specialnet_section(self, body: int, end: int, count: int, start: int) -> None:
+        if self.dbu is None:
+            self.fail("SPECIALNETS before UNITS DISTANCE MICRONS", start)
+        try:
+            self.power = parse_specialnets(self.text[body:end], body, float(self.dbu),
+                                           self.skipped)
+        except DesignError as e:
+            self.fail(e.message, start)
 
     # --- NETS --------------------------------------------------------------------------------
     _NET = re.compile(
@@ -1123,5 +1136,7 @@ def read_def(path: str | Path, lef: str | Path | Sequence[str | Path] | None = N
     design.io_layers = {nm: r.pin_layers[p[0]] for nm, p in
                         zip(design.names[len(design.names) - len(r.pins or []):], r.pins or [])
                         if p[0] in r.pin_layers}
+    if r.power is not None:
+        design.power = shapes_from_parsed(r.power, design.routing_layers)
     design.def_source = DefSource.keep(source, r, design)
     return design

@@ -30,6 +30,7 @@ from ._common import (
 )
 from .def_statements import blockage_statement, group_statements, placement_ints, region_lines
 from .lef_writer import _abstracts, _lef_text, _sites
+from .specialnets import power_statements
 from .writeback import writeback_text
 
 
@@ -166,6 +167,10 @@ def _def_text(design: Design, fp: Floorplan, path) -> str:
         out.extend(map(blockage_statement, bl.tolist(), d.blockage_max_density.tolist()))
         out.append("END BLOCKAGES")
         out.append("")
+    power = d.power_shapes(fp)
+    if power is not None and len(power):
+        stmts = power_statements(power, dbu)
+        out += [f"SPECIALNETS {len(stmts)} ;", *stmts, "END SPECIALNETS", ""]
     out.append(f"NETS {d.num_nets} ;")
     term_name = {int(i): tnames[k] for k, i in enumerate(term.tolist())}
     pb = d.pin_block.tolist()

@@ -13,7 +13,7 @@ text and about 9 MB of arrays to a design (``benchmarks/bench_def_write.py`` mea
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -45,6 +45,10 @@ class DefSource:
         The constraints as read.
     notches : int
         How many of ``blockages`` (the first ones) come from a rectilinear ``DIEAREA``.
+    power : PowerShapes or None
+        The power grid as read from ``SPECIALNETS``.
+    power_stmts : list
+        ``(start, end)`` in ``text`` of each power or ground ``SPECIALNETS`` statement.
     blockage_stmts : list
         Per ``BLOCKAGES`` statement: ``(first, count)`` of its rectangles in ``blockages``
         for a placement blockage, ``None`` for any other.
@@ -68,6 +72,8 @@ class DefSource:
     regions: CellRegions
     notches: int
     blockage_stmts: list
+    power: object = None
+    power_stmts: list = field(default_factory=list)
 
     @classmethod
     def keep(cls, text: str, reader, design: Design) -> DefSource:
@@ -85,7 +91,9 @@ class DefSource:
             pin_rect=np.array(rects, dtype=np.float64).reshape(-1, 4),
             halo=design.halo.copy(), blockages=design.blockages.copy(),
             blockage_max_density=design.blockage_max_density.copy(), regions=design.regions,
-            notches=reader.notches, blockage_stmts=list(reader.blockage_stmts))
+            notches=reader.notches, blockage_stmts=list(reader.blockage_stmts),
+            power=design.power,
+            power_stmts=list(reader.power["stmts"]) if reader.power else [])
 
     @property
     def nbytes(self) -> int:

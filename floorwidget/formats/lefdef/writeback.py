@@ -25,6 +25,12 @@ Each change is an edit ``(start, end, replacement)`` on the source text
 * ``BLOCKAGES``: when the design's placement blockages differ from those read, source
   statements whose rectangles all remain are kept verbatim, the others dropped, routing and
   other blockages kept, and new rectangles written as new ``- PLACEMENT`` statements.
+* ``SPECIALNETS``: when the power grid differs from the one read (the user set or cleared a
+  grid), the grid *replaces* the input's power and ground wiring: the source statements of
+  nets with ``+ USE POWER``/``GROUND`` (or named ``VDD``/``VSS``/...) are dropped and ``VDD``
+  and ``VSS`` statements of the grid written (:mod:`.specialnets`); other special nets stay
+  verbatim and the header count follows.  Mixing the user's grid with the input's own power
+  wiring would leave two grids on top of each other.
 * ``REGIONS`` and ``GROUPS``: when the cell regions differ from those read, ``REGIONS`` is
   written from the design, and ``GROUPS`` keeps the source groups without a region and writes
   one group per region.
@@ -45,6 +51,7 @@ from ...design import FIXED, MOVABLE, ORIENTATIONS, PINNED, Design, DesignError,
 from ._common import _MATS, STATUS_PROPERTY, _dbu_ints
 from .def_statements import blockage_statement, group_statements, placement_ints, region_lines
 from .source import DefSource
+from .specialnets import power_statements
 from .tokens import _split_tokens, blank_comments
 
 _PLACEMENT = re.compile(
@@ -84,6 +91,8 @@ def writeback_text(design: Design, fp: Floorplan, path) -> str:
     if len(pins):
         edits += _pin_edits(src, pins, (x, y, orient, status))
     edits += _blockage_edits(src, design)
+    if design.power is not src.power:
+        edits += _power_edits(src, design, fp)
     if design.regions is not src.regions and design.regions != src.regions:
         edits += _region_edits(src, design, path)
     return _splice(src.text, edits)
@@ -285,3 +294,26 @@ def _region_edits(src: DefSource, design: Design, path) -> list[tuple[int, int, 
     stmts = kept + group_statements(design, path)
     lines = [f"GROUPS {len(stmts)} ;", *stmts, "END GROUPS"] if stmts else []
     return edits + _section_edit(src, "GROUPS", lines, src.design_end)
+
+
+def _power_edits(src: DefSource, design: Design, fp: Floorplan) -> list[tuple[int, int, str]]:
+    shapes = design.power_shapes(fp)
+    new = power_statements(shapes, src.dbu) if shapes is not None else []
+    span = src.spans.get("SPECIALNETS")
+    if span is None:
+        if not new:
+            return []
+        anchor = src.spans["NETS"][0] if "NETS" in src.spans else src.design_end
+        text = "\n".join([f"SPECIALNETS {len(new)} ;", *new, "END SPECIALNETS", "", ""])
+        return [(anchor, anchor, text)]
+    head = src.text[span[0]:span[1]]
+    m = re.match(r"(\s*SPECIALNETS\s+)(\d+)", head, re.I)
+    if m is None:
+        raise DesignError("cannot write back SPECIALNETS: no statement count in its header",
+                          file=src.path)
+    count = int(m.group(2)) - len(src.power_stmts) + len(new)
+    edits = [(span[0] + m.start(2), span[0] + m.end(2), str(count))]
+    edits += [(a, b, "") for a, b in src.power_stmts]
+    if new:
+        edits.append((span[1], span[1], "\n" + "\n".join(new)))
+    return edits

@@ -12,6 +12,7 @@ from ...design import MACRO, MOVABLE, Design, Floorplan
 from ...kernels import rects
 from .._select import movable_macros
 from ..errors import PlacementError
+from ..straps import clear_strap_channels
 from .packer import _Packer
 from .problem import _Problem
 
@@ -192,6 +193,8 @@ def legalize_macros(design: Design, fp: Floorplan, *, macros: Iterable | None = 
             info["legalize_moved"] = int(((nx_ != prob.x0) | (ny_ != prob.y0)).sum())
             info["legalize_displacement"] = float(dx.sum())
             info["legalize_max_displacement"] = float(dx.max())
+    if design.power is not None:  # channels for the power straps (placer.straps)
+        out, info["straps_blocked"] = clear_strap_channels(design, out, prob.idx)
     info["legalize_seconds"] = time.perf_counter() - t0
     out.info.update(info)
     report("legalize", 1.0, dict(info))
