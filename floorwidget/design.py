@@ -384,6 +384,9 @@ class Design:
         #: congestion figures divide routing demand by their supply (empty: an assumed stack,
         #: :func:`floorwidget.metrics.routing_supply`).
         self.routing_layers: list[tuple[str, str, float]] = []
+        #: DEF ``TRACKS`` a floorplan made from a netlist writes (``floorplan.init.Track``:
+        #: axis, start µm, count, step µm, layer); empty for designs read from files.
+        self.tracks: list = []
         self.def_source = None  # formats.lefdef.source.DefSource of a design read from DEF
         self.dbu = int(dbu)
         self.die = _f64(die, (4,))
