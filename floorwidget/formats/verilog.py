@@ -60,7 +60,8 @@ __all__ = ["Netlist", "read_verilog", "VERILOG_SUFFIXES"]
 VERILOG_SUFFIXES = (".v",)
 
 _TOKEN = re.compile(
-    r"\\\S+"                                            # escaped identifier
+    r"\.\s*[A-Za-z_][\w$]*\s*\(\s*(?:[A-Za-z_][\w$]*(?:\s*\[\s*\d+\s*\])?)?\s*\)"  # .P(n[3])
+    r"|\\\S+"                                           # escaped identifier
     r"|[A-Za-z_][\w$]*"                                 # identifier or keyword
     r"|\d*\s*'\s*[sS]?[bBoOdDhH]\s*[0-9a-fA-FxXzZ_?]+"  # based constant
     r"|\d+"                                             # decimal number
@@ -359,21 +360,27 @@ class _Parser:
             self.i = i + 1
             return conns
         while True:
-            if toks[i] != "." or toks[i + 2] != "(" or not _is_ident(toks[i + 1]):
+            t = toks[i]
+            if t[0] == "." and len(t) > 1:  # a whole ".P(net)", ".P(net[3])" or ".P()" token
+                pin, _, net = t[1:-1].partition("(")
+                pin, net = pin.strip(), net.strip()
+                if not net:
+                    conns.append((pin, []))
+                elif net[-1] == "]":
+                    nm, _, b = net[:-1].partition("[")
+                    b = int(b)
+                    conns.append((pin, [("s", nm.rstrip(), b, b)]))
+                else:
+                    conns.append((pin, [("s", net, None, None)]))
+                i += 1
+            elif t != "." or toks[i + 2] != "(" or not _is_ident(toks[i + 1]):
                 self.i = i
                 self.fail(f"instance {inst!r}: only named connections .PIN(net) are "
-                          f"supported, found {toks[i]!r}")
-            pin = _ident(toks[i + 1])
-            t = toks[i + 3]
-            if t == ")":
-                conns.append((pin, []))
-                i += 4
-            elif toks[i + 4] == ")" and _is_ident(t):
-                conns.append((pin, [("s", _ident(t), None, None)]))
-                i += 5
+                          f"supported, found {t!r}")
             else:
+                pin = _ident(toks[i + 1])
                 self.i = i + 3
-                atoms = self.expr()
+                atoms = self.expr() if toks[i + 3] != ")" else []
                 self.expect(")")
                 conns.append((pin, atoms))
                 i = self.i
@@ -588,7 +595,7 @@ class _Flat:
                         self.pin_name.append(name)
 
 
-def _top(mods: dict[str, _Module], top: str | None, parser: _Parser) -> _Module:
+def _top(mods: dict[str, _Module], top: str | None, parser) -> _Module:
     if top is not None:
         if top not in mods:
             raise DesignError(f"top module {top!r} is not in the file (modules: "
