@@ -520,7 +520,10 @@ class _Flat:
     def leaf_pins(self, master: str, pin: str, width: int, inst: str, k: int) -> list[str]:
         """LEF pin names for ``width`` bits connected to ``pin`` (most significant first)."""
         mac = self.lib.macros[master]
-        if width == 1 and pin in mac.pins:
+        if pin in mac.pins:
+            if width != 1:
+                self.p.fail(f"instance {inst!r}: pin {pin!r} of {master!r} is one bit, the "
+                            f"connection {width}", k)
             return [pin]
         key = (master, pin)
         bus = self.bus_pins.get(key)
