@@ -5,3 +5,7 @@ These are the steps an engineer takes before macros and cells are placed. The pa
 beside ``placer``: it may import ``placer``, ``metrics``, ``formats``, ``design`` and
 ``kernels``; ``session``, ``cli`` and ``widget`` import it.
 """
+
+from .init import floorplan_netlist as floorplan_netlist
+from .init import load_netlist as load_netlist
+from .init import place_pins_evenly as place_pins_evenly

@@ -77,7 +77,7 @@ def pick_site(lib: LefLibrary, height: np.ndarray | None = None) -> tuple[str, f
     """
     if not lib.sites:
         raise DesignError("the LEF library has no SITE: rows cannot be made",
-                          file=", ".join(lib.files) or None)
+                          file=", ".join(lib.files) or None, where="SITE")
     names = list(lib.sites)
     if height is not None and len(height):
         common = Counter(np.round(np.asarray(height), 6).tolist()).most_common(1)[0][0]
@@ -180,10 +180,10 @@ def _fill_rows(width: np.ndarray, cx: float, cy: float, sites: int, rows: int, s
     return cx + np.maximum(x, 0.0), cy + r * row_h
 
 
-def _check_fraction(v: float, what: str) -> float:
+def _check_fraction(v: float, what: str, src: str | None) -> float:
     v = float(v)
     if not (math.isfinite(v) and 0 < v <= 1):
-        raise DesignError(f"{what} must be in (0, 1], got {v:g}", where=what)
+        raise DesignError(f"{what} must be in (0, 1], got {v:g}", where=what, file=src)
     return v
 
 
@@ -232,33 +232,34 @@ def floorplan_netlist(nl: Netlist, lib: LefLibrary, *, utilization: float | None
         margin = DEFAULT_MARGIN_ROWS * row_h
     margin = float(margin)
     if not (math.isfinite(margin) and margin >= 0):
-        raise DesignError(f"margin must be a number of µm >= 0, got {margin:g}", where="margin")
+        raise DesignError(f"margin must be a number of µm >= 0, got {margin:g}",
+                          where="margin", file=src)
     margin = round(margin * dbu) / dbu
     if die is not None:
         if utilization is not None or aspect is not None:
             raise DesignError("give either a die or a utilisation and aspect, not both",
-                              where="die")
+                              where="die", file=src)
         die = np.asarray(die, np.float64).reshape(-1)
         if len(die) != 4 or not np.isfinite(die).all() or die[2] <= die[0] or die[3] <= die[1]:
             raise DesignError(f"die must be x1 y1 x2 y2 with x1 < x2 and y1 < y2, got "
-                              f"{' '.join(f'{v:g}' for v in die)}", where="die")
+                              f"{' '.join(f'{v:g}' for v in die)}", where="die", file=src)
         die = np.round(die * dbu) / dbu
         cw, ch = die[2] - die[0] - 2 * margin, die[3] - die[1] - 2 * margin
         sites = int(math.floor(cw / site_w + 1e-9)) if cw > 0 else 0
         rows = int(math.floor(ch / row_h + 1e-9)) if ch > 0 else 0
         if sites < 1 or rows < 1:
             raise DesignError(f"the die leaves no room for a row inside a margin of {margin:g} "
-                              "µm", where="die")
+                              "µm", where="die", file=src)
         cx, cy = die[0] + margin, die[1] + margin
     else:
         utilization = _check_fraction(DEFAULT_UTILIZATION if utilization is None
-                                      else utilization, "utilization")
+                                      else utilization, "utilization", src)
         aspect = 1.0 if aspect is None else float(aspect)
         if not (math.isfinite(aspect) and 1e-3 <= aspect <= 1e3):
             raise DesignError(f"aspect (core height / width) must be in [0.001, 1000], got "
-                              f"{aspect:g}", where="aspect")
+                              f"{aspect:g}", where="aspect", file=src)
         if area <= 0:
-            raise DesignError("the netlist has no cell or macro area", file=src)
+            raise DesignError("the netlist has no cell or macro area", file=src, where="netlist")
         sites, rows = core_size(area, utilization, aspect, site_w, row_h)
         cx = cy = margin
         die = np.array([0.0, 0.0, 2 * margin + sites * site_w, 2 * margin + rows * row_h])
@@ -266,7 +267,7 @@ def floorplan_netlist(nl: Netlist, lib: LefLibrary, *, utilization: float | None
     if area > core_w * core_h * (1 + 1e-9):
         raise DesignError(f"cells and macros ({area:.6g} µm²) exceed the core "
                           f"({core_w:.6g} x {core_h:.6g} µm): utilisation "
-                          f"{area / (core_w * core_h):.3g} > 1", where="die")
+                          f"{area / (core_w * core_h):.3g} > 1", where="die", file=src)
     # every macro must fit the core in one of its allowed orientations
     mac = np.flatnonzero(nl.kind == MACRO)
     if len(mac):
@@ -280,7 +281,7 @@ def floorplan_netlist(nl: Netlist, lib: LefLibrary, *, utilization: float | None
             raise DesignError(f"macro {nl.names[i]!r} ({nl.width[i]:g} x {nl.height[i]:g} µm) "
                               f"does not fit the core ({core_w:.6g} x {core_h:.6g} µm); lower "
                               "the utilisation, change the aspect or give a larger die",
-                              where=f"block {nl.names[i]!r}")
+                              where=f"block {nl.names[i]!r}", file=src)
     rows_d = make_rows(cx, cy, sites, rows, site_w, row_h, site_name)
     # I/O terminals: a square of the finest routing pitch, spread around the die
     term = nl.kind == TERMINAL
@@ -291,7 +292,10 @@ def floorplan_netlist(nl: Netlist, lib: LefLibrary, *, utilization: float | None
     y = cy + core_h / 2 - height / 2
     cells = np.flatnonzero(nl.kind == CELL)
     x[cells], y[cells] = _fill_rows(width[cells], cx, cy, sites, rows, site_w, row_h)
-    x[term], y[term] = place_pins_evenly(die, width[term], height[term], dbu)
+    try:
+        x[term], y[term] = place_pins_evenly(die, width[term], height[term], dbu)
+    except DesignError as e:
+        raise DesignError(e.message, file=src, where=e.where) from None
     design = Design(nl.name, die, nl.names, nl.kind, width, height, nl.net_start, nl.pin_block,
                     nl.pin_dx, nl.pin_dy, orient_allowed=nl.orient_allowed,
                     net_names=nl.net_names, pin_names=nl.pin_names, rows=rows_d,
@@ -318,7 +322,8 @@ def load_netlist(path: str | Path, lef: str | Path | Sequence[str | Path] | None
     """
     lefs = [lef] if isinstance(lef, (str, Path)) else list(lef or [])
     if not lefs:
-        raise DesignError("a Verilog netlist needs its LEF libraries (lef=[...])", file=str(path))
+        raise DesignError("a Verilog netlist needs its LEF libraries (lef=[...])", file=str(path),
+                          where="lef")
     lib = read_lef(lefs)
     return floorplan_netlist(read_verilog(path, lib, top=top), lib, utilization=utilization,
                              aspect=aspect, margin=margin, die=die)

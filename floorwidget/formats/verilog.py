@@ -58,6 +58,9 @@ from ._io import read_text
 __all__ = ["Netlist", "read_verilog", "VERILOG_SUFFIXES"]
 
 VERILOG_SUFFIXES = (".v",)
+#: Widest bus, constant or replication taken (bits); a wider one is refused (it would be a
+#: damaged file, and a billion-bit range would only exhaust memory).
+MAX_BITS = 1 << 16
 
 _TOKEN = re.compile(
     r"\.\s*[A-Za-z_][\w$]*\s*\(\s*(?:[A-Za-z_][\w$]*(?:\s*\[\s*\d+\s*\])?)?\s*\)"  # .P(n[3])
@@ -123,7 +126,6 @@ class Netlist:
     pin_dy: np.ndarray
     pin_names: list[str]
     source: str = ""
-    skipped: dict = field(default_factory=dict)
 
     @property
     def terminals(self) -> np.ndarray:
@@ -202,6 +204,8 @@ class _Parser:
         t = self.next(what)
         if not t.isdigit():
             self.fail(f"expected {what} (a whole number), found {t!r}", self.i - 1)
+        if len(t) > 9:
+            self.fail(f"{what}: {t[:12]}... is too large", self.i - 1)
         return int(t)
 
     def range_(self) -> tuple[int, int] | None:
@@ -211,6 +215,8 @@ class _Parser:
             self.expect(":")
             lsb = self.int_("the range's second bound")
             self.expect("]")
+            if abs(msb - lsb) >= MAX_BITS:
+                self.fail(f"range [{msb}:{lsb}] is wider than {MAX_BITS} bits", self.i - 1)
             return msb, lsb
         return None
 
@@ -222,6 +228,12 @@ class _Parser:
 
     # structure ------------------------------------------------------------------------------
     def modules(self) -> dict[str, _Module]:
+        try:
+            return self._modules()
+        except IndexError:  # a look-ahead past the last token
+            self.fail("unexpected end of file", len(self.toks) - 1)
+
+    def _modules(self) -> dict[str, _Module]:
         mods: dict[str, _Module] = {}
         toks = self.toks
         while self.i < len(toks):
@@ -236,7 +248,8 @@ class _Parser:
             self.header(m)
             self.body(m)
         if not mods:
-            raise DesignError("no module in the file", file=self.path)
+            raise DesignError("no module in the file", file=self.path,
+                              line=self.text.count("\n") + 1)
         return mods
 
     def header(self, m: _Module) -> None:
@@ -368,6 +381,10 @@ class _Parser:
                     conns.append((pin, []))
                 elif net[-1] == "]":
                     nm, _, b = net[:-1].partition("[")
+                    b = b.strip()
+                    if len(b) > 9:
+                        self.i = i
+                        self.fail(f"instance {inst!r}: bit index {b[:12]}... is too large")
                     b = int(b)
                     conns.append((pin, [("s", nm.rstrip(), b, b)]))
                 else:
@@ -404,10 +421,15 @@ class _Parser:
                 self.expect("{")
                 inner = self.concat_rest()
                 self.expect("}")
+                if n * _width(inner) > MAX_BITS:
+                    self.fail(f"a replication wider than {MAX_BITS} bits", self.i - 1)
                 return inner * n
             return self.concat_rest()
         if "'" in t or t.isdigit():
-            return [("c", _const_width(t))]
+            w = _const_width(t)
+            if w > MAX_BITS:
+                self.fail(f"constant {t[:12]} is wider than {MAX_BITS} bits", self.i - 1)
+            return [("c", w)]
         if not _is_ident(t):
             self.fail(f"expected a net, a constant or '{{', found {t!r}", self.i - 1)
         nm = _ident(t)
@@ -433,13 +455,19 @@ class _Parser:
                 self.fail(f"expected ',' or '}}' in a concatenation, found {s!r}", self.i - 1)
 
 
+def _width(atoms: list) -> int:
+    """Bits of an expression, counting a whole signal as one (a lower bound)."""
+    return sum(a[1] if a[0] == "c" else 1 if a[2] is None else abs(a[2] - a[3]) + 1
+               for a in atoms)
+
+
 def _const_width(t: str) -> int:
     if "'" not in t:
         return 32
     size, _, rest = t.partition("'")
     size = size.strip()
     if size:
-        return max(int(size), 1)
+        return max(int(size), 1) if len(size) <= 9 else MAX_BITS + 1
     rest = rest.strip().lstrip("sS")
     digits = len(re.sub(r"[\s_]", "", rest[1:]))
     return {"b": 1, "o": 3, "h": 4}.get(rest[0].lower(), 32) * digits if rest[0] in "bBoOhH" \
@@ -602,14 +630,14 @@ def _top(mods: dict[str, _Module], top: str | None, parser) -> _Module:
     if top is not None:
         if top not in mods:
             raise DesignError(f"top module {top!r} is not in the file (modules: "
-                              f"{', '.join(sorted(mods)[:8])})", file=parser.path)
+                              f"{', '.join(sorted(mods)[:8])})", file=parser.path, where="top")
         return mods[top]
     used = {inst[0] for m in mods.values() for inst in m.insts}
     tops = [m for m in mods.values() if m.name not in used]
     if len(tops) != 1:
         which = ", ".join(m.name for m in tops[:8]) if tops else "none (a cycle)"
         raise DesignError(f"cannot tell the top module: candidates {which}; give top=",
-                          file=parser.path)
+                          file=parser.path, where="top")
     return tops[0]
 
 
@@ -712,7 +740,8 @@ def read_verilog(path: str | Path, lib, top: str | None = None) -> Netlist:
             j = int(inst_pins[bad[0]])
             b = int(pin_block[j])
             raise DesignError(f"instance {fl.inst_names[b]!r}: pin {pin_name[j]!r} of LEF macro "
-                              f"{fl.inst_master[b]!r} has no shape", file=path)
+                              f"{fl.inst_master[b]!r} has no shape", file=path,
+                              where=f"instance {fl.inst_names[b]!r}")
         pdx[inst_pins], pdy[inst_pins] = o[:, 0], o[:, 1]
     return Netlist(
         name=tm.name, names=fl.inst_names + t_names, masters=fl.inst_master + [""] * nt,
