@@ -717,32 +717,45 @@ def read_verilog(path: str | Path, lib, top: str | None = None) -> Netlist:
     lab = label[pin_net][order]
     keys, starts = np.unique(lab, return_index=True)
     net_start = np.append(starts, len(lab)).astype(np.int64)
-    pin_block = pin_block[order]
     pin_name = [pin_name[j] for j in order.tolist()]
     net_names = [fl.net_names[j] for j in keys.tolist()]
-    # masters from the LEF
-    macs = lib.macros
-    ms = [macs[m] for m in fl.inst_master]
+    # masters from the LEF, gathered per distinct master
+    mnames = list(dict.fromkeys(fl.inst_master))
+    mindex = {m: k for k, m in enumerate(mnames)}
+    mid = np.fromiter(map(mindex.__getitem__, fl.inst_master), np.int64, ni)
+    ms = [lib.macros[m] for m in mnames]
     nt = len(t_names)
-    kind = np.array([m.kind for m in ms] + [TERMINAL] * nt, np.int8)
-    width = np.array([m.width for m in ms] + [0.0] * nt)
-    height = np.array([m.height for m in ms] + [0.0] * nt)
-    allowed = np.array([m.allowed for m in ms] + [1] * nt, np.uint8)
+
+    def per_block(values, fill, dtype):
+        return np.concatenate([np.array(values, dtype)[mid].reshape(ni), np.full(nt, fill, dtype)])
+
+    kind = per_block([m.kind for m in ms], TERMINAL, np.int8)
+    width = per_block([m.width for m in ms], 0.0, np.float64)
+    height = per_block([m.height for m in ms], 0.0, np.float64)
+    allowed = per_block([m.allowed for m in ms], 1, np.uint8)
+    # pin offsets: (master, pin name) looked up in a sorted table of every master's pins
+    pid_of: dict[str, int] = {}
+    rows = [(k, pid_of.setdefault(p, len(pid_of)), dx, dy)
+            for k, m in enumerate(ms) for p, (dx, dy) in m.pins.items()]
+    npi = len(fl.pin_name)
     pdx = np.zeros(len(pin_block))
     pdy = np.zeros(len(pin_block))
-    inst_pins = np.flatnonzero(pin_block < ni)
-    if len(inst_pins):
-        pb = pin_block[inst_pins].tolist()
-        offs = [ms[b].pins[pin_name[j]] for b, j in zip(pb, inst_pins.tolist())]
-        o = np.array(offs, np.float64).reshape(-1, 2)
-        bad = np.flatnonzero(np.isnan(o).any(axis=1))
+    if npi:
+        P = len(pid_of)
+        tab = np.array([(k * P + q, dx, dy) for k, q, dx, dy in rows], np.float64)
+        tab = tab[np.argsort(tab[:, 0])]
+        key = mid[pin_block[:npi]] * P + np.fromiter(map(pid_of.__getitem__, fl.pin_name),
+                                                     np.int64, npi)
+        hit = np.searchsorted(tab[:, 0], key)  # every pin was checked against its master
+        pdx[:npi], pdy[:npi] = tab[hit, 1], tab[hit, 2]
+        bad = np.flatnonzero(np.isnan(pdx[:npi]) | np.isnan(pdy[:npi]))
         if len(bad):
-            j = int(inst_pins[bad[0]])
+            j = int(bad[0])
             b = int(pin_block[j])
-            raise DesignError(f"instance {fl.inst_names[b]!r}: pin {pin_name[j]!r} of LEF macro "
-                              f"{fl.inst_master[b]!r} has no shape", file=path,
+            raise DesignError(f"instance {fl.inst_names[b]!r}: pin {fl.pin_name[j]!r} of LEF "
+                              f"macro {fl.inst_master[b]!r} has no shape", file=path,
                               where=f"instance {fl.inst_names[b]!r}")
-        pdx[inst_pins], pdy[inst_pins] = o[:, 0], o[:, 1]
+    pin_block, pdx, pdy = pin_block[order], pdx[order], pdy[order]
     return Netlist(
         name=tm.name, names=fl.inst_names + t_names, masters=fl.inst_master + [""] * nt,
         kind=kind, width=width, height=height, orient_allowed=allowed, directions=t_dirs,
