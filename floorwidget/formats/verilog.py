@@ -62,13 +62,21 @@ VERILOG_SUFFIXES = (".v",)
 #: damaged file, and a billion-bit range would only exhaust memory).
 MAX_BITS = 1 << 16
 
+_ID = r"[A-Za-z_][\w$]*"
+_NAME = rf"(?:{_ID}|\\\S+\s)"  # an identifier, or an escaped one with its ending white space
+_CONN = rf"\.\s*{_ID}\s*\(\s*(?:{_NAME}(?:\s*\[\s*\d+\s*\])?)?\s*\)"  # .P(n), .P(n[3]), .P()
 _TOKEN = re.compile(
-    r"\.\s*[A-Za-z_][\w$]*\s*\(\s*(?:[A-Za-z_][\w$]*(?:\s*\[\s*\d+\s*\])?)?\s*\)"  # .P(n[3])
+    # a whole instance whose connections are all of the simple forms: one token
+    rf"(?!(?:module|macromodule|endmodule)\b){_ID}\s+{_NAME}\s*\("
+    rf"\s*(?:{_CONN}\s*(?:,\s*{_CONN}\s*)*)?\)\s*;"
+    rf"|{_CONN}"                                        # one simple connection
     r"|\\\S+"                                           # escaped identifier
     r"|[A-Za-z_][\w$]*"                                 # identifier or keyword
     r"|\d*\s*'\s*[sS]?[bBoOdDhH]\s*[0-9a-fA-FxXzZ_?]+"  # based constant
     r"|\d+"                                             # decimal number
     r"|\S")                                             # punctuation
+_HEAD = re.compile(rf"({_ID})\s+({_NAME})\s*\(")
+_PARTS = re.compile(rf"\.\s*({_ID})\s*\(\s*({_NAME})?\s*(?:\[\s*(\d+)\s*\])?\s*\)")
 _SKIP = re.compile(r"/\*.*?\*/|//[^\n]*|\(\*.*?\*\)|^[ \t]*`[^\n]*", re.S | re.M)
 _DIRS = {"input", "output", "inout"}
 _NETS = {"wire", "tri", "supply0", "supply1", "wand", "wor", "tri0", "tri1", "uwire"}
@@ -312,6 +320,8 @@ class _Parser:
             elif t in _GATES or t in _REFUSED or t in ("module", "macromodule"):
                 self.fail(f"module {m.name!r}: {t!r} is not structural netlist content "
                           "(not supported)", k)
+            elif t[-1] == ";" and len(t) > 1:  # a whole simple instance
+                self.simple_instance(m, t, k)
             elif _is_ident(t):
                 self.instance(m, _ident(t), k)
             else:
@@ -342,6 +352,12 @@ class _Parser:
                 return
             if s != ",":
                 self.fail(f"expected ',' or ';' in a declaration, found {s!r}", self.i - 1)
+
+    def simple_instance(self, m: _Module, t: str, k: int) -> None:
+        """An instance read in one token: ``master name (.P(n), .Q(n[3]), .R());``; its
+        connections stay ``(pin, net, bit)`` text for :meth:`_Flat.flatten`."""
+        h = _HEAD.match(t)
+        m.insts.append((h.group(1), _ident(h.group(2).rstrip()), _PARTS.findall(t, h.end()), k))
 
     def instance(self, m: _Module, master: str, k: int) -> None:
         if self.toks[self.i] == "#":
@@ -386,9 +402,9 @@ class _Parser:
                         self.i = i
                         self.fail(f"instance {inst!r}: bit index {b[:12]}... is too large")
                     b = int(b)
-                    conns.append((pin, [("s", nm.rstrip(), b, b)]))
+                    conns.append((pin, [("s", _ident(nm.rstrip()), b, b)]))
                 else:
-                    conns.append((pin, [("s", net, None, None)]))
+                    conns.append((pin, [("s", _ident(net), None, None)]))
                 i += 1
             elif t != "." or toks[i + 2] != "(" or not _is_ident(toks[i + 1]):
                 self.i = i
@@ -545,6 +561,19 @@ class _Flat:
             out.extend(b[i0:i1 + 1] if i1 >= i0 else b[i1:i0 + 1][::-1])
         return out
 
+    def atoms_of(self, conn: tuple[str, str, str], k: int) -> tuple[str, list]:
+        """``(pin, atoms)`` of a simple connection's ``(pin, net, bit)`` text."""
+        pin, net, bit = conn
+        if not net:
+            return pin, []
+        if net[0] == "\\":
+            net = _ident(net.rstrip())
+        if not bit:
+            return pin, [("s", net, None, None)]
+        if len(bit) > 9:
+            self.p.fail(f"pin {pin!r}: bit index {bit[:12]}... is too large", k)
+        return pin, [("s", net, int(bit), int(bit))]
+
     def leaf_pins(self, master: str, pin: str, width: int, inst: str, k: int) -> list[str]:
         """LEF pin names for ``width`` bits connected to ``pin`` (most significant first)."""
         mac = self.lib.macros[master]
@@ -584,6 +613,7 @@ class _Flat:
             full = prefix + inst
             sub = self.mods.get(master)
             if sub is not None:
+                conns = [self.atoms_of(c, k) if len(c) == 3 else c for c in conns]
                 if master in stack:
                     self.p.fail(f"module {master!r} instantiates itself", k)
                 given = {}
@@ -615,7 +645,20 @@ class _Flat:
             idx = len(self.inst_names)
             self.inst_names.append(full)
             self.inst_master.append(master)
-            for pin, atoms in conns:
+            mpins = macros[master].pins
+            for c in conns:
+                if len(c) == 3:  # (pin, net, bit) text of a simple instance
+                    pin, net, bit = c
+                    if not bit and net and net[0] != "\\":
+                        b = table.get(net)
+                        if b is not None and len(b) == 1 and pin in mpins:  # the usual case
+                            self.pin_net.append(b[0])
+                            self.pin_inst.append(idx)
+                            self.pin_name.append(pin)
+                            continue
+                    pin, atoms = self.atoms_of(c, k)
+                else:
+                    pin, atoms = c
                 if not atoms:
                     continue
                 b = self.bits(m, table, prefix, atoms, k)
