@@ -100,8 +100,11 @@ module leaf2 (input [1:0] a, output y);
 endmodule
 module t2 (input x, input [1:0] v, output z);
   wire w = x;
+  wire [1:0] \\e.b ;
   leaf2 l (.a({2{w}}), .y(z));
   leaf2 m (.a(v), .y());
+  inv_w q (.A(\\e.b [1]), .Y(\\e.b [0]));
+  inv_w r (.A(\\e.b [0]), .Y(\\x[1] ));
 endmodule
 """
 
@@ -111,12 +114,17 @@ def test_ansi_ports_replication_and_a_declaration_assign(lib, tmp_path):
     p.write_bytes(gzip.compress(ANSI.encode()))
     nl = read_verilog(p, lib)
     assert nl.name == "t2"
+    assert {nl.net_names[k] for k, b in enumerate(nl.net_start[:-1]) if
+            nl.names[nl.pin_block[b]] in ("q", "r")} >= {"e.b[0]", "e.b[1]", "x\\[1\\]"}
     assert set(nets_of(nl)) == {
         frozenset({("PIN", "x"), ("l/g", "A"), ("l/g", "B")}),
         frozenset({("l/g", "Y"), ("PIN", "z")}),
         frozenset({("PIN", "v[1]"), ("m/g", "A")}),
         frozenset({("PIN", "v[0]"), ("m/g", "B")}),
         frozenset({("m/g", "Y")}),  # .y() left open: the port's net inside, alone
+        frozenset({("q", "Y"), ("r", "A")}),  # bit 0 of the escaped bus e.b
+        frozenset({("q", "A")}),
+        frozenset({("r", "Y")}),  # \x[1] is an implicit scalar net, not a bit of x
     }
 
 

@@ -24,7 +24,9 @@ What is read
 
 Not read: positional connections, instance arrays, parameters that change a module, gates
 (``and``, ``or``: a structural netlist instantiates library cells), behavioural code.  Each is
-refused with the file and line.
+refused with the file and line.  Buses, constants and replications wider than
+:data:`MAX_BITS` are refused too.  An escaped identifier containing ``//`` or ``/*`` would be
+cut by the comment rule.
 
 Hierarchy is flattened: an instance of a module of the file contributes its own instances,
 named ``<instance>/<name>``, and its internal nets, named likewise; its ports become the nets
@@ -38,10 +40,13 @@ names them (``axi_req_o[3]``).
 
 Speed
 -----
-The text is split into tokens by one regular expression (``re.findall``) and read by a single
-pass over the token list; line numbers are worked out only when there is an error to report.
-On a 25 MB netlist of 145,000 instances this takes a few seconds; see ``DEVELOPERS.md`` and
-``benchmarks/bench_netlist.py`` for the measurement against a full SystemVerilog front end.
+The text is split into tokens by one regular expression (``re.findall``) in which an instance
+whose connections all have the simple forms ``.P(net)``, ``.P(net[3])`` or ``.P()`` is a single
+token (its connections are split by a second expression and resolved while flattening); the
+rest is read by one pass over the token list.  Line numbers are worked out only when there is
+an error to report.  On a 25 MB netlist of 145,776 instances the whole reader takes about 4 s
+of CPU; see ``DEVELOPERS.md`` and ``benchmarks/bench_netlist.py`` for the measurement against
+a full SystemVerilog front end.
 """
 
 from __future__ import annotations
@@ -55,7 +60,7 @@ import numpy as np
 from ..design import TERMINAL, DesignError
 from ._io import read_text
 
-__all__ = ["Netlist", "read_verilog", "VERILOG_SUFFIXES"]
+__all__ = ["MAX_BITS", "Netlist", "read_verilog"]
 
 VERILOG_SUFFIXES = (".v",)
 #: Widest bus, constant or replication taken (bits); a wider one is refused (it would be a
@@ -153,7 +158,8 @@ class _Module:
     dirs: dict[str, str] = field(default_factory=dict)
     ranges: dict[str, tuple[int, int] | None] = field(default_factory=dict)
     assigns: list[tuple[list, list, int]] = field(default_factory=list)
-    # instances: (master, name, [(pin, atoms)], token index)
+    # instances: (master, name, connections, token index); a connection is (pin, atoms), or
+    # (pin, net, bit) text of a simple connection
     insts: list[tuple[str, str, list, int]] = field(default_factory=list)
 
 
@@ -380,8 +386,8 @@ class _Parser:
                 self.fail(f"instance {inst!r}: expected ';', found {s!r}", self.i - 1)
 
     def connections(self, inst: str) -> list:
-        """Named connections up to the closing ``)``; the common forms ``.P(net)`` and ``.P()``
-        are read straight from the token list."""
+        """Named connections up to the closing ``)``; a simple one (one token) stays
+        ``(pin, net, bit)`` text, like those of :meth:`simple_instance`."""
         toks = self.toks
         i = self.i
         conns: list = []
@@ -391,20 +397,7 @@ class _Parser:
         while True:
             t = toks[i]
             if t[0] == "." and len(t) > 1:  # a whole ".P(net)", ".P(net[3])" or ".P()" token
-                pin, _, net = t[1:-1].partition("(")
-                pin, net = pin.strip(), net.strip()
-                if not net:
-                    conns.append((pin, []))
-                elif net[-1] == "]":
-                    nm, _, b = net[:-1].partition("[")
-                    b = b.strip()
-                    if len(b) > 9:
-                        self.i = i
-                        self.fail(f"instance {inst!r}: bit index {b[:12]}... is too large")
-                    b = int(b)
-                    conns.append((pin, [("s", _ident(nm.rstrip()), b, b)]))
-                else:
-                    conns.append((pin, [("s", _ident(net), None, None)]))
+                conns.append(_PARTS.match(t).groups(""))
                 i += 1
             elif t != "." or toks[i + 2] != "(" or not _is_ident(toks[i + 1]):
                 self.i = i
