@@ -14,7 +14,9 @@ the power ring), or simply the die.  From these and the LEF library this module 
   die edge (common practice);
 * the I/O pins, spread evenly around the die edges in port order (:func:`place_pins_evenly`,
   the one place where pins are first placed; an optimising assignment can replace it);
-* macros and cells unplaced (all movable, at the core centre) for :func:`floorwidget.place`.
+* macros and cells movable, not yet placed (:func:`floorwidget.place` does that): macros at
+  the core centre, cells spread over the rows in netlist order, so that the report can measure
+  the unplaced design.
 
 The figures are early-floorplanning estimates; sign-off belongs to the full implementation
 flow's timing, power and physical checks.
@@ -212,7 +214,7 @@ def floorplan_netlist(nl: Netlist, lib: LefLibrary, *, utilization: float | None
     Returns
     -------
     Design
-        Macros and cells movable at the core centre; I/O terminals at their first places
+        Macros and cells movable, not yet placed; I/O terminals at their first places
         (:func:`place_pins_evenly`); ``design.tracks`` the :class:`Track` list;
         ``design.routing_layers`` and ``design.lef_files`` from the library.
 
