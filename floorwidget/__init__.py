@@ -38,6 +38,7 @@ __all__ = [
     "save",
 ]
 
+
 def load(path, lef=None, **options) -> Design:
     """Read a design by its suffix (:func:`floorwidget.formats.load`), or a structural Verilog
     netlist (``.v``, ``.v.gz``) with its LEF libraries, given its first floorplan
