@@ -17,7 +17,8 @@ bqplot; :class:`FloorplanWidget` loads them on first use.
 from __future__ import annotations
 
 from .design import ORIENTATIONS, Design, DesignError, Floorplan
-from .formats import load, save
+from .formats import load as _load_file
+from .formats import save
 
 __version__ = "0.1.0"
 
@@ -36,6 +37,24 @@ __all__ = [
     "render",
     "save",
 ]
+
+
+def load(path, lef=None, **options) -> Design:
+    """Read a design by its suffix (:func:`floorwidget.formats.load`), or a structural Verilog
+    netlist (``.v``, ``.v.gz``) with its LEF libraries, given its first floorplan
+    (:func:`floorwidget.floorplan.init.load_netlist`: ``top=``, ``utilization=`` (default 0.7),
+    ``aspect=``, ``margin=``, ``die=``).
+
+    >>> d = load("blk.v.gz", lef=["tech.lef", "cells.lef"], utilization=0.6)  # doctest: +SKIP
+    """
+    from .formats._io import format_suffix
+
+    if format_suffix(path) == ".v":
+        from .floorplan.init import load_netlist
+
+        return load_netlist(path, lef, **options)
+    return _load_file(path, lef, **options)
+
 
 _LAZY = {
     "evaluate": ("floorwidget.metrics", "evaluate"),

@@ -6,6 +6,8 @@
     floorwidget place   FILE [--lef L ...] -o OUT [--target-density D] [--seed S] [--json]
                         [--macro-layout auto|periphery|free] [--channel UM] [--pins-only]
                         [--power-grid GRID.json]
+    floorwidget place   X.v --lef L ... [--top NAME] [--utilization U] [--aspect A]
+                        [--margin UM] [--die X1 Y1 X2 Y2] -o OUT   (a netlist: die, rows first)
     floorwidget convert IN OUT [--lef L ...]
     floorwidget render  FILE -o OUT.png|OUT.svg [--lef L ...] [--heat density|congestion]
                         [--hierarchy DEPTH]
@@ -31,6 +33,7 @@ import time
 
 from .design import DesignError
 from .formats import load, save
+from .formats._io import format_suffix
 from .kernels import fmt
 
 CAUTION = ("early-floorplanning estimates; timing, power and physical sign-off belong to the "
@@ -62,6 +65,7 @@ _LABELS = [
     ("logic_regions", "logic regions"),
     ("largest_logic_region", "largest logic region (share)"),
     ("straps_blocked", "macros clipping a power strap"),
+    ("utilization", "utilisation (cell and macro area / core area)"),
 ]
 
 
@@ -130,13 +134,26 @@ def _parser() -> argparse.ArgumentParser:
 
     def common(sp):
         sp.add_argument("--lef", nargs="+", action="extend", default=[], metavar="L",
-                        help="LEF libraries for a .def input, technology LEF first (one or "
+                        help="LEF libraries for a .def or .v input, technology LEF first (one or "
                              "more; may repeat)")
         sp.add_argument("--whitespace", type=float, default=None, metavar="W",
                         help="GSRC .blocks/.hardblocks input: outline area = (1 + W) x block "
                              "area (default: the terminals' box, else 0.10)")
         sp.add_argument("--aspect", type=float, default=None, metavar="A",
-                        help="GSRC input: outline height / width with --whitespace (default 1)")
+                        help="GSRC input: outline height / width with --whitespace; Verilog "
+                             "input: core height / width (default 1)")
+        sp.add_argument("--top", default=None, metavar="NAME",
+                        help="Verilog input: the top module (default: the one module no "
+                             "other instantiates)")
+        sp.add_argument("--utilization", type=_density, default=None, metavar="U",
+                        help="Verilog input: cell and macro area / core area, 0 < U <= 1 "
+                             "(default 0.7)")
+        sp.add_argument("--margin", type=_channel, default=None, metavar="UM",
+                        help="Verilog input: space between core and die, µm (default 20 row "
+                             "heights)")
+        sp.add_argument("--die", type=float, nargs=4, default=None,
+                        metavar=("X1", "Y1", "X2", "Y2"),
+                        help="Verilog input: the die, µm, instead of --utilization/--aspect")
 
     r = sub.add_parser("report", help="print the figures of a design as placed in the file")
     r.add_argument("file")
@@ -221,6 +238,16 @@ class _Progress:
 
 
 def _load(path: str, args):
+    if format_suffix(path) == ".v":
+        from .floorplan.init import load_netlist
+
+        if args.whitespace is not None:
+            raise _Bad("floorwidget: --whitespace applies to GSRC inputs, not a Verilog netlist")
+        return load_netlist(path, args.lef, top=args.top, utilization=args.utilization,
+                            aspect=args.aspect, margin=args.margin, die=args.die)
+    given = [o for o in ("top", "utilization", "margin", "die") if getattr(args, o) is not None]
+    if given:
+        raise _Bad(f"floorwidget: --{given[0]} applies to a Verilog netlist (.v) only")
     return load(path, lef=args.lef or None, whitespace=args.whitespace, aspect=args.aspect)
 
 

@@ -45,7 +45,7 @@ DATA = Path(__file__).parent / "data"
 LONG = os.environ.get("FW_FUZZ", "").lower() == "long"
 EXAMPLES = {"json": 300, "bookshelf": 400, "lef": 300, "def": 400, "session": 300, "gz": 100,
             "gsrc": 300, "session_edits": 150, "session_log": 200, "constraints-json": 300,
-            "constraints-def": 300, "constraints-place": 60}
+            "constraints-def": 300, "constraints-place": 60, "verilog": 300}
 if LONG:
     EXAMPLES = {k: 20 * v for k, v in EXAMPLES.items()}
 TIME_LIMIT = 10.0  # seconds per mutant; the seeds load in milliseconds
@@ -301,6 +301,17 @@ def test_bookshelf_set(which, ops):
 @given(ops=OPS)
 def test_lef(ops):
     _load_def("lef", {"k.def": DEF_SEED, "t.lef": TECH_LEF, "c.lef": mutate(CELL_LEF, ops)})
+
+
+VERILOG_SEED = (DATA / "verilog" / "wren_top.v").read_bytes()
+WREN_LEF = (DATA / "verilog" / "wren.lef").read_bytes()
+
+
+@fuzz("verilog")
+@given(ops=OPS)
+def test_verilog(ops):
+    _run_in({"w.v": mutate(VERILOG_SEED, ops), "w.lef": WREN_LEF}, "w.v", lambda p: check(
+        "verilog", lambda: fw.load(p, lef=[p.parent / "w.lef"], utilization=0.5, margin=2)))
 
 
 def _load_and_write_back(p: Path):

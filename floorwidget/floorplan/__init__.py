@@ -6,6 +6,9 @@ beside ``placer``: it may import ``placer``, ``metrics``, ``formats``, ``design`
 ``kernels``; ``session``, ``cli`` and ``widget`` import it.
 """
 
+from .init import floorplan_netlist as floorplan_netlist
+from .init import load_netlist as load_netlist
+from .init import place_pins_evenly as place_pins_evenly
 from .pins import PinConstraints, PinGroup, assign_pins, assign_pins_iterated  # noqa: F401
 from .power import GridSpec as GridSpec  # the power grid
 from .power import build_grid as build_grid

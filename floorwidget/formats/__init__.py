@@ -65,6 +65,9 @@ def load(path, lef: str | Sequence[str] | None = None, *, whitespace: float | No
     """
     p = Path(path)
     suffix = format_suffix(p)
+    if suffix == ".v":
+        raise DesignError("a Verilog netlist has no floorplan yet: read it with "
+                          "floorwidget.load(path, lef=[...], utilization=...)", file=str(p))
     if lef is not None and _lefs(lef) and suffix != ".def":
         raise DesignError(f"lef= applies to .def designs only, not {suffix or 'this file'}",
                           file=str(p))

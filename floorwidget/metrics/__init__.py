@@ -45,6 +45,7 @@ from .density import (
     density_overflow,
     peak_density,
     rect_area_map,
+    utilization,
 )
 from .legality import cell_legality, illegal_blocks, legality, pinned_illegal, row_of
 from .report import REPORT_KEYS, blockages_over_cap, evaluate, straps_blocked
@@ -106,5 +107,6 @@ __all__ = [
     "row_of",
     "rudy_map",
     "rudy_of_boxes",
+    "utilization",
     "wall_bars",
 ]

@@ -23,7 +23,7 @@ from ..design import CLUSTER, MOVABLE, TERMINAL, Design, Floorplan
 from ..kernels.rects import clip, union_rects
 
 __all__ = ["MAX_BINS", "BinGrid", "DensityMap", "bin_grid", "density_map", "density_overflow",
-           "peak_density", "rect_area_map"]
+           "peak_density", "rect_area_map", "utilization"]
 
 #: Upper bound on the number of bins along either side of the default grid.  128 keeps a map
 #: near 100 kB, so the report after every drop in the notebook stays at a few milliseconds
@@ -339,3 +339,19 @@ def peak_density(design: Design, fp: Floorplan, grid: BinGrid | None = None) -> 
     return float(dm.utilisation.max()) if dm.movable.size else 0.0
 
 
+def utilization(design: Design) -> float:
+    """Core utilisation: the footprint area of the macros, soft clusters and standard cells
+    (never I/O terminals) over the core area (the rows' bounding box, the die without rows).
+
+    Depends on the design only (areas do not change with placement); NaN for an empty core.
+
+    Examples
+    --------
+    >>> utilization(design)      # doctest: +SKIP
+    0.7
+    """
+    c = design.core
+    core = float((c[2] - c[0]) * (c[3] - c[1]))
+    k = design.kind != TERMINAL
+    area = float(np.dot(design.width[k], design.height[k]))
+    return area / core if core > 0 else float("nan")

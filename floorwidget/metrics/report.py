@@ -12,7 +12,7 @@ from ..design import CELL, MACRO, Design, Floorplan
 from ..kernels.fill import covered_share
 from ..kernels.power import channel_conflicts
 from .congestion import congestion_of_boxes, congestion_stats
-from .density import bin_grid, density_map
+from .density import bin_grid, density_map, utilization
 from .legality import cell_legality, legality, pinned_illegal
 from .shape import logic_regions, macros_facing_wall, narrow_channels
 from .wirelength import net_boxes
@@ -26,6 +26,7 @@ REPORT_KEYS = (
     "num_blocks", "num_nets", "target_density", "cell_overlaps", "cells_off_row",
     "cells_off_site", "narrow_channels", "macros_facing_wall", "logic_regions",
     "largest_logic_region", "pinned_illegal", "blockages_over_cap", "straps_blocked",
+    "utilization",
 )
 
 
@@ -84,7 +85,8 @@ def evaluate(design: Design, fp: Floorplan | None = None, target_density: float 
         ``out_of_die`` (blocks), ``off_grid`` (macros), ``legal``, ``num_blocks``, ``num_nets``;
         the floorplan's shape: ``narrow_channels`` (:func:`channel_gaps`),
         ``macros_facing_wall`` (:func:`facing_wall`), ``logic_regions`` and
-        ``largest_logic_region`` (:func:`logic_regions`).
+        ``largest_logic_region`` (:func:`logic_regions`); ``utilization``, cell and macro
+        area over core area (:func:`utilization`).
 
     Examples
     --------
@@ -135,4 +137,5 @@ def evaluate(design: Design, fp: Floorplan | None = None, target_density: float 
         "pinned_illegal": ", ".join(pinned_illegal(design, fp, leg)),
         "blockages_over_cap": over,
         "straps_blocked": straps_blocked(design, fp),
+        "utilization": utilization(design),
     }

@@ -110,6 +110,9 @@ def _def_text(design: Design, fp: Floorplan, path) -> str:
         out.append(f"ROW ROW_{r} {snames[site_of[r]]} {rx[r]} {ry[r]} "
                    f"{ORIENTATIONS[int(d.row_orient[r])]} DO {int(d.row_num_sites[r])} BY 1 "
                    f"STEP {rs[r]} 0 ;")
+    for t in getattr(d, "tracks", ()):
+        out.append(f"TRACKS {t.axis} {int(I(t.start))} DO {t.count} STEP {int(I(t.step))} "
+                   f"LAYER {t.layer} ;")
     out.append("")
     xs, ys = xs_a.tolist(), ys_a.tolist()
     halo_a = I(d.halo)
