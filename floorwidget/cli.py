@@ -277,13 +277,18 @@ def _run(args) -> int:
             design = _with_grid(design, args.power_grid)
         bar = _Progress()
         try:
+            opts = dict(target_density=args.target_density, seed=args.seed, progress=bar,
+                        macro_layout=args.macro_layout, channel=args.channel)
             if args.pins_only:
                 from .floorplan.pins import assign_pins
 
                 fp = assign_pins(design, design.initial)
+            elif format_suffix(args.file) == ".v":  # a new floorplan: its pins follow the logic
+                from .floorplan.pins import assign_pins_iterated
+
+                fp = assign_pins_iterated(design, design.initial, rounds=1, **opts)
             else:
-                fp = place(design, target_density=args.target_density, seed=args.seed,
-                           progress=bar, macro_layout=args.macro_layout, channel=args.channel)
+                fp = place(design, **opts)
         finally:
             bar.close()
         save(design, fp, args.output)
