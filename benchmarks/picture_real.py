@@ -42,7 +42,7 @@ def main(argv: list[str]) -> int:
     fig, axes = plt.subplots(1, 2, figsize=(16, 8.2))
     for ax, f, who in ((axes[0], d.initial, "the design's own placement"),
                        (axes[1], fp, f"floorwidget place, defaults ({secs:.0f} s)")):
-        fw.render(d, f, ax=ax, heat="congestion", show_labels=False,
+        fw.render(d, f, ax=ax, heat="congestion", show_labels=False, power=False,
                   title=f"ariane136, SRAMs movable: {who}")
     out = Path(a.out)
     out.parent.mkdir(parents=True, exist_ok=True)
