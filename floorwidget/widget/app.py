@@ -3,11 +3,12 @@ the rest in tabs (View, Edit, Constraints, Regions), the alternatives along the 
 
 The widget holds no placement logic.  It composes panels (:mod:`.toolbar`, :mod:`.readouts`,
 :mod:`.details`, :mod:`.view`, :mod:`.edit`, :mod:`.constraints`, :mod:`.regions`,
-:mod:`.alternatives`, :mod:`.candidates`, :mod:`.dragging`, :mod:`.keys`); each owns its
-controls and subscribes to the Session (:meth:`Session.on_change`) and to the selection itself.
-Mouse events become Session calls (a drop is :meth:`FloorplanWidget.drop`); the methods below
-are the same Session calls for scripts and tests.  The figures shown are early-floorplanning
-estimates; sign-off belongs to the full implementation flow.
+:mod:`.alternatives`, :mod:`.dragging`, :mod:`.keys`); each owns its controls and subscribes to
+the Session (:meth:`Session.on_change`) and to the selection itself.  Mouse events become
+Session calls (a drop is :meth:`FloorplanWidget.drop`); the methods below are the same Session
+calls for scripts and tests.  The figures shown are early-floorplanning estimates; sign-off
+belongs to the full implementation flow.  The candidates view (:mod:`.candidates`) sits under
+the alternatives.
 """
 
 from __future__ import annotations

@@ -187,11 +187,9 @@ class CandidatesPanel:
 
     def _mark_current(self) -> None:
         """Outline the card of the current floorplan, if it is one of them."""
-        s = self.ctx.session
-        fp = s.floorplan
+        cur = self.current
         for lab, card in zip(self.labels, self.cards.children):
-            card.layout.border = (_CURRENT if fp.identical(s.alternative(lab).floorplan)
-                                  else _OTHER)
+            card.layout.border = _CURRENT if lab == cur else _OTHER
 
     @property
     def current(self) -> str | None:
