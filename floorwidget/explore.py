@@ -668,7 +668,9 @@ def to_session(session, results: Sequence[SweepResult], prefix: str = "sweep") -
 
 
 def candidates(design: Design, k: int = 4, executor: cf.Executor | None = None,
-               base: Floorplan | None = None, **fixed_options) -> list[SweepResult]:
+               base: Floorplan | None = None, *,
+               progress: Callable[[int, int, SweepResult], Any] | None = None,
+               **fixed_options) -> list[SweepResult]:
     """``k`` diverse macro arrangements of ``design``, placed in parallel on ``executor`` (as
     :func:`sweep`), best first.
 
@@ -677,7 +679,8 @@ def candidates(design: Design, k: int = 4, executor: cf.Executor | None = None,
     always ``"free"``) take turns, each with its own seed.  Runs are ranked legal first, then
     by the product of HPWL and congestion p99 (both matter: the one bought with the other is
     not better), then by logic regions.  :func:`to_session` turns them into alternatives of a
-    session, where the widget shows them side by side.
+    session, where the widget shows them side by side.  ``progress`` is :func:`sweep`'s (called
+    as each run finishes).
 
     Returns
     -------
@@ -700,7 +703,7 @@ def candidates(design: Design, k: int = 4, executor: cf.Executor | None = None,
     layouts.append("free")
     grid = [{"macro_layout": layouts[i % len(layouts)], "seed": i // len(layouts)}
             for i in range(k)]
-    res = sweep(design, grid, executor, base, **fixed_options)
+    res = sweep(design, grid, executor, base, progress=progress, **fixed_options)
 
     def rank(r: SweepResult):
         if not r.ok:

@@ -7,7 +7,8 @@ The widget holds no placement logic.  It composes panels (:mod:`.toolbar`, :mod:
 the Session (:meth:`Session.on_change`) and to the selection itself.  Mouse events become
 Session calls (a drop is :meth:`FloorplanWidget.drop`); the methods below are the same Session
 calls for scripts and tests.  The figures shown are early-floorplanning estimates; sign-off
-belongs to the full implementation flow.
+belongs to the full implementation flow.  The candidates view (:mod:`.candidates`) sits under
+the alternatives.
 """
 
 from __future__ import annotations
@@ -17,6 +18,7 @@ import ipywidgets as W
 from ..design import Design, Floorplan
 from ..session import Session
 from .alternatives import AlternativesPanel
+from .candidates import CandidatesPanel
 from .canvas import Canvas
 from .constraints import ConstraintsPanel
 from .context import Context, block_names
@@ -60,7 +62,7 @@ class FloorplanWidget(W.VBox):
     ----------
     session : Session
     canvas : Canvas
-    toolbar, readouts, details, view, edit, constraints, regions, alternatives
+    toolbar, readouts, details, view, edit, constraints, regions, alternatives, candidates
         The panels.
     runner : Runner
         Placer runs on the shared thread pool, and their progress bar.
@@ -98,6 +100,7 @@ class FloorplanWidget(W.VBox):
         self.constraints = ConstraintsPanel(ctx)
         self.regions = RegionsPanel(ctx, self.view)
         self.alternatives = AlternativesPanel(ctx)
+        self.candidates = CandidatesPanel(ctx)
         self.dragging = Dragging(ctx, self.readouts)
         self.toolbar = Toolbar(ctx, {"place": self.place, "refine": self.refine,
                                      "legalize": self.legalize, "expand": self.expand},
@@ -119,9 +122,10 @@ class FloorplanWidget(W.VBox):
                                         min_width=f"{size}px"))
         fig_box.add_class("fw-canvas")
         main = W.HBox([fig_box, side], layout=W.Layout(flex_flow="row wrap", width="100%"))
-        bottom = W.Accordion([self.alternatives.box], selected_index=None,
+        bottom = W.Accordion([self.alternatives.box, self.candidates.box], selected_index=None,
                              layout=W.Layout(width="100%"))
         bottom.set_title(0, "Alternatives: keep, compare, restore")
+        bottom.set_title(1, "Candidates: K macro arrangements side by side")
         super().__init__([self.toolbar.box, main, bottom], layout=W.Layout(width="100%"))
         self.add_class("fw-widget")
 
@@ -249,6 +253,11 @@ class FloorplanWidget(W.VBox):
     def keep(self, label: str) -> None:
         """Keep the current floorplan as alternative ``label`` (:meth:`Session.snapshot`)."""
         self.alternatives.keep(label)
+
+    def find_candidates(self, k: int = 3, *, wait: bool = True) -> bool:
+        """K macro arrangements side by side (:meth:`CandidatesPanel.find`); ``wait=False``
+        runs them in the background."""
+        return self.candidates.find(k, wait=wait)
 
     # --- placer runs ------------------------------------------------------------------------------
     @property
