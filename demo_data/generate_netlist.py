@@ -25,9 +25,9 @@ from floorwidget.synth import rent_design  # noqa: E402
 
 HERE = Path(__file__).resolve().parent
 # layer, direction, pitch (µm), width (µm)
-LAYERS = [("hm1", "HORIZONTAL", 0.2, 0.07), ("hm2", "VERTICAL", 0.2, 0.07),
-          ("hm3", "HORIZONTAL", 0.4, 0.14), ("hm4", "VERTICAL", 0.4, 0.14),
-          ("hm5", "HORIZONTAL", 0.8, 0.4), ("hm6", "VERTICAL", 0.8, 0.4)]
+LAYERS = [("hm1", "HORIZONTAL", 0.1, 0.05), ("hm2", "VERTICAL", 0.1, 0.05),
+          ("hm3", "HORIZONTAL", 0.1, 0.05), ("hm4", "VERTICAL", 0.2, 0.1),
+          ("hm5", "HORIZONTAL", 0.2, 0.1), ("hm6", "VERTICAL", 0.4, 0.2)]
 
 
 def build():

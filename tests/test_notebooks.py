@@ -37,11 +37,20 @@ assert all(r["legal"] for r in reports.values()), reports
 assert len(_pm(design, layouts["periphery"])) >= len(_pm(design, layouts["free"]))
 assert layouts["periphery"].info["macro_layout"] == "periphery"
 """,
+    "06-from-netlist": """
+assert abs(by_hand - 0.6) <= 0.01 * 0.6, by_hand   # utilisation within 1 % of the request
+assert counts["TRACKS"] == len(design.routing_layers), counts  # one per LEF routing layer
+assert counts["SPECIALNETS"] == 1 and rep["legal"] and final["legal"], (counts, rep, final)
+assert after["hpwl"] < rep["hpwl"]  # the assignment beats pins spread evenly
+for _k in range(100):  # the constrained ports sit on the left or bottom die edge
+    _x, _y = pinned.position(f"io_{_k}")
+    assert abs(_x - design.die[0]) < 1.0 or abs(_y - design.die[1]) < 1.0, (_k, _x, _y)
+""",
 }
 
 
-def test_there_are_five_notebooks():
-    assert [p.name[:2] for p in NOTEBOOKS] == ["01", "02", "03", "04", "05"]
+def test_there_are_six_notebooks():
+    assert [p.name[:2] for p in NOTEBOOKS] == ["01", "02", "03", "04", "05", "06"]
 
 
 @pytest.mark.slow
