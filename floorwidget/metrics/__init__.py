@@ -47,7 +47,7 @@ from .density import (
     rect_area_map,
 )
 from .legality import cell_legality, illegal_blocks, legality, pinned_illegal, row_of
-from .report import REPORT_KEYS, blockages_over_cap, evaluate
+from .report import QUICK_KEYS, REPORT_KEYS, blockages_over_cap, evaluate, quick_figures
 from .shape import (
     Channels,
     LogicRegions,
@@ -66,6 +66,7 @@ from .wirelength import hpwl, net_boxes, net_hpwl, nets_hpwl, pin_positions
 
 __all__ = [
     "MAX_BINS",
+    "QUICK_KEYS",
     "REPORT_KEYS",
     "TOL",
     "BinGrid",
@@ -101,6 +102,7 @@ __all__ = [
     "pinned_illegal",
     "pin_positions",
     "pin_side",
+    "quick_figures",
     "rect_area_map",
     "row_of",
     "rudy_map",
