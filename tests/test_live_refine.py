@@ -160,3 +160,27 @@ def test_widget_drop_does_not_wait_for_the_placer_and_a_newer_drop_supersedes(pl
     _same(s.floorplan, dragged_a)
     s.undo()
     _same(s.floorplan, start)
+
+
+def test_canvas_reuses_the_cells_map_only_while_the_cells_stay(placed, demo_design):
+    from floorwidget.design import MACRO, TERMINAL
+    from floorwidget.metrics import rect_area_map
+    from floorwidget.widget.canvas import Canvas
+
+    d = demo_design
+    c = Canvas(d, placed.floorplan)
+    soft = (d.kind != MACRO) & (d.kind != TERMINAL)
+
+    def fresh():
+        return rect_area_map(c.grid, placed.floorplan.rects()[soft]) / c.grid.bin_area
+
+    v0 = c.heat_values("cells")
+    _drag(placed, d.macros[5], 10.0, 0.0)  # a macro moved, the cells did not
+    c.update(placed.floorplan)
+    assert c.heat_values("cells") is v0
+    np.testing.assert_array_equal(v0, fresh())
+    placed.refine()  # the cells near the macro move
+    c.update(placed.floorplan)
+    v1 = c.heat_values("cells")
+    assert not np.array_equal(v1, v0)
+    np.testing.assert_array_equal(v1, fresh())

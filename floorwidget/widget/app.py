@@ -97,7 +97,7 @@ class FloorplanWidget(W.VBox):
         self.edit = EditPanel(ctx, live=live, pin_on_drop=pin_on_drop)
         self.constraints = ConstraintsPanel(ctx)
         self.regions = RegionsPanel(ctx, self.view)
-        self.alternatives = AlternativesPanel(ctx)
+        self.alternatives = AlternativesPanel(ctx, self.readouts)
         self.dragging = Dragging(ctx, self.readouts)
         self.toolbar = Toolbar(ctx, {"place": self.place, "refine": self.refine,
                                      "legalize": self.legalize, "expand": self.expand},

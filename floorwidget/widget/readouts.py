@@ -34,6 +34,8 @@ class Readouts:
         self.complete = True
         #: the background report of the figures still pending, if any
         self.pending: Future | None = None
+        #: called with no arguments when the whole report of the current state is shown
+        self.completed: list = []
         self.prev_hpwl: float | None = None
         self.box = self.html
         ctx.session.on_change(self._on_change)
@@ -59,6 +61,8 @@ class Readouts:
         if rep is not None and self.ctx.session.floorplan is fp:
             self.report, self.complete = rep, True
             self.refresh()
+            for cb in self.completed:
+                cb()
 
     def wait(self, timeout: float | None = None) -> bool:
         """Wait for the background report; ``True`` when none is left running."""
