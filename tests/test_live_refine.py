@@ -184,3 +184,21 @@ def test_canvas_reuses_the_cells_map_only_while_the_cells_stay(placed, demo_desi
     v1 = c.heat_values("cells")
     assert not np.array_equal(v1, v0)
     np.testing.assert_array_equal(v1, fresh())
+
+
+def test_a_nudged_macro_opens_a_smaller_window_than_a_hand_move(demo_design):
+    from floorwidget.placer import place
+    from floorwidget.placer.flow import refine_window
+
+    d = demo_design
+    fp = place(d, seed=0)
+    i = d.block(d.macros[3])
+    after = fp.copy()
+    after.x[i] += 0.4 * d.grid_pitch[0]  # what snapping an off-grid macro does
+    hand = refine_window(d, fp, after, np.array([i]))
+    nudged = refine_window(d, fp, after, np.array([], dtype=np.intp), nudged=[i])
+    assert 0 < nudged.sum() < hand.sum() and not (nudged & ~hand).any()
+    r = after.rects(halo=True)[i]
+    cx, cy = after.centres()
+    on = (cx >= r[0]) & (cx <= r[2]) & (cy >= r[1]) & (cy <= r[3])
+    assert nudged[on].all()  # whatever it now covers is re-placed
