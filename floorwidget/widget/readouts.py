@@ -8,6 +8,7 @@ read "…".  A newer change supersedes a report not yet begun."""
 
 from __future__ import annotations
 
+import threading
 from concurrent.futures import Future
 
 import ipywidgets as W
@@ -36,6 +37,7 @@ class Readouts:
         self.pending: Future | None = None
         #: called with no arguments when the whole report of the current state is shown
         self.completed: list = []
+        self._lock = threading.RLock()  # a late background report never covers a newer change
         self.prev_hpwl: float | None = None
         self.box = self.html
         ctx.session.on_change(self._on_change)
@@ -45,11 +47,12 @@ class Readouts:
     def _on_change(self, ev: ChangeEvent) -> None:
         if ev.action in ("snapshot", "add_alternative"):
             return
-        prev = self.report
         ses = self.ctx.session
-        self.report, self.complete = ses.report_now()
-        self.prev_hpwl = prev.get("hpwl") if prev else None
-        self.refresh()
+        with self._lock:
+            prev = self.report
+            self.report, self.complete = ses.report_now()
+            self.prev_hpwl = prev.get("hpwl") if prev else None
+            self.refresh()
         if not self.complete:
             fp = ses.floorplan
             self.pending = f = ses.report_later()
@@ -58,11 +61,13 @@ class Readouts:
     def _report_done(self, f: Future, fp) -> None:
         """The background report is in: show it if the floorplan is still the one it is of."""
         rep = None if f.cancelled() or f.exception() is not None else f.result()
-        if rep is not None and self.ctx.session.floorplan is fp:
+        with self._lock:
+            if rep is None or self.ctx.session.floorplan is not fp:
+                return
             self.report, self.complete = rep, True
             self.refresh()
-            for cb in self.completed:
-                cb()
+        for cb in self.completed:
+            cb()
 
     def wait(self, timeout: float | None = None) -> bool:
         """Wait for the background report; ``True`` when none is left running."""
