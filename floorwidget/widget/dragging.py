@@ -8,12 +8,11 @@ from __future__ import annotations
 
 import time
 from concurrent.futures import Future
-from concurrent.futures import wait as wait_for
 from typing import TYPE_CHECKING
 
 import numpy as np
 
-from .._threads import pool
+from .._threads import pool, settled
 from ..design import FIXED, DesignError
 from ..metrics import nets_hpwl
 from .context import BUSY, Context
@@ -184,7 +183,7 @@ class Dragging:
         out.update(message=msg, seconds=time.perf_counter() - t0)
         if wait and out["refine"] is not None:
             f = out["refine"]
-            wait_for([f])
+            settled(f)
             out["refined"] = f.exception() is None and f.result()
             out["message"] = out["message"] or self._failure(f)
             self.readouts.wait()
@@ -217,8 +216,4 @@ class Dragging:
 
     def wait(self, timeout: float | None = None) -> bool:
         """Wait for the last drop's refine and the readouts' report; ``True`` when done."""
-        if self.pending is not None:
-            wait_for([self.pending], timeout)
-            if not self.pending.done():
-                return False
-        return self.readouts.wait(timeout)
+        return settled(self.pending, timeout) and self.readouts.wait(timeout)

@@ -13,6 +13,7 @@ from concurrent.futures import Future
 
 import ipywidgets as W
 
+from .._threads import settled
 from ..kernels import fmt
 from ..session import ChangeEvent
 from .context import Context
@@ -71,13 +72,7 @@ class Readouts:
 
     def wait(self, timeout: float | None = None) -> bool:
         """Wait for the background report; ``True`` when none is left running."""
-        f = self.pending
-        if f is None:
-            return True
-        from concurrent.futures import wait as wait_for  # noqa: PLC0415
-
-        wait_for([f], timeout)
-        return f.done()
+        return settled(self.pending, timeout)
 
     def refresh(self, drag_delta: float | None = None) -> None:
         """Redraw the table; ``drag_delta`` adds the HPWL change of a drag under way."""
