@@ -202,3 +202,17 @@ def test_a_nudged_macro_opens_a_smaller_window_than_a_hand_move(demo_design):
     cx, cy = after.centres()
     on = (cx >= r[0]) & (cx <= r[2]) & (cy >= r[1]) & (cy <= r[3])
     assert nudged[on].all()  # whatever it now covers is re-placed
+
+
+def test_a_refine_after_a_single_move_joins_it_and_replays(placed, demo_design):
+    m = demo_design.macros[6]
+    before = placed.floorplan
+    x, y = before.position(m)
+    placed.move(m, x + 8.0, y)  # one call, not a batch
+    assert placed.refine_later().result(timeout=120) is True
+    assert placed.history[-1] == "move" and placed.log[-1]["op"] == "batch"
+    ns: dict = {}
+    exec(placed.script(), ns)
+    _same(ns["session"].floorplan, placed.floorplan)
+    placed.undo()
+    _same(placed.floorplan, before)

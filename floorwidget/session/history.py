@@ -177,7 +177,7 @@ class History:
         if prev.get("op") == "batch":
             self.log[-1] = {**prev, "actions": [*prev["actions"], last]}
         else:
-            self.log[-1] = {"op": "batch", "label": last["op"], "actions": [prev, last]}
+            self.log[-1] = {"op": "batch", "label": prev["op"], "actions": [prev, last]}
         if not step or len(self.undo) < 2 or self.undo[-2].new_id != self.undo[-1].old_id:
             return
         a, b = self.undo[-2], self.undo[-1]
