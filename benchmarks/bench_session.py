@@ -5,7 +5,7 @@ design and a synthetic one with many blocks (100 macros plus soft blocks; ``--qu
 small), then the constraint edits (blockages, halos, cell regions) on the demo and, with
 ``--real``, those and the hand arrangement of eight macros (align, distribute, array, mirror,
 push, shift, typed position and orientation) on ``../shared/realdata/ariane136`` (146k
-components; median of 10).
+components; median of 10), and its drag-to-readout table with the SRAMs movable.
 
 ``python benchmarks/bench_session.py --drag demo,ariane,1e6`` prints only the drag-to-readout
 tables (:func:`bench_drag`: 10 drops each, median and p95; targets: the readouts after a drop

@@ -66,8 +66,11 @@ def test_background_refine_is_the_synchronous_drop_in_one_undo_step(placed, demo
         sync.refine()
     before = placed.floorplan
     steps = len(placed.history)
+    seen = []  # what an observer reads when the refine's event comes: the joined history
+    placed.on_change(lambda ev: seen.append((ev.action, placed.history[-1], len(placed.log))))
     _drag(placed, m, 15.0, 10.0)
     assert placed.refine_later().result(timeout=120) is True
+    assert seen[-1] == ("refine", f"drag {m}", len(sync.log))
     _same(placed.floorplan, sync.floorplan)
     assert placed.log == sync.log  # a replay runs the drop and its refine as one batch
     assert len(placed.history) == steps + 1

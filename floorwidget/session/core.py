@@ -344,11 +344,17 @@ class Session(HandEdits, ConstraintEdits, PlacerCalls):
         self._history.record({"op": op, "args": list(args), "kwargs": dict(kwargs or {})})
 
     def _commit(self, action: str, new: Floorplan, *, log: tuple | None = None,
-                label: str | None = None, blocks=None) -> np.ndarray:
-        """Make ``new`` current as one undoable step, log it and notify; returns changed idx."""
-        idx = self._history.commit(action, new, blocks)
+                label: str | None = None, blocks=None, join: bool = False) -> np.ndarray:
+        """Make ``new`` current as one undoable step, log it and notify; returns changed idx.
+        With ``join``, the step and log entry become part of the last ones
+        (:meth:`History.join_last`) before the observers hear of it."""
+        h = self._history
+        steps = len(h.undo)
+        idx = h.commit(action, new, blocks)
         if log is not None:
             self._record(action, *log)
+        if join:
+            h.join_last(step=len(h.undo) == steps + 1)
         self._emit(action, idx if blocks is None else blocks, label)
         return idx
 

@@ -58,13 +58,12 @@ class PlacerCalls:
                     raise Superseded(action)
                 raise DesignError(f"the floorplan changed while {action} was running; its "
                                   "result was discarded (run it again)")
-            steps = len(h.undo)
-            self._check_and_commit(action, before, out, opts)
+            join = answers is not None and 0 < answers[1] == len(h.log)  # nothing logged since
+            self._check_and_commit(action, before, out, opts, join)
             self._placed = self._fp
-            if answers is not None and answers[1] > 0 and len(h.log) == answers[1] + 1:
-                h.join_last(step=len(h.undo) == steps + 1)
 
-    def _check_and_commit(self, action: str, before: Floorplan, out, opts: dict) -> None:
+    def _check_and_commit(self, action: str, before: Floorplan, out, opts: dict,
+                          join: bool = False) -> None:
         d = self.design
         if not isinstance(out, Floorplan) or out.design is not d:
             raise DesignError(f"{action} returned {type(out).__name__}, not a Floorplan of "
@@ -76,7 +75,7 @@ class PlacerCalls:
             j = int(moved[0])
             raise PlacementError(f"{action} changed {STATUS_NAMES[before.status[j]]} block "
                                  f"{d.names[j]!r}; the floorplan was left unchanged")
-        self._commit(action, out.copy(), log=((), opts), blocks=None)
+        self._commit(action, out.copy(), log=((), opts), blocks=None, join=join)
 
     def place(self, *, target_density: float | None = None, seed: int = 0,
               progress: Callable | None = None, **options) -> None:
