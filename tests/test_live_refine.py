@@ -18,11 +18,15 @@ from floorwidget.design import PINNED
 from floorwidget.metrics import QUICK_KEYS, quick_figures
 
 
+@pytest.fixture(scope="module")
+def placement(demo_design):
+    return fw.place(demo_design, seed=0)
+
+
 @pytest.fixture
-def placed(demo_design):
-    s = fw.Session(demo_design)
-    s.place(seed=0)
-    return s
+def placed(demo_design, placement):
+    """A session that starts from a placement (its local refines compare with it)."""
+    return fw.Session(demo_design, placement)
 
 
 def _drag(s: fw.Session, m: str, dx: float, dy: float) -> None:
@@ -55,10 +59,10 @@ def test_staged_report_ends_equal_to_evaluate(placed, demo_design):
     assert placed.report_now() == (rep, True)
 
 
-def test_background_refine_is_the_synchronous_drop_in_one_undo_step(placed, demo_design):
+def test_background_refine_is_the_synchronous_drop_in_one_undo_step(placed, demo_design,
+                                                                    placement):
     m = demo_design.macros[1]
-    sync = fw.Session(demo_design)
-    sync.place(seed=0)
+    sync = fw.Session(demo_design, placement)
     x, y = sync.floorplan.position(m)
     with sync.batch(f"drag {m}"):
         sync.move(m, x + 15.0, y + 10.0)
@@ -67,10 +71,10 @@ def test_background_refine_is_the_synchronous_drop_in_one_undo_step(placed, demo
     before = placed.floorplan
     steps = len(placed.history)
     seen = []  # what an observer reads when the refine's event comes: the joined history
-    placed.on_change(lambda ev: seen.append((ev.action, placed.history[-1], len(placed.log))))
+    placed.on_change(lambda ev: seen.append((ev.action, placed.history[-1:], len(placed.log))))
     _drag(placed, m, 15.0, 10.0)
     assert placed.refine_later().result(timeout=120) is True
-    assert seen[-1] == ("refine", f"drag {m}", len(sync.log))
+    assert seen[-1] == ("refine", [f"drag {m}"], len(sync.log))
     _same(placed.floorplan, sync.floorplan)
     assert placed.log == sync.log  # a replay runs the drop and its refine as one batch
     assert len(placed.history) == steps + 1
@@ -189,12 +193,11 @@ def test_canvas_reuses_the_cells_map_only_while_the_cells_stay(placed, demo_desi
     np.testing.assert_array_equal(v1, fresh())
 
 
-def test_a_nudged_macro_opens_a_smaller_window_than_a_hand_move(demo_design):
-    from floorwidget.placer import place
+def test_a_nudged_macro_opens_a_smaller_window_than_a_hand_move(demo_design, placement):
     from floorwidget.placer.flow import refine_window
 
     d = demo_design
-    fp = place(d, seed=0)
+    fp = placement
     i = d.block(d.macros[3])
     after = fp.copy()
     after.x[i] += 0.4 * d.grid_pitch[0]  # what snapping an off-grid macro does
