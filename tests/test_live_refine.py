@@ -222,3 +222,16 @@ def test_a_refine_after_a_single_move_joins_it_and_replays(placed, demo_design):
     _same(ns["session"].floorplan, placed.floorplan)
     placed.undo()
     _same(placed.floorplan, before)
+
+
+def test_a_refine_refused_before_it_runs_keeps_the_drop(placed, demo_design):
+    from floorwidget.widget import FloorplanWidget
+
+    w = FloorplanWidget(demo_design, session=placed)
+    w.refine_options["target_density"] = 2.0  # outside (0, 1]: refused by the Session
+    i = int(w.macro_idx[2])
+    cx, cy = placed.floorplan.centres()
+    out = w.drop(2, cx[i] + 20.0, cy[i])
+    assert out["moved"] == [demo_design.names[i]] and out["refine"] is None
+    assert out["message"].startswith("Refine skipped") and "density" in out["message"]
+    assert placed.history[-1] == f"drag {demo_design.names[i]}"

@@ -178,7 +178,10 @@ class Dragging:
             c.update(s.floorplan)
             ctx.selection_changed()
         if out["moved"] and ctx.toggles["Live refine"].value:
-            out["refine"] = self._refine_later()
+            try:
+                out["refine"] = self._refine_later()
+            except DesignError as e:  # refused before it ran (e.g. its options): the move stays
+                msg = f"Refine skipped: {e}"
         ctx.notify(msg, error=bool(msg))
         out.update(message=msg, seconds=time.perf_counter() - t0)
         if wait and out["refine"] is not None:
