@@ -36,7 +36,7 @@ def bench_drop(repeats: int) -> list[float]:
         cx, cy = s.floorplan.centres()
         dx, dy = rng.uniform(-80, 80, size=2)
         t0 = time.perf_counter()
-        out = w.drop(k, cx[i] + dx, cy[i] + dy)  # move, pin, refine, marks, readouts
+        out = w.drop(k, cx[i] + dx, cy[i] + dy, wait=True)  # move, pin, refine, readouts
         times.append(time.perf_counter() - t0)
         if not out["refined"]:
             raise RuntimeError(f"drop {r} did not refine: {out['message']}")

@@ -3,7 +3,8 @@
 from __future__ import annotations
 
 import threading
-from concurrent.futures import ThreadPoolExecutor
+from concurrent.futures import Future, ThreadPoolExecutor
+from concurrent.futures import wait as _wait
 
 _POOLS: dict[str, ThreadPoolExecutor] = {}
 _LOCK = threading.Lock()
@@ -17,3 +18,11 @@ def pool(name: str, workers: int) -> ThreadPoolExecutor:
             p = _POOLS[name] = ThreadPoolExecutor(max_workers=workers,
                                                   thread_name_prefix=f"floorwidget-{name}")
         return p
+
+
+def settled(f: Future | None, timeout: float | None = None) -> bool:
+    """Wait up to ``timeout`` seconds for ``f``; ``True`` when it is done (or there is none)."""
+    if f is None:
+        return True
+    _wait([f], timeout)
+    return f.done()

@@ -156,7 +156,7 @@ def test_drop_moves_snaps_pins_and_refines(widget, demo_design):
     core = d.core
     dx = 123.4 if cx[i] < (core[0] + core[2]) / 2 else -123.4
     dy = 57.3 if cy[i] < (core[1] + core[3]) / 2 else -57.3  # not a half-step tie
-    out = widget.drop(k, cx[i] + dx, cy[i] + dy)
+    out = widget.drop(k, cx[i] + dx, cy[i] + dy, wait=True)
     fp = s.floorplan
     assert out["moved"] == [name] and out["refined"]
     (ox, oy), (px, py) = d.grid_origin, d.grid_pitch
@@ -191,7 +191,7 @@ def test_pinned_macros_stay_bit_exact_through_refine(widget, demo_design):
     widget.toggles["Pin on drop"].value = False  # it stays movable: refine may legalise it
     i = int(widget.macro_idx[k])
     cx, cy = s.floorplan.centres()
-    out = widget.drop(k, cx[i] + 40.0, cy[i] + 40.0)
+    out = widget.drop(k, cx[i] + 40.0, cy[i] + 40.0, wait=True)
     assert out["refined"], out["message"]
     widget.refine()
     np.testing.assert_array_equal(_bits(s.floorplan.x[idx]), ref_x)

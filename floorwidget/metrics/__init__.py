@@ -48,7 +48,14 @@ from .density import (
     utilization,
 )
 from .legality import cell_legality, illegal_blocks, legality, pinned_illegal, row_of
-from .report import REPORT_KEYS, blockages_over_cap, evaluate, straps_blocked
+from .report import (
+    QUICK_KEYS,
+    REPORT_KEYS,
+    blockages_over_cap,
+    evaluate,
+    quick_figures,
+    straps_blocked,
+)
 from .shape import (
     Channels,
     LogicRegions,
@@ -67,6 +74,7 @@ from .wirelength import hpwl, net_boxes, net_hpwl, nets_hpwl, pin_positions
 
 __all__ = [
     "MAX_BINS",
+    "QUICK_KEYS",
     "REPORT_KEYS",
     "TOL",
     "BinGrid",
@@ -103,6 +111,7 @@ __all__ = [
     "pinned_illegal",
     "pin_positions",
     "pin_side",
+    "quick_figures",
     "rect_area_map",
     "row_of",
     "rudy_map",

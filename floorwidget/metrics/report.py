@@ -17,7 +17,7 @@ from .legality import cell_legality, legality, pinned_illegal
 from .shape import logic_regions, macros_facing_wall, narrow_channels
 from .wirelength import net_boxes
 
-__all__ = ["REPORT_KEYS", "evaluate"]
+__all__ = ["QUICK_KEYS", "REPORT_KEYS", "evaluate", "quick_figures"]
 
 REPORT_KEYS = (
     "hpwl", "hpwl_weighted", "density_overflow", "peak_density", "congestion_peak",
@@ -27,6 +27,14 @@ REPORT_KEYS = (
     "cells_off_site", "narrow_channels", "macros_facing_wall", "logic_regions",
     "largest_logic_region", "pinned_illegal", "blockages_over_cap", "straps_blocked",
     "utilization",
+)
+
+#: The report keys :func:`quick_figures` gives: those that need no bin map and no pass over the
+#: standard cells' rows (net boxes and the macros only), so a readout can show them at once.
+QUICK_KEYS = (
+    "hpwl", "hpwl_weighted", "macro_overlaps", "macro_overlap_area", "out_of_die", "off_grid",
+    "num_blocks", "num_nets", "target_density", "narrow_channels", "macros_facing_wall",
+    "pinned_illegal", "straps_blocked", "utilization",
 )
 
 
@@ -96,46 +104,70 @@ def evaluate(design: Design, fp: Floorplan | None = None, target_density: float 
     ['congestion_p99', 'congestion_peak', 'density_overflow']
     """
     fp = design.initial if fp is None else fp
-    if target_density is None:
-        target_density = float(fp.info.get("target_density", 0.8))
+    quick, leg, box = _quick(design, fp, target_density, channel)
+    td = quick["target_density"]
     grid = bin_grid(design, bin_size)
-    box = net_boxes(design, fp)
-    per = (box[:, 2] - box[:, 0]) + (box[:, 3] - box[:, 1])
     dm = density_map(design, fp, grid)
     cong, rudy = congestion_of_boxes(design, grid, box, rudy=True)
     rpeak, rp99 = congestion_stats(rudy)
     peak, p99 = congestion_stats(cong)
-    leg = legality(design, fp)
     cl = cell_legality(design, fp)
     lr = logic_regions(design, fp)
     over = blockages_over_cap(design, fp)
-    return {
-        "hpwl": float(per.sum()),
-        "hpwl_weighted": float(np.dot(per, design.net_weight)),
-        "density_overflow": dm.overflow(target_density),
+    rest = {
+        "density_overflow": dm.overflow(td),
         "peak_density": float(dm.utilisation.max()),
         "congestion_peak": peak,
         "congestion_p99": p99,
         "rudy_peak": rpeak,
         "rudy_p99": rp99,
+        "legal": bool(leg["legal"]) and cl["cells_legal"] and over == 0,
+        "cell_overlaps": cl["cell_overlaps"],
+        "cells_off_row": cl["cells_off_row"],
+        "cells_off_site": cl["cells_off_site"],
+        "logic_regions": lr.count,
+        "largest_logic_region": lr.largest,
+        "blockages_over_cap": over,
+    }
+    return {k: quick[k] if k in quick else rest[k] for k in REPORT_KEYS}
+
+
+def quick_figures(design: Design, fp: Floorplan | None = None,
+                  target_density: float | None = None, channel: float | None = None) -> dict:
+    """The report figures that are cheap on any design (:data:`QUICK_KEYS`): wirelength from
+    the net boxes and the macro checks, equal to the same keys of :func:`evaluate` (same
+    parameters), in a small part of its time; the readouts show them first after an edit.
+
+    Early-floorplanning estimates, like the whole report.
+    """
+    fp = design.initial if fp is None else fp
+    return _quick(design, fp, target_density, channel)[0]
+
+
+def _quick(design: Design, fp: Floorplan, target_density: float | None,
+           channel: float | None) -> tuple[dict, dict, np.ndarray]:
+    """:func:`quick_figures`, the macro legality record and the net boxes (both reused by
+    :func:`evaluate`)."""
+    if target_density is None:
+        target_density = float(fp.info.get("target_density", 0.8))
+    box = net_boxes(design, fp)
+    per = (box[:, 2] - box[:, 0]) + (box[:, 3] - box[:, 1])
+    leg = legality(design, fp)
+    quick = {
+        "hpwl": float(per.sum()),
+        "hpwl_weighted": float(np.dot(per, design.net_weight)),
         "macro_overlaps": int(leg["macro_overlaps"]),
         "macro_overlap_area": float(leg["macro_overlap_area"]),
         "out_of_die": int(len(leg["out_of_die"])),
         "off_grid": int(len(leg["off_grid"])),
-        "legal": bool(leg["legal"]) and cl["cells_legal"] and over == 0,
         "num_blocks": int(design.num_blocks),
         "num_nets": int(design.num_nets),
         "target_density": float(target_density),
-        "cell_overlaps": cl["cell_overlaps"],
-        "cells_off_row": cl["cells_off_row"],
-        "cells_off_site": cl["cells_off_site"],
         "narrow_channels": narrow_channels(
             design, fp, fp.info.get("channel") if channel is None else channel),
         "macros_facing_wall": macros_facing_wall(design, fp),
-        "logic_regions": lr.count,
-        "largest_logic_region": lr.largest,
         "pinned_illegal": ", ".join(pinned_illegal(design, fp, leg)),
-        "blockages_over_cap": over,
         "straps_blocked": straps_blocked(design, fp),
         "utilization": utilization(design),
     }
+    return quick, leg, box

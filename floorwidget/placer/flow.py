@@ -184,7 +184,7 @@ def refine(design: Design, floorplan: Floorplan, *, target_density: float = 0.8,
     window = None
     if around is not None:
         moved = np.flatnonzero((out.x != src.x) | (out.y != src.y) | (out.orient != src.orient))
-        window = refine_window(design, src, out, np.union1d(_indices(design, around), moved))
+        window = refine_window(design, src, out, _indices(design, around), nudged=moved)
         soft &= window
         info["window_blocks"] = int(soft.sum())
     ov = 0.0
@@ -216,20 +216,31 @@ def _indices(design: Design, blocks) -> np.ndarray:
 
 
 def refine_window(design: Design, before: Floorplan, after: Floorplan,
-                  blocks: np.ndarray) -> np.ndarray:
+                  blocks: np.ndarray, nudged: np.ndarray | None = None) -> np.ndarray:
     """Blocks (a mask) near where ``blocks`` were in ``before`` and are in ``after``: centres
     inside a footprint (with halo) grown by :data:`WINDOW_MARGIN` times its longer side plus
-    four row heights (or 1 % of the core without rows) — the logic a hand move disturbs."""
+    four row heights (or 1 % of the core without rows) — the logic a hand move disturbs.
+
+    ``nudged`` are blocks the macro legaliser moved (not the hand): their footprints grow only
+    by the distance they moved plus the same pad, since the logic they disturb is what they
+    passed over (an off-grid macro snapped to the grid disturbs a sliver, not its whole
+    neighbourhood)."""
     mask = np.zeros(design.num_blocks, bool)
-    if not len(blocks):
+    nudged = np.setdiff1d(np.asarray([] if nudged is None else nudged, dtype=np.intp), blocks)
+    if not len(blocks) and not len(nudged):
         return mask
     pad = 4.0 * float(np.median(design.row_height)) if len(design.row_height) else \
         0.01 * float(min(design.core[2] - design.core[0], design.core[3] - design.core[1]))
     cx, cy = after.centres()
+    blocks = np.asarray(blocks, dtype=np.intp)
+    shift = np.maximum(np.abs(after.x[nudged] - before.x[nudged]),
+                       np.abs(after.y[nudged] - before.y[nudged]))
     boxes = []
     for fp in (before, after):
         r = fp.rects(halo=True)[blocks]
         side = np.maximum(r[:, 2] - r[:, 0], r[:, 3] - r[:, 1]) * WINDOW_MARGIN + pad
+        r = np.concatenate([r, fp.rects(halo=True)[nudged]])
+        side = np.concatenate([side, shift + pad])
         boxes.append(np.stack([r[:, 0] - side, r[:, 1] - side, r[:, 2] + side,
                                r[:, 3] + side], axis=1))
     for b in np.concatenate(boxes):

@@ -56,7 +56,8 @@ from .actions import ACTIONS
 from .compare import Comparison
 from .core import Session
 from .files import SESSION_FORMAT, SESSION_VERSION
+from .placing import Superseded
 from .state import SESSION_MAX_PINS, Alternative, ChangeEvent, SessionState
 
 __all__ = ["ACTIONS", "Alternative", "ChangeEvent", "Comparison", "Session", "SessionState",
-           "SESSION_FORMAT", "SESSION_MAX_PINS", "SESSION_VERSION"]
+           "SESSION_FORMAT", "SESSION_MAX_PINS", "SESSION_VERSION", "Superseded"]

@@ -12,6 +12,7 @@ import threading
 import warnings
 from collections import OrderedDict
 from collections.abc import Callable, Iterator, Mapping, Sequence
+from concurrent.futures import Executor, Future
 from typing import Any
 
 import numpy as np
@@ -234,16 +235,54 @@ class Session(HandEdits, ConstraintEdits, PlacerCalls, PinCalls, PowerEdits):
         return dict(self._report_for(self._history.state_id, self._fp))
 
     def _report_for(self, state_id: int, fp: Floorplan) -> dict:
-        rep = self._reports.get(state_id)
-        if rep is None:
-            from ..metrics import evaluate  # noqa: PLC0415
-            rep = dict(evaluate(fp.design, fp, target_density=self.target_density))
+        with self._lock:
+            rep = self._reports.get(state_id)
+            if rep is not None:
+                self._reports.move_to_end(state_id)
+                return rep
+        from ..metrics import evaluate  # noqa: PLC0415
+        rep = dict(evaluate(fp.design, fp, target_density=self.target_density))
+        with self._lock:  # computed outside the lock: a background report blocks no edit
             self._reports[state_id] = rep
             while len(self._reports) > _REPORT_CACHE:
                 self._reports.popitem(last=False)
-        else:
-            self._reports.move_to_end(state_id)
         return rep
+
+    def report_now(self) -> tuple[dict, bool]:
+        """The figures of the current floorplan that are ready at once: the whole
+        :attr:`report` when it is known for this state, else
+        :func:`floorwidget.metrics.quick_figures` (the keys
+        :data:`~floorwidget.metrics.QUICK_KEYS`, equal to the report's).
+
+        Returns
+        -------
+        (dict, bool)
+            The figures, and whether they are the whole report.
+        """
+        with self._lock:
+            sid, fp = self._history.state_id, self._fp
+            rep = self._reports.get(sid)
+        if rep is not None:
+            return dict(rep), True
+        from ..metrics import quick_figures  # noqa: PLC0415
+        return quick_figures(fp.design, fp, target_density=self.target_density), False
+
+    def report_later(self, executor: Executor | None = None) -> Future:
+        """The whole :attr:`report` of the current state, computed on ``executor`` (default the
+        package's ``"report"`` pool, one worker) and cached like :attr:`report`.
+
+        The future's result is the report, or ``None`` when the session had moved to another
+        state before the work began (a newer edit has its own report to wait for).
+        """
+        with self._lock:
+            sid, fp = self._history.state_id, self._fp
+
+        def run() -> dict | None:
+            if self._history.state_id != sid:
+                return None
+            return dict(self._report_for(sid, fp))
+
+        return (executor or pool("report", 1)).submit(run)
 
     @property
     def can_undo(self) -> bool:
@@ -307,11 +346,17 @@ class Session(HandEdits, ConstraintEdits, PlacerCalls, PinCalls, PowerEdits):
         self._history.record({"op": op, "args": list(args), "kwargs": dict(kwargs or {})})
 
     def _commit(self, action: str, new: Floorplan, *, log: tuple | None = None,
-                label: str | None = None, blocks=None) -> np.ndarray:
-        """Make ``new`` current as one undoable step, log it and notify; returns changed idx."""
-        idx = self._history.commit(action, new, blocks)
+                label: str | None = None, blocks=None, join: bool = False) -> np.ndarray:
+        """Make ``new`` current as one undoable step, log it and notify; returns changed idx.
+        With ``join``, the step and log entry become part of the last ones
+        (:meth:`History.join_last`) before the observers hear of it."""
+        h = self._history
+        steps = len(h.undo)
+        idx = h.commit(action, new, blocks)
         if log is not None:
             self._record(action, *log)
+        if join:
+            h.join_last(step=len(h.undo) == steps + 1)
         self._emit(action, idx if blocks is None else blocks, label)
         return idx
 

@@ -167,6 +167,28 @@ class History:
         dst.append(step)
         return step
 
+    def join_last(self, step: bool) -> None:
+        """Make the last log entry part of the one before it (one batch) and, with ``step``,
+        the last undo step part of the one before it: a result computed in the background
+        joins the edit it answers, so one undo reverts both, exactly, and a replay of the log
+        runs them as one batch.  The caller checks that nothing else came between."""
+        last = self.log.pop()
+        prev = self.log[-1]
+        if prev.get("op") == "batch":
+            self.log[-1] = {**prev, "actions": [*prev["actions"], last]}
+        else:
+            self.log[-1] = {"op": "batch", "label": prev["op"], "actions": [prev, last]}
+        if not step or len(self.undo) < 2 or self.undo[-2].new_id != self.undo[-1].old_id:
+            return
+        a, b = self.undo[-2], self.undo[-1]
+        cur, sid = self.fp, self.state_id
+        self.apply(b, forward=False)
+        self.apply(a, forward=False)
+        start = self.fp
+        self.fp, self.state_id = cur, sid
+        self.undo[-2:] = [make_step(a.action, start, cur, np.union1d(a.idx, b.idx), a.old_id,
+                                    b.new_id)]
+
     def no_batch(self, what: str) -> None:
         if self.batches:
             raise DesignError(f"{what} is not allowed inside a batch "

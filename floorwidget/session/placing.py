@@ -9,12 +9,19 @@ from, and only if pinned and fixed blocks came back bit for bit.
 from __future__ import annotations
 
 from collections.abc import Callable
+from concurrent.futures import Executor, Future
 
+from .._threads import pool
 from ..design import MOVABLE, STATUS_NAMES, DesignError, Floorplan
 from . import checks
 from .history import changed
 
-__all__ = ["PlacerCalls"]
+__all__ = ["PlacerCalls", "Superseded"]
+
+
+class Superseded(Exception):  # noqa: N818 - it names what happened, not a failure
+    """A background run stopped because the session moved on (an edit, undo or redo came
+    first); nothing was committed."""
 
 
 class PlacerCalls:
@@ -27,12 +34,19 @@ class PlacerCalls:
                 "seed": checks.integer(seed, "seed", 0, checks.SEED_LIMIT), **options}
 
     def _run_placer(self, action: str, fn: Callable, opts: dict, progress,
-                     extra: dict | None = None) -> None:
+                    extra: dict | None = None, answers: tuple[int, int] | None = None) -> None:
         """Run ``fn`` on a private copy with ``opts`` (recorded) and ``extra`` (not recorded:
-        derived from the history, so a replay derives the same) and commit the result."""
+        derived from the history, so a replay derives the same) and commit the result.
+
+        ``answers = (state id, log length)``: the run answers that state (see
+        :meth:`refine_later`); it raises :class:`Superseded` when the session is elsewhere,
+        and its result joins the edit that made the state when nothing was logged since."""
         d = self.design
         opts = {k: checks.plain(v, f"{action} option {k!r}") for k, v in opts.items()}
+        h = self._history
         with self._lock:
+            if answers is not None and h.state_id != answers[0]:
+                raise Superseded(action)
             before = self._fp
             work = before.copy()  # the placer gets a private, writable copy
         run = {**opts, **(extra or {})}
@@ -40,12 +54,16 @@ class PlacerCalls:
             fn(d, work, **run)
         with self._lock:
             if self._fp is not before:
+                if answers is not None:
+                    raise Superseded(action)
                 raise DesignError(f"the floorplan changed while {action} was running; its "
                                   "result was discarded (run it again)")
-            self._check_and_commit(action, before, out, opts)
+            join = answers is not None and 0 < answers[1] == len(h.log)  # nothing logged since
+            self._check_and_commit(action, before, out, opts, join)
             self._placed = self._fp
 
-    def _check_and_commit(self, action: str, before: Floorplan, out, opts: dict) -> None:
+    def _check_and_commit(self, action: str, before: Floorplan, out, opts: dict,
+                          join: bool = False) -> None:
         d = self.design
         if not isinstance(out, Floorplan) or out.design is not d:
             raise DesignError(f"{action} returned {type(out).__name__}, not a Floorplan of "
@@ -57,7 +75,7 @@ class PlacerCalls:
             j = int(moved[0])
             raise PlacementError(f"{action} changed {STATUS_NAMES[before.status[j]]} block "
                                  f"{d.names[j]!r}; the floorplan was left unchanged")
-        self._commit(action, out.copy(), log=((), opts), blocks=None)
+        self._commit(action, out.copy(), log=((), opts), blocks=None, join=join)
 
     def place(self, *, target_density: float | None = None, seed: int = 0,
               progress: Callable | None = None, **options) -> None:
@@ -98,6 +116,12 @@ class PlacerCalls:
         re-spreads everything.  What changed is read from the history, so a
         replay of the session makes the same choice.
         """
+        fn, opts, extra = self._refine_call(target_density, seed, local, options)
+        self._run_placer("refine", fn, opts, progress or self.progress, extra)
+
+    def _refine_call(self, target_density, seed, local, options: dict):
+        """What :meth:`refine` passes to :meth:`_run_placer`: the function, the recorded
+        options and the unrecorded ones (the window, read from the history now)."""
         from ..placer import refine as _refine  # noqa: PLC0415
         if not isinstance(local, bool):
             raise DesignError(f"refine: local must be True or False, got {local!r}")
@@ -115,7 +139,55 @@ class PlacerCalls:
         def run(design, fp, local=True, **kw):
             return _refine(design, fp, **kw)
 
-        self._run_placer("refine", run, opts, progress or self.progress, extra)
+        return run, opts, extra
+
+    def refine_later(self, *, target_density: float | None = None, seed: int = 0,
+                     progress: Callable | None = None, local: bool = True,
+                     executor: Executor | None = None, **options) -> Future:
+        """:meth:`refine` in the background, as the answer to the current state.
+
+        It returns at once.  The run stops at its next progress report once the session has
+        moved on (an edit, undo or redo: a newer edit supersedes it), and its result is
+        committed only onto the state it answers, so no stale result lands on a newer edit.
+        When nothing was logged in between, the result joins the edit that made that state:
+        one undo step, one log batch (a replay runs the edit and the refine together, as a
+        script's ``with s.batch(...): ...; s.refine()`` does).
+
+        Parameters
+        ----------
+        target_density, seed, progress, local, **options
+            As for :meth:`refine` (the window is read from the history now).
+        executor : concurrent.futures.Executor, optional
+            Where it runs; default the package's ``"placer"`` pool (one worker).
+
+        Returns
+        -------
+        concurrent.futures.Future
+            Its result is ``True`` when the refine was committed (or moved nothing) and
+            ``False`` when it was superseded; a failure (e.g.
+            :class:`~floorwidget.placer.errors.PlacementError`) is its exception.
+        """
+        h = self._history
+        with self._lock:
+            h.no_batch("refine_later")
+            answers = (h.state_id, len(h.log))
+        fn, opts, extra = self._refine_call(target_density, seed, local, options)
+        user = progress or self.progress
+
+        def watch(stage: str, fraction: float, info: dict | None = None) -> None:
+            if h.state_id != answers[0]:
+                raise Superseded("refine")
+            if user is not None:
+                user(stage, fraction, info)
+
+        def job() -> bool:
+            try:
+                self._run_placer("refine", fn, opts, watch, extra, answers=answers)
+            except Superseded:
+                return False
+            return True
+
+        return (executor or pool("placer", 1)).submit(job)
 
     def legalize(self, **options) -> None:
         """Legalise the macros of the current floorplan (undoable).

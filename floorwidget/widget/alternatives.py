@@ -13,6 +13,7 @@ from ..kernels import fmt
 from ..session import ChangeEvent
 from .canvas import thumbnail
 from .context import Context
+from .readouts import Readouts
 
 __all__ = ["AlternativesPanel"]
 
@@ -24,15 +25,21 @@ COLUMNS = [("hpwl", "HPWL µm"), ("density_overflow", "overflow"),
            ("largest_logic_region", "largest")]
 
 
-def _figure(key: str, v) -> str:
+def _figure(key: str, rep: dict) -> str:
+    if key not in rep:  # coming from the background report
+        return "…"
+    v = rep[key]
     return fmt.percent(v) if key == "largest_logic_region" else fmt.value(v)
 
 
 class AlternativesPanel:
-    """Follows the Session by itself (snapshots, restores, every change of "current")."""
+    """Follows the Session by itself (snapshots, restores, every change of "current").
 
-    def __init__(self, ctx: Context):
-        self.ctx = ctx
+    The current row takes the figures the readouts show (their report comes in two stages
+    after an edit); the row and the thumbnails are redrawn when the whole report is in."""
+
+    def __init__(self, ctx: Context, readouts: Readouts):
+        self.ctx, self.readouts = ctx, readouts
         s = ctx.session
         self.label = W.Text(placeholder="label", layout=W.Layout(width="160px"))
         keep = ctx.button("Keep as", lambda: self.keep(self.label.value),
@@ -52,6 +59,7 @@ class AlternativesPanel:
                                   layout=W.Layout(flex_flow="row wrap"))])
         self.box.add_class("fw-alternatives")
         s.on_change(self._on_change)
+        readouts.completed.append(self._on_complete)
         self.refresh()
 
     def keep(self, label: str) -> None:
@@ -63,7 +71,14 @@ class AlternativesPanel:
             self.refresh()
             return
         self.table.value = self.table_html()
+        if not self.readouts.complete:  # the rest when the whole report is in
+            return
         if "current" in (self.a.value, self.b.value) or ev.action == "restore":
+            self._refresh_thumbs()
+
+    def _on_complete(self) -> None:
+        self.table.value = self.table_html()
+        if "current" in (self.a.value, self.b.value):
             self._refresh_thumbs()
 
     def table_html(self) -> str:
@@ -71,10 +86,10 @@ class AlternativesPanel:
         alts = self.ctx.session.alternatives
         head = "".join(f"<th style='padding:0 8px'>{h}</th>" for _, h in COLUMNS)
         rows = []
-        cur = self.ctx.session.report
+        cur = self.readouts.report
         for lab, rep in [("current", cur)] + [(a.label, a.report) for a in alts]:
             cells = "".join(f"<td style='text-align:right;padding:0 8px'>"
-                            f"{_figure(k, rep.get(k))}</td>" for k, _ in COLUMNS)
+                            f"{_figure(k, rep)}</td>" for k, _ in COLUMNS)
             rows.append(f"<tr><td>{html.escape(lab)}</td>{cells}</tr>")
         return (f"<table style='font-size:12px'><tr><th>label</th>{head}</tr>"
                 + "".join(rows) + "</table>")

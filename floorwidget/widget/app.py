@@ -99,7 +99,7 @@ class FloorplanWidget(W.VBox):
         self.edit = EditPanel(ctx, live=live, pin_on_drop=pin_on_drop)
         self.constraints = ConstraintsPanel(ctx)
         self.regions = RegionsPanel(ctx, self.view)
-        self.alternatives = AlternativesPanel(ctx)
+        self.alternatives = AlternativesPanel(ctx, self.readouts)
         self.candidates = CandidatesPanel(ctx)
         self.dragging = Dragging(ctx, self.readouts)
         self.toolbar = Toolbar(ctx, {"place": self.place, "refine": self.refine,
@@ -186,10 +186,11 @@ class FloorplanWidget(W.VBox):
         """:meth:`Dragging.drag_preview`: the HPWL change of the dragged macros' nets."""
         return self.dragging.drag_preview(index, x, y)
 
-    def drop(self, index: int, x: float, y: float) -> dict:
-        """A dropped macro handle: move (snapped), pin, refine — one undoable step
-        (:meth:`Dragging.drop`, the method the canvas's drag-end callback calls)."""
-        return self.dragging.drop(index, x, y)
+    def drop(self, index: int, x: float, y: float, wait: bool = False) -> dict:
+        """A dropped macro handle: move (snapped) and pin at once, refine in the background —
+        one undoable step (:meth:`Dragging.drop`, the method the canvas's drag-end callback
+        calls); ``wait`` returns once the refine and the readouts are in."""
+        return self.dragging.drop(index, x, y, wait)
 
     def drop_pin(self, index: int, x: float, y: float) -> dict:
         """A dropped I/O pin: it snaps to a free slot on the die edge through
@@ -276,8 +277,9 @@ class FloorplanWidget(W.VBox):
         return self.dragging.refine_options
 
     def wait(self, timeout: float | None = None) -> bool:
-        """Wait for a background run to finish; ``True`` when none is left running."""
-        return self._ctx.runner.wait(timeout)
+        """Wait for a background run (and a drop's refine and the readouts' report) to finish;
+        ``True`` when none is left running."""
+        return self._ctx.runner.wait(timeout) and self.dragging.wait(timeout)
 
     def place(self, *, wait: bool = True, **options) -> bool:
         """Global placement (:meth:`Session.place`); ``wait=False`` runs it in the background.

@@ -639,7 +639,15 @@ class Canvas:
         if name == "congestion":
             return metrics.congestion_map(d, fp, self.grid)
         soft = (d.kind != MACRO) & (d.kind != TERMINAL)
-        return metrics.rect_area_map(self.grid, fp.rects()[soft]) / self.grid.bin_area
+        # a drop moves macros only: the cells' map is reused while they stay put (bit for bit)
+        key = (self.grid, fp.x[soft], fp.y[soft], fp.orient[soft])
+        last = getattr(self, "_cells_map", None)
+        if last is not None and last[0][0] is key[0] and all(
+                np.array_equal(a, b) for a, b in zip(last[0][1:], key[1:])):
+            return last[1]
+        v = metrics.rect_area_map(self.grid, fp.rects()[soft]) / self.grid.bin_area
+        self._cells_map = (key, v)
+        return v
 
     def show_heat(self, name: str | None) -> None:
         """Show heat layer ``name`` (``"density"`` or ``"congestion"``), or the cells layer."""

@@ -15,7 +15,7 @@ from collections.abc import Callable
 import ipywidgets as W
 import numpy as np
 
-from .._threads import pool
+from .._threads import pool, settled
 from ..design import Design, DesignError
 from ..session import Session
 from .canvas import Canvas
@@ -109,13 +109,7 @@ class Runner:
 
     def wait(self, timeout: float | None = None) -> bool:
         """Wait for a background run; ``True`` when none is left running."""
-        f = self._future
-        if f is None:
-            return True
-        from concurrent.futures import wait as wait_for
-
-        wait_for([f], timeout)
-        return f.done()
+        return settled(self._future, timeout)
 
 
 class Context:

@@ -1,14 +1,18 @@
 """The one drop path: a macro handle dragged on the canvas (or a test calling :meth:`drop`)
-becomes one Session batch — move (snapped), pin, refine — so one undo reverts it; while the
-drag is under way, the HPWL change of the dragged macros' nets."""
+becomes one Session batch — move (snapped), pin — shown at once, and a refine in the background
+(:meth:`Session.refine_later`) that joins that batch when it lands, so one undo reverts it; a
+newer drag, undo or redo supersedes a refine still running.  While the drag is under way, the
+HPWL change of the dragged macros' nets."""
 
 from __future__ import annotations
 
 import time
+from concurrent.futures import Future
 from typing import TYPE_CHECKING
 
 import numpy as np
 
+from .._threads import pool, settled
 from ..design import FIXED, TERMINAL, DesignError
 from ..metrics import nets_hpwl
 from .context import BUSY, Context
@@ -28,6 +32,9 @@ class Dragging:
         Options of the refine that follows a drop (``Live refine``).
     last_drag_delta : float or None
         The HPWL change of the last drag preview, µm.
+    pending : concurrent.futures.Future or None
+        The refine of the last drop (its result: landed or superseded, see
+        :meth:`Session.refine_later`).
     """
 
     def __init__(self, ctx: Context, readouts: Readouts):
@@ -35,6 +42,7 @@ class Dragging:
         self.refine_options: dict = {}
         self.last_drag_delta: float | None = None
         self._drag: dict | None = None
+        self.pending: Future | None = None
         c = ctx.canvas
         self.macro_idx = c.macro_idx
         h = c.marks["handles"]
@@ -103,8 +111,9 @@ class Dragging:
         out["message"] = msg
         return out
 
-    def drop(self, index: int, x: float, y: float) -> dict:
-        """Handle a dropped macro handle: move (snapped), pin, refine — one undoable step.
+    def drop(self, index: int, x: float, y: float, wait: bool = False) -> dict:
+        """Handle a dropped macro handle: move (snapped) and pin, one undoable step shown at
+        once; then, with "Live refine", a refine in the background that joins that step.
 
         Parameters
         ----------
@@ -112,15 +121,19 @@ class Dragging:
             Index of the handle (the macro's position among ``design.macros``).
         x, y : float
             New centre of the handle, µm (data coordinates).
+        wait : bool
+            Return only once the refine and the readouts' report are in (scripts, tests).
 
         Returns
         -------
         dict
-            ``moved`` (names), ``refined`` (bool), ``seconds`` (kernel time), ``message``.
+            ``moved`` (names), ``refine`` (the background refine's future, or ``None``),
+            ``refined`` (with ``wait``: whether it landed), ``seconds`` (until the moved
+            macro and the quick readouts were shown), ``message``.
         """
         t0 = time.perf_counter()
         self._drag = None
-        out = {"moved": [], "refined": False, "seconds": 0.0, "message": ""}
+        out = {"moved": [], "refine": None, "refined": False, "seconds": 0.0, "message": ""}
         ctx = self.ctx
         d, s, c = ctx.design, ctx.session, ctx.canvas
         nh = len(self.macro_idx)
@@ -153,7 +166,6 @@ class Dragging:
         names = [d.names[j] for j in grp]
         label = f"drag {names[0]}" if len(names) == 1 else f"drag {len(names)} macros"
         msg = ""
-        moved = []
         # the dropped macros become the selection; the change event below draws it once
         c.selected = np.unique(grp)
         c.focus_group = None
@@ -163,21 +175,24 @@ class Dragging:
                     s.move(nm, float(fp.x[j]) + dx, float(fp.y[j]) + dy)
                 if ctx.toggles["Pin on drop"].value:
                     s.pin(names)
-                if ctx.toggles["Live refine"].value:
-                    t1 = time.perf_counter()
-                    try:
-                        s.refine(**self.refine_options)
-                        out["refined"] = True
-                        ctx.runner.last_solve_s = time.perf_counter() - t1
-                    except DesignError as e:  # PlacementError: keep the move, say why
-                        msg = f"Refine skipped: {e}"
-            moved = names
+            out["moved"] = names
         except (DesignError, KeyError) as e:  # the batch was rolled back: nothing moved
             msg = str(e)
             c.update(s.floorplan)
             ctx.selection_changed()
+        if out["moved"] and ctx.toggles["Live refine"].value:
+            try:
+                out["refine"] = self._refine_later()
+            except DesignError as e:  # refused before it ran (e.g. its options): the move stays
+                msg = f"Refine skipped: {e}"
         ctx.notify(msg, error=bool(msg))
-        out.update(moved=moved, message=msg, seconds=time.perf_counter() - t0)
+        out.update(message=msg, seconds=time.perf_counter() - t0)
+        if wait and out["refine"] is not None:
+            f = out["refine"]
+            settled(f)
+            out["refined"] = f.exception() is None and f.result()
+            out["message"] = out["message"] or self._failure(f)
+            self.readouts.wait()
         return out
 
     def drop_pin(self, index: int, x: float, y: float) -> dict:
@@ -212,3 +227,32 @@ class Dragging:
             return self._refused(out, str(e), fp)
         out.update(moved=[ctx.design.names[i]], position=pos)
         return out
+
+    def _refine_later(self) -> Future:
+        """The drop's refine on the widget's placer pool (so it queues with the panels' runs,
+        never beside them); a failure is said in the message line, the move stays."""
+        ctx, t0 = self.ctx, time.perf_counter()
+        r = ctx.runner
+        self.pending = f = ctx.session.refine_later(executor=pool("widget", 1),
+                                                    progress=r.report_progress,
+                                                    **self.refine_options)
+
+        def done(f: Future) -> None:
+            msg = self._failure(f)
+            if msg:
+                ctx.notify(msg, error=True)
+            elif f.result():
+                r.last_solve_s = time.perf_counter() - t0
+                self.readouts.refresh()
+
+        f.add_done_callback(done)
+        return f
+
+    @staticmethod
+    def _failure(f: Future) -> str:
+        e = f.exception()
+        return "" if e is None else f"Refine skipped: {e}"
+
+    def wait(self, timeout: float | None = None) -> bool:
+        """Wait for the last drop's refine and the readouts' report; ``True`` when done."""
+        return settled(self.pending, timeout) and self.readouts.wait(timeout)

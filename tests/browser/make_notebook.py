@@ -4,7 +4,9 @@ The notebook loads the demo design from its own folder, shows a :class:`Floorpla
 writes the session's state to ``state.json`` beside it on every change (a Session observer), so
 the test can check from the kernel side what a drag in the browser did; ``labels.json`` holds
 the macro labels drawn.  ``real_widget.ipynb`` does the same for a real design (``real.json``
-names its files), zoomed on its densest group of macros.
+names its files), zoomed on its densest group of macros.  ``live_widget.ipynb`` shows the same
+real design with its macros movable and "Live refine" on, and logs when each drop, change and
+readout happened (kernel clock) to ``state.json``.
 """
 
 from __future__ import annotations
@@ -132,6 +134,91 @@ w.canvas.show_box(mx[k] - 7, my[k] - 7, mx[k] + 7, my[k] + 7, min_span=40.0)
 '''
 
 
+#: The third notebook: the real design with its macros movable (the DEF's FIXED taken as
+#: PLACED), live refine on, and a log of the drop, the session's changes and the readouts.
+LIVE_SETUP = '''\
+import json
+import time
+from pathlib import Path
+
+import floorwidget as fw
+from floorwidget.design import MACRO, MOVABLE
+
+HERE = Path.cwd()
+cfg = json.loads((HERE / "real.json").read_text())
+design = fw.load(cfg["def"], lef=cfg["lef"])
+fp = design.initial.copy()
+fp.status[design.kind == MACRO] = MOVABLE
+w = fw.FloorplanWidget(design, fp, live=True)
+'''
+
+LIVE_STATE = '''\
+STATE = HERE / "state.json"
+changes, events = [], []
+
+
+def write_state():
+    fp = w.session.floorplan
+    cx, cy = fp.centres()
+    idx = w.macro_idx
+    st = {"changes": changes, "events": events, "macros": design.macros,
+          "positions": {n: list(fp.position(n)) for n in design.macros},
+          "centres": [[float(cx[i]), float(cy[i])] for i in idx],
+          "rects": fp.rects(halo=True)[idx].tolist(), "core": design.core.tolist(),
+          "undo": w.session.history, "message": w.message.value}
+    tmp = STATE.with_suffix(".tmp")
+    tmp.write_text(json.dumps(st, default=float))
+    tmp.replace(STATE)
+
+
+def on_change(ev):
+    changes.append(ev.action)
+    events.append(["change", time.perf_counter(), ev.action])
+    write_state()
+
+
+def on_readout(change):
+    r = w.readouts
+    ev = ["readout", time.perf_counter(), r.complete, r.report.get("hpwl")]
+    if r.complete and changes[-1:] == ["refine"]:  # the staged report ends equal to evaluate
+        ev.append(r.report == fw.evaluate(design, w.session.floorplan,
+                                          target_density=w.session.target_density))
+    events.append(ev)
+    write_state()
+
+
+untimed_drop = w.dragging.drop
+
+
+def timed_drop(*args, **kwargs):
+    events.append(["drop", time.perf_counter()])
+    out = untimed_drop(*args, **kwargs)
+    events.append(["dropped", time.perf_counter(), out["message"]])
+    write_state()
+    return out
+
+
+untimed_update = w.canvas.update
+
+
+def timed_update(*args, **kwargs):
+    t = time.perf_counter()
+    untimed_update(*args, **kwargs)
+    events.append(["canvas", t, time.perf_counter()])
+
+
+w.dragging.drop = timed_drop
+w.canvas.update = timed_update
+w.session.on_change(on_change)
+w.readouts.html.observe(on_readout, names=["value"])
+'''
+
+LIVE_READY = '''\
+changes.append("ready")
+write_state()
+'''
+
+
 def _notebook(cells) -> nbformat.NotebookNode:
     nb = nbformat.v4.new_notebook()
     nb.metadata["kernelspec"] = {"name": "python3", "display_name": "Python 3",
@@ -148,6 +235,11 @@ def build_real() -> nbformat.NotebookNode:
     return _notebook((REAL_SETUP, STATE, SHOW, REAL_ZOOM, READY))
 
 
+def build_live() -> nbformat.NotebookNode:
+    return _notebook((LIVE_SETUP, LIVE_STATE, SHOW, LIVE_READY))
+
+
 if __name__ == "__main__":
     nbformat.write(build(), HERE / "drag_widget.ipynb")
     nbformat.write(build_real(), HERE / "real_widget.ipynb")
+    nbformat.write(build_live(), HERE / "live_widget.ipynb")
