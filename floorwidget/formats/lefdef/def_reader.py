@@ -5,42 +5,29 @@ from __future__ import annotations
 import re
 from collections import Counter
 from collections.abc import Sequence
-from decimal import Decimal
 from itertools import repeat
 from pathlib import Path
 
 import numpy as np
 
 from ...design import (
-    CELL,
-    CLUSTER,
-    FENCE,
     FIXED,
-    GUIDE,
     MAX_SITES,
     MOVABLE,
     ORIENT_CODE,
-    PINNED,
-    REGION_TYPES,
-    TERMINAL,
-    CellRegions,
     Design,
     DesignError,
-    orient_size,
 )
 from .._io import read_text
 from ._common import (
-    _MATS,
-    _TERMINAL_PREFIX,
     MAX_DBU,
     MAX_ROWS,
     STATUS_PROPERTY,
-    _fraction,
-    _warn_skipped,
     lef_path_for,
 )
+from .def_assemble import assemble
+from .def_constraints import _ConstraintSections
 from .lef_reader import LefLibrary, read_lef
-from .polygons import _polygon_rects
 from .source import DefSource
 from .specialnets import parse_specialnets, shapes_from_parsed
 from .tokens import _TOK, _pack, _split_tokens, _Words, blank_comments
@@ -51,7 +38,7 @@ _DEF_QUIET = {"VERSION", "DIVIDERCHAR", "BUSBITCHARS", "NAMESCASESENSITIVE", "TE
               "HISTORY"}
 
 
-class _Def:
+class _Def(_ConstraintSections):
     """DEF reader state: header statements go through a lazy scanner, sections are parsed
     whole with regular expressions and vectorised conversion."""
 
@@ -674,420 +661,9 @@ class _Def:
             self.fail(f"{what} header says {count}, the section has {len(stmts)}", hpos)
         return [(mt.group(1), _split_tokens(mt.group(2)), mt.start(1)) for mt in stmts]
 
-    def blockage_section(self, start: int, end: int, count: int, hpos: int) -> None:
-        for word, toks, pos in self._statements("BLOCKAGES", start, end, count, hpos):
-            kind = word.upper()
-            if kind != "PLACEMENT":
-                self.skipped[f"BLOCKAGES {kind}"] += 1
-                self.blockage_stmts.append(None)
-                continue
-            k = 0
-            density = 0.0
-            first = len(self.blockages)
-            while k < len(toks):
-                w = toks[k].upper()
-                if w == "PARTIAL" and k >= 1 and toks[k - 1] == "+":
-                    if k + 1 >= len(toks):
-                        self.fail("BLOCKAGES: PARTIAL needs a maximum density", pos)
-                    pct = self.number(toks[k + 1], pos, "BLOCKAGES PARTIAL")
-                    if not 0.0 <= pct <= 100.0:
-                        self.fail(f"BLOCKAGES: PARTIAL density {toks[k + 1]} is not a "
-                                  "percentage in [0, 100]", pos)
-                    density = _fraction(toks[k + 1])
-                    if density == 0.0 and Decimal(toks[k + 1]) > 0:  # would read as full
-                        self.fail(f"BLOCKAGES: PARTIAL density {toks[k + 1]} is too small to "
-                                  "hold (it would read as a full blockage)", pos)
-                    k += 2
-                elif w in ("RECT", "POLYGON"):
-                    j = k + 1
-                    pts = []
-                    while j < len(toks) and toks[j] == "(":
-                        if j + 3 >= len(toks) or toks[j + 3] != ")":
-                            self.fail("BLOCKAGES: a point is written ( x y )", pos)
-                        pts.append((self.number(toks[j + 1], pos, "BLOCKAGES"),
-                                    self.number(toks[j + 2], pos, "BLOCKAGES")))
-                        j += 4
-                    if w == "RECT":
-                        if len(pts) != 2:
-                            self.fail("BLOCKAGES: RECT needs two points", pos)
-                        (a, b), (c, d) = pts
-                        self.blockages.append((min(a, c), min(b, d), max(a, c), max(b, d)))
-                    else:
-                        if len(pts) < 4:
-                            self.fail("BLOCKAGES: POLYGON needs four points or more", pos)
-                        try:
-                            rects = _polygon_rects(np.array(pts), True)
-                        except ValueError as e:
-                            self.fail(f"BLOCKAGES: POLYGON {e}", pos)
-                        if not len(rects):
-                            self.fail("BLOCKAGES: POLYGON has no area", pos)
-                        self.blockages.extend(map(tuple, rects))
-                    k = j
-                else:
-                    k += 1
-            if len(self.blockages) == first:
-                self.fail("BLOCKAGES: a placement blockage needs a RECT or a POLYGON", pos)
-            self.blockage_density.extend([density] * (len(self.blockages) - first))
-            self.blockage_stmts.append((first, len(self.blockages) - first))
-
-    # --- REGIONS and GROUPS -------------------------------------------------------------------
-    def region_section(self, start: int, end: int, count: int, hpos: int) -> None:
-        """``- name ( x y ) ( x y ) ... [+ TYPE FENCE | GUIDE] ;``: corner pairs."""
-        for name, toks, pos in self._statements("REGIONS", start, end, count, hpos):
-            pts, kind, k = [], None, 0
-            while k < len(toks):
-                if toks[k] == "(":
-                    if k + 3 >= len(toks) or toks[k + 3] != ")":
-                        self.fail("REGIONS: a point is written ( x y )", pos)
-                    pts.append((self.number(toks[k + 1], pos, "REGIONS"),
-                                self.number(toks[k + 2], pos, "REGIONS")))
-                    k += 4
-                elif toks[k] == "+" and k + 2 < len(toks) and toks[k + 1].upper() == "TYPE":
-                    kind = toks[k + 2].upper()
-                    if kind not in ("FENCE", "GUIDE"):
-                        self.fail(f"REGIONS: region {name!r}: TYPE {toks[k + 2]} is not FENCE "
-                                  "or GUIDE", pos)
-                    k += 3
-                elif toks[k] == "+":  # PROPERTY and others: skipped to the next +
-                    self.skipped[f"REGIONS +{toks[k + 1] if k + 1 < len(toks) else ''}"] += 1
-                    k += 2
-                    while k < len(toks) and toks[k] != "+":
-                        k += 1
-                else:
-                    self.fail(f"REGIONS: region {name!r}: unexpected {toks[k]!r}", pos)
-            if not pts or len(pts) % 2:
-                self.fail(f"REGIONS: region {name!r} needs pairs of corner points", pos)
-            # no TYPE: read as a guide, the reading that never makes a placement infeasible
-            self.regions.append((name, pts, FENCE if kind == "FENCE" else GUIDE, pos))
-
-    def group_section(self, start: int, end: int, count: int, hpos: int) -> None:
-        """``- name component-pattern ... [+ REGION region] ;``."""
-        for name, toks, pos in self._statements("GROUPS", start, end, count, hpos):
-            pats, region, k = [], None, 0
-            while k < len(toks) and toks[k] != "+":
-                pats.append(toks[k])
-                k += 1
-            while k < len(toks):
-                w = toks[k + 1].upper() if k + 1 < len(toks) else ""
-                if w == "REGION" and k + 2 < len(toks) and toks[k + 2] != "(":
-                    region = toks[k + 2]
-                else:  # + SOFT, + PROPERTY, an inline REGION rectangle (DEF before 5.5)
-                    self.skipped[f"GROUPS +{w}"] += 1
-                k += 2
-                while k < len(toks) and toks[k] != "+":
-                    k += 1
-            self.groups.append((name, pats, region, pos))
-
-    def cell_regions(self, names: list[str], kind: np.ndarray, dbu: float) -> CellRegions:
-        """The regions with the members their groups name (cells and clusters only; other
-        components are counted as skipped)."""
-        n = len(names)
-        if not self.regions:
-            if self.groups:
-                self.skipped["GROUPS without a REGION"] += len(self.groups)
-            return CellRegions.empty(n)
-        index = {r[0]: k for k, r in enumerate(self.regions)}
-        if len(index) != len(self.regions):
-            dup = next(r for k, r in enumerate(self.regions) if index[r[0]] != k)
-            self.fail(f"REGIONS: region {dup[0]!r} is defined twice", dup[3])
-        group_of = ["" for _ in self.regions]
-        member = np.full(n, -1, np.int32)
-        in_group = np.full(n, -1, np.int64)  # the group each cell joined, by its index
-        lookup = {nm: i for i, nm in enumerate(names)}
-        text = "\n".join(names)
-        starts = np.concatenate([[0], np.cumsum([len(nm) + 1 for nm in names])[:-1]])
-        for g, (gname, pats, region, pos) in enumerate(self.groups):
-            if region is None:
-                self.skipped["GROUPS without a REGION"] += 1
-                continue
-            if region not in index:
-                self.fail(f"GROUPS: group {gname!r} names region {region!r}, which REGIONS "
-                          "does not define", pos)
-            k = index[region]
-            group_of[k] = group_of[k] or gname
-            hit = np.zeros(n, bool)
-            for pat in pats:
-                if pat in lookup:
-                    hit[lookup[pat]] = True
-                elif "*" in pat or "?" in pat:  # one regular-expression scan of all names
-                    rx = re.compile("^" + re.escape(pat).replace(r"\*", "[^\n]*")
-                                    .replace(r"\?", "[^\n]") + "$", re.M)
-                    at = np.fromiter((m.start() for m in rx.finditer(text)), np.int64)
-                    hit[np.searchsorted(starts, at)] = True
-                else:
-                    self.fail(f"GROUPS: group {gname!r}: no component named {pat!r}", pos)
-            soft = (kind == CELL) | (kind == CLUSTER)
-            if (hit & ~soft).any():
-                self.skipped["GROUPS members that are not standard cells"] += int(
-                    (hit & ~soft).sum())
-            again = np.flatnonzero(hit & soft & (in_group >= 0))
-            if len(again):  # a component belongs to one group (LEF/DEF Reference 5.8)
-                i = int(again[0])
-                self.fail(f"GROUPS: component {names[i]!r} is in group "
-                          f"{self.groups[int(in_group[i])][0]!r} and again in group "
-                          f"{gname!r}", pos)
-            in_group[hit & soft] = g
-            member[hit & soft] = k
-        regs = [{"name": nm, "type": REGION_TYPES[t],
-                 "rects": [[min(a[0], b[0]) / dbu, min(a[1], b[1]) / dbu,
-                            max(a[0], b[0]) / dbu, max(a[1], b[1]) / dbu]
-                           for a, b in zip(pts[::2], pts[1::2])],
-                 "group": group_of[k] or nm}
-                for k, (nm, pts, t, _) in enumerate(self.regions)]
-        return CellRegions.build(n, regs, member)
-
-    # --- assembly ----------------------------------------------------------------------------
     def design(self) -> Design:
-        if self.dbu is None:
-            self.fail("no UNITS DISTANCE MICRONS statement", 0)
-        dbu = float(self.dbu)  # type: ignore[arg-type]
-        lib = self.lib
-        if self.die_pts is None:
-            self.fail("no DIEAREA statement", 0)
-        pts = np.array(self.die_pts, dtype=np.float64) / dbu
-        die = np.array([pts[:, 0].min(), pts[:, 1].min(), pts[:, 0].max(), pts[:, 1].max()])
-        blk = [np.array(self.blockages, dtype=np.float64).reshape(-1, 4) / dbu]
-        dens = [np.array(self.blockage_density, dtype=np.float64)]
-        if len(pts) > 2:
-            try:
-                blk.insert(0, _polygon_rects(pts, False))
-            except ValueError as e:
-                self.fail(f"DIEAREA: {e}", self.die_pos)
-            dens.insert(0, np.zeros(len(blk[0])))
-            self.notches = len(blk[0])
-        blockages = np.concatenate(blk)
-        blockage_density = np.concatenate(dens)
-
-        # rows
-        rows = {"x": [], "y": [], "height": [], "site_width": [], "num_sites": [], "orient": []}
-        for site, sp, x, y, o, nx, ny, sx, sy in self.rows:
-            if lib is None or site not in lib.sites:
-                self.fail(f"ROW: site {site!r} is not defined in the LEF library"
-                          + ("" if lib is not None else " (no LEF given)"), sp)
-            sw, sh = lib.sites[site]  # type: ignore[union-attr]
-            step_x = sx / dbu if sx else sw
-            step_y = sy / dbu if sy else sh
-            rows["x"].append(np.full(ny, x / dbu))
-            rows["y"].append(y / dbu + np.arange(ny) * step_y)
-            rows["height"].append(np.full(ny, sh))
-            rows["site_width"].append(np.full(ny, step_x if nx > 1 else sw))
-            rows["num_sites"].append(np.full(ny, nx, np.int64))
-            rows["orient"].append(np.full(ny, o, np.int8))
-        if self.rows:
-            rows = {k: np.concatenate(v) for k, v in rows.items()}
-            rows["site_name"] = self.rows[0][0]
-            rx = np.array(rows["x"])
-            xhi = rx + np.array(rows["site_width"]) * np.array(rows["num_sites"])
-            ry = np.array(rows["y"])
-            core = np.array([rx.min(), ry.min(), xhi.max(), (ry + np.array(rows["height"])).max()])
-        else:
-            core = die
-        ccx, ccy = (core[0] + core[2]) / 2, (core[1] + core[3]) / 2
-
-        # components
-        c = self.comps or dict(names=[], models=[], status=np.zeros(0, np.int8), x=np.zeros(0),
-                               y=np.zeros(0), orient=np.zeros(0, np.int8), halo=None, pinned=[],
-                               start=0, end=0)
-        nc = len(c["names"])
-        macros = lib.macros if lib is not None else {}
-        mnames = list(dict.fromkeys(c["models"]))
-        mindex = {m: k for k, m in enumerate(mnames)}
-        unknown = [m for m in mnames if m not in macros]
-        if unknown:
-            i = c["models"].index(unknown[0])
-            hint = "" if lib is not None else " (no LEF given: pass lef=[...])"
-            self.fail(f"component {c['names'][i]!r}: unknown LEF macro {unknown[0]!r}{hint}",
-                      self._find(c["start"], c["end"], c["names"][i]))
-        ms = [macros[m] for m in mnames]
-        cm = np.fromiter(map(mindex.__getitem__, c["models"]), np.int64, nc) if nc else \
-            np.zeros(0, np.int64)
-        mk = np.array([m.kind for m in ms], np.int8)
-        mw = np.array([m.width for m in ms])
-        mh = np.array([m.height for m in ms])
-        ma = np.array([m.allowed for m in ms], np.uint8)
-        canon = {m: m for m in mnames}
-        kind, width, height = mk[cm], mw[cm], mh[cm]
-        if c["halo"] is not None:
-            bad = np.flatnonzero((kind == CELL) & c["halo"].any(axis=1))
-            if len(bad):
-                i = int(bad[0])
-                self.fail(f"component {c['names'][i]!r}: + HALO on a standard cell (LEF macro "
-                          f"{c['models'][i]!r}, CLASS {macros[c['models'][i]].cls}); halos "
-                          "belong to macros", self._find(c["start"], c["end"], c["names"][i]))
-        allowed = ma[cm]
-        status, orient = c["status"].copy(), c["orient"]
-        x, y = c["x"], c["y"]
-        unpl = status < 0
-        if unpl.any():
-            w, h = orient_size(width[unpl], height[unpl], orient[unpl])
-            x[unpl] = (ccx - w / 2) * dbu
-            y[unpl] = (ccy - h / 2) * dbu
-            status[unpl] = MOVABLE
-        if c["pinned"]:
-            status[np.array(c["pinned"])] = PINNED
-        x = x / dbu
-        y = y / dbu
-
-        # I/O pins -> terminals
-        pins = self.pins or []
-        comp_index = dict(zip(c["names"], range(nc)))
-        t_names, t_w, t_h, t_x, t_y, t_o, t_s = [], [], [], [], [], [], []
-        for name, rect, place in pins:
-            st, px, py, o = place if place is not None else (-1, 0.0, 0.0, 0)
-            if rect is None:
-                rect = (0.0, 0.0, 0.0, 0.0)
-            x1, y1, x2, y2 = rect
-            cx_, cy_ = np.array([x1, x2, x1, x2]), np.array([y1, y1, y2, y2])
-            M = _MATS[o]
-            tx, ty = M[0, 0] * cx_ + M[0, 1] * cy_, M[1, 0] * cx_ + M[1, 1] * cy_
-            w, h = abs(x2 - x1) / dbu, abs(y2 - y1) / dbu
-            if st < 0:
-                ow, oh = orient_size(w, h, o)
-                lx, ly, st = ccx - float(ow) / 2, ccy - float(oh) / 2, MOVABLE
-            else:
-                lx, ly = (px + tx.min()) / dbu, (py + ty.min()) / dbu
-            t_names.append(_TERMINAL_PREFIX + name if name in comp_index else name)
-            t_w.append(w)
-            t_h.append(h)
-            t_x.append(lx)
-            t_y.append(ly)
-            t_o.append(o)
-            t_s.append(st)
-        term_index = {p[0]: nc + k for k, p in enumerate(pins)}
-
-        # nets
-        nt = self.nets or dict(names=[], net_of=np.zeros(0, np.int64), pc=[], pp=[],
-                               weight=np.zeros(0), keep=np.zeros(0, bool), start=0, end=0)
-        net_of, pc, pp = nt["net_of"], nt["pc"], nt["pp"]
-        deg = np.zeros(len(nt["names"]))  # only its length (the number of nets) is used
-        npins = len(pc)
-        keep_pin = nt["keep"][net_of] if npins else np.zeros(0, bool)
-        ci = np.fromiter(map(comp_index.get, pc, repeat(-1)), np.int64, npins)
-        is_io = np.zeros(npins, bool)
-        if "PIN" in comp_index:  # a component named PIN: look at every connection
-            is_io[:] = np.fromiter(map("PIN".__eq__, pc), bool, npins)
-        else:
-            cand = np.flatnonzero(ci < 0)
-            is_io[cand[np.array([pc[i] == "PIN" for i in cand.tolist()], bool)]] = True
-        io = np.flatnonzero(is_io)
-        if len(io):
-            ci[io] = np.fromiter(map(term_index.get, [pp[i] for i in io.tolist()], repeat(-1)),
-                                 np.int64, len(io))
-        # "( * pin )": a connection to that pin of every component (global nets): skipped
-        cand = np.flatnonzero((ci < 0) & ~is_io)
-        star = np.zeros(npins, bool)
-        if len(cand):
-            star[cand[np.array([pc[i] == "*" for i in cand.tolist()], bool)]] = True
-            if star.any():
-                self.skipped["NETS ( * pin )"] += int(star.sum())
-                keep_pin = keep_pin & ~star
-        bad = np.flatnonzero((ci < 0) & keep_pin)
-        if len(bad):
-            j = int(bad[0])
-            k = int(net_of[j])
-            what = (f"unknown I/O pin {pp[j]!r}" if is_io[j] else f"unknown component {pc[j]!r}")
-            self.fail(f"net {nt['names'][k]!r}: {what}",
-                      self._find(nt["start"], nt["end"], nt["names"][k]))
-        # pin offsets from the LEF: key (master, pin name) looked up in a sorted table
-        pname_id: dict[str, int] = {}
-        keys, kdx, kdy = [], [], []
-        for k, m in enumerate(ms):
-            for p, (dx, dy) in m.pins.items():
-                pid = pname_id.setdefault(p, len(pname_id))
-                keys.append((k, pid))
-                kdx.append(dx)
-                kdy.append(dy)
-        P = max(len(pname_id), 1)
-        tab = np.array([k * P + p for k, p in keys], np.int64)
-        order = np.argsort(tab)
-        tab, kdx_a, kdy_a = tab[order], np.array(kdx)[order], np.array(kdy)[order]
-        comp_pin = (~is_io) & (ci >= 0)
-        dx = np.zeros(npins)
-        dy = np.zeros(npins)
-        sel = np.flatnonzero(comp_pin)
-        if len(sel):
-            pid = np.fromiter(map(pname_id.get, pp, repeat(-1)), np.int64, npins)[sel]
-            key = cm[ci[sel]] * P + pid
-            if len(tab):
-                pos = np.minimum(np.searchsorted(tab, key), len(tab) - 1)
-                ok = (pid >= 0) & (tab[pos] == key)
-                ok[ok] = ~np.isnan(kdx_a[pos[ok]])
-            else:
-                pos = np.zeros(len(sel), np.int64)
-                ok = np.zeros(len(sel), bool)
-            bad = np.flatnonzero(~ok & keep_pin[sel])
-            if len(bad):
-                j = int(sel[bad[0]])
-                k = int(net_of[j])
-                mdl = mnames[int(cm[ci[j]])]
-                self.fail(f"net {nt['names'][k]!r}: component {pc[j]!r} (LEF macro {mdl!r}) "
-                          f"has no pin {pp[j]!r} with a shape",
-                          self._find(nt["start"], nt["end"], nt["names"][k]))
-            dx[sel[ok]] = kdx_a[pos[ok]]
-            dy[sel[ok]] = kdy_a[pos[ok]]
-        # keep nets with pins (drop MUSTJOIN and empty ones)
-        net_keep = nt["keep"] & (np.bincount(net_of[keep_pin], minlength=len(deg)) > 0) \
-            if len(deg) else np.zeros(0, bool)
-        pin_keep = (net_keep[net_of] & keep_pin) if npins else np.zeros(0, bool)
-        pcanon = {p: p for p in pname_id}
-        pin_names = list(map(pcanon.get, pp, pp))
-        if not pin_keep.all():
-            pin_names = [p for p, k in zip(pin_names, pin_keep) if k]
-        counts = np.bincount(net_of[pin_keep], minlength=len(deg))[net_keep] if npins else \
-            np.zeros(int(net_keep.sum()), np.int64)
-        net_start = np.concatenate([[0], np.cumsum(counts)]).astype(np.int64)
-        net_names = [nm for nm, k in zip(nt["names"], net_keep) if k] if not net_keep.all() \
-            else nt["names"]
-        ndrop = int(len(deg) - net_keep.sum()) - int((~nt["keep"]).sum())
-        if ndrop:
-            self.skipped["NETS without pins"] += ndrop
-
-        # assemble
-        names = c["names"] + t_names
-        nt_ = len(t_names)
-        halo = np.zeros((nc + nt_, 4))
-        if c["halo"] is not None:
-            halo[:nc] = c["halo"] / dbu
-        block_type = list(map(canon.__getitem__, c["models"])) + [""] * nt_
-        # the input's orientation of a fixed component or an I/O pin is a fact, not a choice
-        fixed = status == FIXED
-        allowed[fixed] |= (np.uint8(1) << orient[fixed].astype(np.uint8)).astype(np.uint8)
-        t_allowed = (np.uint8(1) << np.array(t_o, np.uint8)).astype(np.uint8)
-        regions = self.cell_regions(names, np.concatenate([kind, np.full(nt_, TERMINAL,
-                                                                            np.int8)]), dbu)
-        if self.skipped:
-            _warn_skipped(self.path, self.skipped)
-        try:
-            design = Design(
-                self.name, die, names,
-                np.concatenate([kind, np.full(nt_, TERMINAL, np.int8)]),
-                np.concatenate([width, t_w]), np.concatenate([height, t_h]),
-                net_start, ci[pin_keep], dx[pin_keep], dy[pin_keep],
-                halo=halo, orient_allowed=np.concatenate([allowed, t_allowed]),
-                net_names=net_names, net_weight=nt["weight"][net_keep], pin_names=pin_names,
-                rows=rows if self.rows else None, blockages=blockages,
-                blockage_max_density=blockage_density, regions=regions, block_type=block_type,
-                x=np.concatenate([x, t_x]), y=np.concatenate([y, t_y]),
-                orient=np.concatenate([orient, np.array(t_o, np.int8)]),
-                status=np.concatenate([status, np.array(t_s, np.int8)]),
-                dbu=int(dbu))
-        except DesignError as e:  # validation of the assembled design: name the file
-            line = None
-            m = re.fullmatch(r"row (\d+)", e.where or "")
-            if m and self.rows:  # a row problem: the line of its ROW statement
-                first = np.cumsum([r[6] for r in self.rows])
-                k = int(np.searchsorted(first, int(m.group(1)), side="right"))
-                line = self.line_at(self.rows[min(k, len(self.rows) - 1)][1])
-            msg = e.message
-            m = re.fullmatch(r"region '(.*)'", e.where or "")
-            reg = [r for r in self.regions if m and r[0] == m.group(1)]
-            if reg:  # a region problem: the line of its REGIONS statement, its type named
-                line = self.line_at(reg[0][3])
-                msg = msg.replace(e.where, f"{REGION_TYPES[reg[0][2]]} {e.where}", 1)
-            raise DesignError(msg, file=self.path, line=line, problems=e.problems,
-                              where=e.where) from None
-        design.source = self.path
-        return design
+        """The design the parsed DEF makes (:func:`.def_assemble.assemble`)."""
+        return assemble(self)
 
 
 def read_def(path: str | Path, lef: str | Path | Sequence[str | Path] | None = None) -> Design:
