@@ -351,7 +351,7 @@ def test_session_undo_script_and_file(tmp_path, demo_design):
 
 # --- a real design --------------------------------------------------------------------------
 
-ARIANE = Path("/work/shared/realdata/ariane136")
+ARIANE = Path(__file__).resolve().parents[2] / "shared" / "realdata" / "ariane136"
 
 
 @pytest.mark.slow
