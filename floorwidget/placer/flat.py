@@ -95,8 +95,9 @@ def global_stage(design: Design, src: Floorplan, target: float, opts: PlacerOpti
     info["bins"] = res["bins"]
     info["stage_seconds"]["global"] = time.perf_counter() - t0
     report(progress, "global", 1.0, {"overflow": res["overflow"]})
-    if field:
-        spread_by_field(design, out, movable, target, opts, mult, seed, info, progress)
+    if field:  # the stage's overflow is then the field's (over spread_density <= target)
+        return out, spread_by_field(design, out, movable, target, opts, mult, seed, info,
+                                    progress)
     return out, res["overflow"]
 
 
@@ -115,9 +116,9 @@ def handover(opts: PlacerOptions, field: bool) -> float:
 
 def spread_by_field(design: Design, out: Floorplan, var_mask: np.ndarray, target: float,
                     opts: PlacerOptions, mult, seed: int, info: dict, progress: Progress
-                    ) -> None:
+                    ) -> float:
     """The cells spread by the field (stage ``"field"``, :mod:`~floorwidget.placer.field`);
-    ``out`` changes in place."""
+    ``out`` changes in place; returns the field's overflow."""
     t0 = time.perf_counter()
     res = field_spread(design, out, var_mask, min(opts.spread_density, target), mult,
                        progress, seed=seed)
@@ -126,6 +127,7 @@ def spread_by_field(design: Design, out: Floorplan, var_mask: np.ndarray, target
     info["field_density"] = res["density"]
     info["stage_seconds"]["field"] = time.perf_counter() - t0
     report(progress, "field", 1.0, {"overflow": res["overflow"]})
+    return float(res["overflow"])
 
 
 def cells_stage(design: Design, out: Floorplan, src: Floorplan, target: float,
@@ -152,7 +154,7 @@ def cells_stage(design: Design, out: Floorplan, src: Floorplan, target: float,
     info["stage_seconds"]["cells"] = time.perf_counter() - t0
     report(progress, "cells", 1.0, {"overflow": ov})
     if field:
-        spread_by_field(design, out, soft, target, opts, mult, 0, info, progress)
+        ov = spread_by_field(design, out, soft, target, opts, mult, 0, info, progress)
     return out, ov
 
 

@@ -90,7 +90,9 @@ def place(design: Design, floorplan: Floorplan | None = None, *, target_density:
         and, with legal cells, ``cell_displacement``, ``dp_gain``.  ``overflow`` is measured
         on the placer's own bins (``bins``; a side of about two objects) with placed macros
         counted as obstacles, so it reads lower than
-        :func:`floorwidget.metrics.density_overflow` on its default grid of a few row heights.
+        :func:`floorwidget.metrics.density_overflow` on its default grid of a few row heights;
+        when the field spread the cells (``spreading="field"``) it is the field's own, over
+        ``field_density`` (also in ``info``, with ``field_overflow``).
 
     Raises
     ------
