@@ -70,7 +70,8 @@ def test_poisson_solve_matches_the_cosine_mode():
     d = rent_design(400, seed=1)
     fp = place(d, cells="global", spreading="lookahead")
     mask = (fp.status == MOVABLE) & (d.kind == CELL)
-    fld = _Field(d, fp, mask, 0.6, int(mask.sum()))
+    fld = _Field(d, fp, mask, int(mask.sum()))
+    fld.settle(0.6)
     g = fld.g
     fld.fixed[:] = 0.0
     L = g.nx * g.bw

@@ -120,21 +120,29 @@ def _cic(x, y, q, xlo, ylo, bw, bh, nx, ny, rho) -> None:
 class _Field:
     """The bin grid, its fixed charge and the Poisson solve."""
 
-    def __init__(self, design: Design, fp: Floorplan, var_mask: np.ndarray, density: float,
-                 n: int):
+    def __init__(self, design: Design, fp: Floorplan, var_mask: np.ndarray, n: int):
+        self.design = design
         self.g = g = _grid(design, n)
         fixed = np.ones(design.num_blocks, bool)
         fixed[var_mask] = False
-        obs = obstacles(design, fp, fixed)
-        # what obstacles take of a bin's capacity at the density is fixed charge (a partial
-        # blockage of cap m: density − m of its area), so every bin settles at the density
-        self.cap = np.maximum(capacity_map(g, density, obs)
-                              - partial_capacity_loss(design, g, density), 0.0)
-        self.fixed = density * g.bin_area - self.cap
+        self.obs = obstacles(design, fp, fixed)
         u = np.pi * np.arange(g.nx) / (g.nx * g.bw)
         v = np.pi * np.arange(g.ny) / (g.ny * g.bh)
         self.k2 = u[:, None] ** 2 + v[None, :] ** 2
         self.k2[0, 0] = 1.0
+
+    def capacity(self, density: float) -> np.ndarray:
+        """Room per bin for the moving cells at ``density`` (obstacles and partial blockages
+        taken off)."""
+        g = self.g
+        return np.maximum(capacity_map(g, density, self.obs)
+                          - partial_capacity_loss(self.design, g, density), 0.0)
+
+    def settle(self, density: float) -> None:
+        """Set the density every bin settles at: what obstacles take of a bin's capacity at
+        that density is fixed charge (a partial blockage of cap m: density − m of its area)."""
+        self.cap = self.capacity(density)
+        self.fixed = density * self.g.bin_area - self.cap
 
     def charge(self, x: np.ndarray, y: np.ndarray, q: np.ndarray) -> np.ndarray:
         """Cloud-in-cell: each charge shared among the four nearest bin centres."""
@@ -177,10 +185,10 @@ def field_spread(design: Design, fp: Floorplan, var_mask: np.ndarray, density: f
     cx, cy = fp.centres()
     q_cells = w[var] * h[var]
     mov_area = float(q_cells.sum())
-    full = _Field(design, fp, var_mask, 1.0, nm)  # a fuller design settles at its fill
-    density = max(density, min(1.0, mov_area / max(float(full.cap.sum()), 1e-300)
-                               + TARGET_MARGIN))
-    fld = _Field(design, fp, var_mask, density, nm)
+    fld = _Field(design, fp, var_mask, nm)
+    full = float(fld.capacity(1.0).sum())  # a fuller design settles at its fill
+    density = max(density, min(1.0, mov_area / max(full, 1e-300) + TARGET_MARGIN))
+    fld.settle(density)
     g = fld.g
     # fillers: the room between the cells and density x the free area
     mid = np.sort(q_cells)[int(0.1 * nm):max(int(0.9 * nm), int(0.1 * nm) + 1)]
