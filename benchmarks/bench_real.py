@@ -40,6 +40,9 @@ import time
 from functools import partial
 from pathlib import Path
 
+import numpy as np
+from scipy import ndimage
+
 ROOT = Path(__file__).resolve().parents[1]
 DATA = ROOT.parent / "shared" / "realdata"
 sys.path.insert(0, str(ROOT))
@@ -62,6 +65,22 @@ DENSE_UTIL = 0.82  # "aes-dense": the I/O pins removed, the core shrunk to this 
 # judged beside HPWL, each against the design's own placement where there is one
 FIGURES = ("congestion_p99", "density_overflow", "logic_regions", "largest_logic_region",
            "narrow_channels", "macros_facing_wall")
+
+
+def largest_hole(design, fp) -> float:
+    """The largest connected empty stretch of the core, as a share of its free area: report
+    bins (4-neighbours) at least half free whose movable fill is under a tenth of their
+    free area (scipy.ndimage.label)."""
+    from floorwidget.metrics import density_map
+
+    m = density_map(design, fp)
+    free = np.maximum(m.free - m.fixed, 0.0)
+    empty = (free >= 0.5 * m.grid.bin_area) & (m.movable < 0.1 * free)
+    lab, n = ndimage.label(empty)
+    if not n:
+        return 0.0
+    sizes = ndimage.sum(free, lab, index=np.arange(1, n + 1))
+    return float(sizes.max() / max(free.sum(), 1e-300))
 
 
 def _lefs(folder: Path) -> list[str]:
@@ -145,6 +164,8 @@ def _child(name: str, data: Path) -> dict:
     own = fw.evaluate(d) if ref == "ref" else None
     out["ref"] = own["hpwl"] if own else ref
     out["own"] = {k: own[k] for k in FIGURES} if own else None
+    if own:
+        out["own"]["hole"] = largest_hole(d, d.initial)
     st = d.initial.status
     out["cells"] = int((d.kind == CELL).sum())
     out["macros"] = int((d.kind == MACRO).sum())
@@ -162,6 +183,7 @@ def _child(name: str, data: Path) -> dict:
     out["target"] = rep["target_density"]
     out["stages"] = {k: round(v, 1) for k, v in fp.info["stage_seconds"].items()}
     out["figures"] = {k: rep[k] for k in FIGURES}
+    out["figures"]["hole"] = largest_hole(d, fp)
     out["layout"] = fp.info.get("macro_layout", "")
     out["peak_mb"] = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
     return out
@@ -197,9 +219,9 @@ def main(argv: list[str]) -> int:
     print("| design | cells | macros (movable) | layout | util | target | wall s | CPU s "
           "| peak MB | HPWL global | HPWL legal | legal | yardstick | HPWL ÷ yardstick "
           "| congestion p99 (÷ own) | overflow (own) | logic regions (own) "
-          "| narrow channels | pins to a wall (own) | stages s |")
+          "| largest hole % (own) | narrow channels | pins to a wall (own) | stages s |")
     print("|---|---:|---:|---|---:|---:|---:|---:|---:|---:|---:|---|---:|---:|---:|---:|---:"
-          "|---:|---:|---|")
+          "|---:|---:|---:|---|")
     status = 0
     for name in names:
         if name not in DESIGNS or not (data / DESIGNS[name][0]).is_dir():
@@ -218,12 +240,16 @@ def main(argv: list[str]) -> int:
         yard = f"{ref:.4g} ({note})" if ref else "—"
         f, own = r["figures"], r["own"] or {}
         beside = partial(_beside, f, own)
+        def pct(fig):
+            return {"hole": 100 * fig["hole"]} if "hole" in fig else {}
         print(f"| {name} | {r['cells']} | {r['macros']} ({r['movable_macros']}) | "
               f"{r['layout']} | {r['util']:.2f} | {r['target']:.2f} | {r['wall']:.1f} | "
               f"{r['cpu']:.1f} | {r['peak_mb']:.0f} | {r['hpwl_global']:.4g} | "
               f"{r['hpwl']:.4g} | {r['legal']} | {yard} | {ratio} | "
               f"{beside('congestion_p99', ratio=True)} | {beside('density_overflow')} | "
-              f"{beside('logic_regions', '{}')} | {f['narrow_channels']} | "
+              f"{beside('logic_regions', '{}')} | "
+              f"{_beside(pct(f), pct(own), 'hole', '{:.1f}')} | "
+              f"{f['narrow_channels']} | "
               f"{beside('macros_facing_wall', '{}')} | {r['stages']} |", flush=True)
     return status
 

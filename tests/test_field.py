@@ -111,3 +111,25 @@ def test_field_lowers_the_overflow_and_the_result_is_legal():
     full = place(d, spread_density=0.6)
     assert full.info["stage_iterations"]["field"] > 0
     assert evaluate(d, full)["legal"]
+
+
+def test_inflation_opens_the_hot_spots():
+    """Cell inflation from routing demand (Kim, Hu, Lee, Markov, ICCAD 2011, from memory):
+    cells in the bins of highest demand take more room, so the demand peak drops; the
+    inflated area stays within the cap."""
+    from floorwidget.metrics import bin_grid, congestion_map
+    from floorwidget.metrics.congestion import congestion_stats
+
+    d = rent_design(3000, seed=5, utilisation=0.5)
+    before = place(d, cells="global", spreading="lookahead", target_density=0.8)
+    mask = (before.status == MOVABLE) & (d.kind == CELL)
+    plain, grown = before.copy(), before.copy()
+    f0 = field_spread(d, plain, mask, 0.6)
+    f1 = field_spread(d, grown, mask, 0.6, inflate=(0.7, 2.0))
+    assert f0["inflation_rounds"] == 0 and f0["inflated"] == 0.0
+    assert f1["inflation_rounds"] >= 1
+    assert 0.0 < f1["inflated"] <= 1.0  # at most max_inflation - 1 of the cell area
+    g = bin_grid(d)
+    p99_plain = congestion_stats(congestion_map(d, plain, g))[1]
+    p99_grown = congestion_stats(congestion_map(d, grown, g))[1]
+    assert p99_grown < p99_plain

@@ -114,13 +114,15 @@ class PlacerOptions:
         the multilevel flow (at 10^6 cells the passes beyond two cost 15 s for 0.8 % of the
         wirelength; DEVELOPERS.md).
     congestion_target : float
-        Routability-driven spreading: once the cells are spread (overflow below 0.25),
-        every few iterations the cells in bins whose routing demand exceeds this share of the
-        supply (:func:`floorwidget.metrics.congestion_map`) are inflated by the ratio, up to
-        ``max_inflation`` in all, so the look-ahead spreads them apart (cell inflation from
+        Routability-driven spreading: once the cells are nearly spread, a few times the cells
+        in bins whose routing demand exceeds this share of the supply
+        (:func:`floorwidget.metrics.congestion_map`) are inflated by the ratio, up to
+        ``max_inflation`` in all, so the spreading moves them apart (cell inflation from
         routing demand: Kim, Hu, Lee, Markov, ICCAD 2011; Hsu, Chou, Lin, Chang, ICCAD 2011;
         both from memory).  Default 0.7 (RUDY reads low: detours and pin access take the
-        rest, common practice).
+        rest, common practice).  The field (``spreading="field"``) also opens up the top
+        5 % of the bins by demand where no bin reaches the target
+        (:func:`floorwidget.placer.field._inflation`).
     max_inflation : float
         Largest factor a cell's area may be inflated by; 1 turns routability-driven spreading
         off.  Default 2.
