@@ -33,7 +33,11 @@ from .constraints import macro_keepouts
 __all__ = ["ArrayPlan", "array_key", "macro_arrays", "pin_channel", "side_pins"]
 
 _INDEX = re.compile(r"\\?\[\s*\d+\s*\\?\]|(?<=_)\d+(?=$|[./_])|<\d+>")
-MAX_ARRAY = 16  # members of one array at most; a larger bank is cut by position
+# Members of one array at most; a larger bank is cut in halves by position.  Smaller arrays
+# each go near their own logic: ariane136 with its SRAMs movable (banks of 8 and more; HPWL /
+# congestion p99 ÷ the design's own): at most 16 or 8 per array 1.027 / 1.06, 4 0.976 /
+# 0.996, 2 1.019 / 1.003 (one run each).
+MAX_ARRAY = 4
 
 
 def array_key(name: str) -> str:
