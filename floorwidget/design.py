@@ -389,6 +389,9 @@ class Design:
         #: Layer of each I/O terminal's shape where the input says (DEF ``PINS + LAYER``),
         #: by terminal name; :mod:`floorwidget.floorplan.pins` puts the others on a default.
         self.io_layers: dict[str, str] = {}
+        #: Signal direction of each I/O terminal where the input says (Verilog port
+        #: declarations, DEF ``PINS + DIRECTION``): INPUT, OUTPUT, INOUT or FEEDTHRU.
+        self.io_directions: dict[str, str] = {}
         #: DEF ``TRACKS`` a floorplan made from a netlist writes (``floorplan.init.Track``:
         #: axis, start µm, count, step µm, layer); empty for designs read from files.
         self.tracks: list = []

@@ -162,6 +162,19 @@ def test_def_from_scratch_reads_back(tmp_path):
         set(pin_sets(d.names, d.kind, d.net_start, d.pin_block, d.pin_names))
     assert back.initial.x == pytest.approx(fp.x, abs=1e-3)
     assert fw.evaluate(back)["hpwl"] == pytest.approx(rep["hpwl"], abs=0.01)
+    # I/O pins: the direction the Verilog declares, and a layer whose tracks cross the pin's
+    # edge (a pin on the bottom or top edge on the vertical wm1, on the left or right edge on
+    # the horizontal wm2: common practice); both read back
+    pins = re.findall(r"^- (\S+) \+ NET \S+ \+ DIRECTION (\S+) \+ USE SIGNAL \+ LAYER (\S+) "
+                      r".* \+ PLACED \( (\d+) (\d+) \)", text, re.M)
+    assert sorted(p[1] for p in pins) == ["INPUT"] * 4 + ["OUTPUT"] * 2
+    die = np.round(d.die * d.dbu).astype(int)
+    for _, _, layer, x, y in pins:
+        x, y = int(x), int(y)
+        on_bottom_or_top = min(y - die[1], die[3] - y) < min(x - die[0], die[2] - x)
+        assert layer == ("wm1" if on_bottom_or_top else "wm2")
+    assert back.io_directions == {p[0]: p[1] for p in pins}
+    assert back.io_layers == {p[0]: p[2] for p in pins}
 
 
 def _cli(capsys, *args):

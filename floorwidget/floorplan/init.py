@@ -306,6 +306,8 @@ def floorplan_netlist(nl: Netlist, lib: LefLibrary, *, utilization: float | None
     design.lef_files = list(lib.files)
     design.routing_layers = list(lib.layers)
     design.tracks = make_tracks(die, lib.layers, dbu)
+    t_names = [n for n, k in zip(nl.names, nl.kind.tolist()) if k == TERMINAL]
+    design.io_directions = {n: d.upper() for n, d in zip(t_names, nl.directions)}
     return design
 
 

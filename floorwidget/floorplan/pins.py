@@ -50,13 +50,13 @@ from scipy.sparse import csr_matrix
 from scipy.sparse.csgraph import connected_components
 
 from ..design import MOVABLE, TERMINAL, Design, DesignError, Floorplan, orient_offsets
+from ..kernels.io_pins import EDGE_DIR, EDGES, edge_layers, nearest_edge
 
 __all__ = ["EDGES", "PinConstraints", "PinGroup", "SlotPool", "assign_pins",
            "assign_pins_iterated", "pin_cost_matrix", "pin_edge", "slot_pools", "snap_pin"]
 
-EDGES = ("left", "bottom", "right", "top")
 _ALONG_X = np.array([False, True, False, True])  # bottom and top run along x
-_EDGE_DIR = ("H", "V", "H", "V")  # the track direction that crosses each edge
+_EDGE_DIR = EDGE_DIR
 _BIG = 1e30  # a forbidden (pin, slot) entry
 _CHUNK = 4_000_000  # pins x slots evaluated at once when choosing candidates
 _EPS = 1e-9
@@ -181,10 +181,8 @@ def _layer_table(design: Design) -> tuple[dict[str, tuple[str, float]], tuple[st
     """``{layer: (direction, pitch)}`` and the default layers ``(H, V)`` for unnamed pins."""
     layers = [(n, d, float(p)) for n, d, p in design.routing_layers if p > 0]
     table = {n: (d, p) for n, d, p in layers}
-    above = layers[1:] or layers
     default = []
-    for want in ("H", "V"):
-        pick = next((n for n, d, _ in above + layers if d == want), None)
+    for want, pick in zip(("H", "V"), edge_layers(layers)):
         if pick is None:  # no layer data: an assumed layer, as the congestion figures do
             from ..metrics.congestion import ASSUMED_TRACKS  # noqa: PLC0415
 
@@ -201,9 +199,7 @@ def pin_edge(design: Design, fp: Floorplan, idx) -> np.ndarray:
     """Index into :data:`EDGES` of the die edge nearest each block centre in ``idx``."""
     idx = np.asarray(idx, dtype=np.intp)
     cx, cy = fp.centres()
-    d = design.die
-    dist = np.stack([cx[idx] - d[0], cy[idx] - d[1], d[2] - cx[idx], d[3] - cy[idx]], axis=1)
-    return np.argmin(dist, axis=1)
+    return nearest_edge(design.die, cx[idx], cy[idx])
 
 
 def _io_layers(design: Design) -> dict[str, str]:

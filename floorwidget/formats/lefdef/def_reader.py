@@ -55,6 +55,7 @@ class _Def(_ConstraintSections):
         self.comps = None
         self.pins = None
         self.pin_layers: dict[str, str] = {}  # I/O pin -> layer of its first shape
+        self.pin_dirs: dict[str, str] = {}  # I/O pin -> + DIRECTION
         self.nets = None
         self.blockages: list[tuple[float, float, float, float]] = []
         self.blockage_density: list[float] = []  # max density per blockage (0: full)
@@ -501,7 +502,10 @@ class _Def(_ConstraintSections):
                 continue
             w = toks[k + 1].upper() if k + 1 < len(toks) else ""
             k += 1 if w == "+" else 2  # "+ +": the second one starts the next option
-            if w == "LAYER" and rect is None:
+            if w == "DIRECTION" and k < len(toks):
+                self.pin_dirs[name] = toks[k].upper()
+                k += 1
+            elif w == "LAYER" and rect is None:
                 if k < len(toks):
                     self.pin_layers[name] = toks[k]
                 k += 1
@@ -712,6 +716,9 @@ def read_def(path: str | Path, lef: str | Path | Sequence[str | Path] | None = N
     design.io_layers = {nm: r.pin_layers[p[0]] for nm, p in
                         zip(design.names[len(design.names) - len(r.pins or []):], r.pins or [])
                         if p[0] in r.pin_layers}
+    design.io_directions = {nm: r.pin_dirs[p[0]] for nm, p in
+                            zip(design.names[len(design.names) - len(r.pins or []):],
+                                r.pins or []) if p[0] in r.pin_dirs}
     if r.power is not None:
         design.power = shapes_from_parsed(r.power, design.routing_layers)
     design.def_source = DefSource.keep(source, r, design)

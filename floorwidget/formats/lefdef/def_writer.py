@@ -17,6 +17,7 @@ from ...design import (
     Floorplan,
     orient_size,
 )
+from ...kernels.io_pins import EDGE_DIR, edge_layers, nearest_edge
 from .._io import write_files
 from ._common import (
     _MATS,
@@ -151,6 +152,7 @@ def _def_text(design: Design, fp: Floorplan, path) -> str:
                           f"offsets on terminals are not written", LefDefWarning, stacklevel=2)
     out.append(f"PINS {len(term)} ;")
     wd, hd = I(d.width), I(d.height)
+    layer_of, dir_of = _io_words(d, fp, term)
     for k, i in enumerate(term.tolist()):
         o = orl[i]
         ow, oh = orient_size(wd[i], hd[i], o)
@@ -159,8 +161,8 @@ def _def_text(design: Design, fp: Floorplan, path) -> str:
         M = _MATS[o].T  # inverse of an orthogonal matrix
         nx, ny = M[0, 0] * cxs + M[0, 1] * cys, M[1, 0] * cxs + M[1, 1] * cys
         s = "PLACED" if stl[i] == MOVABLE else "FIXED"
-        out.append(f"- {tnames[k]} + NET {first_net.get(i, tnames[k])} + DIRECTION INOUT "
-                   f"+ USE SIGNAL + LAYER {PIN_LAYER} ( {nx.min()} {ny.min()} ) "
+        out.append(f"- {tnames[k]} + NET {first_net.get(i, tnames[k])} + DIRECTION {dir_of[k]} "
+                   f"+ USE SIGNAL + LAYER {layer_of[k]} ( {nx.min()} {ny.min()} ) "
                    f"( {nx.max()} {ny.max()} ) + {s} ( {xs[i]} {ys[i]} ) {ORIENTATIONS[o]} ;")
     out.append("END PINS")
     out.append("")
@@ -193,6 +195,24 @@ def _def_text(design: Design, fp: Floorplan, path) -> str:
         out += [f"GROUPS {len(reg)} ;", *group_statements(d, path), "END GROUPS", ""]
     out.append("END DESIGN")
     return "\n".join(out) + "\n"
+
+
+def _io_words(d: Design, fp: Floorplan, term: np.ndarray) -> tuple[list[str], list[str]]:
+    """Layer and direction of each terminal ``term`` for DEF ``PINS``: its own where the
+    input gave them (``io_layers``, ``io_directions``); else the routing layer that reaches
+    its nearest die edge (:func:`~floorwidget.kernels.io_pins.edge_layers`; a library-less
+    design: the generic one its LEF abstracts name) and INOUT."""
+    own_l = getattr(d, "io_layers", None) or {}
+    own_d = getattr(d, "io_directions", None) or {}
+    cx, cy = fp.centres()
+    edge = nearest_edge(d.die, cx[term], cy[term]).tolist()
+    by_dir = edge_layers(d.routing_layers)
+    layers, dirs = [], []
+    for i, e in zip(term.tolist(), edge):  # I/O pins: thousands at most
+        nm = d.names[i]
+        layers.append(own_l.get(nm) or by_dir[0 if EDGE_DIR[e] == "H" else 1] or PIN_LAYER)
+        dirs.append(own_d.get(nm, "INOUT"))
+    return layers, dirs
 
 
 def write_def_pair(design: Design, fp: Floorplan, def_path: str | Path,
