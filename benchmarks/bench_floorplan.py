@@ -86,6 +86,7 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--only", default="", help="comma-separated design names")
     args = ap.parse_args(argv)
     only = {s for s in args.only.split(",") if s} or None
+    from floorwidget.placer import PlacementError
 
     head = (f"{'design':<9} {'layout':<14} {'HPWL':>10} {'x free':>6} {'cong p99':>8} "
             f"{'periphery':>9} {'narrow':>6} {'regions':>13} {'wall':>4} {'legal':>5} "
@@ -99,7 +100,11 @@ def main(argv: list[str] | None = None) -> int:
             continue
         free_hpwl = None
         for layout in LAYOUTS:
-            r = measure(design, layout)
+            try:
+                r = measure(design, layout)
+            except PlacementError as e:  # a layout forced where it cannot be legal
+                print(f"{name:<9} {layout:<14} fails: {str(e)[:80]}…", flush=True)
+                continue
             rep = r["rep"]
             if layout == "free":
                 free_hpwl = rep["hpwl"]
