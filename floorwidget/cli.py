@@ -155,11 +155,14 @@ def _parser() -> argparse.ArgumentParser:
                         metavar=("X1", "Y1", "X2", "Y2"),
                         help="Verilog input: the die, µm, instead of --utilization/--aspect")
 
+    def json_option(sp):
+        sp.add_argument("--json", action="store_true",
+                        help="print the report as JSON (non-finite values as null)")
+
     r = sub.add_parser("report", help="print the figures of a design as placed in the file")
     r.add_argument("file")
     common(r)
-    r.add_argument("--json", action="store_true",
-                   help="print the report as JSON (non-finite values as null)")
+    json_option(r)
 
     pl = sub.add_parser("place", help="place the design and write the result")
     pl.add_argument("file")
@@ -183,8 +186,7 @@ def _parser() -> argparse.ArgumentParser:
                     help="lay this power grid (rings, straps, followpins: the keys of "
                          "floorwidget.floorplan.power.GridSpec) before placing; the placer "
                          "honours it and the output DEF carries it as SPECIALNETS")
-    pl.add_argument("--json", action="store_true",
-                    help="print the report as JSON (non-finite values as null)")
+    json_option(pl)
 
     c = sub.add_parser("convert", help="convert between .json, .aux/.pl and .def")
     c.add_argument("input")

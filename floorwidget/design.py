@@ -10,23 +10,47 @@ Conventions (see DEVELOPERS.md):
   (Bookshelf's convention).  :func:`orient_offsets` is the one function that maps them, and the
   footprint, through the eight LEF/DEF orientations.
 
-The orientation matrices follow the LEF/DEF language reference: N = R0, S = R180, W = R90
-(counter-clockwise), E = R270, FN = MY, FS = MX, FW = MX90, FE = MY90, where the flipped forms are
-the unflipped rotation followed by a mirror through the y axis.
+The module is split by job: the codes, orientations, limits, grid rule and :class:`DesignError`
+live in :mod:`floorwidget.codes`, the cell regions in :mod:`floorwidget.cell_regions`, the
+validation in :mod:`floorwidget.design_checks`; every public name stays importable from here.
 """
 
 from __future__ import annotations
 
 import warnings
-from collections import Counter
-from collections.abc import Iterable, Sequence
-from dataclasses import dataclass
+from collections.abc import Sequence
 
 import numpy as np
 
+from .cell_regions import CellRegions
+from .codes import (
+    ALL_ORIENTS,
+    CELL,
+    CLUSTER,
+    COORD_LIMIT,
+    FENCE,
+    FIXED,
+    GUIDE,
+    KIND_NAMES,
+    MACRO,
+    MAX_SITES,
+    MOVABLE,
+    ORIENT_CODE,
+    ORIENTATIONS,
+    PINNED,
+    REGION_TYPES,
+    STATUS_NAMES,
+    TERMINAL,
+    DesignError,
+    off_grid,
+    orient_mask,
+    orient_offsets,
+    orient_size,
+    snap,
+)
+from .design_checks import constraint_problems, design_problems
 from .kernels.power import PowerShapes
 from .kernels.rects import clip
-from .kernels.sweep import overlapping_pair
 
 __all__ = [
     "CELL",
@@ -56,263 +80,6 @@ __all__ = [
     "off_grid",
     "snap",
 ]
-
-# ---------------------------------------------------------------------------------------------
-# codes
-
-MACRO, CLUSTER, CELL, TERMINAL = 0, 1, 2, 3
-KIND_NAMES = ("macro", "cluster", "cell", "terminal")
-
-MOVABLE, PINNED, FIXED = 0, 1, 2
-STATUS_NAMES = ("movable", "pinned", "fixed")
-
-FENCE, GUIDE = 0, 1
-REGION_TYPES = ("fence", "guide")  # DEF REGIONS + TYPE FENCE | GUIDE
-
-ORIENTATIONS = ("N", "S", "E", "W", "FN", "FS", "FE", "FW")
-ORIENT_CODE = {o: i for i, o in enumerate(ORIENTATIONS)}
-ALL_ORIENTS = 0xFF  # bitmask with every orientation allowed
-
-COORD_LIMIT = 1e9  # µm (a kilometre): larger coordinates, sizes and weights are refused
-MAX_SITES = 2**31 - 1  # sites in one row
-
-# 2x2 matrices acting on centre offsets, indexed by orientation code (see module docstring).
-_ORIENT_MAT = np.array(
-    [
-        [[1, 0], [0, 1]],  # N   R0
-        [[-1, 0], [0, -1]],  # S   R180
-        [[0, 1], [-1, 0]],  # E   R270: (x, y) -> (y, -x)
-        [[0, -1], [1, 0]],  # W   R90:  (x, y) -> (-y, x)
-        [[-1, 0], [0, 1]],  # FN  MY:   (x, y) -> (-x, y)
-        [[1, 0], [0, -1]],  # FS  MX:   (x, y) -> (x, -y)
-        [[0, -1], [-1, 0]],  # FE  MY90: (x, y) -> (-y, -x)
-        [[0, 1], [1, 0]],  # FW  MX90: (x, y) -> (y, x)
-    ],
-    dtype=np.float64,
-)
-_SWAPS = np.array([False, False, True, True, False, False, True, True])
-
-
-class DesignError(ValueError):
-    """Bad input or an inconsistent design.
-
-    Parameters
-    ----------
-    message : str
-        What is wrong, in one line.
-    file, line : optional
-        Where; ``str(err)`` then reads ``file:line: message``.
-    problems : list of str, optional
-        Every problem found, when validation collected several.
-    where : str, optional
-        The object at fault when there is no line to name (a JSON path such as
-        ``blocks[3].width``, ``block 'ram0'``, ``row 2``); validation sets it to the object of
-        the first problem.  It is part of ``message`` already.
-    """
-
-    def __init__(self, message: str, file: str | None = None, line: int | None = None,
-                 problems: Sequence[str] | None = None, where: str | None = None):
-        self.message = message
-        self.file = None if file is None else str(file)
-        self.line = line
-        self.where = where
-        self.problems = list(problems) if problems else [message]
-        where = ""
-        if self.file is not None:
-            where = f"{self.file}:{line}: " if line is not None else f"{self.file}: "
-        super().__init__(where + message)
-
-
-# ---------------------------------------------------------------------------------------------
-# orientation: the one place that owns the eight transforms
-
-
-def orient_mask(orients: Iterable[str]) -> int:
-    """Bitmask of allowed orientations from their names (``{"N", "FS"}`` -> ``0b100001``)."""
-    m = 0
-    for o in orients:
-        if o not in ORIENT_CODE:
-            raise DesignError(f"unknown orientation {o!r} "
-                              f"(expected one of {', '.join(ORIENTATIONS)})")
-        m |= 1 << ORIENT_CODE[o]
-    return m
-
-
-def orient_size(width, height, orient):
-    """Footprint ``(w, h)`` after orientation: E, W, FE and FW swap width and height."""
-    swap = _SWAPS[np.asarray(orient, dtype=np.intp)]
-    return np.where(swap, height, width), np.where(swap, width, height)
-
-
-def orient_offsets(dx, dy, orient):
-    """Map centre offsets ``(dx, dy)`` given in the N orientation through ``orient`` (codes).
-
-    Examples
-    --------
-    >>> orient_offsets(1.0, 2.0, ORIENT_CODE["W"])   # R90 counter-clockwise
-    (array(-2.), array(1.))
-    """
-    m = _ORIENT_MAT[np.asarray(orient, dtype=np.intp)]
-    dx = np.asarray(dx, dtype=np.float64)
-    dy = np.asarray(dy, dtype=np.float64)
-    return m[..., 0, 0] * dx + m[..., 0, 1] * dy, m[..., 1, 0] * dx + m[..., 1, 1] * dy
-
-
-# ---------------------------------------------------------------------------------------------
-# cell regions: rectangles that groups of standard cells and clusters must stay in or lean to
-
-
-@dataclass(frozen=True, eq=False)
-class CellRegions:
-    """Named regions (DEF ``REGIONS``) and the blocks assigned to them (DEF ``GROUPS``).
-
-    A *fence* keeps its members inside its rectangles and every other cell out; a *guide*
-    pulls its members toward them and lets them spill.  Only standard cells and soft clusters
-    are members (macros are placed by their own rules).  Not to be confused with the report's
-    ``logic_regions`` (the free areas between macros).
-
-    Attributes
-    ----------
-    names : tuple of str
-        Region names, unique.
-    kind : (r,) int8
-        :data:`FENCE` or :data:`GUIDE`.
-    rect_start : (r + 1,) int64
-        CSR index: the rectangles of region ``k`` are ``rects[rect_start[k]:rect_start[k+1]]``
-        (at least one; they do not overlap each other).
-    rects : (m, 4) float64
-        ``xlo, ylo, xhi, yhi``, µm.
-    member : (n,) int32
-        Region of each block, -1 for none.
-    groups : tuple of str
-        The DEF ``GROUPS`` name that assigns each region its members (default: its name).
-    """
-
-    names: tuple
-    kind: np.ndarray
-    rect_start: np.ndarray
-    rects: np.ndarray
-    member: np.ndarray
-    groups: tuple
-
-    @classmethod
-    def empty(cls, n: int) -> CellRegions:
-        return cls((), np.zeros(0, np.int8), np.zeros(1, np.int64), np.zeros((0, 4)),
-                   np.full(n, -1, np.int32), ())
-
-    @classmethod
-    def build(cls, n: int, regions: Sequence[dict], member=None) -> CellRegions:
-        """From ``[{"name", "type": "fence"|"guide", "rects": [[..4..], ..], "group"}]`` and a
-        ``(n,)`` member array (default: none)."""
-        names = tuple(str(r["name"]) for r in regions)
-        kind = np.array([REGION_TYPES.index(r.get("type", "fence")) for r in regions],
-                        dtype=np.int8)
-        counts = [len(r["rects"]) for r in regions]
-        rects = np.array([b for r in regions for b in r["rects"]], dtype=np.float64)
-        groups = tuple(str(r.get("group") or r["name"]) for r in regions)
-        mem = np.full(n, -1, np.int32) if member is None else np.asarray(member, np.int32)
-        return cls(names, kind, np.concatenate([[0], np.cumsum(counts)]).astype(np.int64),
-                   rects.reshape(-1, 4), mem.reshape(n), groups)
-
-    def __len__(self) -> int:
-        return len(self.names)
-
-    def __eq__(self, other) -> bool:
-        return isinstance(other, CellRegions) and self.names == other.names \
-            and self.groups == other.groups and all(
-                np.array_equal(getattr(self, a), getattr(other, a))
-                for a in ("kind", "rect_start", "rects", "member"))
-
-    __hash__ = None  # type: ignore[assignment]  # mutable arrays inside
-
-    def index(self, name: str) -> int:
-        """Index of region ``name``; :class:`DesignError` naming it when unknown."""
-        try:
-            return self.names.index(name)
-        except ValueError:
-            known = ", ".join(map(repr, self.names)) or "none"
-            raise DesignError(f"region {name!r}: no such cell region (known: {known})",
-                              where=f"region {name!r}") from None
-
-    def rects_of(self, k: int) -> np.ndarray:
-        return self.rects[self.rect_start[k]:self.rect_start[k + 1]]
-
-    def members(self, k: int) -> np.ndarray:
-        return np.flatnonzero(self.member == k)
-
-    def rect_region(self) -> np.ndarray:
-        """Region index of every rectangle."""
-        return np.repeat(np.arange(len(self.names)), np.diff(self.rect_start))
-
-    def to_list(self) -> list[dict]:
-        """Plain description (as :meth:`build` takes), members not included."""
-        return [{"name": nm, "type": REGION_TYPES[int(self.kind[k])],
-                 "rects": self.rects_of(k).tolist(), "group": self.groups[k]}
-                for k, nm in enumerate(self.names)]
-
-    def problems(self, design: Design) -> list[tuple[str, str]]:
-        """``(object, message)`` of every problem, each naming the region or block."""
-        out: list[tuple[str, str]] = []
-        r = len(self.names)
-        if len(set(self.names)) != r or not all(self.names):
-            dup = [k for k, c in Counter(self.names).items() if c > 1 or not k]
-            out.append((f"region {dup[0]!r}", f"region {dup[0]!r}: region names must be "
-                                              "unique and not empty"))
-        rs = self.rect_start
-        if len(rs) != r + 1 or rs[0] != 0 or rs[-1] != len(self.rects) \
-                or (np.diff(rs) < 1).any() or ((self.kind != FENCE) & (self.kind != GUIDE)).any():
-            out.append(("regions", "cell regions: every region needs a type and at least one "
-                                   "rectangle"))
-            return out
-        b = self.rects
-        with np.errstate(invalid="ignore"):
-            bad = ~(np.abs(b) <= COORD_LIMIT).all(axis=1) | ~((b[:, 2] > b[:, 0])
-                                                              & (b[:, 3] > b[:, 1]))
-        if bad.any():
-            nm = self.names[int(self.rect_region()[np.flatnonzero(bad)[0]])]
-            out.append((f"region {nm!r}", f"region {nm!r}: a rectangle is not finite or has "
-                                          "no area"))
-            return out
-        die = design.die
-        tol = 1e-6 + 1e-9 * np.abs(die).max(initial=0.0)
-        outside = (b[:, 0] < die[0] - tol) | (b[:, 1] < die[1] - tol) \
-            | (b[:, 2] > die[2] + tol) | (b[:, 3] > die[3] + tol)
-        if outside.any():
-            k = int(np.flatnonzero(outside)[0])
-            nm = self.names[int(self.rect_region()[k])]
-            out.append((f"region {nm!r}", f"region {nm!r}: rectangle {b[k].tolist()} reaches "
-                                          f"outside the die {die.tolist()}"))
-        # the rectangles of one region must not overlap (rows are cut to their union), nor
-        # those of two fences (a cell cannot be kept inside one fence and out of the other);
-        # guides may overlap other regions.  One sweep, not all pairs.
-        reg = self.rect_region()
-        pair = overlapping_pair(b, reg)
-        if pair is not None:
-            i, j = pair
-            a = self.names[int(reg[i])]
-            out.append((f"region {a!r}", f"region {a!r}: its rectangles overlap "
-                                         f"({b[i].tolist()} and {b[j].tolist()})"))
-        fence = np.flatnonzero(self.kind[reg] == FENCE)
-        pair = None if pair is not None else overlapping_pair(b[fence])
-        if pair is not None:
-            i, j = fence[list(pair)]
-            a, c = self.names[int(reg[i])], self.names[int(reg[j])]
-            out.append((f"region {a!r}", f"fences {a!r} and {c!r} overlap (rectangles "
-                                         f"{b[i].tolist()} and {b[j].tolist()}): fences must "
-                                         "not share area"))
-        m = self.member
-        if m.shape != (design.num_blocks,) or ((m < -1) | (m >= r)).any():
-            out.append(("regions", "cell regions: a member names no region"))
-            return out
-        wrong = (m >= 0) & (design.kind != CELL) & (design.kind != CLUSTER)
-        if wrong.any():
-            nm = design.names[int(np.flatnonzero(wrong)[0])]
-            out.append((f"block {nm!r}", f"block {nm!r}: only standard cells and clusters "
-                                         "belong to cell regions"))
-        return out
-
-
-# ---------------------------------------------------------------------------------------------
 
 
 def _f64(a, shape=None) -> np.ndarray:
@@ -654,150 +421,13 @@ class Design:
             return [msg for _, msg in self._problems()]
 
     def _problems(self) -> list[tuple[str, str]]:
-        """``(object, message)`` of every problem, the object as ``DesignError.where`` names it."""
-        out: list[tuple[str, str]] = []
-        n, m = self.num_blocks, self.num_nets
-        lim = COORD_LIMIT
-
-        def add(where: str, msg: str) -> None:
-            out.append((where, msg))
-
-        def some(mask, what, names=self.names, limit=3, noun="block"):
-            idx = np.flatnonzero(mask)
-            if len(idx):
-                shown = ", ".join(repr(names[i]) for i in idx[:limit])
-                more = f" and {len(idx) - limit} more" if len(idx) > limit else ""
-                add(f"{noun} {names[idx[0]]!r}", f"{what}: {shown}{more}")
-
-        def big(a) -> np.ndarray:
-            """Rows of ``a`` with a value that is not finite or beyond the coordinate limit."""
-            a = np.asarray(a, dtype=np.float64)
-            with np.errstate(invalid="ignore"):
-                bad = ~(np.abs(a) <= lim)
-            return bad.any(axis=1) if a.ndim == 2 else bad
-
-        d = self.die
-        if big(d).any() or not (d[2] > d[0] and d[3] > d[1]):
-            add("die", f"die {d.tolist()} is not a rectangle of positive size within "
-                       f"±{lim:g} µm")
-        if len(set(self.names)) != n:
-            dup = [k for k, c in Counter(self.names).items() if c > 1]
-            add(f"block {dup[0]!r}", f"duplicate block names: {', '.join(map(repr, dup[:3]))}"
-                + (f" and {len(dup) - 3} more" if len(dup) > 3 else ""))
-        if len(set(self.net_names)) != m:
-            dup = [k for k, c in Counter(self.net_names).items() if c > 1]
-            add(f"net {dup[0]!r}", f"duplicate net names: {', '.join(map(repr, dup[:3]))}")
-        if ((self.kind < 0) | (self.kind > TERMINAL)).any():
-            some((self.kind < 0) | (self.kind > TERMINAL), "unknown block kind")
-        sized = self.kind != TERMINAL
-        bad_size = ~(np.isfinite(self.width) & np.isfinite(self.height))
-        bad_size |= sized & ((self.width <= 0) | (self.height <= 0))
-        bad_size |= (self.width < 0) | (self.height < 0)
-        some(bad_size, "non-positive or non-finite size")
-        some(~bad_size & (big(self.width) | big(self.height)), f"size beyond {lim:g} µm")
-        some(self.orient_allowed == 0, "no allowed orientation")
-        # a macro larger than the die in every allowed orientation
-        dw, dh = d[2] - d[0], d[3] - d[1]
-        fits_n = (self.width <= dw) & (self.height <= dh)
-        fits_r = (self.height <= dw) & (self.width <= dh)
-        rot_ok = (self.orient_allowed & 0b11001100) != 0
-        some((self.kind == MACRO) & ~(fits_n | (rot_ok & fits_r)), "macro larger than the die")
-        # nets
-        ns = self.net_start
-        if len(ns) == 0 or ns[0] != 0 or ns[-1] != self.num_pins or (np.diff(ns) < 0).any():
-            add("nets", "net_start is not a valid CSR index over the pins")
-            return out
-        if len(self.pin_dx) != self.num_pins or len(self.pin_dy) != self.num_pins:
-            add("nets", "pin offset arrays do not match the number of pins")
-            return out
-        some(self.net_degree == 0, "empty net", names=self.net_names, noun="net")
-        some(~np.isfinite(self.net_weight) | (self.net_weight < 0) | (self.net_weight > lim),
-             "negative, non-finite or huge net weight", names=self.net_names, noun="net")
-        unknown = (self.pin_block < 0) | (self.pin_block >= n)
-        if unknown.any():
-            some(np.isin(np.arange(m), self.pin_net[unknown]), "pins on unknown blocks",
-                 names=self.net_names, noun="net")
-        else:
-            b = self.pin_block
-            tol = 1e-6 + 1e-9 * np.maximum(self.width[b], self.height[b])
-            outside = big(self.pin_dx) | big(self.pin_dy)
-            with np.errstate(invalid="ignore"):
-                outside |= (self.kind[b] != TERMINAL) & (
-                    (np.abs(self.pin_dx) > self.width[b] / 2 + tol)
-                    | (np.abs(self.pin_dy) > self.height[b] / 2 + tol))
-            if outside.any():
-                blocks = np.zeros(n, bool)
-                blocks[b[outside]] = True
-                some(blocks, "pin outside its block")
-        # rows and grid
-        if len(self.row_x):
-            bad = big(self.row_x) | big(self.row_y) | big(self.row_height) \
-                | big(self.row_site_width) | (self.row_height <= 0) | (self.row_site_width <= 0) \
-                | (self.row_num_sites <= 0) | (self.row_num_sites > MAX_SITES)
-            if bad.any():
-                r = int(np.flatnonzero(bad)[0])
-                add(f"row {r}", f"row {r} (and {int(bad.sum()) - 1} more): origin or height, "
-                                f"site width or site count (1..{MAX_SITES}) out of range")
-            else:
-                c = self.core
-                xhi = self.row_x + self.row_site_width * self.row_num_sites
-                yhi = self.row_y + self.row_height
-                e = 1e-6
-                out_die = (self.row_x < d[0] - e) | (self.row_y < d[1] - e) | (xhi > d[2] + e) \
-                    | (yhi > d[3] + e)
-                if out_die.any():
-                    r = int(np.flatnonzero(out_die)[0])
-                    add(f"row {r}", f"row {r} (and {int(out_die.sum()) - 1} more) reaches "
-                                    f"outside the die (core {c.tolist()}, die {d.tolist()})")
-        if big(self.grid_pitch).any() or not (self.grid_pitch > 0).all() \
-                or big(self.grid_origin).any():
-            add("grid", f"grid pitch {self.grid_pitch.tolist()} must be positive and origin "
-                        f"{self.grid_origin.tolist()} finite")
-        out.extend(self._constraint_problems())
-        return out
+        """``(object, message)`` of every problem (:func:`.design_checks.design_problems`)."""
+        return design_problems(self)
 
     def _constraint_problems(self) -> list[tuple[str, str]]:
         """``(object, message)`` for halos, blockages and their densities, and cell regions
-        (what :meth:`derive` changes), each naming the object."""
-        out: list[tuple[str, str]] = self.regions.problems(self)
-        with np.errstate(invalid="ignore"):
-            hl = self.halo
-            bad = ~(np.abs(hl) <= COORD_LIMIT).all(axis=1) | (hl < 0).any(axis=1)
-            if bad.any():
-                i = int(np.flatnonzero(bad)[0])
-                out.append((f"block {self.names[i]!r}",
-                            f"block {self.names[i]!r}: halo {hl[i].tolist()} must be four "
-                            "finite numbers >= 0 (left, bottom, right, top)"))
-            cell_halo = (self.kind == CELL) & (hl != 0).any(axis=1)
-            if cell_halo.any():
-                i = int(np.flatnonzero(cell_halo)[0])
-                out.append((f"block {self.names[i]!r}",
-                            f"block {self.names[i]!r}: halo {hl[i].tolist()} on a standard "
-                            f"cell (a halo keeps cells away from a macro; "
-                            f"{int(cell_halo.sum())} cell(s) have one)"))
-            bl = self.blockages
-            bad = ~(np.abs(bl) <= COORD_LIMIT).all(axis=1) \
-                | ~((bl[:, 2] > bl[:, 0]) & (bl[:, 3] > bl[:, 1]))
-            d = self.die
-            tol = 1e-6 + 1e-9 * np.abs(d).max(initial=0.0)
-            outside = ~bad & ((bl[:, 0] < d[0] - tol) | (bl[:, 1] < d[1] - tol)
-                              | (bl[:, 2] > d[2] + tol) | (bl[:, 3] > d[3] + tol))
-            if bad.any():
-                k = int(np.flatnonzero(bad)[0])
-                out.append((f"blockage {k}", f"placement blockage {k} {bl[k].tolist()} is not "
-                                             "a finite rectangle of positive size"))
-            elif outside.any():
-                k = int(np.flatnonzero(outside)[0])
-                out.append((f"blockage {k}", f"placement blockage {k} {bl[k].tolist()} "
-                                             f"reaches outside the die {d.tolist()} "
-                                             f"({int(outside.sum())} blockage(s) do)"))
-            md = self.blockage_max_density
-            bad = ~((md >= 0.0) & (md <= 1.0))
-            if bad.any():
-                k = int(np.flatnonzero(bad)[0])
-                out.append((f"blockage {k}", f"placement blockage {k}: maximum density "
-                                             f"{float(md[k])!r} is not in [0, 1]"))
-        return out
+        (what :meth:`derive` changes; :func:`.design_checks.constraint_problems`)."""
+        return constraint_problems(self)
 
     def validate(self) -> None:
         """Raise :class:`DesignError` listing every problem at once (message on one line).
@@ -900,15 +530,3 @@ class Floorplan:
         counts = np.bincount(self.status, minlength=3)
         return (f"<Floorplan of {self.design.name!r}: {counts[MOVABLE]} movable, "
                 f"{counts[PINNED]} pinned, {counts[FIXED]} fixed>")
-
-
-def snap(values, origin: float, pitch: float):
-    """Round ``values`` to the nearest grid line ``origin + k * pitch``."""
-    return origin + np.round((np.asarray(values, dtype=np.float64) - origin) / pitch) * pitch
-
-
-def off_grid(values, origin: float, pitch: float, tol: float = 1e-6) -> np.ndarray:
-    """Mask of values not on the grid ``origin + k * pitch`` (within ``tol`` µm)."""
-    v = np.asarray(values, dtype=np.float64)
-    return np.abs(snap(v, origin, pitch) - v) > tol + 1e-12 * np.abs(v)
-

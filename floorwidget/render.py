@@ -152,43 +152,10 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
     >>> d = fw.load("demo_data/heron_dsp.json")            # doctest: +SKIP
     >>> fig = fw.render(d, fw.place(d), "heron.svg")        # doctest: +SKIP
     """
-    fmt = None
-    if path is not None:
-        path, fmt = _picture_path(path)
-        if not (path.parent if str(path.parent) else Path(".")).is_dir():
-            raise DesignError(f"folder {path.parent} does not exist", file=str(path))
-    if heat not in (None, "density", "congestion"):
-        raise DesignError(f"unknown heat layer {heat!r}: use 'density' or 'congestion'")
-    try:
-        from matplotlib.backends.backend_agg import FigureCanvasAgg
-        from matplotlib.figure import Figure
-    except ImportError:  # pragma: no cover - depends on the installation
-        raise DesignError("rendering needs matplotlib: pip install 'floorwidget[render]'") from None
-
+    path, fmt = _checked_target(path, heat)
     fp = design.initial if fp is None else fp
-    die = design.die
-    dw, dh = die[2] - die[0], die[3] - die[1]
-    if ax is None:
-        if figsize is None:
-            figsize = (11.0, max(4.0, 8.0 * dh / dw + 1.6))
-        fig = Figure(figsize=figsize)
-        FigureCanvasAgg(fig)
-        ax = fig.add_axes((0.06, 0.08, 0.66, 0.80))
-    else:
-        fig = ax.figure
-    sc = types.SimpleNamespace(design=design, fp=fp, heat=heat, rects=fp.rects(),
-                               mac=np.flatnonzero(design.kind == MACRO), groups=None,
-                               group_fill=None, glegend=None, gcols=None)
-    if hierarchy is not None:
-        from . import hierarchy as hier
-
-        try:
-            sc.groups = hier.hierarchy_groups(design.names, hierarchy, separators)
-        except ValueError as e:
-            raise DesignError(str(e)) from None
-        sc.gcols, sc.glegend = hier.group_colours(hier.group_area(design, sc.groups),
-                                                  style.GROUP_PALETTE, style.OTHER_GROUP)
-        sc.group_fill = [sc.gcols[g] for g in sc.groups.index]
+    fig, ax = _figure(design, ax, figsize)
+    sc = _scene(design, fp, heat, hierarchy, separators)
     _raster(ax, sc)
     _outlines(ax, design)
     sc.show_power = power and design.power is not None
@@ -205,6 +172,59 @@ def render(design: Design, fp: Floorplan | None = None, path=None, *, heat: str 
         with atomic_write(path, "wb") as f:
             fig.savefig(f, format=fmt, dpi=dpi, metadata=meta, bbox_inches="tight")
     return fig
+
+
+def _checked_target(path, heat: str | None):
+    """The output path and format (None, None without a path), checked before anything is
+    drawn: a known suffix in an existing folder, a known heat layer, matplotlib installed."""
+    fmt = None
+    if path is not None:
+        path, fmt = _picture_path(path)
+        if not (path.parent if str(path.parent) else Path(".")).is_dir():
+            raise DesignError(f"folder {path.parent} does not exist", file=str(path))
+    if heat not in (None, "density", "congestion"):
+        raise DesignError(f"unknown heat layer {heat!r}: use 'density' or 'congestion'")
+    try:
+        import matplotlib  # noqa: F401
+    except ImportError:  # pragma: no cover - depends on the installation
+        raise DesignError("rendering needs matplotlib: pip install 'floorwidget[render]'") from None
+    return path, fmt
+
+
+def _figure(design: Design, ax, figsize):
+    """The figure and axes to draw into: a new Agg figure (``figsize`` default from the die's
+    aspect ratio) unless ``ax`` is given."""
+    if ax is not None:
+        return ax.figure, ax
+    from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from matplotlib.figure import Figure
+
+    die = design.die
+    dw, dh = die[2] - die[0], die[3] - die[1]
+    if figsize is None:
+        figsize = (11.0, max(4.0, 8.0 * dh / dw + 1.6))
+    fig = Figure(figsize=figsize)
+    FigureCanvasAgg(fig)
+    return fig, fig.add_axes((0.06, 0.08, 0.66, 0.80))
+
+
+def _scene(design: Design, fp: Floorplan, heat, hierarchy, separators):
+    """What the layers share: the design, floorplan, footprints, the macros, and with
+    ``hierarchy`` the groups, their colours and legend entries."""
+    sc = types.SimpleNamespace(design=design, fp=fp, heat=heat, rects=fp.rects(),
+                               mac=np.flatnonzero(design.kind == MACRO), groups=None,
+                               group_fill=None, glegend=None, gcols=None)
+    if hierarchy is not None:
+        from . import hierarchy as hier
+
+        try:
+            sc.groups = hier.hierarchy_groups(design.names, hierarchy, separators)
+        except ValueError as e:
+            raise DesignError(str(e)) from None
+        sc.gcols, sc.glegend = hier.group_colours(hier.group_area(design, sc.groups),
+                                                  style.GROUP_PALETTE, style.OTHER_GROUP)
+        sc.group_fill = [sc.gcols[g] for g in sc.groups.index]
+    return sc
 
 
 def _raster(ax, sc) -> None:

@@ -99,19 +99,89 @@ def rent_design(num_cells: int, *, rent_exponent: float = 0.6, avg_pins: float =
     True
     """
     N = int(num_cells)
+    p = float(rent_exponent)
+    _check_rent_args(N, p, utilisation, avg_degree)
+    rng = np.random.default_rng(seed)
+    extra = float(avg_degree) - 2.0
+    k, net_start, pin_cell = _hierarchy_nets(N, p, extra, avg_pins, rng)
+    net_start, pin_cell = _wire_lonely(N, net_start, pin_cell)
+    P = len(pin_cell)
+    # cell geometry
+    sites = rng.integers(3, 13, size=N)
+    cw = sites * SITE_WIDTH
+    ch = np.full(N, ROW_HEIGHT)
+    cell_area = float((cw * ch).sum())
+    M = int(num_macros)
+    mw, mh = _macro_sizes(M, macro_area, cell_area, utilisation, rng)
+    side = math.sqrt((cell_area + float((mw * mh).sum())) / utilisation)
+    nrows = max(1, math.ceil(side / ROW_HEIGHT))
+    nsites = max(1, math.ceil(side / SITE_WIDTH))
+    W, H = nsites * SITE_WIDTH, nrows * ROW_HEIGHT
+    T = _rent_terminals(N, p, k, extra) if num_terminals is None else int(num_terminals)
+    io_cell = rng.integers(0, N, size=T)
+
+    pin_block = [pin_cell]
+    pin_dx = [(rng.random(P) - 0.5) * 0.8 * cw[pin_cell]]
+    pin_dy = [(rng.random(P) - 0.5) * 0.8 * ROW_HEIGHT]
+    extra_starts = []
+    if M:
+        blk, ddx, ddy, deg_m = _macro_nets(N, p, avg_pins, cw, mw, mh, cell_area, rng)
+        pin_block.append(blk)
+        pin_dx.append(ddx)
+        pin_dy.append(ddy)
+        extra_starts.append(deg_m)
+    # I/O nets: terminal and one cell
+    if T:
+        blk = np.stack([N + M + np.arange(T), io_cell], 1).ravel()
+        pin_block.append(blk)
+        pin_dx.append(np.where(np.arange(2 * T) % 2 == 1,
+                               (rng.random(2 * T) - 0.5) * 0.8 * cw[blk % N], 0.0))
+        pin_dy.append(np.zeros(2 * T))
+        extra_starts.append(np.full(T, 2, np.int64))
+    if extra_starts:
+        more = np.concatenate(extra_starts)
+        net_start = np.concatenate([net_start, P + np.cumsum(more)])
+    # geometry on a 1 nm grid (a DEF-like database unit; short numbers in written files)
+    pin_dx = np.round(np.concatenate(pin_dx), 3)
+    pin_dy = np.round(np.concatenate(pin_dy), 3)
+    tx, ty = _perimeter(T, W, H)
+    kind = np.concatenate([np.full(N, CELL), np.full(M, MACRO), np.full(T, TERMINAL)])
+    width = np.round(np.concatenate([cw, mw, np.zeros(T)]), 3)
+    height = np.round(np.concatenate([ch, mh, np.zeros(T)]), 3)
+    names = ([f"c{i}" for i in range(N)] + [f"m{i}" for i in range(M)]
+             + [f"io{i}" for i in range(T)])
+    W, H = round(W, 3), round(H, 3)
+    x = np.round(np.concatenate([W / 2 - width[:N + M] / 2, tx]), 3)
+    y = np.round(np.concatenate([H / 2 - height[:N + M] / 2, ty]), 3)
+    status = np.concatenate([np.full(N + M, MOVABLE), np.full(T, FIXED)]).astype(np.int8)
+    rows = {"x": np.zeros(nrows), "y": np.round(np.arange(nrows) * ROW_HEIGHT, 3),
+            "height": np.full(nrows, ROW_HEIGHT), "site_width": np.full(nrows, SITE_WIDTH),
+            "num_sites": np.full(nrows, nsites), "orient": np.where(np.arange(nrows) % 2, 5, 0)}
+    return Design(name or f"rent{N}", [0.0, 0.0, W, H], names, kind, width, height, net_start,
+                  np.concatenate(pin_block), pin_dx, pin_dy, rows=rows, x=x, y=y,
+                  status=status, validate=validate)
+
+
+def _check_rent_args(N: int, p: float, utilisation: float, avg_degree: float) -> None:
+    """ValueError for arguments :func:`rent_design` cannot build from."""
     if N < 2:
         raise ValueError("rent_design needs at least two cells")
-    p = float(rent_exponent)
     if not 0.0 < p < 1.0:
         raise ValueError("rent_exponent must lie in (0, 1)")
     if not 0.0 < utilisation <= 1.0:
         raise ValueError("utilisation must lie in (0, 1]")
     if avg_degree < 2:
         raise ValueError("avg_degree must be at least 2")
-    rng = np.random.default_rng(seed)
-    extra = float(avg_degree) - 2.0
-    levels = max(1, math.ceil(math.log2(N)))
 
+
+def _hierarchy_nets(N: int, p: float, extra: float, avg_pins: float, rng):
+    """The nets of the bisection hierarchy (:func:`rent_design`): ``c(B)`` per merge of two
+    sibling blocks, one pin in either sibling and the others anywhere in the parent.
+
+    Returns ``k`` (the Rent coefficient that gives ``avg_pins`` pins per cell), ``net_start``
+    and the cell of every pin.
+    """
+    levels = max(1, math.ceil(math.log2(N)))
     # nets per merge at each level, before scaling: B**p (1 - 2**(p-1))
     lev = np.arange(levels)
     child = N / 2.0 ** (lev + 1)
@@ -123,7 +193,6 @@ def rent_design(num_cells: int, *, rent_exponent: float = 0.6, avg_pins: float =
 
     starts_a, sizes_a, starts_b, sizes_b, plo, psz = [], [], [], [], [], []
     for lv in range(levels):  # a loop over hierarchy levels, never over nets
-        b0 = hierarchy_bounds(N, lv)
         b1 = hierarchy_bounds(N, lv + 1)
         a_lo, a_hi, c_hi = b1[0:-1:2], b1[1::2], b1[2::2]
         ok = (a_hi > a_lo) & (c_hi > a_hi)
@@ -138,7 +207,6 @@ def rent_design(num_cells: int, *, rent_exponent: float = 0.6, avg_pins: float =
         sizes_b.append((c_hi - a_hi)[mid])
         plo.append(a_lo[mid])
         psz.append((c_hi - a_lo)[mid])
-        del b0
     a_lo = np.concatenate(starts_a)
     a_sz = np.concatenate(sizes_a)
     b_lo = np.concatenate(starts_b)
@@ -161,141 +229,99 @@ def rent_design(num_cells: int, *, rent_exponent: float = 0.6, avg_pins: float =
     del owner
     pin_cell[first] = a_lo + (rng.random(m) * a_sz).astype(np.int64)
     pin_cell[first + 1] = b_lo + (rng.random(m) * b_sz).astype(np.int64)
-    del a_lo, a_sz, b_lo, b_sz, p_lo, p_sz
+    return k, net_start, pin_cell
 
-    # cells nobody connects: a two-pin net to a neighbour (the lowest level of the hierarchy)
+
+def _wire_lonely(N: int, net_start, pin_cell):
+    """Cells nobody connects get a two-pin net to a neighbour (the lowest level of the
+    hierarchy): ``net_start`` and ``pin_cell`` with those nets appended."""
     lonely = np.flatnonzero(np.bincount(pin_cell, minlength=N) == 0)
-    if len(lonely):
-        mate = np.where(lonely + 1 < N, lonely + 1, lonely - 1)
-        pin_cell = np.concatenate([pin_cell, np.stack([lonely, mate], 1).ravel()])
-        net_start = np.concatenate([net_start, P + 2 * np.arange(1, len(lonely) + 1)])
-        P, m = len(pin_cell), m + len(lonely)
+    if not len(lonely):
+        return net_start, pin_cell
+    P = len(pin_cell)
+    mate = np.where(lonely + 1 < N, lonely + 1, lonely - 1)
+    pin_cell = np.concatenate([pin_cell, np.stack([lonely, mate], 1).ravel()])
+    net_start = np.concatenate([net_start, P + 2 * np.arange(1, len(lonely) + 1)])
+    return net_start, pin_cell
 
-    # cell geometry
-    sites = rng.integers(3, 13, size=N)
-    cw = sites * SITE_WIDTH
-    ch = np.full(N, ROW_HEIGHT)
-    cell_area = float((cw * ch).sum())
 
-    # macros
-    M = int(num_macros)
-    if M:
-        factor = np.array([0.5, 1.0, 2.0, 4.0])
-        aspect = np.array([1.0, 1.6, 0.6, 2.0])
-        cls = rng.integers(0, 4, size=M)
-        frac = min(max(float(macro_area), 0.0), 0.95)
-        unit = frac / (1.0 - frac) * cell_area / float(factor[cls].sum())
-        area = unit * factor[cls]
-        side_est = math.sqrt((cell_area + area.sum()) / utilisation)
-        mh = np.sqrt(area / aspect[cls])
-        mw = area / mh
-        mh = np.clip(np.round(mh / ROW_HEIGHT), 2, None) * ROW_HEIGHT
-        mw = np.clip(np.round(mw / SITE_WIDTH), 10, None) * SITE_WIDTH
-        cap_h = max(2.0, math.floor(0.45 * side_est / ROW_HEIGHT)) * ROW_HEIGHT
-        cap_w = max(10.0, math.floor(0.45 * side_est / SITE_WIDTH)) * SITE_WIDTH
-        mh, mw = np.minimum(mh, cap_h), np.minimum(mw, cap_w)
-        macro_area_total = float((mw * mh).sum())
-    else:
-        mw = mh = np.zeros(0)
-        macro_area_total = 0.0
+def _macro_sizes(M: int, macro_area: float, cell_area: float, utilisation: float, rng):
+    """Widths and heights of ``M`` hard macros in four size classes taking ``macro_area`` of
+    the placeable area: heights whole rows, widths whole sites, each side at most 0.45 of the
+    estimated die side."""
+    if not M:
+        return np.zeros(0), np.zeros(0)
+    factor = np.array([0.5, 1.0, 2.0, 4.0])
+    aspect = np.array([1.0, 1.6, 0.6, 2.0])
+    cls = rng.integers(0, 4, size=M)
+    frac = min(max(float(macro_area), 0.0), 0.95)
+    unit = frac / (1.0 - frac) * cell_area / float(factor[cls].sum())
+    area = unit * factor[cls]
+    side_est = math.sqrt((cell_area + area.sum()) / utilisation)
+    mh = np.sqrt(area / aspect[cls])
+    mw = area / mh
+    mh = np.clip(np.round(mh / ROW_HEIGHT), 2, None) * ROW_HEIGHT
+    mw = np.clip(np.round(mw / SITE_WIDTH), 10, None) * SITE_WIDTH
+    cap_h = max(2.0, math.floor(0.45 * side_est / ROW_HEIGHT)) * ROW_HEIGHT
+    cap_w = max(10.0, math.floor(0.45 * side_est / SITE_WIDTH)) * SITE_WIDTH
+    return np.minimum(mw, cap_w), np.minimum(mh, cap_h)
 
-    side = math.sqrt((cell_area + macro_area_total) / utilisation)
-    nrows = max(1, math.ceil(side / ROW_HEIGHT))
-    nsites = max(1, math.ceil(side / SITE_WIDTH))
-    W, H = nsites * SITE_WIDTH, nrows * ROW_HEIGHT
 
-    # I/O terminals: Rent's rule at the top level
-    if num_terminals is None:
-        # a block's terminals: 1 per net of its own merge, about d/2 per net of an ancestor's
-        r = 2.0 ** (p - 1.0)
-        t_rent = k * ((1.0 - r) + (2.0 + extra) / 2.0 * r)
-        T = int(round(t_rent * N**p))
-        T = max(4, min(T, N))
-    else:
-        T = int(num_terminals)
-    io_cell = rng.integers(0, N, size=T)
+def _rent_terminals(N: int, p: float, k: float, extra: float) -> int:
+    """I/O terminals by Rent's rule at the top level, between 4 and ``N``: a block's terminals
+    are 1 per net of its own merge and about d/2 per net of an ancestor's."""
+    r = 2.0 ** (p - 1.0)
+    t_rent = k * ((1.0 - r) + (2.0 + extra) / 2.0 * r)
+    return max(4, min(int(round(t_rent * N**p)), N))
 
-    pin_block = [pin_cell]
-    pin_dx = [(rng.random(P) - 0.5) * 0.8 * cw[pin_cell]]
-    pin_dy = [(rng.random(P) - 0.5) * 0.8 * ROW_HEIGHT]
-    del pin_cell
-    extra_starts = []
-    # macro nets: each macro pin to 1..3 cells of a local block of about 256 cells
-    if M:
-        npins = np.clip(np.round(avg_pins * (mw * mh / (cell_area / N)) ** p / 4.0),
-                        8, 256).astype(np.int64)
-        mp = int(npins.sum())
-        mac = np.repeat(np.arange(M), npins)
-        j = np.arange(mp) - np.repeat(np.cumsum(npins) - npins, npins)
-        frac_along = (j + 0.5) / npins[mac]
-        edge = rng.integers(0, 4, size=M)[mac]
-        w_, h_ = mw[mac], mh[mac]
-        dx = np.select([edge == 0, edge == 1, edge == 2, edge == 3],
-                       [(frac_along - 0.5) * w_, w_ / 2, (0.5 - frac_along) * w_, -w_ / 2])
-        dy = np.select([edge == 0, edge == 1, edge == 2, edge == 3],
-                       [-h_ / 2, (frac_along - 0.5) * h_, h_ / 2, (0.5 - frac_along) * h_])
-        local = min(N, 256)
-        centre = rng.integers(0, N - local + 1, size=M)[mac]
-        ncell = rng.integers(1, 4, size=mp)
-        cells_owner = np.repeat(np.arange(mp), ncell)
-        cells = centre[cells_owner] + rng.integers(0, local, size=len(cells_owner))
-        # each net: macro pin first, then its cells
-        deg_m = 1 + ncell
-        st = np.zeros(mp + 1, np.int64)
-        np.cumsum(deg_m, out=st[1:])
-        blk = np.empty(int(st[-1]), np.int64)
-        ddx = np.empty(len(blk))
-        ddy = np.empty(len(blk))
-        is_first = np.zeros(len(blk), bool)
-        is_first[st[:-1]] = True
-        blk[is_first] = N + mac
-        ddx[is_first], ddy[is_first] = dx, dy
-        blk[~is_first] = cells
-        ddx[~is_first] = (rng.random(len(cells)) - 0.5) * 0.8 * cw[cells]
-        ddy[~is_first] = (rng.random(len(cells)) - 0.5) * 0.8 * ROW_HEIGHT
-        pin_block.append(blk)
-        pin_dx.append(ddx)
-        pin_dy.append(ddy)
-        extra_starts.append(deg_m)
-    # I/O nets: terminal and one cell
-    if T:
-        blk = np.stack([N + M + np.arange(T), io_cell], 1).ravel()
-        pin_block.append(blk)
-        pin_dx.append(np.where(np.arange(2 * T) % 2 == 1,
-                               (rng.random(2 * T) - 0.5) * 0.8 * cw[blk % N], 0.0))
-        pin_dy.append(np.zeros(2 * T))
-        extra_starts.append(np.full(T, 2, np.int64))
-    if extra_starts:
-        more = np.concatenate(extra_starts)
-        net_start = np.concatenate([net_start, P + np.cumsum(more)])
-    pin_block = np.concatenate(pin_block)
-    # geometry on a 1 nm grid (a DEF-like database unit; short numbers in written files)
-    pin_dx = np.round(np.concatenate(pin_dx), 3)
-    pin_dy = np.round(np.concatenate(pin_dy), 3)
 
-    # terminals spread evenly along the perimeter, anticlockwise from the lower-left corner
+def _macro_nets(N: int, p: float, avg_pins: float, cw, mw, mh, cell_area: float, rng):
+    """Macro nets: each macro pin (evenly along one random edge) to 1..3 cells of a local
+    block of about 256 cells, the macro pin first.
+
+    Returns the pins' blocks, offsets ``dx, dy`` and the degree of each net.
+    """
+    M = len(mw)
+    npins = np.clip(np.round(avg_pins * (mw * mh / (cell_area / N)) ** p / 4.0),
+                    8, 256).astype(np.int64)
+    mp = int(npins.sum())
+    mac = np.repeat(np.arange(M), npins)
+    j = np.arange(mp) - np.repeat(np.cumsum(npins) - npins, npins)
+    frac_along = (j + 0.5) / npins[mac]
+    edge = rng.integers(0, 4, size=M)[mac]
+    w_, h_ = mw[mac], mh[mac]
+    dx = np.select([edge == 0, edge == 1, edge == 2, edge == 3],
+                   [(frac_along - 0.5) * w_, w_ / 2, (0.5 - frac_along) * w_, -w_ / 2])
+    dy = np.select([edge == 0, edge == 1, edge == 2, edge == 3],
+                   [-h_ / 2, (frac_along - 0.5) * h_, h_ / 2, (0.5 - frac_along) * h_])
+    local = min(N, 256)
+    centre = rng.integers(0, N - local + 1, size=M)[mac]
+    ncell = rng.integers(1, 4, size=mp)
+    cells_owner = np.repeat(np.arange(mp), ncell)
+    cells = centre[cells_owner] + rng.integers(0, local, size=len(cells_owner))
+    deg_m = 1 + ncell
+    st = np.zeros(mp + 1, np.int64)
+    np.cumsum(deg_m, out=st[1:])
+    blk = np.empty(int(st[-1]), np.int64)
+    ddx = np.empty(len(blk))
+    ddy = np.empty(len(blk))
+    is_first = np.zeros(len(blk), bool)
+    is_first[st[:-1]] = True
+    blk[is_first] = N + mac
+    ddx[is_first], ddy[is_first] = dx, dy
+    blk[~is_first] = cells
+    ddx[~is_first] = (rng.random(len(cells)) - 0.5) * 0.8 * cw[cells]
+    ddy[~is_first] = (rng.random(len(cells)) - 0.5) * 0.8 * ROW_HEIGHT
+    return blk, ddx, ddy, deg_m
+
+
+def _perimeter(T: int, W: float, H: float):
+    """``T`` terminal positions spread evenly along the die's perimeter, anticlockwise from
+    the lower-left corner."""
     s = (np.arange(T) + 0.5) / max(T, 1) * 2 * (W + H)
     tx = np.select([s < W, s < W + H, s < 2 * W + H], [s, W, W - (s - W - H)], 0.0)
     ty = np.select([s < W, s < W + H, s < 2 * W + H], [0.0, s - W, H], H - (s - 2 * W - H))
-
-    n = N + M + T
-    kind = np.concatenate([np.full(N, CELL), np.full(M, MACRO), np.full(T, TERMINAL)])
-    width = np.concatenate([cw, mw, np.zeros(T)])
-    height = np.concatenate([ch, mh, np.zeros(T)])
-    names = ([f"c{i}" for i in range(N)] + [f"m{i}" for i in range(M)]
-             + [f"io{i}" for i in range(T)])
-    width, height = np.round(width, 3), np.round(height, 3)
-    W, H = round(W, 3), round(H, 3)
-    x = np.round(np.concatenate([W / 2 - width[:N + M] / 2, tx]), 3)
-    y = np.round(np.concatenate([H / 2 - height[:N + M] / 2, ty]), 3)
-    status = np.concatenate([np.full(N + M, MOVABLE), np.full(T, FIXED)]).astype(np.int8)
-    rows = {"x": np.zeros(nrows), "y": np.round(np.arange(nrows) * ROW_HEIGHT, 3),
-            "height": np.full(nrows, ROW_HEIGHT), "site_width": np.full(nrows, SITE_WIDTH),
-            "num_sites": np.full(nrows, nsites), "orient": np.where(np.arange(nrows) % 2, 5, 0)}
-    assert len(kind) == n
-    return Design(name or f"rent{N}", [0.0, 0.0, W, H], names, kind, width, height, net_start,
-                  pin_block, pin_dx, pin_dy, rows=rows, x=x, y=y, status=status,
-                  validate=validate)
+    return tx, ty
 
 
 # ---------------------------------------------------------------------------------------------

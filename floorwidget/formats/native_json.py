@@ -109,8 +109,36 @@ class _Reader:
 
 
 def parse_json(doc: dict, path) -> Design:
-    """Build a :class:`Design` from an already decoded native document."""
+    """Build a :class:`Design` from an already decoded native document.
+
+    The document is read in the order of its sections (header, rows, grid, blockages, blocks,
+    nets, database units, regions); the first bad field fails with its JSON path.
+    """
     r = _Reader(path)
+    name, die = _header(r, doc)
+    rows = _rows(r, doc)
+    pitch, origin = _grid(r, doc)
+    blockages, max_density = _blockages(r, doc)
+    b = _blocks(r, doc)
+    index = _block_index(r, b["names"])
+    nets = _nets(r, doc, index)
+    dbu = doc.get("dbu", 1000)
+    if isinstance(dbu, bool) or not isinstance(dbu, int) or not 0 < dbu <= MAX_DBU:
+        r.fail("dbu", f"expected a whole number in 1..{MAX_DBU}")
+    regions = _regions(r, doc, index)
+    return Design(
+        name, die, b["names"], b["kind"], b["width"], b["height"], nets["starts"],
+        nets["pin_block"], nets["pin_dx"], nets["pin_dy"],
+        halo=b["halo"], orient_allowed=b["allowed"], net_names=nets["net_names"],
+        net_weight=nets["weights"], pin_names=nets["pin_names"], rows=rows, grid_pitch=pitch,
+        grid_origin=origin, blockages=np.array(blockages).reshape(-1, 4),
+        blockage_max_density=np.array(max_density, dtype=np.float64),
+        regions=regions, block_type=b["types"], x=b["x"], y=b["y"], orient=b["orient"],
+        status=b["status"], dbu=dbu, source=str(path))
+
+
+def _header(r: _Reader, doc) -> tuple[str, list[float]]:
+    """The format, version and units checked; the design's name and die."""
     if not isinstance(doc, dict):
         r.fail("(top level)", "expected an object")
     fmt = r.get(doc, "format", "")
@@ -122,10 +150,13 @@ def parse_json(doc: dict, path) -> Design:
     units = doc.get("units", "um")
     if units != "um":
         r.fail("units", f"expected 'um', got {json.dumps(units)[:40]}")
-    name = r.text(r.get(doc, "name", ""), "name")
-    die = r.nums(r.get(doc, "die", ""), 4, "die")
+    return r.text(r.get(doc, "name", ""), "name"), r.nums(r.get(doc, "die", ""), 4, "die")
 
-    rows = {"x": [], "y": [], "height": [], "site_width": [], "num_sites": [], "orient": []}
+
+def _rows(r: _Reader, doc: dict) -> dict:
+    """The ``rows`` argument of :class:`Design`."""
+    rows: dict = {"x": [], "y": [], "height": [], "site_width": [], "num_sites": [],
+                  "orient": []}
     for i, row in enumerate(r.items(doc, "rows", "", [])):
         w = f"rows[{i}]"
         rows["x"].append(r.num(r.get(row, "x", w), f"{w}.x"))
@@ -139,7 +170,11 @@ def parse_json(doc: dict, path) -> Design:
         rows["num_sites"].append(ns)
         rows["orient"].append(r.choice(row.get("orient", "N"), ORIENT_CODE, f"{w}.orient"))
     rows["site_name"] = doc.get("site", "core")
+    return rows
 
+
+def _grid(r: _Reader, doc: dict):
+    """The placement grid's pitch and origin (None when not given)."""
     grid = r.get(doc, "grid", "", None)
     pitch = origin = None
     if grid is not None:
@@ -148,7 +183,11 @@ def parse_json(doc: dict, path) -> Design:
             r.fail("grid.pitch", "must be positive")
         if "origin" in grid:
             origin = r.nums(grid["origin"], 2, "grid.origin")
+    return pitch, origin
 
+
+def _blockages(r: _Reader, doc: dict) -> tuple[list, list]:
+    """Blockage rectangles and their maximum densities (a bare rectangle: 0, full)."""
     blockages, max_density = [], []
     for i, b in enumerate(r.items(doc, "blockages", "", [])):
         w = f"blockages[{i}]"
@@ -161,7 +200,12 @@ def parse_json(doc: dict, path) -> Design:
         else:
             blockages.append(r.nums(b, 4, w))
             max_density.append(0.0)
+    return blockages, max_density
 
+
+def _blocks(r: _Reader, doc: dict) -> dict:
+    """The blocks' fields as arrays, by :class:`Design` argument name (``types`` None when no
+    block names a type)."""
     blocks = r.items(doc, "blocks", "")
     n = len(blocks)
     names, kind, width, height = [], np.zeros(n, np.int8), np.zeros(n), np.zeros(n)
@@ -182,16 +226,7 @@ def parse_json(doc: dict, path) -> Design:
             halo[i] = r.num(h, f"{w}.halo")
         if (halo[i] < 0).any():
             r.fail(f"{w}.halo", "must not be negative")
-        ors = b.get("orientations")
-        if ors is None:
-            allowed[i] = ALL_ORIENTS if kind[i] == MACRO else 1
-        else:
-            if not isinstance(ors, list) or not ors:
-                r.fail(f"{w}.orientations", "expected a non-empty list of orientations")
-            bits = 0
-            for j, o in enumerate(ors):
-                bits |= 1 << r.choice(o, ORIENT_CODE, f"{w}.orientations[{j}]")
-            allowed[i] = bits
+        allowed[i] = _allowed(r, b.get("orientations"), kind[i], w)
         x[i] = r.num(b.get("x", 0.0), f"{w}.x")
         y[i] = r.num(b.get("y", 0.0), f"{w}.y")
         orient[i] = r.choice(b.get("orient", "N"), ORIENT_CODE, f"{w}.orient")
@@ -202,15 +237,39 @@ def parse_json(doc: dict, path) -> Design:
             types.append(r.text(t, f"{w}.type"))
         else:
             types.append("")
+    return {"names": names, "kind": kind, "width": width, "height": height, "halo": halo,
+            "allowed": allowed, "x": x, "y": y, "orient": orient, "status": status,
+            "types": types if any_type else None}
 
+
+def _allowed(r: _Reader, ors, kind: int, w: str) -> int:
+    """The bit mask of a block's allowed orientations (default: all eight for a macro, N for
+    the others)."""
+    if ors is None:
+        return ALL_ORIENTS if kind == MACRO else 1
+    if not isinstance(ors, list) or not ors:
+        r.fail(f"{w}.orientations", "expected a non-empty list of orientations")
+    bits = 0
+    for j, o in enumerate(ors):
+        bits |= 1 << r.choice(o, ORIENT_CODE, f"{w}.orientations[{j}]")
+    return bits
+
+
+def _block_index(r: _Reader, names: list[str]) -> dict[str, int]:
+    """Block number by name; a repeated name fails at its second use."""
     index = {nm: i for i, nm in enumerate(names)}
-    if len(index) != n:
+    if len(index) != len(names):
         seen: set[str] = set()
         for i, nm in enumerate(names):
             if nm in seen:
                 r.fail(f"blocks[{i}].name", f"duplicate block name {nm!r}")
             seen.add(nm)
+    return index
 
+
+def _nets(r: _Reader, doc: dict, index: dict[str, int]) -> dict:
+    """The nets in CSR form with their pins, by :class:`Design` argument name (``pin_names``
+    None when no pin is named)."""
     nets = r.items(doc, "nets", "")
     net_names, weights, starts = [], np.ones(len(nets)), [0]
     pin_block, pin_dx, pin_dy, pin_names = [], [], [], []
@@ -235,11 +294,14 @@ def parse_json(doc: dict, path) -> Design:
             else:
                 pin_names.append("")
         starts.append(len(pin_block))
+    return {"net_names": net_names, "weights": weights, "starts": starts,
+            "pin_block": pin_block, "pin_dx": pin_dx, "pin_dy": pin_dy,
+            "pin_names": pin_names if any_pin_name else None}
 
-    dbu = doc.get("dbu", 1000)
-    if isinstance(dbu, bool) or not isinstance(dbu, int) or not 0 < dbu <= MAX_DBU:
-        r.fail("dbu", f"expected a whole number in 1..{MAX_DBU}")
-    regions, member = [], np.full(n, -1, np.int32)
+
+def _regions(r: _Reader, doc: dict, index: dict[str, int]) -> CellRegions | None:
+    """The cell regions and their members (None without regions)."""
+    regions, member = [], np.full(len(index), -1, np.int32)
     for k, g in enumerate(r.items(doc, "regions", "", [])):
         w = f"regions[{k}]"
         rects = r.items(g, "rects", w)
@@ -255,15 +317,7 @@ def parse_json(doc: dict, path) -> Design:
             if b is None:
                 r.fail(f"{w}.members[{j}]", f"unknown block {json.dumps(nm)[:40]}")
             member[b] = k
-    return Design(
-        name, die, names, kind, width, height, starts, pin_block, pin_dx, pin_dy,
-        halo=halo, orient_allowed=allowed, net_names=net_names, net_weight=weights,
-        pin_names=pin_names if any_pin_name else None, rows=rows, grid_pitch=pitch,
-        grid_origin=origin, blockages=np.array(blockages).reshape(-1, 4),
-        blockage_max_density=np.array(max_density, dtype=np.float64),
-        regions=CellRegions.build(n, regions, member) if regions else None,
-        block_type=types if any_type else None, x=x, y=y, orient=orient, status=status,
-        dbu=dbu, source=str(path))
+    return CellRegions.build(len(index), regions, member) if regions else None
 
 
 def read_json(path) -> Design:

@@ -416,13 +416,13 @@ class _Def(_ConstraintSections):
         rows = self._COMP.findall(self.text, start, end)
         return self._components_rows(rows, start, end, count, hpos)
 
-    def _comp_options(self, name: str, opts: str, start: int, end: int):
-        toks = _split_tokens(opts)
-        status, x, y, o, halo, pinned = -1, np.nan, np.nan, 0, None, False
-        k = 0
+    def _option_checks(self, what: str, name: str, start: int, end: int):
+        """``fail(message)`` and ``num(token)`` for the options of the statement ``- name`` of
+        a section between ``start`` and ``end``: errors name the object (``what name``) and the
+        line of its statement."""
 
         def fail(msg):
-            self.fail(f"component {name!r}: {msg}", self._find(start, end, name))
+            self.fail(f"{what} {name!r}: {msg}", self._find(start, end, name))
 
         def num(t):
             try:
@@ -430,6 +430,13 @@ class _Def(_ConstraintSections):
             except ValueError:
                 fail(f"bad number {t!r}")
 
+        return fail, num
+
+    def _comp_options(self, name: str, opts: str, start: int, end: int):
+        toks = _split_tokens(opts)
+        status, x, y, o, halo, pinned = -1, np.nan, np.nan, 0, None, False
+        k = 0
+        fail, num = self._option_checks("component", name, start, end)
         while k < len(toks):
             if toks[k] != "+":
                 fail(f"unexpected {toks[k]!r} (options start with '+')")
@@ -483,16 +490,7 @@ class _Def(_ConstraintSections):
 
     def _pin(self, name, opts, start, end):
         toks = _split_tokens(opts)
-
-        def fail(msg):
-            self.fail(f"pin {name!r}: {msg}", self._find(start, end, name))
-
-        def num(t):
-            try:
-                return float(t)
-            except ValueError:
-                fail(f"bad number {t!r}")
-
+        fail, num = self._option_checks("pin", name, start, end)
         rect = None
         place = None
         k = 0

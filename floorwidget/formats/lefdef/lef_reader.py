@@ -130,10 +130,7 @@ def _read_one_lef(path: str, lib: LefLibrary) -> None:
             size = None
             while True:
                 t = tk.next(f"END {name}")
-                if t.upper() == "END":
-                    e = tk.next(name)
-                    if e != name:
-                        tk.fail(f"END {e} does not close SITE {name}", tk.i - 1)
+                if _closes(tk, t.upper(), "SITE", name):
                     break
                 if t.upper() == "SIZE":
                     w = tk.num("site width")
@@ -172,6 +169,17 @@ def _read_one_lef(path: str, lib: LefLibrary) -> None:
             tk.skip_statement()
 
 
+def _closes(tk: _Tokens, keyword: str, what: str, name: str) -> bool:
+    """Whether ``keyword`` (upper case, just read) is the ``END name`` that closes ``what
+    name`` (a SITE, MACRO or PIN); an ``END`` naming something else fails."""
+    if keyword != "END":
+        return False
+    e = tk.next(name)
+    if e != name:
+        tk.fail(f"END {e} does not close {what} {name}", tk.i - 1)
+    return True
+
+
 def _read_macro(tk: _Tokens, start: int) -> LefMacro:
     name = tk.next("macro name")
     m = LefMacro(name=name, line=tk.line(start))
@@ -179,12 +187,8 @@ def _read_macro(tk: _Tokens, start: int) -> LefMacro:
     size = None
     while True:
         i0 = tk.i
-        t = tk.next(f"END {name}")
-        T = t.upper()
-        if T == "END":
-            e = tk.next(name)
-            if e != name:
-                tk.fail(f"END {e} does not close MACRO {name}", tk.i - 1)
+        T = tk.next(f"END {name}").upper()
+        if _closes(tk, T, "MACRO", name):
             break
         if T == ";":
             continue
@@ -247,12 +251,8 @@ def _read_pin(tk: _Tokens, start: int):
     pname = tk.next("pin name")
     centre = None
     while True:
-        t = tk.next(f"END {pname}")
-        T = t.upper()
-        if T == "END":
-            e = tk.next(pname)
-            if e != pname:
-                tk.fail(f"END {e} does not close PIN {pname}", tk.i - 1)
+        T = tk.next(f"END {pname}").upper()
+        if _closes(tk, T, "PIN", pname):
             return pname, centre
         if T == ";":
             continue
