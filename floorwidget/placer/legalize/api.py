@@ -229,5 +229,7 @@ def _full(prob: _Problem, retries: int, report, pack_moves: int | None,
             f"moves after the greedy search failed on macro {prob.design.names[prob.idx[i]]!r} "
             f"({prob.w[i]:g} x {prob.h[i]:g} µm plus halo); the macros fit by area, so this is "
             "not a proof of infeasibility: free some room (unpin macros, shrink halos or "
-            "blockages), enlarge the core, or raise pack_moves")
+            "blockages), enlarge the core, or raise pack_moves" + (
+                f" (this search saw the {len(prob.blk)} blockages as {packer.covered} covering "
+                "rectangles, slightly larger)" if packer.covered else ""))
     return prob.gx(found[0]), prob.gy(found[1])
