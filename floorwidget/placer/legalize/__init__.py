@@ -37,9 +37,9 @@ Method
    nearest free point (moving a coordinate towards the target is blocked only by an obstacle
    edge or a bound); the search runs over a window that grows until the nearest free candidate
    lies inside it (from thousands of obstacles on, on a map of the grid points, the
-   blockages' part made once per macro size).  Largest-first greedy legalisation in the spirit of Hill's "Tetris"
-   legaliser (D. Hill, US patent 6,370,673, 2002, from memory), with the exact nearest free spot
-   in place of a row scan.
+   blockages' part made once per macro size).  Largest-first greedy legalisation in the
+   spirit of Hill's "Tetris" legaliser (D. Hill, US patent 6,370,673, 2002, from memory), with
+   the exact nearest free spot in place of a row scan.
 5. *LP improvement.*  Keeping the relative order found (for every pair of macros that could
    meet within a trust region, the horizontal or vertical separation they already satisfy,
    choosing the one least binding at the targets), minimise the total L1 displacement from the
