@@ -333,6 +333,17 @@ def test_macro_larger_than_core_is_named():
         legalize_macros(d, d.initial)
 
 
+def test_halo_that_does_not_fit_is_named_as_the_cause():
+    # a 50 µm macro fits the 460 µm core, but not with 300 µm halos on both sides inside the
+    # 500 µm die: the message names the macro and its halo (it read "does not fit inside the
+    # core" as if the footprint were too large)
+    d = _design((0, 0, 500, 500), [50.0, 40.0], [50.0, 40.0], x=[100.0, 300.0], y=[100.0, 0.0],
+                core=(20, 20, 480, 480), halo=np.array([[300.0, 0, 300.0, 0], [0, 0, 0, 0]]))
+    with pytest.raises(PlacementError, match=r"macro 'm0' .* with its halo \(left, bottom, right, "
+                                             r"top 300, 0, 300, 0 µm\) .* shrink the halo"):
+        legalize_macros(d, d.initial)
+
+
 def test_macro_that_fits_nowhere_is_named():
     # two pinned macros leave a 60 µm gap; a 70 µm-wide movable macro cannot fit anywhere
     d = _design((0, 0, 300, 100), [120.0, 120.0, 70.0], [100.0, 100.0, 20.0],
