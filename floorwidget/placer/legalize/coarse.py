@@ -18,21 +18,29 @@ import numpy as np
 from .tuning import _COVER_MAX_CELLS
 
 
+def covered_cells(lo: np.ndarray, hi: np.ndarray, shape: tuple[int, int]) -> np.ndarray:
+    """Boolean map of ``shape`` marking the union of the index boxes ``lo[k] <= (i, j) <
+    hi[k]`` (``(k, 2)`` integer arrays within the map): one 2-D difference array (a +1/-1 at
+    each box corner, by ``bincount``) and two prefix sums, O(boxes + cells)."""
+    n0, n1 = shape
+    ok = (hi > lo).all(axis=1)
+    lo, hi = lo[ok], hi[ok]
+    flat = np.concatenate([lo[:, 0] * (n1 + 1) + lo[:, 1], hi[:, 0] * (n1 + 1) + hi[:, 1],
+                           hi[:, 0] * (n1 + 1) + lo[:, 1], lo[:, 0] * (n1 + 1) + hi[:, 1]])
+    sign = np.repeat(np.array([1.0, 1.0, -1.0, -1.0]), len(lo))
+    diff = np.bincount(flat, weights=sign, minlength=(n0 + 1) * (n1 + 1)).astype(np.int32)
+    diff = diff.reshape(n0 + 1, n1 + 1)
+    return np.cumsum(np.cumsum(diff, axis=0), axis=1)[:n0, :n1] != 0
+
+
 def _raster(blk: np.ndarray, core: np.ndarray, p: float) -> np.ndarray:
     """Blocked cells ``[row y, column x]`` of the grid of side ``p`` from the core's corner:
-    every cell that a blockage overlaps with positive area (a 2-D difference array)."""
+    every cell that a blockage overlaps with positive area."""
     nx = max(1, int(np.ceil((core[2] - core[0]) / p)))
     ny = max(1, int(np.ceil((core[3] - core[1]) / p)))
-    lo = np.floor((blk[:, :2] - core[:2]) / p).astype(np.int64)
-    hi = np.ceil((blk[:, 2:] - core[:2]) / p).astype(np.int64)  # exclusive
-    lo = np.clip(lo, 0, [nx, ny])
-    hi = np.clip(np.maximum(hi, lo + 1), 0, [nx, ny])
-    diff = np.zeros((ny + 1, nx + 1), np.int32)
-    np.add.at(diff, (lo[:, 1], lo[:, 0]), 1)
-    np.add.at(diff, (lo[:, 1], hi[:, 0]), -1)
-    np.add.at(diff, (hi[:, 1], lo[:, 0]), -1)
-    np.add.at(diff, (hi[:, 1], hi[:, 0]), 1)
-    return np.cumsum(np.cumsum(diff, axis=0), axis=1)[:ny, :nx] > 0
+    lo = np.clip(np.floor((blk[:, 1::-1] - core[1::-1]) / p).astype(np.int64), 0, [ny, nx])
+    hi = np.ceil((blk[:, :1:-1] - core[1::-1]) / p).astype(np.int64)  # exclusive
+    return covered_cells(lo, np.clip(np.maximum(hi, lo + 1), 0, [ny, nx]), (ny, nx))
 
 
 def _cells_to_rects(mask: np.ndarray) -> np.ndarray:

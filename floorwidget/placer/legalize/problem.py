@@ -8,6 +8,7 @@ import numpy as np
 from ...design import MACRO, Design, Floorplan, off_grid
 from ...kernels import rects
 from ..constraints import macro_keepouts
+from .coarse import covered_cells
 from .lp import _LPMixin
 from .tuning import _EPS, _GRID_TOL, _RASTER_CELLS, _RASTER_OBSTACLES
 
@@ -37,6 +38,7 @@ class _Problem(_LPMixin):
         self.obst_halo = hl[obst].copy()  # and their halos (left, bottom, right, top)
         self.blk = np.asarray(macro_keepouts(design), dtype=np.float64).reshape(-1, 4)
         self.area = (self.w + self.l + self.r) * (self.h + self.b + self.t)
+        self._blk_maps: dict[tuple, np.ndarray] = {}  # see _blockage_map
         self._bounds()
 
     # --- grid <-> µm ---------------------------------------------------------------------
@@ -209,7 +211,7 @@ class _Problem(_LPMixin):
         per (size, box) while the maps together hold at most :data:`_RASTER_CELLS` points."""
         key = (float(self.w[i]), float(self.h[i]), float(self.kx0[i]), float(self.kx1[i]),
                float(self.ky0[i]), float(self.ky1[i]))
-        cache = self.__dict__.setdefault("_blk_maps", {})
+        cache = self._blk_maps
         if key not in cache:
             zero = np.zeros(len(self.blk))
             m = self._forbidden(i, self.blk, (zero, zero, zero, zero))
@@ -235,16 +237,7 @@ class _Problem(_LPMixin):
         kl -= ((org + kl * pitch) + size) + padhi > obs[:, :2]
         lo = np.maximum(kl + 1, [kx0, ky0]).astype(np.int64) - [kx0, ky0]
         hi = np.minimum(kr, [kx1 + 1, ky1 + 1]).astype(np.int64) - [kx0, ky0]  # exclusive
-        ok = (hi > lo).all(axis=1)
-        lo, hi = lo[ok], hi[ok]
-        nx, ny = kx1 - kx0 + 1, ky1 - ky0 + 1
-        size_ = (nx + 1) * (ny + 1)
-        flat = np.concatenate([lo[:, 0] * (ny + 1) + lo[:, 1], hi[:, 0] * (ny + 1) + hi[:, 1],
-                               hi[:, 0] * (ny + 1) + lo[:, 1], lo[:, 0] * (ny + 1) + hi[:, 1]])
-        sign = np.repeat(np.array([1, 1, -1, -1], np.int32), len(lo))
-        diff = np.bincount(flat, weights=sign, minlength=size_).astype(np.int32)
-        diff = diff.reshape(nx + 1, ny + 1)
-        return np.cumsum(np.cumsum(diff, axis=0), axis=1)[:nx, :ny] != 0
+        return covered_cells(lo, hi, (kx1 - kx0 + 1, ky1 - ky0 + 1))
 
     def _first_free(self, i, tx, ty, kxs, kys, obs, pads):
         """Nearest point of the candidate grid ``kxs x kys`` whose box is free of ``obs``:
