@@ -291,6 +291,10 @@ def _run(args) -> int:
                 fp = assign_pins_iterated(design, design.initial, rounds=1, **opts)
             else:
                 fp = place(design, **opts)
+        except DesignError as e:  # the input cannot be placed as asked: name the input file
+            if e.file is not None:
+                raise
+            raise type(e)(e.message, file=args.file) from None
         finally:
             bar.close()
         save(design, fp, args.output)

@@ -121,6 +121,34 @@ def small():
                                                          c[0] + w / 2, c[1] + h / 2]
 
 
+def test_cli_fence_too_small_names_the_file_and_the_fence(tmp_path, capsys):
+    # a fence of 0.4 x 2 µm for two 0.6 µm inverters: refused at place time; the CLI line
+    # names the input file and the fence, exits 2 and writes nothing
+    from floorwidget.cli import main
+
+    p = _def(tmp_path)
+    p.write_text(p.read_text().replace("- ra ( 0 0 ) ( 40000 20000 )", "- ra ( 0 0 ) ( 400 2000 )"))
+    out = tmp_path / "out.def"
+    args = ["place", str(p), "-o", str(out)] + [a for lef in LEFS for a in ("--lef", str(lef))]
+    assert main(args) == 2
+    err = capsys.readouterr().err.strip()
+    assert "\n" not in err and err.startswith(f"floorwidget: error: {p}: ") and "'ra'" in err
+    assert not out.exists()
+
+
+def test_whole_core_blockage_reads_in_areas(small):
+    # a blockage over the whole core leaves no free area: the figure is 0 µm², not a
+    # percentage of nothing (it read "movable area is 53981135036813248.0 %")
+    d, _, _ = small
+    s = Session(d)
+    s.add_blockage(d.core)
+    fp = s.floorplan
+    with pytest.raises(DesignError, match=r"movable blocks need [0-9.e+]+ µm² but the core "
+                                          r"of [0-9.e+]+ µm² has 0 µm² left free") as e:
+        s.place()
+    assert "%" not in str(e.value) and s.floorplan is fp
+
+
 def test_json_overlapping_fences_are_refused(small, tmp_path):
     d, a, b = small
     s = Session(d)

@@ -36,7 +36,7 @@ from hypothesis import strategies as st
 from session_script_check import script_is_data_only
 
 import floorwidget as fw
-from floorwidget.design import MOVABLE, Design, DesignError
+from floorwidget.design import FENCE, MOVABLE, Design, DesignError
 from floorwidget.formats._io import read_text
 from floorwidget.formats.bookshelf import read_aux
 from floorwidget.session import ACTIONS, Session
@@ -395,12 +395,15 @@ def _edit_args(op: str, rnd, n_blockages: int) -> list:
 
 
 @fuzz("session_edits")
-@given(edits=EDITS)
-def test_session_constraint_edits(tiny_design, tmp_path_factory, edits):
+@given(edits=EDITS, flow=st.sampled_from([None, None, None, "off", "on"]))
+def test_session_constraint_edits(tiny_design, tmp_path_factory, edits, flow):
     """Random constraint edits, two in three with good arguments, the others with one argument
     replaced by a wrong type, a hostile string or an out-of-range value: each is taken or
     refused with a DesignError or TypeError leaving the session as it was; what is taken keeps
-    the design valid, saves, loads back equal and replays as a script of literal calls only."""
+    the design valid, saves, loads back equal and replays as a script of literal calls only.
+    Two in five edited sessions are then placed (flat or multilevel flow): a floorplan whose
+    fence members lie in their fence and whose partial blockages hold their caps when the
+    cells are legal, or a one-line refusal that leaves the session as it was."""
     s = Session(tiny_design)
     COUNTS["session_edits", "mutants"] += 1
     for op, bad, seed in edits:
@@ -416,9 +419,13 @@ def test_session_constraint_edits(tiny_design, tmp_path_factory, edits):
             assert "\n" not in str(e), f"more than one line: {e!r}"
             assert s.floorplan is fp and s.log == log, f"{op} changed the session and failed"
             COUNTS["session_edits", "edits refused"] += 1
+            COUNTS["session_edits", f"{op} refused"] += 1
             continue
         COUNTS["session_edits", "edits taken"] += 1
+        COUNTS["session_edits", f"{op} taken"] += 1
         assert s.design.problems() == [], (op, args)
+    if flow is not None:
+        _place_edited(s, flow)
     p = tmp_path_factory.mktemp("edits") / "s.json"
     s.save(p)
     t = Session.load(p, design=tiny_design)
@@ -428,6 +435,42 @@ def test_session_constraint_edits(tiny_design, tmp_path_factory, edits):
     assert t.design.regions.to_list() == s.design.regions.to_list()
     assert script_is_data_only(s.script())
     COUNTS["session_edits", "accepted"] += 1
+
+
+def _place_edited(s: Session, flow: str) -> None:
+    """Place an edited session (see :func:`test_session_constraint_edits`)."""
+    from floorwidget.design import CELL
+    from floorwidget.kernels.fill import covered_share
+
+    fp, log = s.floorplan, s.log
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")
+        try:
+            with _time_limit(TIME_LIMIT):
+                s.place(multilevel=flow)
+        except DesignError as e:
+            assert "\n" not in str(e), f"more than one line: {e!r}"
+            assert s.floorplan is fp and s.log == log, "a refused place changed the session"
+            COUNTS["session_edits", "place refused"] += 1
+            return
+        except _Hang as e:
+            raise AssertionError(f"session_edits place: {e}") from None
+    COUNTS["session_edits", "placed"] += 1
+    d, rep, r = s.design, s.report, s.floorplan.rects()
+    if not rep.get("cells_legal", rep["legal"]):
+        return
+    part = d.blockage_max_density > 0
+    if part.any():
+        fill = covered_share(d.blockages[part], r[d.kind == CELL])
+        assert (fill <= d.blockage_max_density[part] + 1e-9).all(), fill
+    reg = d.regions
+    for k in np.flatnonzero(reg.kind == FENCE):  # members inside the fence's rectangles
+        fence = reg.rects_of(k)  # (which do not overlap: the areas inside them add up)
+        for m in reg.members(k):
+            lo, hi = np.maximum(r[m, :2], fence[:, :2]), np.minimum(r[m, 2:], fence[:, 2:])
+            inside = np.prod(np.clip(hi - lo, 0, None), axis=1).sum()
+            area = (r[m, 2] - r[m, 0]) * (r[m, 3] - r[m, 1])
+            assert inside >= area * (1 - 1e-9) - 1e-9, f"member {d.names[m]} outside its fence"
 
 
 def _graft(doc: dict, ops) -> None:
@@ -688,3 +731,22 @@ def test_constraints_place(constraints_seed, ops):
     if rep.get("cells_legal", rep["legal"]) and part.any():
         fill = covered_share(design.blockages[part], fp.rects()[design.kind == CELL])
         assert (fill <= design.blockage_max_density[part] + 1e-9).all(), fill
+
+
+CONSTRAINT_EDITS = ("add_blockage", "move_blockage", "set_blockage_density", "remove_blockage",
+                    "set_halo", "add_region", "remove_region", "assign_group")
+
+
+def test_every_constraint_surface_was_reached():
+    """The harness itself (it runs after the fuzz tests above, in file order): every
+    constraint edit was both taken and refused, edited sessions were placed, and the mutated
+    constraint files were both read and refused, and some of them placed."""
+    if not COUNTS["session_edits", "mutants"] or not COUNTS["constraints-place", "mutants"]:
+        pytest.skip("the fuzz tests of the constraints did not run in this session")
+    for op in CONSTRAINT_EDITS:
+        assert COUNTS["session_edits", f"{op} taken"] > 0, f"{op} never taken"
+        assert COUNTS["session_edits", f"{op} refused"] > 0, f"{op} never refused"
+    assert COUNTS["session_edits", "placed"] > 0
+    for fmt in ("constraints-json", "constraints-def"):
+        assert COUNTS[fmt, "accepted"] > 0 and COUNTS[fmt, "rejected"] > 0, fmt
+    assert COUNTS["constraints-place", "accepted"] > 0

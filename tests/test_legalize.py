@@ -333,6 +333,17 @@ def test_macro_larger_than_core_is_named():
         legalize_macros(d, d.initial)
 
 
+def test_halo_that_does_not_fit_is_named_as_the_cause():
+    # a 50 µm macro fits the 460 µm core, but not with 300 µm halos on both sides inside the
+    # 500 µm die: the message names the macro and its halo (it read "does not fit inside the
+    # core" as if the footprint were too large)
+    d = _design((0, 0, 500, 500), [50.0, 40.0], [50.0, 40.0], x=[100.0, 300.0], y=[100.0, 0.0],
+                core=(20, 20, 480, 480), halo=np.array([[300.0, 0, 300.0, 0], [0, 0, 0, 0]]))
+    with pytest.raises(PlacementError, match=r"macro 'm0' .* with its halo \(left, bottom, right, "
+                                             r"top 300, 0, 300, 0 µm\) .* shrink the halo"):
+        legalize_macros(d, d.initial)
+
+
 def test_macro_that_fits_nowhere_is_named():
     # two pinned macros leave a 60 µm gap; a 70 µm-wide movable macro cannot fit anywhere
     d = _design((0, 0, 300, 100), [120.0, 120.0, 70.0], [100.0, 100.0, 20.0],
@@ -580,3 +591,140 @@ def test_nearest_spot_on_the_map_agrees_with_the_window_search(seed, monkeypatch
         foot = shapely.box(prob.gx(b[0]), prob.gy(b[1]), prob.gx(b[0]) + prob.w[i],
                    prob.gy(b[1]) + prob.h[i])
         assert all(foot.intersection(shapely.box(*r)).area == 0 for r in blk)
+
+
+# ---------------------------------------------------------------------------------------------
+# many small blockages (hardening): the packer's cover and the greedy's map kept per size
+
+
+def _scattered(rng, n: int, box) -> np.ndarray:
+    """``n`` small blockages (0.2-2 µm sides) scattered over ``box``."""
+    lo = rng.uniform(box[:2], np.subtract(box[2:], 2.0), (n, 2))
+    return np.concatenate([lo, lo + rng.uniform(0.2, 2.0, (n, 2))], axis=1)
+
+
+def _union(r: np.ndarray):
+    return shapely.union_all(shapely.box(*np.asarray(r).T))
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_blockage_cover_contains_every_blockage_and_keeps_room(seed):
+    # the cover must contain the blockages inside the core (shapely's difference area is 0),
+    # stay inside the core, be disjoint (its area is its union's), hold at most `limit`
+    # rectangles, and leave the free right part of the core free
+    from floorwidget.placer.legalize.coarse import blockage_cover
+
+    rng = np.random.default_rng(seed)
+    core = np.array([0.0, 0.0, 200.0, 120.0])
+    blk = _scattered(rng, 3000, [-5.0, -5.0, 100.0, 125.0])  # some reach out of the core
+    limit = 40 + 20 * seed
+    cover = blockage_cover(blk, core, limit, 0.5)
+    assert 0 < len(cover) <= limit
+    assert (cover[:, :2] >= core[:2]).all() and (cover[:, 2:] <= core[2:]).all()
+    inside = shapely.intersection(_union(blk), shapely.box(*core))
+    assert shapely.difference(inside, _union(cover)).area == 0.0
+    assert _union(cover).area == pytest.approx(float(shapely.area(shapely.box(*cover.T)).sum()))
+    assert shapely.intersection(_union(cover), shapely.box(150.0, 0.0, 200.0, 120.0)).area == 0
+    few = blk[:limit]  # few enough: the blockages themselves, clipped to the core
+    got = blockage_cover(few, core, limit, 0.5)
+    clipped = np.concatenate([np.maximum(few[:, :2], 0.0), np.minimum(few[:, 2:], core[2:])], 1)
+    ok = (clipped[:, 2] > clipped[:, 0]) & (clipped[:, 3] > clipped[:, 1])
+    assert np.array_equal(got, clipped[ok])
+
+
+def test_cells_to_rects_covers_a_mask_exactly_once():
+    from floorwidget.placer.legalize.coarse import _cells_to_rects
+
+    rng = np.random.default_rng(7)
+    for density in (0.1, 0.5, 0.9):
+        mask = rng.random((37, 53)) < density
+        mask[5:20, 10:30] = True  # a block that the vertical join must merge
+        count = np.zeros(mask.shape, int)
+        for x0, y0, x1, y1 in _cells_to_rects(mask):
+            count[y0:y1, x0:x1] += 1
+        assert np.array_equal(count, mask.astype(int))
+
+
+def _many_blockages_design(n_mac: int, n_blk: int, seed: int = 0):
+    """Macros of three sizes aimed at random spots; ``n_blk`` small blockages over the left
+    half of a 200 x 100 µm core, the right half free (room for every macro)."""
+    rng = np.random.default_rng(seed)
+    w = rng.choice([6.0, 8.0, 10.0], n_mac)
+    h = rng.choice([4.0, 6.0], n_mac)
+    x, y = rng.uniform(0, 190, n_mac), rng.uniform(0, 94, n_mac)
+    blk = _scattered(rng, n_blk, [0.0, 0.0, 100.0, 100.0])
+    return _design((0, 0, 200, 100), w, h, x=np.round(x), y=np.round(y), pitch=(1.0, 1.0),
+                   blockages=blk, halo=np.full((n_mac, 4), 0.5))
+
+
+def test_packer_sees_few_obstacles_for_many_blockages():
+    # 60 macros against 20,000 blockages: the bound tables were four 20,000 x 60 float64
+    # arrays (and more temporaries), about 60 MB, and every annealing move compared each
+    # macro with each blockage; with the cover they hold at most _PACK_OBSTACLES rows
+    import tracemalloc
+
+    from floorwidget.placer.legalize import problem as P
+    from floorwidget.placer.legalize.packer import _Packer
+    from floorwidget.placer.legalize.tuning import _PACK_OBSTACLES
+
+    d = _many_blockages_design(60, 20_000)
+    prob = P._Problem(d, d.initial, np.ones(d.num_blocks, bool))
+    tracemalloc.start()
+    try:
+        pk = _Packer(prob)
+        peak = tracemalloc.get_traced_memory()[1]
+    finally:
+        tracemalloc.stop()
+    assert 0 < pk.covered <= pk.m <= _PACK_OBSTACLES
+    assert peak < 16 << 20
+
+
+def test_packing_against_the_cover_is_legal_against_the_blockages(monkeypatch):
+    # force the sequence-pair fallback (the greedy search "fails" on its second macro) on
+    # 5,000 blockages: the packing is made against the cover, checked against every blockage
+    from floorwidget.placer.legalize import problem as P
+
+    d = _many_blockages_design(12, 5000, seed=1)
+    greedy = P._Problem.place_greedy
+    monkeypatch.setattr(P._Problem, "place_greedy", lambda self, order, *a: (
+        *greedy(self, order, *a)[:2], int(order[1])))
+    out = legalize_macros(d, d.initial, lp=False, pack_moves=50_000, local=False)
+    assert out.info["legalize_mode"] == "full"
+    _assert_legal(d, out, d.initial)
+    assert (out.x >= 100.0).all()  # no macro between the blockages (none fits there)
+
+
+@pytest.mark.parametrize("seed", range(3))
+def test_map_kept_per_size_agrees_with_the_window_search_among_macros(seed, monkeypatch):
+    # pinned macros with halos and 600 blockages: the map (blockages kept per macro size,
+    # the macros added per call) and the exact window search find a free spot at the same
+    # distance, for every macro and two targets each (the second call reuses the map)
+    # [d.initial.rects() is in block order: the four pinned macros first]
+    from floorwidget.placer.legalize import problem as P
+
+    rng = np.random.default_rng(seed)
+    n = 8
+    w, h = rng.choice([6.0, 9.0], n), rng.choice([5.0, 7.0], n)
+    status = np.where(np.arange(n) < 4, PINNED, MOVABLE)
+    d = _design((0, 0, 200, 100), w, h, x=rng.uniform(0, 190, n).round(),
+                y=rng.uniform(0, 90, n).round(), status=status,
+                halo=rng.uniform(0, 2, (n, 4)).round(1),
+                blockages=_scattered(rng, 600, [0.0, 0.0, 200.0, 100.0]))
+    prob = P._Problem(d, d.initial, status == MOVABLE)
+    obs, halo, is_blk = prob.obstacles()
+    assert (~is_blk).sum() == 4
+    pinned = d.initial.rects()[:4]
+    for i in range(len(prob.idx)):
+        # a target on a pinned macro (the halos decide) and one anywhere
+        for tx, ty in (pinned[i, :2] + rng.uniform(-2, 2, 2), rng.uniform(0, 190, 2)):
+            monkeypatch.setattr(P, "_RASTER_OBSTACLES", 10**9)
+            a = prob.nearest_spot(i, tx, ty, obs, halo, is_blk)
+            monkeypatch.setattr(P, "_RASTER_OBSTACLES", 0)
+            b = prob.nearest_spot(i, tx, ty, obs, halo, is_blk)
+            assert (a is None) == (b is None)
+            if a is not None:
+                da = (prob.gx(a[0]) - tx) ** 2 + (prob.gy(a[1]) - ty) ** 2
+                db = (prob.gx(b[0]) - tx) ** 2 + (prob.gy(b[1]) - ty) ** 2
+                assert db == pytest.approx(da, rel=1e-12, abs=1e-9)
+    sizes = set(zip(prob.w, prob.h, prob.kx0, prob.kx1, prob.ky0, prob.ky1))
+    assert len(prob._blk_maps) == len(sizes) < len(prob.idx) * 2

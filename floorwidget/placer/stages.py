@@ -330,8 +330,16 @@ def fitting_target(design: Design, fp: Floorplan, target: float) -> float:
     if u <= target:
         return target
     if u > 1.0 + 1e-9:
-        raise PlacementError(f"design {design.name!r}: movable area is {u:.1%} of the free core "
-                             "area; it cannot fit even at target density 1.0")
+        movable = (fp.status == MOVABLE) & (design.kind != TERMINAL)
+        need = float(np.sum(design.width[movable] * design.height[movable]))
+        c = design.core
+        free = need / u if u < 1e9 else 0.0  # (round-off of a core all but blocked reads 0)
+        share = f" (utilisation {u:.1%})" if u < 100.0 else ""  # (no 5e16 % when all blocked)
+        raise PlacementError(f"design {design.name!r}: movable blocks need {need:.6g} µm² but "
+                             f"the core of {(c[2] - c[0]) * (c[3] - c[1]):.6g} µm² has "
+                             f"{free:.6g} µm² left free by placement blockages "
+                             f"and fixed or pinned blocks{share}; it cannot fit even at target "
+                             "density 1.0")
     used = min(1.0, u + TARGET_MARGIN)
     warnings.warn(f"design {design.name!r}: utilisation {u:.3f} exceeds target_density "
                   f"{target:g}; placing at {used:.3f}", PlacementWarning, stacklevel=4)

@@ -36,9 +36,10 @@ Method
    clear of each obstacle (the edges of its configuration-space rectangle), which contains the
    nearest free point (moving a coordinate towards the target is blocked only by an obstacle
    edge or a bound); the search runs over a window that grows until the nearest free candidate
-   lies inside it.  Largest-first greedy legalisation in the spirit of Hill's "Tetris"
-   legaliser (D. Hill, US patent 6,370,673, 2002, from memory), with the exact nearest free spot
-   in place of a row scan.
+   lies inside it (from thousands of obstacles on, on a map of the grid points, the
+   blockages' part made once per macro size).  Largest-first greedy legalisation in the
+   spirit of Hill's "Tetris" legaliser (D. Hill, US patent 6,370,673, 2002, from memory), with
+   the exact nearest free spot in place of a row scan.
 5. *LP improvement.*  Keeping the relative order found (for every pair of macros that could
    meet within a trust region, the horizontal or vertical separation they already satisfy,
    choosing the one least binding at the targets), minimise the total L1 displacement from the
@@ -62,7 +63,10 @@ Method
    annealing and its slack-driven move follow Adya, Markov, IEEE TVLSI 2003; the packing is
    the longest-path evaluation of the constraint graphs: in O(n log n) by prefix maxima as in
    the LCS evaluation of Tang, Tian, Wong, DATE 2000, when the separations depend on one macro
-   only (no halos, or equal ones), else in O(n²) with the pairwise halo separations).  The
+   only (no halos, or equal ones), else in O(n²) with the pairwise halo separations).  More
+   than a few hundred blockages take part as a cover of a few hundred rectangles containing
+   them (:mod:`.coarse`), so that memory and the cost of a move stay bounded with 100,000
+   blockages; the result is still checked against the blockages themselves.  The
    annealing is compiled with numba.  The moves are local
    and the cost carries a fading wirelength term (the HPWL of the nets touching the macros;
    their displacement when there are no nets), so the packing keeps the input's relative

@@ -42,6 +42,14 @@ def _check_capacity(prob: _Problem) -> None:
     bad = (prob.kx0 > prob.kx1) | (prob.ky0 > prob.ky1)
     if bad.any():
         i = int(np.flatnonzero(bad)[0])
+        c, d = prob.core, prob.die
+        halo = (prob.l[i], prob.b[i], prob.r[i], prob.t[i])
+        if prob.w[i] <= c[2] - c[0] and prob.h[i] <= c[3] - c[1] and any(halo):
+            raise PlacementError(  # the footprint fits: the halo is what does not
+                f"macro {names[prob.idx[i]]!r} ({prob.w[i]:g} x {prob.h[i]:g} µm in its "
+                "orientation) with its halo (left, bottom, right, top "
+                f"{', '.join(f'{v:g}' for v in halo)} µm) does not fit: its footprint must lie "
+                f"in the core {c.tolist()} and its halo in the die {d.tolist()}; shrink the halo")
         raise PlacementError(
             f"macro {names[prob.idx[i]]!r} ({prob.w[i]:g} x {prob.h[i]:g} µm in its orientation) "
             f"does not fit inside the core {prob.core.tolist()} on the placement grid")
@@ -229,5 +237,7 @@ def _full(prob: _Problem, retries: int, report, pack_moves: int | None,
             f"moves after the greedy search failed on macro {prob.design.names[prob.idx[i]]!r} "
             f"({prob.w[i]:g} x {prob.h[i]:g} µm plus halo); the macros fit by area, so this is "
             "not a proof of infeasibility: free some room (unpin macros, shrink halos or "
-            "blockages), enlarge the core, or raise pack_moves")
+            "blockages), enlarge the core, or raise pack_moves" + (
+                f" (this search saw the {len(prob.blk)} blockages as {packer.covered} covering "
+                "rectangles, slightly larger)" if packer.covered else ""))
     return prob.gx(found[0]), prob.gy(found[1])

@@ -10,10 +10,12 @@ import numpy as np
 from numba import njit
 
 from ...design import orient_offsets
+from .coarse import blockage_cover
 from .lp import _solve_axis
 from .tuning import (
     _DISP_WEIGHT,
     _EPS,
+    _PACK_OBSTACLES,
     _POLISH_PER_MACRO,
     _RUN_PER_MACRO,
     _SPREAD_MAX,
@@ -48,7 +50,7 @@ class _Packer:
     def __init__(self, prob: _Problem):
         self.prob = prob
         n = len(prob.idx)
-        boxes, halos, is_blk = prob.obstacles()
+        boxes, halos, is_blk = self._obstacles()
         self.n, self.m = n, len(boxes)
         px, py, ox, oy = prob.px, prob.py, prob.ox, prob.oy
         w, h, lf, b, r, t = prob.w, prob.h, prob.l, prob.b, prob.r, prob.t
@@ -90,15 +92,35 @@ class _Packer:
         self.gp = np.lexsort((ids, u - v))
         self.gm = np.lexsort((ids, u + v))
 
+    def _obstacles(self) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """The problem's obstacles, with more than :data:`_PACK_OBSTACLES` blockages replaced
+        by a raster cover of them (:func:`blockage_cover`, finest cell a quarter of the
+        smallest macro side); ``self.covered`` is the number of covering rectangles (0 when
+        the blockages are used as they are)."""
+        prob = self.prob
+        boxes, halos, is_blk = prob.obstacles()
+        self.covered = 0
+        if int(is_blk.sum()) <= _PACK_OBSTACLES:
+            return boxes, halos, is_blk
+        keep = ~is_blk
+        limit = max(1, _PACK_OBSTACLES - int(keep.sum()))
+        cell = 0.25 * float(min(prob.w.min(), prob.h.min())) if len(prob.w) else 1.0
+        cover = blockage_cover(boxes[is_blk], prob.core, limit, max(cell, 1e-9))
+        self.covered = len(cover)
+        return (np.concatenate([boxes[keep], cover]),
+                np.concatenate([halos[keep], np.zeros((len(cover), 4))]),
+                np.concatenate([np.zeros(int(keep.sum()), bool), np.ones(len(cover), bool)]))
+
     def budget(self) -> int:
-        """Default annealing budget: about 1.5e10 elementary steps (a move costs O(n log n)
-        with node weights, O(n²) otherwise, plus the pins of the macros' nets and the
-        obstacles), at most 10,000,000 moves -- about 20 s on one core whatever the number of
-        macros and blockages (the hardening issue's bound is 30 s)."""
+        """Default annealing budget: about 1.2e10 elementary steps (a move costs O(n log n)
+        with node weights, O(n²) otherwise, plus the pins of the macros' nets and one bound
+        per macro and obstacle), at most 10,000,000 moves -- about 15-20 s on one idle core
+        whatever the number of macros and blockages, under 30 s on a loaded one (the
+        hardening issue's bound)."""
         n = self.n
         steps = (2 * n * np.log2(n + 1) if self.node else n * n) + len(self.nets[1]) \
-            + 4 * (n + self.m)
-        return int(np.clip(1.5e10 / steps, 1000, 10_000_000))
+            + n * self.m + 4 * (n + self.m)
+        return int(np.clip(1.2e10 / steps, 1000, 10_000_000))
 
     def _nets(self):
         """The nets touching M in CSR form for :func:`_sp_pack`: ``(start, macro or -1, x, y,

@@ -8,6 +8,7 @@ import numpy as np
 from ...design import MACRO, Design, Floorplan, off_grid
 from ...kernels import rects
 from ..constraints import macro_keepouts
+from .coarse import covered_cells
 from .lp import _LPMixin
 from .tuning import _EPS, _GRID_TOL, _RASTER_CELLS, _RASTER_OBSTACLES
 
@@ -37,6 +38,7 @@ class _Problem(_LPMixin):
         self.obst_halo = hl[obst].copy()  # and their halos (left, bottom, right, top)
         self.blk = np.asarray(macro_keepouts(design), dtype=np.float64).reshape(-1, 4)
         self.area = (self.w + self.l + self.r) * (self.h + self.b + self.t)
+        self._blk_maps: dict[tuple, np.ndarray] = {}  # see _blockage_map
         self._bounds()
 
     # --- grid <-> µm ---------------------------------------------------------------------
@@ -124,6 +126,9 @@ class _Problem(_LPMixin):
             return None
         w, h = self.w[i], self.h[i]
         nb = ~obs_blk
+        if len(obs) >= _RASTER_OBSTACLES and \
+                (kx1 - kx0 + 1) * (ky1 - ky0 + 1) <= _RASTER_CELLS:
+            return self._nearest_on_map(i, tx, ty, obs, obs_halo, obs_blk)
         lp, bp, rp, tp = self.pads(i, obs_halo, nb)
         # configuration-space forbidden (open) rectangles of the lower-left corner
         fx0 = obs[:, 0] - w - rp
@@ -148,9 +153,6 @@ class _Problem(_LPMixin):
         bx = np.array([np.floor(kt[0]), np.ceil(kt[0]), kx0, kx1])
         by = np.array([np.floor(kt[1]), np.ceil(kt[1]), ky0, ky1])
         tol = 1e-6
-        if len(obs) >= _RASTER_OBSTACLES and \
-                (kx1 - kx0 + 1) * (ky1 - ky0 + 1) <= _RASTER_CELLS:
-            return self._nearest_on_map(i, tx, ty, obs, (lp, bp, rp, tp))
         while True:
             last = rad >= full
             if last:
@@ -177,13 +179,50 @@ class _Problem(_LPMixin):
             # a free spot found beyond the inscribed circle bounds the optimum's distance
             rad = rad * 2.0 if best is None else float(np.sqrt(d2)) * (1 + 1e-9) + 1e-9
 
-    def _nearest_on_map(self, i, tx, ty, obs, pads):
+    def _nearest_on_map(self, i, tx, ty, obs, obs_halo, obs_blk):
         """:meth:`nearest_spot` for many obstacles: every grid point of macro ``i``'s allowed
         box on one map, each obstacle's forbidden range of corners (open, with the exact float
-        fix-ups of the window search) added by a 2-D difference array, then the free point
+        fix-ups of the window search) marked by a 2-D difference array, then the free point
         nearest to ``(tx, ty)``.  Work and memory follow the grid points, not the candidate
         lines squared times the obstacles (which grew past minutes with thousands of small
-        blockages)."""
+        blockages).  The blockages' part of the map depends only on the macro's size and
+        allowed box, so it is made once per size (:meth:`_blockage_map`) and each call adds
+        only the macros."""
+        kx0, kx1, ky0, ky1 = (int(v) for v in (self.kx0[i], self.kx1[i], self.ky0[i],
+                                                self.ky1[i]))
+        nb = np.flatnonzero(~obs_blk)
+        if len(obs) - len(nb) == len(self.blk):  # the problem's own blockages: cached
+            blocked = self._blockage_map(i)
+        else:
+            zero = np.zeros(len(obs) - len(nb))
+            blocked = self._forbidden(i, obs[obs_blk], (zero, zero, zero, zero))
+        if len(nb):
+            pads = self.pads(i, obs_halo[nb], np.ones(len(nb), bool))
+            blocked = blocked | self._forbidden(i, obs[nb], pads)
+        fi, fj = np.nonzero(~blocked)
+        if not len(fi):
+            return None
+        d2 = (self.gx(fi + kx0) - tx) ** 2 + (self.gy(fj + ky0) - ty) ** 2
+        q = int(np.argmin(d2))
+        return float(fi[q] + kx0), float(fj[q] + ky0)
+
+    def _blockage_map(self, i) -> np.ndarray:
+        """Corners of macro ``i``'s allowed box that put its footprint on a blockage, kept
+        per (size, box) while the maps together hold at most :data:`_RASTER_CELLS` points."""
+        key = (float(self.w[i]), float(self.h[i]), float(self.kx0[i]), float(self.kx1[i]),
+               float(self.ky0[i]), float(self.ky1[i]))
+        cache = self._blk_maps
+        if key not in cache:
+            zero = np.zeros(len(self.blk))
+            m = self._forbidden(i, self.blk, (zero, zero, zero, zero))
+            while cache and sum(v.size for v in cache.values()) + m.size > _RASTER_CELLS:
+                cache.pop(next(iter(cache)))
+            cache[key] = m
+        return cache[key]
+
+    def _forbidden(self, i, obs, pads) -> np.ndarray:
+        """Boolean map over macro ``i``'s allowed box of the corners whose footprint (with the
+        facing gaps ``pads``) meets an obstacle of ``obs``."""
         lp, bp, rp, tp = pads
         kx0, kx1, ky0, ky1 = (int(v) for v in (self.kx0[i], self.kx1[i], self.ky0[i],
                                                 self.ky1[i]))
@@ -198,21 +237,7 @@ class _Problem(_LPMixin):
         kl -= ((org + kl * pitch) + size) + padhi > obs[:, :2]
         lo = np.maximum(kl + 1, [kx0, ky0]).astype(np.int64) - [kx0, ky0]
         hi = np.minimum(kr, [kx1 + 1, ky1 + 1]).astype(np.int64) - [kx0, ky0]  # exclusive
-        ok = (hi > lo).all(axis=1)
-        lo, hi = lo[ok], hi[ok]
-        nx, ny = kx1 - kx0 + 1, ky1 - ky0 + 1
-        diff = np.zeros((nx + 1, ny + 1), np.int32)
-        np.add.at(diff, (lo[:, 0], lo[:, 1]), 1)
-        np.add.at(diff, (hi[:, 0], lo[:, 1]), -1)
-        np.add.at(diff, (lo[:, 0], hi[:, 1]), -1)
-        np.add.at(diff, (hi[:, 0], hi[:, 1]), 1)
-        free = np.cumsum(np.cumsum(diff, axis=0), axis=1)[:nx, :ny] == 0
-        fi, fj = np.nonzero(free)
-        if not len(fi):
-            return None
-        d2 = (self.gx(fi + kx0) - tx) ** 2 + (self.gy(fj + ky0) - ty) ** 2
-        q = int(np.argmin(d2))
-        return float(fi[q] + kx0), float(fj[q] + ky0)
+        return covered_cells(lo, hi, (kx1 - kx0 + 1, ky1 - ky0 + 1))
 
     def _first_free(self, i, tx, ty, kxs, kys, obs, pads):
         """Nearest point of the candidate grid ``kxs x kys`` whose box is free of ``obs``:
