@@ -64,3 +64,25 @@ def test_session_refine_is_local_after_a_placement_and_replays(demo_design):
     r = ns["session"].floorplan
     np.testing.assert_array_equal(r.x, s.floorplan.x)
     np.testing.assert_array_equal(r.y, s.floorplan.y)
+
+
+def test_window_spreading_covers_the_window_not_the_core(moved):
+    """The local refine spreads its window over the window's own box (bins and obstacles of
+    that box only, so the cost follows the window)."""
+    from floorwidget.placer.flow import _window_stage
+    from floorwidget.placer.options import PlacerOptions
+    from floorwidget.placer.stages import soft_mask
+
+    d, fp, f, i = moved
+    win = refine_window(d, fp, f, np.array([i]))
+    soft = soft_mask(d, f) & win
+    assert soft.any()
+    opts = PlacerOptions()
+    st = _window_stage(d, f, soft, 0.8, opts, 1.0, True)
+    g, c = st.grid, d.core
+    assert g.nx * g.bw * g.ny * g.bh < 0.5 * (c[2] - c[0]) * (c[3] - c[1])
+    r = f.rects()[st.vars]
+    assert (r[:, 0] >= g.xlo - 1e-9).all() and (r[:, 2] <= g.xlo + g.nx * g.bw + 1e-9).all()
+    assert (r[:, 1] >= g.ylo - 1e-9).all() and (r[:, 3] <= g.ylo + g.ny * g.bh + 1e-9).all()
+    full = _window_stage(d, f, soft, 0.8, opts, 1.0, False)
+    assert full.grid.xlo == c[0] and full.grid.nx * full.grid.bw == pytest.approx(c[2] - c[0])

@@ -30,6 +30,7 @@ from typing import Any
 import numpy as np
 
 from ..design import CELL, MOVABLE, Design, Floorplan
+from .errors import PlacementError
 from .flat import place_flat
 from .legalize import legalize_macros
 from .macro_layout import channel_width, choose_layout  # noqa: F401  (choose_layout: public here)
@@ -191,8 +192,7 @@ def refine(design: Design, floorplan: Floorplan, *, target_density: float = 0.8,
         info["window_blocks"] = int(soft.sum())
     ov = 0.0
     if soft.any():
-        st = SpreadStage(design, out, soft, target, opts, mult)
-        st.check_capacity(target)
+        st = _window_stage(design, out, soft, target, opts, mult, window is not None)
         cx, cy = out.centres()
         res = st.spread(cx, cy, out.orient, opts, k0=max(opts.max_iterations // 4, 8),
                         max_it=opts.refine_iterations,
@@ -209,6 +209,31 @@ def refine(design: Design, floorplan: Floorplan, *, target_density: float = 0.8,
 
 
 WINDOW_MARGIN = 1.0  # a refine window reaches this many times the moved block's side around it
+
+
+def _window_stage(design: Design, fp: Floorplan, soft: np.ndarray, target: float, opts, mult,
+                  local: bool) -> SpreadStage:
+    """The refine's spreading problem: with ``local``, over the box of the window's objects
+    grown by a quarter of its size (the core when they do not fit in it at the target);
+    else over the core."""
+    if local:
+        r = fp.rects()[soft]
+        c = design.core
+        lo, hi = r[:, :2].min(axis=0), r[:, 2:].max(axis=0)
+        pad = 0.25 * (hi - lo) + (4.0 * float(np.median(design.row_height))
+                                  if len(design.row_height) else 0.0)
+        box = np.array([max(lo[0] - pad[0], c[0]), max(lo[1] - pad[1], c[1]),
+                        min(hi[0] + pad[0], c[2]), min(hi[1] + pad[1], c[3])])
+        if box[2] > box[0] and box[3] > box[1]:
+            st = SpreadStage(design, fp, soft, target, opts, mult, box=box)
+            try:
+                st.check_capacity(target)
+                return st
+            except PlacementError:
+                pass  # too full there: the whole core, as a full refine
+    st = SpreadStage(design, fp, soft, target, opts, mult)
+    st.check_capacity(target)
+    return st
 
 
 def _indices(design: Design, blocks) -> np.ndarray:

@@ -102,7 +102,10 @@ class SpreadStage:
     """One spreading problem: a quadratic system, its bin grid and capacity."""
 
     def __init__(self, design: Design, fp: Floorplan, var_mask: np.ndarray, target: float,
-                 opts: PlacerOptions, multiplier):
+                 opts: PlacerOptions, multiplier, box: np.ndarray | None = None):
+        """``box`` (x0, y0, x1, y1; default the core): the area the objects are spread in,
+        its bins the only ones made (a local refine's window: the cost follows the window,
+        not the core)."""
         self.design = design
         self.sys = QuadraticSystem(design, var_mask, multiplier)
         self.vars = self.sys.blocks
@@ -111,8 +114,13 @@ class SpreadStage:
         self.h = h[self.vars]
         fixed = np.ones(design.num_blocks, bool)
         fixed[self.vars] = False
-        self.grid: Grid = make_grid(design.core, self.w, self.h, opts.bin_size)
+        c = design.core if box is None else np.asarray(box, np.float64)
+        self.grid: Grid = make_grid(c, self.w, self.h, opts.bin_size)
         self.obstacles = obstacles(design, fp, fixed)
+        if box is not None:  # only what reaches into the box takes its room
+            o = self.obstacles
+            self.obstacles = o[(o[:, 0] < c[2]) & (o[:, 2] > c[0]) & (o[:, 1] < c[3])
+                               & (o[:, 3] > c[1])]
         self.cap = np.maximum(capacity_map(self.grid, target, self.obstacles)
                               - partial_capacity_loss(design, self.grid, target), 0.0)
         self.wt = density_weight(self.grid, self.w, self.h, target)
@@ -121,7 +129,6 @@ class SpreadStage:
         self.growth = (anchor_growth_for(len(self.vars)) if opts.anchor_growth is None
                        else opts.anchor_growth)
         self.area = float(np.sum(self.w * self.h * self.wt))
-        c = design.core
         self.lo_x = c[0] + self.w / 2
         self.hi_x = np.maximum(c[2] - self.w / 2, self.lo_x)
         self.lo_y = c[1] + self.h / 2
