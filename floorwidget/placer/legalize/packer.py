@@ -114,14 +114,14 @@ class _Packer:
     def budget(self) -> int:
         """Default annealing budget: about 1.5e10 elementary steps (a move costs O(n log n)
         with node weights, O(n²) otherwise, plus the pins of the macros' nets and one bound
-        per macro and obstacle, counted 1.25 times), at most 10,000,000 moves -- about 15-20 s
+        per macro and obstacle, counted 1.5 times), at most 10,000,000 moves -- about 15-20 s
         on one idle core whatever the number of macros and blockages, under 30 s on a loaded
         one (the hardening issue's bound).  The bounds' weight keeps the blockage-heavy runs
-        at 1.2e10 steps; the macro-only ones keep the full budget (GSRC n300 packs to 5.03e5
+        at about 1e10 steps; the macro-only ones keep the full budget (GSRC n300 packs to 5.03e5
         µm with it, 6.66e5 with a fifth fewer moves)."""
         n = self.n
         steps = (2 * n * np.log2(n + 1) if self.node else n * n) + len(self.nets[1]) \
-            + 1.25 * n * self.m + 4 * (n + self.m)
+            + 1.5 * n * self.m + 4 * (n + self.m)
         return int(np.clip(1.5e10 / steps, 1000, 10_000_000))
 
     def _nets(self):
