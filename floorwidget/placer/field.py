@@ -193,6 +193,80 @@ def _inflation(design: Design, fp: Floorplan, var: np.ndarray, x: np.ndarray, y:
     return np.clip(cmap[i, j] / max(level, 1e-12), 1.0, 1.5)
 
 
+def _with_fillers(core, fld: _Field, w, h, cx, cy, seed: int):
+    """The cells' centres and charges followed by the fillers': filler charges make up the
+    room between the cells and the settle density × the free area, each the size of a middle
+    cell (at least a quarter bin), dropped at random by free room.  Returns ``x, y, q``, the
+    bounds ``(lo_x, hi_x, lo_y, hi_y)`` that keep each inside the core, the filler area and
+    count."""
+    g = fld.g
+    q_cells = w * h
+    nm = len(q_cells)
+    mid = np.sort(q_cells)[int(0.1 * nm):max(int(0.9 * nm), int(0.1 * nm) + 1)]
+    f_area = max(float(mid.mean()), 0.25 * g.bin_area)  # (small fillers: many, no better)
+    nf = int(max(0.0, float(fld.cap.sum()) - float(q_cells.sum())) / f_area)
+    rng = np.random.default_rng(seed)
+    free_p = fld.cap.ravel() / max(float(fld.cap.sum()), 1e-300)
+    fb = rng.choice(g.nx * g.ny, size=nf, p=free_p) if nf else np.zeros(0, np.intp)
+    x = np.concatenate([cx, g.xlo + (fb // g.ny + rng.random(nf)) * g.bw])
+    y = np.concatenate([cy, g.ylo + (fb % g.ny + rng.random(nf)) * g.bh])
+    q = np.concatenate([q_cells, np.full(nf, f_area)])
+    fs = np.sqrt(f_area)
+    c = core
+    lo_x = np.concatenate([c[0] + w / 2, np.full(nf, c[0] + fs / 2)])
+    hi_x = np.maximum(np.concatenate([c[2] - w / 2, np.full(nf, c[2] - fs / 2)]), lo_x)
+    lo_y = np.concatenate([c[1] + h / 2, np.full(nf, c[1] + fs / 2)])
+    hi_y = np.maximum(np.concatenate([c[3] - h / 2, np.full(nf, c[3] - fs / 2)]), lo_y)
+    return x, y, q, (lo_x, hi_x, lo_y, hi_y), f_area, nf
+
+
+def _grow(infl: np.ndarray, most: float, q: np.ndarray, q_cells: np.ndarray, room: float,
+          f_area: float) -> np.ndarray:
+    """Inflation factors ``infl`` capped at ``most`` and at what fits ``0.97 × room`` (the
+    extra shrunk in proportion); the cells' charges in ``q`` grow by them and the fillers'
+    (the rest of ``q``) shrink so that the total stays ``room``.  Returns the factors."""
+    nm = len(q_cells)
+    infl = np.minimum(infl, most)
+    extra = float(np.sum(q_cells * (infl - 1.0)))
+    spare = 0.97 * room - float(q_cells.sum())
+    if extra > spare:  # the inflated area must fit
+        infl = 1.0 + (infl - 1.0) * max(spare, 0.0) / max(extra, 1e-300)
+    q[:nm] = q_cells * infl
+    nf = len(q) - nm
+    q[nm:] = f_area * max(room - float(q[:nm].sum()), 0.0) / max(nf * f_area, 1e-300)
+    return infl
+
+
+def _pin_model(design: Design, fp: Floorplan, var_mask: np.ndarray, multiplier, nf: int):
+    """The nets of the moving cells for the wirelength: their topology, the raw net weights,
+    the moving object of each pin (-1 for a fixed pin), a function giving every pin's position
+    from the objects' centres, and each object's pin count (fillers: none)."""
+    var = np.flatnonzero(var_mask)
+    nm = len(var)
+    cx, cy = fp.centres()
+    topo = NetTopology.from_design(design, multiplier, only=var_mask)
+    deg = np.diff(topo.start)
+    wnet = topo.weight * (deg - 1) / 2.0  # the raw net weight (times the multiplier)
+    slot = np.full(design.num_blocks, -1)
+    slot[var] = np.arange(nm)
+    pv = slot[topo.block]
+    on = pv >= 0
+    ox, oy = orient_offsets(design.pin_dx[topo.pin], design.pin_dy[topo.pin],
+                            fp.orient[topo.block])
+    base_x = np.where(on, 0.0, cx[topo.block]) + ox
+    base_y = np.where(on, 0.0, cy[topo.block]) + oy
+    pvo = pv[on]
+    npins = np.concatenate([np.bincount(pvo, minlength=nm).astype(np.float64), np.zeros(nf)])
+
+    def pins(x, y):
+        px, py = base_x.copy(), base_y.copy()
+        px[on] += x[pvo]
+        py[on] += y[pvo]
+        return px, py
+
+    return topo, wnet, pv, pins, npins
+
+
 def field_spread(design: Design, fp: Floorplan, var_mask: np.ndarray, density: float,
                  multiplier=1.0, progress: Progress = None, stage: str = "field",
                  seed: int = 0, inflate: tuple[float, float] | None = None) -> dict:
@@ -225,42 +299,10 @@ def field_spread(design: Design, fp: Floorplan, var_mask: np.ndarray, density: f
     density = max(density, min(1.0, mov_area / max(full, 1e-300) + TARGET_MARGIN))
     fld.settle(density)
     g = fld.g
-    # fillers: the room between the cells and density x the free area
-    mid = np.sort(q_cells)[int(0.1 * nm):max(int(0.9 * nm), int(0.1 * nm) + 1)]
-    f_area = max(float(mid.mean()), 0.25 * g.bin_area)  # (small fillers: many, no better)
-    nf = int(max(0.0, float(fld.cap.sum()) - mov_area) / f_area)
-    rng = np.random.default_rng(seed)
-    free_p = fld.cap.ravel() / max(float(fld.cap.sum()), 1e-300)
-    fb = rng.choice(g.nx * g.ny, size=nf, p=free_p) if nf else np.zeros(0, np.intp)
-    x = np.concatenate([cx[var], g.xlo + (fb // g.ny + rng.random(nf)) * g.bw])
-    y = np.concatenate([cy[var], g.ylo + (fb % g.ny + rng.random(nf)) * g.bh])
-    q = np.concatenate([q_cells, np.full(nf, f_area)])
-    fs = np.sqrt(f_area)
-    c = design.core
-    lo_x = np.concatenate([c[0] + w[var] / 2, np.full(nf, c[0] + fs / 2)])
-    hi_x = np.maximum(np.concatenate([c[2] - w[var] / 2, np.full(nf, c[2] - fs / 2)]), lo_x)
-    lo_y = np.concatenate([c[1] + h[var] / 2, np.full(nf, c[1] + fs / 2)])
-    hi_y = np.maximum(np.concatenate([c[3] - h[var] / 2, np.full(nf, c[3] - fs / 2)]), lo_y)
+    x, y, q, (lo_x, hi_x, lo_y, hi_y), f_area, nf = _with_fillers(
+        design.core, fld, w[var], h[var], cx[var], cy[var], seed)
 
-    topo = NetTopology.from_design(design, multiplier, only=var_mask)
-    deg = np.diff(topo.start)
-    wnet = topo.weight * (deg - 1) / 2.0  # the raw net weight (times the multiplier)
-    slot = np.full(design.num_blocks, -1)
-    slot[var] = np.arange(nm)
-    pv = slot[topo.block]
-    on = pv >= 0
-    ox, oy = orient_offsets(design.pin_dx[topo.pin], design.pin_dy[topo.pin],
-                            fp.orient[topo.block])
-    base_x = np.where(on, 0.0, cx[topo.block]) + ox
-    base_y = np.where(on, 0.0, cy[topo.block]) + oy
-    pvo = pv[on]
-    npins = np.concatenate([np.bincount(pvo, minlength=nm).astype(np.float64), np.zeros(nf)])
-
-    def pins(x, y):
-        px, py = base_x.copy(), base_y.copy()
-        px[on] += x[pvo]
-        py[on] += y[pvo]
-        return px, py
+    topo, wnet, pv, pins, npins = _pin_model(design, fp, var_mask, multiplier, nf)
 
     def overflow(x, y) -> float:
         rho = fld.charge(x[:nm], y[:nm], q[:nm])
@@ -316,15 +358,9 @@ def field_spread(design: Design, fp: Floorplan, var_mask: np.ndarray, density: f
         ov = overflow(*u)
         if (inflate is not None and inflate[1] > 1.0 and rounds < INFLATE_ROUNDS
                 and ov < INFLATE_BELOW and it - last >= INFLATE_GAP):
-            infl = np.minimum(infl * _inflation(design, fp, var, u[0][:nm], u[1][:nm],
-                                                inflate[0]), inflate[1])
-            extra = float(np.sum(q_cells * (infl - 1.0)))
-            spare = 0.97 * room - float(q_cells.sum())
-            if extra > spare:  # the inflated area must fit
-                infl = 1.0 + (infl - 1.0) * max(spare, 0.0) / max(extra, 1e-300)
-            q[:nm] = q_cells * infl
+            infl = _grow(infl * _inflation(design, fp, var, u[0][:nm], u[1][:nm], inflate[0]),
+                         inflate[1], q, q_cells, room, f_area)
             mov_area = float(q[:nm].sum())
-            q[nm:] = f_area * max(room - mov_area, 0.0) / max(nf * f_area, 1e-300)
             qn = q / g.bin_area
             rounds, last, best, since = rounds + 1, it, np.inf, 0
             ov = overflow(*u)
