@@ -19,7 +19,6 @@ MAX_FUNCTION_LINES = 120
 #: quality work owns placer/field.py, detail.py and rows.py, hardening owns placer/legalize/.
 FUNCTION_ALLOWANCES = {
     ("placer/detail.py", "_global_moves"): "placement-quality work owns detail.py",
-    ("placer/detail.py", "detailed_place"): "placement-quality work owns detail.py",
     ("placer/rows.py", "_abacus"): "placement-quality work owns rows.py",
     ("placer/legalize/api.py", "legalize_macros"): "hardening work owns legalize/",
     ("placer/legalize/packer.py", "_sp_anneal"): "hardening work owns legalize/",

@@ -330,6 +330,43 @@ def _adjacent_swap(seq_start, seq, wum, bx, by, osign, N, passes):
     return total, swaps
 
 
+def _density_caps(design: Design, seg, x, y, area, target_density: float, frozen) -> tuple:
+    """The density bins a move must respect (the report's grid): usage by the cells' centres
+    ``x, y`` and areas, capacity ``target_density`` × the row segments' area less partial
+    blockages (frozen bins: no more than they hold).  ``(usage, capacity, x0, y0, bin width,
+    bin height)`` for :func:`_global_moves`."""
+    g = bin_grid(design)
+    i_, j_ = g.locate(x, y)
+    use = np.zeros(g.shape)
+    np.add.at(use, (i_, j_), area)
+    segr = np.stack([seg.x0 + seg.lo * seg.site, seg.y, seg.x0 + seg.hi * seg.site,
+                     seg.y + seg.height], axis=1)
+    cap = target_density * rect_area_map(g, segr)  # the segments hold the cells' sites too
+    cap = np.maximum(cap - partial_capacity_loss(design, g, target_density), 0.0)
+    if frozen is not None:
+        cap = np.where(frozen, np.minimum(cap, use), cap)
+    return (use, cap, g.xlo, g.ylo, g.bw, g.bh)
+
+
+def _abutting_runs(design: Design, idx: np.ndarray, bx, by, w) -> tuple[np.ndarray, np.ndarray]:
+    """The cells ``idx`` by row (y, then x) and the starts of their runs of abutting cells
+    whose widths are whole sites: the pairs :func:`_adjacent_swap` may swap."""
+    o2 = idx[np.lexsort((bx[idx], by[idx]))]
+    yl = by[o2]
+    brk = np.flatnonzero(np.diff(yl) != 0) + 1
+    # split also where cells are not abutting (a gap or an obstacle between them)
+    wl = w[o2]
+    gap = (bx[o2][1:] - wl[1:] / 2) - (bx[o2][:-1] + wl[:-1] / 2)
+    brk = np.union1d(brk, np.flatnonzero(gap > 1e-6) + 1)
+    # a cell whose width is not a whole number of sites is never swapped this way (the pair
+    # would leave the site grid)
+    sw = float(np.median(design.row_site_width)) if len(design.row_site_width) else 1.0
+    frac = np.abs(wl / sw - np.round(wl / sw)) > 1e-6
+    brk = np.union1d(brk, np.concatenate([np.flatnonzero(frac), np.flatnonzero(frac) + 1]))
+    brk = brk[(brk > 0) & (brk < len(o2))]
+    return o2, np.concatenate([[0], brk, [len(o2)]]).astype(np.int64)
+
+
 def detailed_place(design: Design, fp: Floorplan, cells: np.ndarray | None = None, *,
                    passes: int = 8, max_degree: int = 64, min_gain: float = 0.002,
                    target_density: float = 1.0, keep: np.ndarray | None = None,
@@ -424,18 +461,8 @@ def detailed_place(design: Design, fp: Floorplan, cells: np.ndarray | None = Non
     rows_by_y = np.argsort(design.row_y, kind="stable").astype(np.int64)
     order = idx[np.lexsort((bx[idx], by[idx]))]
     nbuf = 2 * int(np.diff(bnet_s).max()) + 2
-    # density bins (the report's grid): usage by cell centres, capacity = target x row area
-    g = bin_grid(design)
-    i_, j_ = g.locate(bx[idx], by[idx])
-    use = np.zeros(g.shape)
-    np.add.at(use, (i_, j_), (wsite[idx] * sw) * h[idx])
-    segr = np.stack([seg.x0 + seg.lo * seg.site, seg.y, seg.x0 + seg.hi * seg.site,
-                     seg.y + seg.height], axis=1)
-    cap = target_density * rect_area_map(g, segr)  # the segments hold the cells' sites too
-    cap = np.maximum(cap - partial_capacity_loss(design, g, target_density), 0.0)
-    if frozen is not None:
-        cap = np.where(frozen, np.minimum(cap, use), cap)
-    D = (use, cap, g.xlo, g.ylo, g.bw, g.bh)
+    D = _density_caps(design, seg, bx[idx], by[idx], (wsite[idx] * sw) * h[idx],
+                      target_density, frozen)
     hpwl0 = hpwl(design, fp)
     g1 = 0.0
     n1 = 0
@@ -448,21 +475,7 @@ def detailed_place(design: Design, fp: Floorplan, cells: np.ndarray | None = Non
         n1 += k
         if g < min_gain * max(hpwl0 - g1, 1e-12):
             break
-    # adjacent swaps within each row (cells sorted by y, then x)
-    o2 = idx[np.lexsort((bx[idx], by[idx]))]
-    yl = by[o2]
-    brk = np.flatnonzero(np.diff(yl) != 0) + 1
-    # split also where cells are not abutting (a gap or an obstacle between them)
-    wl = w[o2]
-    gap = (bx[o2][1:] - wl[1:] / 2) - (bx[o2][:-1] + wl[:-1] / 2)
-    brk = np.union1d(brk, np.flatnonzero(gap > 1e-6) + 1)
-    # a cell whose width is not a whole number of sites is never swapped this way (the pair
-    # would leave the site grid)
-    sw = float(np.median(design.row_site_width)) if len(design.row_site_width) else 1.0
-    frac = np.abs(wl / sw - np.round(wl / sw)) > 1e-6
-    brk = np.union1d(brk, np.concatenate([np.flatnonzero(frac), np.flatnonzero(frac) + 1]))
-    brk = brk[(brk > 0) & (brk < len(o2))]
-    seq_start = np.concatenate([[0], brk, [len(o2)]]).astype(np.int64)
+    o2, seq_start = _abutting_runs(design, idx, bx, by, w)
     g2, n2 = _adjacent_swap(seq_start, o2.copy(), w.astype(np.float64), bx, by, osign, N, 2)
     out.x[idx] = bx[idx] - w[idx] / 2
     out.y[idx] = by[idx] - h[idx] / 2
