@@ -20,7 +20,6 @@ MAX_FUNCTION_LINES = 120
 FUNCTION_ALLOWANCES = {
     ("placer/detail.py", "_global_moves"): "placement-quality work owns detail.py",
     ("placer/rows.py", "_abacus"): "placement-quality work owns rows.py",
-    ("placer/legalize/api.py", "legalize_macros"): "hardening work owns legalize/",
     ("placer/legalize/packer.py", "_sp_anneal"): "hardening work owns legalize/",
 }
 #: file below floorwidget/ -> why it may be longer for now (none at present).

@@ -146,9 +146,7 @@ def legalize_macros(design: Design, fp: Floorplan, *, macros: Iterable | None = 
     X. Tang, R. Tian, M. D. F. Wong, ASP-DAC 2005 (constraint-graph LP for white-space
     redistribution, from memory).
     """
-    unknown = set(options) - {"seed", "target_density"}
-    if unknown:
-        raise TypeError(f"legalize_macros() got unexpected option(s): {', '.join(sorted(unknown))}")
+    _check_options(options)
     t0 = time.perf_counter()
     report = progress or (lambda *a: None)
     move = movable_macros(design, fp, macros)
@@ -182,31 +180,44 @@ def legalize_macros(design: Design, fp: Floorplan, *, macros: Iterable | None = 
                     report("legalize", 0.6, {"stage": "lp"})
                     nx_, ny_, rounds = prob.lp_improve(nx_, ny_, lp_rounds, trust)
                     info["legalize_lp_rounds"] = rounds
-            bad, i, j = prob.violations(nx_, ny_)
-            if bad.any() or len(i):  # not expected by construction: one more repair, then fail
-                nx_, ny_ = prob.nudge(nx_, ny_)
-                bad, i, j = prob.violations(nx_, ny_)
-                if bad.any() or len(i):
-                    rx, ry = prob.repair(nx_, ny_, bad, i, j, keep_m)
-                    if rx is not None:
-                        nx_, ny_ = rx, ry
-                        bad, i, j = prob.violations(nx_, ny_)
-            if bad.any() or len(i):  # never return an illegal placement
-                k = int(np.flatnonzero(bad)[0]) if bad.any() else int(i[0])
-                raise PlacementError(f"macro {design.names[prob.idx[k]]!r} could not be "
-                                     "legalised (internal check failed)")
+            nx_, ny_ = _ensure_legal(prob, nx_, ny_, keep_m)
             out.x[prob.idx] = nx_
             out.y[prob.idx] = ny_
             dx = np.abs(nx_ - prob.x0) + np.abs(ny_ - prob.y0)
-            info["legalize_moved"] = int(((nx_ != prob.x0) | (ny_ != prob.y0)).sum())
-            info["legalize_displacement"] = float(dx.sum())
-            info["legalize_max_displacement"] = float(dx.max())
+            info.update(legalize_moved=int(((nx_ != prob.x0) | (ny_ != prob.y0)).sum()),
+                        legalize_displacement=float(dx.sum()),
+                        legalize_max_displacement=float(dx.max()))
     if design.power is not None:  # channels for the power straps (placer.straps)
         out, info["straps_blocked"] = clear_strap_channels(design, out, prob.idx)
     info["legalize_seconds"] = time.perf_counter() - t0
     out.info.update(info)
     report("legalize", 1.0, dict(info))
     return out
+
+
+def _check_options(options: dict) -> None:
+    unknown = set(options) - {"seed", "target_density"}
+    if unknown:
+        raise TypeError(f"legalize_macros() got unexpected option(s): {', '.join(sorted(unknown))}")
+
+
+def _ensure_legal(prob: _Problem, nx_: np.ndarray, ny_: np.ndarray, keep_m):
+    """``(x, y)`` checked legal: a nudge and one more repair when not (not expected by
+    construction); a PlacementError rather than ever an illegal placement."""
+    bad, i, j = prob.violations(nx_, ny_)
+    if bad.any() or len(i):
+        nx_, ny_ = prob.nudge(nx_, ny_)
+        bad, i, j = prob.violations(nx_, ny_)
+        if bad.any() or len(i):
+            rx, ry = prob.repair(nx_, ny_, bad, i, j, keep_m)
+            if rx is not None:
+                nx_, ny_ = rx, ry
+                bad, i, j = prob.violations(nx_, ny_)
+    if bad.any() or len(i):
+        k = int(np.flatnonzero(bad)[0]) if bad.any() else int(i[0])
+        raise PlacementError(f"macro {prob.design.names[prob.idx[k]]!r} could not be "
+                             "legalised (internal check failed)")
+    return nx_, ny_
 
 
 def _full(prob: _Problem, retries: int, report, pack_moves: int | None,
