@@ -169,6 +169,37 @@ def _median_target(i, N, bx, by, osign, maxdeg, buf_x, buf_y):
 
 
 @njit(cache=True)
+def _bin(v, lo, bw, n):
+    """The density bin of coordinate ``v`` (clamped to the grid)."""
+    return min(max(int((v - lo) / bw), 0), n - 1)
+
+
+@njit(cache=True)
+def _fits(D, x0, y0, x1, y1, area):
+    """Whether a cell of ``area`` moving from centre ``(x0, y0)`` to ``(x1, y1)`` keeps the
+    density bin it enters within its capacity (staying in its own bin always does)."""
+    use, cap, dx0, dy0, dbw, dbh = D
+    dnx, dny = use.shape
+    ki = _bin(x1, dx0, dbw, dnx)
+    kj = _bin(y1, dy0, dbh, dny)
+    same = ki == _bin(x0, dx0, dbw, dnx) and kj == _bin(y0, dy0, dbh, dny)
+    return same or use[ki, kj] + area <= cap[ki, kj]
+
+
+@njit(cache=True)
+def _free_run(occ, base, q, n_sites, i):
+    """The run ``[b0, e)`` of free sites (cell ``i``'s own count as free) around site ``q``
+    of the row starting at ``base`` in ``occ``."""
+    e = q
+    while e < n_sites and (occ[base + e] == -1 or occ[base + e] == i):
+        e += 1
+    b0 = q
+    while b0 > 0 and (occ[base + b0 - 1] == -1 or occ[base + b0 - 1] == i):
+        b0 -= 1
+    return b0, e
+
+
+@njit(cache=True)
 def _global_moves(cells, wsite, bx, by, hgt, osign, row_of_cell, site_of_cell, occ, row_off,
                   r_x0, r_sw, r_y, r_ns, r_sign, rows_by_y, N, maxdeg, passes, nbuf,
                   reach_rows, reach_sites, swap_reach, D):
@@ -228,20 +259,11 @@ def _global_moves(cells, wsite, bx, by, hgt, osign, row_of_cell, site_of_cell, o
                     c = occ[base + q]
                     if c == -1 or c == i:
                         # a run of free sites (the cell's own count as free)
-                        e = q
-                        while e < r_ns[r] and (occ[base + e] == -1 or occ[base + e] == i):
-                            e += 1
-                        b0 = q
-                        while b0 > 0 and (occ[base + b0 - 1] == -1 or occ[base + b0 - 1] == i):
-                            b0 -= 1
+                        b0, e = _free_run(occ, base, q, r_ns[r], i)
                         if e - b0 >= w:
                             sp = min(max(st, b0), e - w)
                             nx_ = r_x0[r] + (sp + w / 2.0) * sw
-                            ki = min(max(int((nx_ - dx0) / dbw), 0), dnx - 1)
-                            kj = min(max(int((ny_ - dy0) / dbh), 0), dny - 1)
-                            same = ki == min(max(int((bx[i] - dx0) / dbw), 0), dnx - 1) and \
-                                kj == min(max(int((by[i] - dy0) / dbh), 0), dny - 1)
-                            room = same or use[ki, kj] + wum * hgt[i] <= cap[ki, kj]
+                            room = _fits(D, bx[i], by[i], nx_, ny_, wum * hgt[i])
                             if room and not (r == r0 and sp == s0):
                                 tick += 1
                                 g = _swap_gain(i, -1, nx_, ny_, sg, 0.0, 0.0, 1.0, N, bx,
@@ -281,10 +303,9 @@ def _global_moves(cells, wsite, bx, by, hgt, osign, row_of_cell, site_of_cell, o
                 _swap_gain(i, -1, r_x0[r] + (sp + w / 2.0) * r_sw[r], r_y[r] + hgt[i] / 2,
                            r_sign[r], 0.0, 0.0, 1.0, N, bx, by, osign, stamp, tick, True)
                 a_ = wum * hgt[i]
-                use[min(max(int((bx[i] - dx0) / dbw), 0), dnx - 1),
-                    min(max(int((by[i] - dy0) / dbh), 0), dny - 1)] -= a_
-                use[min(max(int((r_x0[r] + (sp + w / 2.0) * r_sw[r] - dx0) / dbw), 0), dnx - 1),
-                    min(max(int((r_y[r] + hgt[i] / 2 - dy0) / dbh), 0), dny - 1)] += a_
+                use[_bin(bx[i], dx0, dbw, dnx), _bin(by[i], dy0, dbh, dny)] -= a_
+                use[_bin(r_x0[r] + (sp + w / 2.0) * r_sw[r], dx0, dbw, dnx),
+                    _bin(r_y[r] + hgt[i] / 2, dy0, dbh, dny)] += a_
                 for t in range(w):
                     occ[row_off[r0] + s0 + t] = -1
                 for t in range(w):

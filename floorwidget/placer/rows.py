@@ -327,7 +327,15 @@ def _abacus(order, tx, ty, wum, s_y, s_x0, s_site, s_lo, s_hi, s_left, level_y, 
         cell_ord[i] = count[s]
         count[s] += 1
         used[s] += w
-    # final sites: walk every segment's clusters from the top down
+    return cell_seg, _final_sites(cell_seg, cell_ord, count, top, c_x, c_first, c_prev, s_site,
+                                  wum), -1
+
+
+@njit(cache=True)
+def _final_sites(cell_seg, cell_ord, count, top, c_x, c_first, c_prev, s_site, wum):
+    """Every placed cell's site: each segment's clusters walked from the top down."""
+    n = len(cell_seg)
+    k = len(count)
     start = np.zeros(k + 1, np.int64)
     for s in range(k):
         start[s + 1] = start[s] + count[s]
@@ -348,7 +356,7 @@ def _abacus(order, tx, ty, wum, s_y, s_x0, s_site, s_lo, s_hi, s_left, level_y, 
                 pos += np.int64(np.ceil(wum[i] / sw - 1e-9))
             end = c_first[c]
             c = c_prev[c]
-    return cell_seg, site_of, -1
+    return site_of
 
 
 def _row_spread(design: Design, seg: RowSegments, x, y, w, h):

@@ -376,6 +376,31 @@ def _move_next_to(seq, a, b, after):  # pragma: no cover (compiled)
 
 
 @njit(cache=True)
+def _overshooter(n, kx, ky, hix, hiy, px, py):  # pragma: no cover
+    """A random macro overshooting its bound along the worse axis (``on_x``: x), drawn from
+    the annealer's random stream."""
+    vx = 0.0
+    vy = 0.0
+    for q in range(n):
+        vx += max(0.0, kx[q] - hix[q]) * px
+        vy += max(0.0, ky[q] - hiy[q]) * py
+    on_x = vx >= vy
+    cnt = 0
+    for q in range(n):
+        if (kx[q] > hix[q]) if on_x else (ky[q] > hiy[q]):
+            cnt += 1
+    pick = np.random.randint(0, cnt)
+    a = 0
+    for q in range(n):
+        if (kx[q] > hix[q]) if on_x else (ky[q] > hiy[q]):
+            if pick == 0:
+                a = q
+                break
+            pick -= 1
+    return a, on_x
+
+
+@njit(cache=True)
 def _sp_anneal(gp, gm, n, sx, sy, node, wx, wy, lbx, ubx, lby, uby, kx0, kx1, ky0, ky1, px,
                py, tx, ty,
                ns, pin_m, pin_x, pin_y, nw, ox, oy, kx, ky, hix, hiy, state, start, stop,
@@ -439,25 +464,7 @@ def _sp_anneal(gp, gm, n, sx, sy, node, wx, wy, lbx, ubx, lby, uby, kx0, kx1, ky
                     elif tm[q] == b:
                         tm[q] = a
         else:
-            vx = 0.0
-            vy = 0.0
-            for q in range(n):
-                vx += max(0.0, kx[q] - hix[q]) * px
-                vy += max(0.0, ky[q] - hiy[q]) * py
-            on_x = vx >= vy
-            # a: a random violating macro along that axis
-            cnt = 0
-            for q in range(n):
-                if (kx[q] > hix[q]) if on_x else (ky[q] > hiy[q]):
-                    cnt += 1
-            pick = np.random.randint(0, cnt)
-            a = 0
-            for q in range(n):
-                if (kx[q] > hix[q]) if on_x else (ky[q] > hiy[q]):
-                    if pick == 0:
-                        a = q
-                        break
-                    pick -= 1
+            a, on_x = _overshooter(n, kx, ky, hix, hiy, px, py)
             # b: the macro with the most room across among a few drawn near a in a sequence
             seq = tm if np.random.randint(0, 2) == 1 else tp
             qa = 0
